@@ -1,0 +1,58 @@
+# toposweep — `make help` lists the targets.
+SHELL := /bin/bash
+PYTHON ?= python3
+VENV := .venv
+PY := $(VENV)/bin/python
+export VIRTUAL_ENV := $(abspath $(VENV))
+RUST_SOURCES := $(wildcard src/*.rs src/**/*.rs) Cargo.toml
+PY_DEPS := maturin numpy xarray h5netcdf h5py matplotlib pytest hypothesis ruff scipy
+
+.DEFAULT_GOAL := help
+.PHONY: help venv build demo test test-rust test-python bench lint fmt clean
+
+help: ## list the targets
+	@grep -E '^[a-z-]+:.*## ' $(MAKEFILE_LIST) | awk -F':.*## ' '{printf "  make %-12s %s\n", $$1, $$2}'
+
+$(VENV)/.deps: pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet $(PY_DEPS)
+	touch $@
+
+venv: $(VENV)/.deps ## create .venv with the Python dependencies
+
+$(VENV)/.built: $(VENV)/.deps $(RUST_SOURCES) pyproject.toml
+	$(VENV)/bin/maturin develop --release --quiet
+	touch $@
+
+build: $(VENV)/.built ## build the Rust extension (release) into .venv
+
+demo: build ## sweep a fictional mixed-valence compound; writes demo-output/
+	$(VENV)/bin/toposweep demo --out demo-output
+
+test: test-rust test-python ## run cargo test and pytest (what CI runs)
+
+test-rust: ## Rust unit tests of the numerical kernels
+	cargo test --release --no-default-features --quiet
+
+test-python: build ## pytest, doctests included
+	$(PY) -m pytest -q tests python/toposweep --doctest-modules
+
+bench: build ## benchmarks against a plain NumPy implementation; writes benches/RESULTS.md
+	$(PY) benches/run_all.py --out benches/RESULTS.md
+
+lint: venv ## cargo fmt --check, clippy -D warnings, ruff
+	cargo fmt --check
+	cargo clippy --all-targets --no-default-features -- -D warnings
+	cargo clippy --all-targets -- -D warnings
+	$(VENV)/bin/ruff check python tests benches
+	$(VENV)/bin/ruff format --check python tests benches
+
+fmt: venv ## format Rust and Python sources
+	cargo fmt
+	$(VENV)/bin/ruff format python tests benches
+	$(VENV)/bin/ruff check --fix python tests benches
+
+clean: ## remove build products and the virtual environment
+	cargo clean
+	rm -rf $(VENV) python/toposweep/_core*.so demo-output

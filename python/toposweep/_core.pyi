@@ -1,0 +1,65 @@
+"""Type stubs of the Rust extension ``toposweep._core`` (hand-written; keep in step with
+src/python.rs)."""
+
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+__version__: str
+
+class CoreModel:
+    """A model as the core sees it: a hopping list or a Python callable."""
+
+    @staticmethod
+    def tight_binding(
+        dim: int,
+        norb: int,
+        nterms: int,
+        r: NDArray[np.int64],
+        t: NDArray[np.complex128],
+        term: NDArray[np.int64],
+    ) -> CoreModel: ...
+    @staticmethod
+    def callable(
+        dim: int,
+        norb: int,
+        func: Callable[[NDArray[np.float64], int], NDArray[np.complex128]],
+    ) -> CoreModel: ...
+    @property
+    def dim(self) -> int: ...
+    @property
+    def norb(self) -> int: ...
+
+def evaluate(
+    model: CoreModel,
+    coeffs: NDArray[np.float64],
+    filling: int,
+    *,
+    inversion: NDArray[np.complex128] | None = None,
+    loop_points: int,
+    lines: int,
+    max_lines: int,
+    step_limit: float,
+    gap_floor: float,
+    gap_points: int,
+    threads: int | None = None,
+) -> dict[str, NDArray[Any]]: ...
+def hamiltonian(
+    model: CoreModel, coeff: NDArray[np.float64], kappa: NDArray[np.float64]
+) -> NDArray[np.complex128]: ...
+def eigh(
+    h: NDArray[np.complex128], *, threads: int | None = None
+) -> tuple[NDArray[np.float64], NDArray[np.complex128]]: ...
+def flow(
+    model: CoreModel,
+    coeff: NDArray[np.float64],
+    filling: int,
+    plane: int,
+    loop_points: int,
+    pump: NDArray[np.float64],
+    *,
+    positions: NDArray[np.float64] | None = None,
+    threads: int | None = None,
+) -> NDArray[np.float64]: ...

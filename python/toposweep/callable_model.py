@@ -1,0 +1,160 @@
+"""Models whose Hamiltonian comes from the user's own vectorised function."""
+
+from __future__ import annotations
+
+import importlib
+import inspect
+from collections.abc import Callable, Mapping, Sequence
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from . import _core
+from .errors import ModelError
+from .model import Model, matrix_from_json
+
+__all__ = ["CallableModel"]
+
+
+class CallableModel(Model):
+    """A model defined by ``func(kappa, **params) -> H`` from another code.
+
+    ``func`` receives reduced coordinates ``kappa`` of shape ``(N, dim)`` and the parameters as
+    keyword arguments, and returns ``(N, norb, norb)`` complex Hermitian matrices. toposweep
+    calls it with large batches (all κ points of many Wilson loops at once), never per κ point.
+
+    Parameters
+    ----------
+    func : callable
+        The vectorised Hamiltonian. Keyword parameters with defaults in its signature become
+        the model's :attr:`defaults`.
+    dim, norb : int
+        Spatial dimension and number of orbitals.
+    parameters : sequence of str, optional
+        Parameter names; by default every keyword parameter of ``func`` after ``kappa``.
+    **kwargs
+        ``lattice``, ``positions``, ``time_reversal``, ``inversion``, ``energy_unit``, ``name``
+        as for :class:`TightBinding`.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from toposweep import CallableModel
+    >>> def chain(kappa, m=0.5):
+    ...     k = 2 * np.pi * kappa[:, 0]
+    ...     h = np.zeros((len(k), 2, 2), complex)
+    ...     h[:, 0, 0], h[:, 1, 1] = m + np.cos(k), -m - np.cos(k)
+    ...     return h
+    >>> model = CallableModel(chain, dim=1, norb=2)
+    >>> model.parameters, model.defaults
+    (('m',), {'m': 0.5})
+    """
+
+    def __init__(
+        self,
+        func: Callable[..., Any],
+        dim: int,
+        norb: int,
+        *,
+        parameters: Sequence[str] | None = None,
+        **kwargs: Any,
+    ) -> None:
+        if not callable(func):
+            raise ModelError(f"func must be callable, got {type(func).__name__}")
+        super().__init__(dim, norb, **kwargs)
+        self.func = func
+        sig_params = self._signature_parameters(func)
+        if parameters is None:
+            self._parameters = tuple(sig_params)
+        else:
+            self._parameters = tuple(str(p) for p in parameters)
+        self.defaults = {
+            k: float(v)
+            for k, v in sig_params.items()
+            if k in self._parameters and isinstance(v, int | float) and not isinstance(v, bool)
+        }
+        if not self.name:
+            self.name = getattr(func, "__qualname__", "callable model")
+
+    @staticmethod
+    def _signature_parameters(func: Callable[..., Any]) -> dict[str, Any]:
+        try:
+            sig = inspect.signature(func)
+        except (TypeError, ValueError):
+            return {}
+        out: dict[str, Any] = {}
+        for i, p in enumerate(sig.parameters.values()):
+            if i == 0 or p.kind in (p.VAR_POSITIONAL, p.VAR_KEYWORD):
+                continue
+            out[p.name] = None if p.default is p.empty else p.default
+        return out
+
+    @property
+    def parameters(self) -> tuple[str, ...]:
+        """Parameter names passed to ``func`` as keywords."""
+        return self._parameters
+
+    def prepare(self, points: Sequence[Mapping[str, float]]) -> tuple[Any, NDArray[np.float64]]:
+        """A core model whose callback evaluates ``func`` at the parameters of each point."""
+        pts = [dict(p) for p in points]
+        func, norb = self.func, self.norb
+
+        def evaluate(kappa: NDArray[np.float64], point: int) -> NDArray[np.complex128]:
+            h = np.asarray(func(kappa, **pts[point]))
+            if h.shape != (len(kappa), norb, norb):
+                raise ModelError(
+                    f"{self.name}: func returned shape {h.shape}, expected "
+                    f"({len(kappa)}, {norb}, {norb}) for {len(kappa)} κ points"
+                )
+            h = np.ascontiguousarray(h, dtype=np.complex128)
+            if not np.all(np.isfinite(h)):
+                raise ModelError(f"{self.name}: func returned NaN or infinity at {pts[point]}")
+            herm = np.abs(h - h.conj().transpose(0, 2, 1)).max(initial=0.0)
+            if herm > 1e-8 * max(1.0, float(np.abs(h).max(initial=0.0))):
+                raise ModelError(
+                    f"{self.name}: func returned non-Hermitian matrices (max |H − H†| = {herm:.2e})"
+                )
+            return h
+
+        core = _core.CoreModel.callable(self.dim, self.norb, evaluate)
+        return core, np.zeros((len(pts), 0))
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-able description; the function is recorded by its import path."""
+        d = self._base_dict()
+        d["kind"] = "callable"
+        d["parameters"] = list(self._parameters)
+        module = getattr(self.func, "__module__", None)
+        qualname = getattr(self.func, "__qualname__", None)
+        d["function"] = f"{module}:{qualname}" if module and qualname else repr(self.func)
+        return d
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any]) -> CallableModel:
+        """Rebuild from :meth:`to_dict` output by importing the recorded function."""
+        ref = str(d.get("function", ""))
+        module, _, qualname = ref.partition(":")
+        if not module or not qualname or "<" in qualname:
+            raise ModelError(f"cannot rebuild callable model: function {ref!r} is not importable")
+        try:
+            obj: Any = importlib.import_module(module)
+            for part in qualname.split("."):
+                obj = getattr(obj, part)
+        except (ImportError, AttributeError) as exc:
+            raise ModelError(f"cannot import model function {ref!r}: {exc}") from None
+        m = cls(
+            obj,
+            d["dim"],
+            d["norb"],
+            parameters=d.get("parameters"),
+            lattice=d.get("lattice"),
+            positions=d.get("positions"),
+            time_reversal=matrix_from_json(d.get("time_reversal")),
+            inversion=matrix_from_json(d.get("inversion")),
+            energy_unit=d.get("energy_unit", "1"),
+            name=d.get("name", ""),
+        )
+        m.defaults.update({str(k): float(v) for k, v in d.get("defaults", {}).items()})
+        m.parameter_info = {str(k): dict(v) for k, v in d.get("parameter_info", {}).items()}
+        return m

@@ -1,0 +1,45 @@
+"""Exceptions raised by toposweep.
+
+Every error caused by bad input is a :class:`ValueError` subclass (so ``except ValueError``
+works), and its message says what is wrong and how to fix it.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "ToposweepError",
+    "ModelError",
+    "SymmetryError",
+    "ParameterError",
+    "SamplingError",
+    "FillingError",
+    "StoreError",
+]
+
+
+class ToposweepError(Exception):
+    """Base class of every toposweep exception."""
+
+
+class ModelError(ToposweepError, ValueError):
+    """A model definition is inconsistent (shapes, Hermiticity, NaN/inf, lattice vectors)."""
+
+
+class SymmetryError(ModelError):
+    """A declared time-reversal or inversion operator does not hold for the Hamiltonian."""
+
+
+class ParameterError(ToposweepError, ValueError):
+    """A parameter name is unknown, missing, or has a non-finite value."""
+
+
+class SamplingError(ToposweepError, ValueError):
+    """A sampling option (``loop_points``, ``lines``, ...) is out of range."""
+
+
+class FillingError(ToposweepError, ValueError):
+    """The filling is outside 1 … norb−1 or odd although time reversal holds."""
+
+
+class StoreError(ToposweepError, ValueError):
+    """A result file is unreadable, corrupt, or belongs to a different run."""

@@ -1,0 +1,205 @@
+"""The model interface shared by :class:`TightBinding` and :class:`CallableModel`.
+
+A model knows its dimension, number of orbitals, optional symmetry operators (time reversal
+Θ = U_T K with U_T U_T* = −1, inversion P with P H(κ) P† = H(−κ)), its named parameters with
+defaults, and how to hand itself to the Rust core for a list of parameter points.
+"""
+
+from __future__ import annotations
+
+import math
+from abc import ABC, abstractmethod
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from . import _core
+from .errors import ModelError, ParameterError
+from .symmetry import as_operator, check_inversion, check_time_reversal
+
+__all__ = ["Model"]
+
+Params = Mapping[str, float]
+
+
+def matrix_to_json(m: NDArray[np.complex128] | None) -> dict[str, list[list[float]]] | None:
+    """Complex matrix → ``{"re": [[...]], "im": [[...]]}`` (JSON has no complex numbers)."""
+    if m is None:
+        return None
+    return {"re": np.real(m).tolist(), "im": np.imag(m).tolist()}
+
+
+def matrix_from_json(d: Mapping[str, Any] | None) -> NDArray[np.complex128] | None:
+    """Inverse of :func:`matrix_to_json`."""
+    if d is None:
+        return None
+    return np.asarray(d["re"], dtype=float) + 1j * np.asarray(d["im"], dtype=float)
+
+
+class Model(ABC):
+    """Common base of toposweep models; see :class:`TightBinding` and :class:`CallableModel`."""
+
+    def __init__(
+        self,
+        dim: int,
+        norb: int,
+        *,
+        lattice: ArrayLike | None = None,
+        positions: ArrayLike | None = None,
+        time_reversal: ArrayLike | None = None,
+        inversion: ArrayLike | None = None,
+        energy_unit: str = "1",
+        name: str = "",
+    ) -> None:
+        if isinstance(dim, bool) or not isinstance(dim, int | np.integer) or dim not in (1, 2, 3):
+            raise ModelError(f"dim must be 1, 2 or 3, got {dim!r}")
+        if isinstance(norb, bool) or not isinstance(norb, int | np.integer) or norb < 1:
+            raise ModelError(f"norb must be a positive integer, got {norb!r}")
+        self.dim = int(dim)
+        self.norb = int(norb)
+        self.lattice = self._real_matrix(lattice, (self.dim, self.dim), "lattice")
+        self.positions = self._real_matrix(positions, (self.norb, self.dim), "positions")
+        self.time_reversal = as_operator(time_reversal, self.norb, "time_reversal")
+        self.inversion = as_operator(inversion, self.norb, "inversion")
+        self.energy_unit = str(energy_unit)
+        self.name = str(name)
+        #: default parameter values, used for every parameter a call does not set
+        self.defaults: dict[str, float] = {}
+        #: optional ``{"long_name": ..., "units": ...}`` per parameter, for dataset coordinates
+        self.parameter_info: dict[str, dict[str, str]] = {}
+        self._symmetry_checked: set[tuple[str, ...]] = set()
+
+    @staticmethod
+    def _real_matrix(a: ArrayLike | None, shape: tuple[int, int], what: str) -> NDArray | None:
+        if a is None:
+            return None
+        try:
+            m = np.asarray(a, dtype=float)
+        except (TypeError, ValueError) as exc:
+            raise ModelError(f"{what} must be a real array of shape {shape}: {exc}") from None
+        if m.shape != shape:
+            raise ModelError(f"{what} must have shape {shape}, got {m.shape}")
+        if not np.all(np.isfinite(m)):
+            raise ModelError(f"{what} contains NaN or infinity")
+        return m
+
+    # -- parameters ---------------------------------------------------------------------------
+    @property
+    @abstractmethod
+    def parameters(self) -> tuple[str, ...]:
+        """Names of the parameters this model accepts."""
+
+    def resolve(self, params: Params | None = None) -> dict[str, float]:
+        """Full parameter dict: ``params`` on top of :attr:`defaults`, checked.
+
+        Examples
+        --------
+        >>> from toposweep import models
+        >>> m = models.bhz()
+        >>> m.resolve({"mass": -1.0})["mass"]
+        -1.0
+        """
+        given = dict(params or {})
+        known = self.parameters
+        unknown = sorted(set(given) - set(known))
+        if unknown:
+            raise ParameterError(
+                f"unknown parameter(s) {unknown} for model {self.name or type(self).__name__!r}; "
+                f"its parameters are {list(known)}"
+            )
+        out: dict[str, float] = {}
+        for name in known:
+            if name in given:
+                value = given[name]
+            elif name in self.defaults:
+                value = self.defaults[name]
+            else:
+                raise ParameterError(
+                    f"no value for parameter {name!r}: pass params={{{name!r}: ...}} "
+                    f"or set model.defaults[{name!r}]"
+                )
+            try:
+                value = float(value)
+            except (TypeError, ValueError):
+                raise ParameterError(f"parameter {name!r} must be a real number, got {value!r}") from None
+            if not math.isfinite(value):
+                raise ParameterError(f"parameter {name!r} must be finite, got {value!r}")
+            out[name] = value
+        return out
+
+    # -- Hamiltonian ----------------------------------------------------------------------------
+    def hamiltonian(self, kappa: ArrayLike, params: Params | None = None) -> NDArray[np.complex128]:
+        """H(κ) at reduced coordinates ``kappa`` (shape ``(..., dim)``).
+
+        Returns an array of shape ``(..., norb, norb)``.
+        """
+        k = np.asarray(kappa, dtype=float)
+        if k.ndim == 0 or k.shape[-1] != self.dim:
+            raise ModelError(f"kappa must have shape (..., {self.dim}), got {k.shape}")
+        if not np.all(np.isfinite(k)):
+            raise ModelError("kappa contains NaN or infinity")
+        flat = np.ascontiguousarray(k.reshape(-1, self.dim))
+        core, coeffs = self.prepare([self.resolve(params)])
+        h = _core.hamiltonian(core, np.ascontiguousarray(coeffs[0]), flat)
+        return h.reshape(*k.shape[:-1], self.norb, self.norb)
+
+    @abstractmethod
+    def prepare(self, points: Sequence[dict[str, float]]) -> tuple[Any, NDArray[np.float64]]:
+        """Core model and coefficient rows (npoints, nterms) for resolved parameter dicts."""
+
+    # -- symmetry -------------------------------------------------------------------------------
+    def check_symmetries(
+        self, params: Params | None = None, *, inversion: ArrayLike | None = None, seed: int = 7
+    ) -> None:
+        """Check the declared operators at random κ; raise :class:`SymmetryError` if one fails.
+
+        Subclasses whose Hamiltonian is linear in real parameters check each term once;
+        otherwise the check runs at ``params``.
+        """
+        p_op = as_operator(inversion, self.norb, "inversion") if inversion is not None else None
+        key = (repr(sorted(self.resolve(params).items())), repr(p_op))
+        if key in self._symmetry_checked:
+            return
+        rng = np.random.default_rng(seed)
+        kappa = rng.random((4, self.dim))
+        for label, h_plus, h_minus in self._symmetry_samples(kappa, params):
+            if self.time_reversal is not None:
+                check_time_reversal(self.time_reversal, h_plus, h_minus, label)
+            for op in (self.inversion, p_op):
+                if op is not None:
+                    check_inversion(op, h_plus, h_minus, label)
+        self._symmetry_checked.add(key)
+
+    def _symmetry_samples(self, kappa: NDArray, params: Params | None):
+        """Yield (label, H(κ), H(−κ)) pairs on which the operators are checked."""
+        yield "the Hamiltonian", self.hamiltonian(kappa, params), self.hamiltonian(-kappa, params)
+
+    # -- serialisation --------------------------------------------------------------------------
+    def _base_dict(self) -> dict[str, Any]:
+        return {
+            "dim": self.dim,
+            "norb": self.norb,
+            "name": self.name,
+            "energy_unit": self.energy_unit,
+            "lattice": None if self.lattice is None else self.lattice.tolist(),
+            "positions": None if self.positions is None else self.positions.tolist(),
+            "time_reversal": matrix_to_json(self.time_reversal),
+            "inversion": matrix_to_json(self.inversion),
+            "defaults": dict(self.defaults),
+            "parameter_info": {k: dict(v) for k, v in self.parameter_info.items()},
+        }
+
+    @abstractmethod
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-able description from which :func:`toposweep.model_from_dict` rebuilds the model."""
+
+    def describe(self, name: str) -> dict[str, str]:
+        """``long_name`` and ``units`` of a parameter (defaults: its name, the energy unit)."""
+        info = self.parameter_info.get(name, {})
+        return {"long_name": info.get("long_name", name), "units": info.get("units", self.energy_unit)}
+
+    def __repr__(self) -> str:
+        label = f" {self.name!r}" if self.name else ""
+        return f"<{type(self).__name__}{label} dim={self.dim} norb={self.norb} parameters={list(self.parameters)}>"

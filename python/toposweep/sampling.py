@@ -1,0 +1,105 @@
+"""Sampling options of the Wilson-loop engine, their defaults and their validation."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, fields
+from typing import Any
+
+from .errors import SamplingError
+
+__all__ = ["Sampling"]
+
+
+@dataclass(frozen=True)
+class Sampling:
+    """How densely the Brillouin zone is sampled.
+
+    Parameters
+    ----------
+    loop_points : int
+        κ points per Wilson loop (along the loop direction).
+    lines : int
+        Initial pump lines per half plane (pump coordinate 0 … 1/2, ends included).
+    max_lines : int
+        Cap on pump lines per half plane after adaptive insertion.
+    step_limit : float
+        Largest allowed motion of a hybrid Wannier centre between neighbouring lines, as a
+        fraction of the unit cell; larger motion inserts a line between them.
+    gap_floor : float or None
+        Direct gap below which a point counts as gapless, in the model's energy unit.
+        ``None`` uses 1e-6 × the bandwidth of the point.
+    gap_points : int
+        Points per axis of an extra uniform bulk grid (3D only) used for the gap, so gap
+        closings away from the time-reversal-invariant planes are seen. 0 disables it.
+
+    Examples
+    --------
+    >>> Sampling(loop_points=40, lines=41, max_lines=41).max_lines
+    41
+    """
+
+    loop_points: int = 32
+    lines: int = 21
+    max_lines: int = 321
+    step_limit: float = 0.08
+    gap_floor: float | None = None
+    gap_points: int = 8
+
+    def __post_init__(self) -> None:
+        for name in ("loop_points", "lines", "max_lines", "gap_points"):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not isinstance(value, int | float):
+                raise SamplingError(f"{name} must be an integer, got {value!r}")
+            if value != int(value):
+                raise SamplingError(f"{name} must be an integer, got {value!r}")
+            object.__setattr__(self, name, int(value))
+        if self.loop_points < 4:
+            raise SamplingError(f"loop_points must be at least 4, got {self.loop_points}")
+        if self.lines < 2:
+            raise SamplingError(f"lines must be at least 2, got {self.lines}")
+        if self.max_lines < self.lines:
+            raise SamplingError(
+                f"max_lines ({self.max_lines}) must be at least lines ({self.lines}); "
+                "set max_lines=lines to switch adaptive insertion off"
+            )
+        if self.gap_points < 0:
+            raise SamplingError(f"gap_points must be 0 or positive, got {self.gap_points}")
+        step = self.step_limit
+        if isinstance(step, bool) or not isinstance(step, int | float) or not 0 < step < 0.5:
+            raise SamplingError(f"step_limit must lie in (0, 0.5), got {step!r}")
+        floor = self.gap_floor
+        if floor is not None and (
+            isinstance(floor, bool)
+            or not isinstance(floor, int | float)
+            or not math.isfinite(floor)
+            or floor <= 0
+        ):
+            raise SamplingError(f"gap_floor must be a positive number or None, got {floor!r}")
+
+    @classmethod
+    def from_options(cls, **options: Any) -> Sampling:
+        """Build from keyword options, rejecting unknown names with the list of known ones.
+
+        Examples
+        --------
+        >>> Sampling.from_options(loop_points=20, gap_floor=None).loop_points
+        20
+        """
+        known = {f.name for f in fields(cls)}
+        unknown = sorted(set(options) - known)
+        if unknown:
+            raise SamplingError(
+                f"unknown sampling option(s) {unknown}; known options are {sorted(known)}"
+            )
+        return cls(**{k: v for k, v in options.items() if v is not None or k == "gap_floor"})
+
+    def as_dict(self) -> dict[str, Any]:
+        """Plain dict, for provenance attributes."""
+        return asdict(self)
+
+    def core_kwargs(self) -> dict[str, Any]:
+        """Keyword arguments for :func:`toposweep._core.evaluate`."""
+        d = self.as_dict()
+        d["gap_floor"] = -1.0 if self.gap_floor is None else float(self.gap_floor)
+        return d

@@ -1,0 +1,20 @@
+//! toposweep core: Bloch Hamiltonians on κ grids, Hermitian eigensolvers, Wilson loops,
+//! hybrid Wannier centre flow, Z2 indices, Fu–Kane parity and band gaps.
+//!
+//! Every module except `python` is a pure numerical kernel without PyO3 types, so it can be
+//! unit-tested with `cargo test --no-default-features` and benchmarked on its own.
+
+pub mod bloch;
+pub mod eigen;
+pub mod engine;
+pub mod error;
+pub mod flow;
+pub mod matrix;
+pub mod parity;
+pub mod wilson;
+
+#[cfg(feature = "python")]
+mod python;
+
+pub use error::{CoreError, CoreResult};
+pub use num_complex::Complex64 as C64;

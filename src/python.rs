@@ -1,0 +1,421 @@
+//! The Python binding: every `#[pyfunction]`/`#[pyclass]` of `toposweep._core`.
+//!
+//! All numerical work runs through [`detached`], the one place that releases the GIL, installs
+//! the requested rayon pool, catches panics and maps [`CoreError`] to Python exceptions.
+
+use crate::bloch::{BlochSource, Hoppings};
+use crate::eigen::eigh_into;
+use crate::engine::{evaluate_point, plane_flow, planes, Plane, PointResult, Sampling};
+use crate::error::{CoreError, CoreResult};
+use crate::C64;
+use numpy::ndarray::{Array1, Array2, Array3};
+use numpy::{IntoPyArray, PyReadonlyArray1, PyReadonlyArray2, PyReadonlyArray3, PyUntypedArrayMethods};
+use pyo3::exceptions::{PyArithmeticError, PyKeyboardInterrupt, PyRuntimeError, PyValueError};
+use pyo3::prelude::*;
+use pyo3::types::PyDict;
+use rayon::prelude::*;
+use std::collections::HashMap;
+use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::sync::{Arc, Mutex, OnceLock};
+
+fn to_py(e: CoreError) -> PyErr {
+    match e {
+        CoreError::InvalidInput(m) => PyValueError::new_err(m),
+        CoreError::NoConvergence(m) => PyArithmeticError::new_err(m),
+        CoreError::Interrupted => PyKeyboardInterrupt::new_err("interrupted"),
+        e @ (CoreError::Callback(_) | CoreError::Internal(_)) => PyRuntimeError::new_err(e.to_string()),
+    }
+}
+
+fn pool(threads: usize) -> CoreResult<Arc<rayon::ThreadPool>> {
+    static POOLS: OnceLock<Mutex<HashMap<usize, Arc<rayon::ThreadPool>>>> = OnceLock::new();
+    let mut map = POOLS
+        .get_or_init(|| Mutex::new(HashMap::new()))
+        .lock()
+        .map_err(|_| CoreError::Internal("thread pool cache poisoned".into()))?;
+    if let Some(p) = map.get(&threads) {
+        return Ok(p.clone());
+    }
+    let p = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .map_err(|e| CoreError::Internal(format!("cannot start {threads} threads: {e}")))?;
+    let p = Arc::new(p);
+    map.insert(threads, p.clone());
+    Ok(p)
+}
+
+/// Release the GIL, run `f` on a pool of `threads` workers (None: rayon's global pool, sized by
+/// RAYON_NUM_THREADS or the core count), and turn errors and panics into Python exceptions.
+fn detached<T, F>(py: Python<'_>, threads: Option<usize>, f: F) -> PyResult<T>
+where
+    T: Send,
+    F: FnOnce() -> CoreResult<T> + Send,
+{
+    let out = py.allow_threads(|| {
+        catch_unwind(AssertUnwindSafe(|| match threads {
+            Some(0) => Err(CoreError::InvalidInput("threads must be positive".into())),
+            Some(n) => pool(n)?.install(f),
+            None => f(),
+        }))
+    });
+    match out {
+        Ok(r) => r.map_err(to_py),
+        Err(panic) => {
+            let msg = panic
+                .downcast_ref::<String>()
+                .cloned()
+                .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
+                .unwrap_or_else(|| "unknown panic".into());
+            Err(PyRuntimeError::new_err(format!("internal error in toposweep core: {msg}")))
+        }
+    }
+}
+
+/// H(κ) from a Python function `func(kappa[(N, dim)], point) -> (N, norb, norb)`.
+struct PySource {
+    func: Py<PyAny>,
+    dim: usize,
+    norb: usize,
+    point: usize,
+    /// the first Python exception raised by `func`, re-raised unchanged after the run
+    error: Arc<Mutex<Option<PyErr>>>,
+}
+
+impl BlochSource for PySource {
+    fn dim(&self) -> usize {
+        self.dim
+    }
+    fn norb(&self) -> usize {
+        self.norb
+    }
+    fn fill(&self, kappa: &[f64], out: &mut [C64]) -> CoreResult<()> {
+        let npts = kappa.len() / self.dim;
+        let n = self.norb;
+        Python::with_gil(|py| -> CoreResult<()> {
+            let keep = |e: PyErr| {
+                let text = e.to_string();
+                if let Ok(mut slot) = self.error.lock() {
+                    slot.get_or_insert(e);
+                }
+                CoreError::Callback(text)
+            };
+            py.check_signals().map_err(|_| CoreError::Interrupted)?;
+            let k = Array2::from_shape_vec((npts, self.dim), kappa.to_vec())
+                .map_err(|e| CoreError::Internal(e.to_string()))?
+                .into_pyarray(py);
+            let res = self.func.call1(py, (k, self.point)).map_err(keep)?;
+            let arr: PyReadonlyArray3<C64> = res.extract(py).map_err(keep)?;
+            if arr.shape() != [npts, n, n] {
+                return Err(keep(PyValueError::new_err(format!(
+                    "Hamiltonian function returned shape {:?}, expected ({npts}, {n}, {n})",
+                    arr.shape()
+                ))));
+            }
+            for (o, x) in out.iter_mut().zip(arr.as_array().iter()) {
+                *o = *x;
+            }
+            Ok(())
+        })
+    }
+}
+
+/// A model as the core sees it: a hopping list, or a Python callable.
+#[pyclass(module = "toposweep._core", frozen)]
+pub struct CoreModel {
+    dim: usize,
+    norb: usize,
+    kind: Kind,
+}
+
+enum Kind {
+    Hoppings(Hoppings),
+    Callable(Py<PyAny>),
+}
+
+#[pymethods]
+impl CoreModel {
+    /// Hopping-list model: `r` (nhop, dim) int64, `t` (nhop, norb, norb) complex128, `term`
+    /// (nhop,) int64 with −1 for the fixed part.
+    #[staticmethod]
+    fn tight_binding(
+        dim: usize,
+        norb: usize,
+        nterms: usize,
+        r: PyReadonlyArray2<i64>,
+        t: PyReadonlyArray3<C64>,
+        term: PyReadonlyArray1<i64>,
+    ) -> PyResult<Self> {
+        let h = Hoppings::new(
+            dim,
+            norb,
+            nterms,
+            r.as_array().iter().copied().collect(),
+            t.as_array().iter().copied().collect(),
+            term.as_array().iter().copied().collect(),
+        )
+        .map_err(to_py)?;
+        Ok(Self { dim, norb, kind: Kind::Hoppings(h) })
+    }
+
+    /// Callable model: `func(kappa[(N, dim)], point) -> (N, norb, norb)` complex128.
+    #[staticmethod]
+    fn callable(dim: usize, norb: usize, func: Py<PyAny>) -> PyResult<Self> {
+        if !(1..=3).contains(&dim) || norb == 0 {
+            return Err(PyValueError::new_err("dim must be 1…3 and norb positive"));
+        }
+        Ok(Self { dim, norb, kind: Kind::Callable(func) })
+    }
+
+    #[getter]
+    fn dim(&self) -> usize {
+        self.dim
+    }
+    #[getter]
+    fn norb(&self) -> usize {
+        self.norb
+    }
+}
+
+impl CoreModel {
+    fn nterms(&self) -> usize {
+        match &self.kind {
+            Kind::Hoppings(h) => h.nterms,
+            Kind::Callable(_) => 0,
+        }
+    }
+
+    /// Run `f` with the Bloch source of parameter point `point` (coefficient row `coeff`).
+    fn with_source<T>(
+        &self,
+        coeff: &[f64],
+        point: usize,
+        error: &Arc<Mutex<Option<PyErr>>>,
+        f: impl FnOnce(&dyn BlochSource) -> CoreResult<T>,
+    ) -> CoreResult<T> {
+        match &self.kind {
+            Kind::Hoppings(h) => f(&h.at(coeff)?),
+            Kind::Callable(func) => {
+                let func = Python::with_gil(|py| func.clone_ref(py));
+                f(&PySource { func, dim: self.dim, norb: self.norb, point, error: error.clone() })
+            }
+        }
+    }
+}
+
+/// Re-raise a stored callback exception in preference to the generic core error.
+fn finish<T>(py: Python<'_>, r: PyResult<T>, error: &Arc<Mutex<Option<PyErr>>>) -> PyResult<T> {
+    match r {
+        Ok(v) => Ok(v),
+        Err(e) => match error.lock().ok().and_then(|mut s| s.take()) {
+            Some(orig) if !e.is_instance_of::<PyKeyboardInterrupt>(py) => Err(orig),
+            _ => Err(e),
+        },
+    }
+}
+
+fn coeff_rows(model: &CoreModel, coeffs: &PyReadonlyArray2<f64>) -> PyResult<Vec<Vec<f64>>> {
+    let a = coeffs.as_array();
+    if a.ncols() != model.nterms() {
+        return Err(PyValueError::new_err(format!(
+            "coefficient array has {} columns, the model has {} terms",
+            a.ncols(),
+            model.nterms()
+        )));
+    }
+    Ok(a.rows().into_iter().map(|r| r.to_vec()).collect())
+}
+
+fn matrix(a: &PyReadonlyArray2<C64>, n: usize, what: &str) -> PyResult<Vec<C64>> {
+    if a.shape() != [n, n] {
+        return Err(PyValueError::new_err(format!("{what} must be {n}×{n}, got {:?}", a.shape())));
+    }
+    Ok(a.as_array().iter().copied().collect())
+}
+
+/// Indices, gaps and diagnostics at every row of `coeffs` (npoints, nterms). Returns a dict
+/// of arrays whose first axis is the point.
+#[pyfunction]
+#[pyo3(signature = (model, coeffs, filling, *, inversion=None, loop_points, lines, max_lines,
+                    step_limit, gap_floor, gap_points, threads=None))]
+#[allow(clippy::too_many_arguments)]
+fn evaluate<'py>(
+    py: Python<'py>,
+    model: &CoreModel,
+    coeffs: PyReadonlyArray2<f64>,
+    filling: usize,
+    inversion: Option<PyReadonlyArray2<C64>>,
+    loop_points: usize,
+    lines: usize,
+    max_lines: usize,
+    step_limit: f64,
+    gap_floor: f64,
+    gap_points: usize,
+    threads: Option<usize>,
+) -> PyResult<Bound<'py, PyDict>> {
+    let rows = coeff_rows(model, &coeffs)?;
+    let inv = inversion.map(|p| matrix(&p, model.norb, "inversion")).transpose()?;
+    let s = Sampling { loop_points, lines, max_lines, step_limit, gap_floor, gap_points };
+    s.validate().map_err(to_py)?;
+    let error = Arc::new(Mutex::new(None));
+    let run = detached(py, threads, || {
+        rows.par_iter()
+            .enumerate()
+            .map(|(i, c)| {
+                model.with_source(c, i, &error, |src| {
+                    evaluate_point(src, filling, inv.as_deref(), &s)
+                })
+            })
+            .collect::<CoreResult<Vec<PointResult>>>()
+    });
+    let res = finish(py, run, &error)?;
+    pack(py, &res, model.dim)
+}
+
+fn pack<'py>(py: Python<'py>, res: &[PointResult], dim: usize) -> PyResult<Bound<'py, PyDict>> {
+    let np = res.len();
+    let d = PyDict::new(py);
+    let col = |f: &dyn Fn(&PointResult) -> f64| Array1::from_iter(res.iter().map(f));
+    let icol = |f: &dyn Fn(&PointResult) -> i8| Array1::from_iter(res.iter().map(f));
+    let mat3 = |f: &dyn Fn(&PointResult) -> [i8; 3]| {
+        Array2::from_shape_fn((np, 3), |(i, j)| f(&res[i])[j])
+    };
+    d.set_item("nu0", icol(&|r| r.nu0).into_pyarray(py))?;
+    d.set_item("nu", mat3(&|r| r.nu).into_pyarray(py))?;
+    d.set_item("nu0_by_axis", mat3(&|r| r.nu0_by_axis).into_pyarray(py))?;
+    d.set_item(
+        "z2_plane",
+        Array3::from_shape_fn((np, 3, 2), |(i, j, k)| res[i].z2_plane[j][k]).into_pyarray(py),
+    )?;
+    d.set_item("gap_direct", col(&|r| r.gap_direct).into_pyarray(py))?;
+    d.set_item("gap_indirect", col(&|r| r.gap_indirect).into_pyarray(py))?;
+    d.set_item("bandwidth", col(&|r| r.bandwidth).into_pyarray(py))?;
+    d.set_item("gap_floor", col(&|r| r.gap_floor).into_pyarray(py))?;
+    d.set_item("max_step", col(&|r| r.max_step).into_pyarray(py))?;
+    d.set_item("min_clearance", col(&|r| r.min_clearance).into_pyarray(py))?;
+    d.set_item(
+        "gap_kappa",
+        Array2::from_shape_fn((np, dim), |(i, j)| res[i].gap_kappa[j]).into_pyarray(py),
+    )?;
+    d.set_item("converged", Array1::from_iter(res.iter().map(|r| r.converged)).into_pyarray(py))?;
+    d.set_item("reason", Array1::from_iter(res.iter().map(|r| r.reason)).into_pyarray(py))?;
+    d.set_item(
+        "lines_used",
+        Array1::from_iter(res.iter().map(|r| r.lines_used as i32)).into_pyarray(py),
+    )?;
+    if res.iter().all(|r| r.parity.is_some()) && np > 0 {
+        let p = |i: usize| res[i].parity.as_ref().expect("checked above");
+        d.set_item("nu0_parity", Array1::from_shape_fn(np, |i| p(i).nu0).into_pyarray(py))?;
+        d.set_item("nu_parity", Array2::from_shape_fn((np, 3), |(i, j)| p(i).nu[j]).into_pyarray(py))?;
+        d.set_item("parity_reason", Array1::from_shape_fn(np, |i| p(i).reason).into_pyarray(py))?;
+        let ntrim = 1usize << dim;
+        d.set_item(
+            "odd_count",
+            Array2::from_shape_fn((np, ntrim), |(i, j)| p(i).odd_count[j]).into_pyarray(py),
+        )?;
+    }
+    Ok(d)
+}
+
+/// H(κ) for every row of `kappa` (N, dim) at one coefficient vector.
+#[pyfunction]
+fn hamiltonian<'py>(
+    py: Python<'py>,
+    model: &CoreModel,
+    coeff: PyReadonlyArray1<f64>,
+    kappa: PyReadonlyArray2<f64>,
+) -> PyResult<Bound<'py, numpy::PyArray3<C64>>> {
+    let (n, dim) = (model.norb, model.dim);
+    if kappa.shape()[1] != dim {
+        return Err(PyValueError::new_err(format!("kappa must have {dim} columns")));
+    }
+    let c: Vec<f64> = coeff.as_array().to_vec();
+    let k: Vec<f64> = kappa.as_array().iter().copied().collect();
+    let npts = kappa.shape()[0];
+    let error = Arc::new(Mutex::new(None));
+    let run = detached(py, None, || {
+        let mut out = vec![C64::new(0.0, 0.0); npts * n * n];
+        model.with_source(&c, 0, &error, |src| src.fill(&k, &mut out))?;
+        Ok(out)
+    });
+    let out = finish(py, run, &error)?;
+    let arr = Array3::from_shape_vec((npts, n, n), out).map_err(|e| PyRuntimeError::new_err(e.to_string()))?;
+    Ok(arr.into_pyarray(py))
+}
+
+/// Eigenvalues (N, n) and eigenvectors (N, n, n; column k ↔ eigenvalue k) of a batch of
+/// Hermitian matrices, in parallel.
+#[pyfunction]
+#[pyo3(signature = (h, *, threads=None))]
+fn eigh<'py>(
+    py: Python<'py>,
+    h: PyReadonlyArray3<C64>,
+    threads: Option<usize>,
+) -> PyResult<(Bound<'py, numpy::PyArray2<f64>>, Bound<'py, numpy::PyArray3<C64>>)> {
+    let sh = h.shape().to_vec();
+    if sh[1] != sh[2] {
+        return Err(PyValueError::new_err("matrices must be square"));
+    }
+    let (m, n) = (sh[0], sh[1]);
+    let data: Vec<C64> = h.as_array().iter().copied().collect();
+    let (e, v) = detached(py, threads, || {
+        let mut e = vec![0.0; m * n];
+        let mut v = vec![C64::new(0.0, 0.0); m * n * n];
+        e.par_chunks_mut(n.max(1))
+            .zip(v.par_chunks_mut((n * n).max(1)))
+            .zip(data.par_chunks((n * n).max(1)))
+            .try_for_each(|((e, v), h)| eigh_into(h, n, e, v))?;
+        Ok((e, v))
+    })?;
+    let e = Array2::from_shape_vec((m, n), e).map_err(|x| PyRuntimeError::new_err(x.to_string()))?;
+    let v = Array3::from_shape_vec((m, n, n), v).map_err(|x| PyRuntimeError::new_err(x.to_string()))?;
+    Ok((e.into_pyarray(py), v.into_pyarray(py)))
+}
+
+/// Hybrid Wannier centres (npump, filling) of one plane at fixed pump coordinates. `plane` is
+/// the index into the planes of the model (3D: 2·axis + (cut == 1/2); 2D: 0).
+#[pyfunction]
+#[pyo3(signature = (model, coeff, filling, plane, loop_points, pump, *, positions=None, threads=None))]
+#[allow(clippy::too_many_arguments)]
+fn flow<'py>(
+    py: Python<'py>,
+    model: &CoreModel,
+    coeff: PyReadonlyArray1<f64>,
+    filling: usize,
+    plane: usize,
+    loop_points: usize,
+    pump: PyReadonlyArray1<f64>,
+    positions: Option<PyReadonlyArray2<f64>>,
+    threads: Option<usize>,
+) -> PyResult<Bound<'py, numpy::PyArray2<f64>>> {
+    let all: Vec<Plane> = planes(model.dim);
+    let pl = *all
+        .get(plane)
+        .ok_or_else(|| PyValueError::new_err(format!("plane must be < {}", all.len())))?;
+    if filling == 0 || filling >= model.norb {
+        return Err(PyValueError::new_err("filling out of range"));
+    }
+    let c: Vec<f64> = coeff.as_array().to_vec();
+    let t: Vec<f64> = pump.as_array().to_vec();
+    let pos: Option<Vec<f64>> = positions.map(|p| p.as_array().iter().copied().collect());
+    let error = Arc::new(Mutex::new(None));
+    let run = detached(py, threads, || {
+        model.with_source(&c, 0, &error, |src| {
+            plane_flow(src, filling, pl, loop_points, &t, pos.as_deref())
+        })
+    });
+    let lines = finish(py, run, &error)?;
+    let arr = Array2::from_shape_fn((lines.len(), filling), |(i, j)| lines[i].centres[j]);
+    Ok(arr.into_pyarray(py))
+}
+
+#[pymodule]
+fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    m.add_class::<CoreModel>()?;
+    m.add_function(wrap_pyfunction!(evaluate, m)?)?;
+    m.add_function(wrap_pyfunction!(hamiltonian, m)?)?;
+    m.add_function(wrap_pyfunction!(eigh, m)?)?;
+    m.add_function(wrap_pyfunction!(flow, m)?)?;
+    m.add("__version__", env!("CARGO_PKG_VERSION"))?;
+    Ok(())
+}

@@ -1,0 +1,252 @@
+//! Wilson loops along straight κ lines and band-edge statistics of every sampled κ point.
+//!
+//! A line is the set κ = base + (s/L) e_axis, s = 0…L−1. The Wilson loop is the ordered
+//! product of the unitary parts of the overlaps M_s = U_s† E U_{s+1} of the occupied
+//! eigenvectors U_s, closed with U_L = U_0 (periodic gauge). E = 1 in the periodic convention;
+//! with orbital positions τ, E = diag(exp(−2πi τ_axis / L)) gives centres in the
+//! tight-binding convention. Hybrid Wannier centres are x = θ/2π mod 1 with θ = −arg λ(W)
+//! (the Berry phase, so a band on an orbital at τ has x = τ).
+
+use crate::bloch::BlochSource;
+use crate::eigen::eigh_into;
+use crate::error::{CoreError, CoreResult};
+use crate::matrix::{matmul, overlap, unitarise, unitary_phases};
+use crate::C64;
+use rayon::prelude::*;
+use std::f64::consts::TAU;
+
+/// Memory budget for the Hamiltonians of one batch of κ points.
+const BATCH_BYTES: usize = 32 << 20;
+
+/// Band-edge statistics over a set of κ points at a given filling.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BandStats {
+    /// smallest E_filling − E_{filling−1} (direct gap) and where it was found
+    pub min_direct: f64,
+    pub min_direct_at: [f64; 3],
+    /// highest occupied and lowest empty energy (indirect gap = bottom_empty − top_occ)
+    pub top_occ: f64,
+    pub bottom_empty: f64,
+    /// lowest and highest eigenvalue (for the bandwidth)
+    pub e_min: f64,
+    pub e_max: f64,
+}
+
+impl Default for BandStats {
+    fn default() -> Self {
+        Self {
+            min_direct: f64::INFINITY,
+            min_direct_at: [0.0; 3],
+            top_occ: f64::NEG_INFINITY,
+            bottom_empty: f64::INFINITY,
+            e_min: f64::INFINITY,
+            e_max: f64::NEG_INFINITY,
+        }
+    }
+}
+
+impl BandStats {
+    pub fn add(&mut self, e: &[f64], filling: usize, kappa: &[f64]) {
+        let gap = e[filling] - e[filling - 1];
+        if gap < self.min_direct {
+            self.min_direct = gap;
+            self.min_direct_at = [0.0; 3];
+            self.min_direct_at[..kappa.len()].copy_from_slice(kappa);
+        }
+        self.top_occ = self.top_occ.max(e[filling - 1]);
+        self.bottom_empty = self.bottom_empty.min(e[filling]);
+        self.e_min = self.e_min.min(e[0]);
+        self.e_max = self.e_max.max(e[e.len() - 1]);
+    }
+    pub fn merge(&mut self, o: &BandStats) {
+        if o.min_direct < self.min_direct {
+            self.min_direct = o.min_direct;
+            self.min_direct_at = o.min_direct_at;
+        }
+        self.top_occ = self.top_occ.max(o.top_occ);
+        self.bottom_empty = self.bottom_empty.min(o.bottom_empty);
+        self.e_min = self.e_min.min(o.e_min);
+        self.e_max = self.e_max.max(o.e_max);
+    }
+    pub fn indirect(&self) -> f64 {
+        self.bottom_empty - self.top_occ
+    }
+    pub fn bandwidth(&self) -> f64 {
+        self.e_max - self.e_min
+    }
+}
+
+/// One Wilson-loop line.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct LineSpec {
+    pub base: [f64; 3],
+    pub axis: usize,
+}
+
+#[derive(Clone, Debug)]
+pub struct LineResult {
+    /// hybrid Wannier centres in [0, 1), ascending
+    pub centres: Vec<f64>,
+    pub stats: BandStats,
+    /// smallest singular value of any overlap on the line (≈ 0: states change too fast)
+    pub min_singular: f64,
+}
+
+/// Evaluate many lines: H in batches from `src`, then eigenvectors and Wilson loops per line in
+/// parallel. `positions_along` (one reduced coordinate per orbital along each line's axis,
+/// indexed `[axis * norb + orbital]`) switches to the tight-binding convention.
+pub fn evaluate_lines(
+    src: &dyn BlochSource,
+    lines: &[LineSpec],
+    loop_points: usize,
+    filling: usize,
+    positions: Option<&[f64]>,
+) -> CoreResult<Vec<LineResult>> {
+    let (dim, n) = (src.dim(), src.norb());
+    let nn = n * n;
+    if loop_points < 2 {
+        return Err(CoreError::InvalidInput("loop_points must be at least 2".into()));
+    }
+    let per_line = (loop_points * nn * 16).max(1);
+    let chunk = (BATCH_BYTES / per_line).max(1);
+    let mut out = Vec::with_capacity(lines.len());
+    let mut kappa = Vec::new();
+    let mut h = Vec::new();
+    for group in lines.chunks(chunk) {
+        kappa.clear();
+        for l in group {
+            for s in 0..loop_points {
+                let mut k = l.base;
+                k[l.axis] = s as f64 / loop_points as f64;
+                kappa.extend_from_slice(&k[..dim]);
+            }
+        }
+        h.resize(group.len() * loop_points * nn, C64::new(0.0, 0.0));
+        src.fill(&kappa, &mut h)?;
+        let res: CoreResult<Vec<LineResult>> = group
+            .par_iter()
+            .enumerate()
+            .map(|(i, l)| {
+                let weight = positions.map(|p| {
+                    p[l.axis * n..(l.axis + 1) * n]
+                        .iter()
+                        .map(|&t| C64::from_polar(1.0, -TAU * t / loop_points as f64))
+                        .collect::<Vec<_>>()
+                });
+                let hl = &h[i * loop_points * nn..(i + 1) * loop_points * nn];
+                let kl = &kappa[i * loop_points * dim..(i + 1) * loop_points * dim];
+                wilson_line(hl, kl, dim, n, filling, weight.as_deref())
+            })
+            .collect();
+        out.extend(res?);
+    }
+    Ok(out)
+}
+
+/// Wilson loop of one line from its L Hamiltonians (`h`: L×n×n) at κ points `kappa` (L×dim).
+pub fn wilson_line(
+    h: &[C64],
+    kappa: &[f64],
+    dim: usize,
+    n: usize,
+    nocc: usize,
+    weight: Option<&[C64]>,
+) -> CoreResult<LineResult> {
+    let nn = n * n;
+    let l = h.len() / nn;
+    let zero = C64::new(0.0, 0.0);
+    let mut e = vec![0.0; n];
+    let mut v = vec![zero; nn];
+    let mut first = vec![zero; n * nocc];
+    let mut prev = vec![zero; n * nocc];
+    let mut cur = vec![zero; n * nocc];
+    let mut w = vec![zero; nocc * nocc];
+    let mut m = vec![zero; nocc * nocc];
+    let mut tmp = vec![zero; nocc * nocc];
+    for a in 0..nocc {
+        w[a * nocc + a] = C64::new(1.0, 0.0);
+    }
+    let mut stats = BandStats::default();
+    let mut min_singular = f64::INFINITY;
+    let mut step = |from: &[C64], to: &[C64], w: &mut Vec<C64>| -> CoreResult<f64> {
+        match weight {
+            None => overlap(from, to, n, nocc, nocc, &mut m),
+            Some(wt) => {
+                let scaled: Vec<C64> =
+                    (0..n * nocc).map(|idx| to[idx] * wt[idx / nocc]).collect();
+                overlap(from, &scaled, n, nocc, nocc, &mut m);
+            }
+        }
+        let s = unitarise(&mut m, nocc)?;
+        tmp.copy_from_slice(w);
+        matmul(&tmp, &m, w, nocc, nocc, nocc);
+        Ok(s)
+    };
+    for s in 0..l {
+        eigh_into(&h[s * nn..(s + 1) * nn], n, &mut e, &mut v)?;
+        stats.add(&e, nocc, &kappa[s * dim..(s + 1) * dim]);
+        for i in 0..n {
+            cur[i * nocc..(i + 1) * nocc].copy_from_slice(&v[i * n..i * n + nocc]);
+        }
+        if s == 0 {
+            first.copy_from_slice(&cur);
+        } else {
+            min_singular = min_singular.min(step(&prev, &cur, &mut w)?);
+        }
+        std::mem::swap(&mut prev, &mut cur);
+    }
+    min_singular = min_singular.min(step(&prev, &first, &mut w)?);
+    let mut centres: Vec<f64> = if min_singular > 0.0 {
+        unitary_phases(&w, nocc)?
+            .iter()
+            .map(|t| (-t / TAU).rem_euclid(1.0))
+            .collect()
+    } else {
+        vec![f64::NAN; nocc]
+    };
+    centres.sort_by(|a, b| a.total_cmp(b));
+    Ok(LineResult { centres, stats, min_singular })
+}
+
+/// Eigen-decomposition of isolated κ points (TRIMs, bulk gap grid): band statistics, and the
+/// occupied eigenvectors (n × nocc each) when `keep_vectors`.
+pub fn evaluate_points(
+    src: &dyn BlochSource,
+    kappa: &[f64],
+    filling: usize,
+    keep_vectors: bool,
+) -> CoreResult<(BandStats, Vec<Vec<f64>>, Vec<Vec<C64>>)> {
+    let (dim, n) = (src.dim(), src.norb());
+    let nn = n * n;
+    let npts = kappa.len() / dim;
+    let chunk = (BATCH_BYTES / (nn * 16)).max(1);
+    let mut stats = BandStats::default();
+    let mut energies = Vec::new();
+    let mut vectors = Vec::new();
+    let mut h = Vec::new();
+    for start in (0..npts).step_by(chunk) {
+        let end = (start + chunk).min(npts);
+        h.resize((end - start) * nn, C64::new(0.0, 0.0));
+        src.fill(&kappa[start * dim..end * dim], &mut h)?;
+        let res: CoreResult<Vec<(Vec<f64>, Vec<C64>)>> = h
+            .par_chunks(nn)
+            .map(|hk| {
+                let mut e = vec![0.0; n];
+                let mut v = vec![C64::new(0.0, 0.0); nn];
+                eigh_into(hk, n, &mut e, &mut v)?;
+                Ok((e, v))
+            })
+            .collect();
+        for (i, (e, v)) in res?.into_iter().enumerate() {
+            stats.add(&e, filling, &kappa[(start + i) * dim..(start + i + 1) * dim]);
+            if keep_vectors {
+                let occ: Vec<C64> = (0..n)
+                    .flat_map(|r| v[r * n..r * n + filling].to_vec())
+                    .collect();
+                vectors.push(occ);
+                energies.push(e);
+            }
+        }
+    }
+    Ok((stats, energies, vectors))
+}

@@ -1,0 +1,11 @@
+"""Shared fixtures: seeded random generators and small random models."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+
+@pytest.fixture
+def rng() -> np.random.Generator:
+    return np.random.default_rng(20261202)
