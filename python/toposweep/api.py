@@ -80,9 +80,7 @@ def invariants(
     if not isinstance(model, Model):
         raise ModelError(f"expected a toposweep model, got {type(model).__name__}")
     point = model.resolve(params)
-    req = prepare_request(
-        model, filling, inversion=inversion, sampling=sampling, params=point, threads=threads
-    )
+    req = prepare_request(model, filling, inversion=inversion, sampling=sampling, threads=threads)
     raw = run_points(req, [point])
     return build_dataset(
         model,

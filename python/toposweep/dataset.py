@@ -39,6 +39,8 @@ REASONS: dict[int, str] = {
     4: "not_converged_within_max_lines",
     5: "inversion_mixes_occupied_and_empty_states",
     6: "odd_count_of_odd_parity_kramers_states",
+    7: "inversion_not_a_symmetry_at_this_point",
+    8: "time_reversal_broken_at_this_point",
 }
 
 INDEX_FLAGS = {"flag_values": np.array([-1, 0, 1], np.int8), "flag_meanings": "undefined even odd"}

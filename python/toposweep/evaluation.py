@@ -17,7 +17,11 @@ from . import _core
 from .errors import FillingError, ModelError
 from .model import Model
 from .sampling import Sampling
-from .symmetry import as_operator, normalised_inversion
+from .symmetry import TOLERANCE, as_operator, normalised_inversion, symmetry_error
+
+#: reason codes set on the Python side (the core's codes are 0–6; see dataset.REASONS)
+REASON_INVERSION_BROKEN = 7
+REASON_TIME_REVERSAL_BROKEN = 8
 
 __all__ = ["Request", "prepare_request", "run_points"]
 
@@ -31,6 +35,8 @@ class Request:
     inversion: NDArray[np.complex128] | None
     sampling: Sampling
     threads: int | None = None
+    #: True when the inversion matrix came with the call (must then hold at every point)
+    inversion_from_call: bool = False
 
 
 def check_filling(model: Model, filling: Any) -> int:
@@ -56,10 +62,9 @@ def prepare_request(
     *,
     inversion: ArrayLike | None,
     sampling: Sampling,
-    params: dict[str, float] | None = None,
     threads: int | None = None,
 ) -> Request:
-    """Validate a run once; symmetry operators are checked numerically at ``params``."""
+    """Validate everything about a run that does not depend on the parameter point."""
     if not isinstance(model, Model):
         raise ModelError(f"expected a toposweep model, got {type(model).__name__}")
     if model.dim not in (2, 3):
@@ -70,25 +75,61 @@ def prepare_request(
             "(Θ = U_T K, U_T U_T* = −1; for spin as the slowest index U_T = iσ_y ⊗ 1)"
         )
     f = check_filling(model, filling)
-    if threads is not None and (isinstance(threads, bool) or not isinstance(threads, int) or threads < 1):
+    if threads is not None and (
+        isinstance(threads, bool) or not isinstance(threads, int) or threads < 1
+    ):
         raise ModelError(f"threads must be a positive integer or None, got {threads!r}")
-    p_call = as_operator(inversion, model.norb, "inversion") if inversion is not None else None
-    model.check_symmetries(params, inversion=p_call)
-    p = p_call if p_call is not None else model.inversion
+    explicit = inversion is not None
+    p = as_operator(inversion, model.norb, "inversion") if explicit else model.inversion
     return Request(
         model=model,
         filling=f,
         inversion=None if p is None else normalised_inversion(p),
         sampling=sampling,
         threads=threads,
+        inversion_from_call=explicit,
     )
 
 
+def _mark(raw: dict[str, NDArray], mask: NDArray[np.bool_], reason: int, *, parity: bool) -> None:
+    """Overwrite results at ``mask`` as undefined with ``reason`` (Wilson or parity part)."""
+    if parity:
+        raw["nu0_parity"][mask] = -1
+        raw["nu_parity"][mask] = -1
+        raw["parity_reason"][mask] = reason
+        raw["odd_count"][mask] = -1
+    else:
+        raw["nu0"][mask] = -1
+        raw["nu"][mask] = -1
+        raw["reason"][mask] = reason
+
+
 def run_points(req: Request, points: Sequence[dict[str, float]]) -> dict[str, NDArray]:
-    """Evaluate resolved parameter dicts in one core call; returns flat per-point arrays."""
-    core, coeffs = req.model.prepare(points)
+    """Evaluate resolved parameter dicts in one core call; returns flat per-point arrays.
+
+    Symmetries are checked at every point first. Time reversal broken at a point makes its
+    indices undefined (reason 8); broken everywhere is an error. Inversion declared by the
+    model but broken at a point leaves only the parity result undefined there (reason 7);
+    an inversion matrix passed to the call must hold at every point.
+    """
+    model = req.model
+    u_t = model.time_reversal
+    assert u_t is not None  # checked in prepare_request
+    tr_res = model.symmetry_residuals(points, u_t, "time_reversal")
+    tr_broken = tr_res > TOLERANCE
+    if tr_broken.all():
+        where = "at this parameter point" if len(points) == 1 else "at any requested point"
+        raise symmetry_error("time_reversal", float(tr_res.min()), where)
+    p_broken = np.zeros(len(points), bool)
+    if req.inversion is not None:
+        p_res = model.symmetry_residuals(points, req.inversion, "inversion")
+        p_broken = p_res > TOLERANCE
+        if req.inversion_from_call and p_broken.any():
+            i = int(np.argmax(p_res))
+            raise symmetry_error("inversion", float(p_res[i]), f"at parameters {points[i]}")
+    core, coeffs = model.prepare(points)
     inv = None if req.inversion is None else np.ascontiguousarray(req.inversion)
-    return _core.evaluate(
+    raw = _core.evaluate(
         core,
         np.ascontiguousarray(coeffs, dtype=float),
         req.filling,
@@ -96,3 +137,9 @@ def run_points(req: Request, points: Sequence[dict[str, float]]) -> dict[str, ND
         threads=req.threads,
         **req.sampling.core_kwargs(),
     )
+    if tr_broken.any():
+        _mark(raw, tr_broken, REASON_TIME_REVERSAL_BROKEN, parity=False)
+    if req.inversion is not None:
+        _mark(raw, p_broken | tr_broken, REASON_INVERSION_BROKEN, parity=True)
+        raw["parity_reason"][tr_broken] = REASON_TIME_REVERSAL_BROKEN
+    return raw

@@ -17,7 +17,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from . import _core
 from .errors import ModelError, ParameterError
-from .symmetry import as_operator, check_inversion, check_time_reversal
+from .symmetry import as_operator, symmetry_residual
 
 __all__ = ["Model"]
 
@@ -69,7 +69,6 @@ class Model(ABC):
         self.defaults: dict[str, float] = {}
         #: optional ``{"long_name": ..., "units": ...}`` per parameter, for dataset coordinates
         self.parameter_info: dict[str, dict[str, str]] = {}
-        self._symmetry_checked: set[tuple[str, ...]] = set()
 
     @staticmethod
     def _real_matrix(a: ArrayLike | None, shape: tuple[int, int], what: str) -> NDArray | None:
@@ -150,31 +149,25 @@ class Model(ABC):
         """Core model and coefficient rows (npoints, nterms) for resolved parameter dicts."""
 
     # -- symmetry -------------------------------------------------------------------------------
-    def check_symmetries(
-        self, params: Params | None = None, *, inversion: ArrayLike | None = None, seed: int = 7
-    ) -> None:
-        """Check the declared operators at random κ; raise :class:`SymmetryError` if one fails.
+    def symmetry_residuals(
+        self, points: Sequence[Mapping[str, float]], operator: NDArray[np.complex128], kind: str
+    ) -> NDArray[np.float64]:
+        """Relative residual of a symmetry at each parameter point, sampled at random κ.
 
-        Subclasses whose Hamiltonian is linear in real parameters check each term once;
-        otherwise the check runs at ``params``.
+        ``kind`` is ``"time_reversal"`` (U_T H(κ)* U_T† = H(−κ)) or ``"inversion"``
+        (P H(κ) P† = H(−κ)). The residual is max|lhs − H(−κ)| / max|H(κ)|; values near machine
+        precision mean the symmetry holds.
         """
-        p_op = as_operator(inversion, self.norb, "inversion") if inversion is not None else None
-        key = (repr(sorted(self.resolve(params).items())), repr(p_op))
-        if key in self._symmetry_checked:
-            return
-        rng = np.random.default_rng(seed)
-        kappa = rng.random((4, self.dim))
-        for label, h_plus, h_minus in self._symmetry_samples(kappa, params):
-            if self.time_reversal is not None:
-                check_time_reversal(self.time_reversal, h_plus, h_minus, label)
-            for op in (self.inversion, p_op):
-                if op is not None:
-                    check_inversion(op, h_plus, h_minus, label)
-        self._symmetry_checked.add(key)
+        kappa = self._symmetry_kappa()
+        out = np.empty(len(points))
+        for i, p in enumerate(points):
+            h = self.hamiltonian(np.concatenate([kappa, -kappa]), p)
+            hp, hm = h[: len(kappa)], h[len(kappa) :]
+            out[i] = symmetry_residual(operator, hp, hm, kind)
+        return out
 
-    def _symmetry_samples(self, kappa: NDArray, params: Params | None):
-        """Yield (label, H(κ), H(−κ)) pairs on which the operators are checked."""
-        yield "the Hamiltonian", self.hamiltonian(kappa, params), self.hamiltonian(-kappa, params)
+    def _symmetry_kappa(self) -> NDArray[np.float64]:
+        return np.random.default_rng(7).random((4, self.dim))
 
     # -- serialisation --------------------------------------------------------------------------
     def _base_dict(self) -> dict[str, Any]:

@@ -7,7 +7,13 @@ from numpy.typing import ArrayLike, NDArray
 
 from .errors import ModelError, SymmetryError
 
-__all__ = ["as_operator", "check_time_reversal", "check_inversion", "normalised_inversion"]
+__all__ = [
+    "TOLERANCE",
+    "as_operator",
+    "normalised_inversion",
+    "symmetry_error",
+    "symmetry_residual",
+]
 
 TOLERANCE = 1e-8
 
@@ -49,29 +55,25 @@ def normalised_inversion(p: NDArray[np.complex128]) -> NDArray[np.complex128]:
     raise SymmetryError("inversion P must square to ±1")
 
 
-def _relative(res: NDArray, ref: NDArray) -> float:
-    scale = max(float(np.abs(ref).max()), 1e-300)
-    return float(np.abs(res).max()) / scale
+def symmetry_residual(op: NDArray, h_plus: NDArray, h_minus: NDArray, kind: str) -> float:
+    """max|O H(κ)^(*) O† − H(−κ)| / max|H(κ)| over a stack of samples.
+
+    ``kind="time_reversal"`` conjugates H (antiunitary Θ = U_T K); ``"inversion"`` does not.
+    """
+    h = h_plus.conj() if kind == "time_reversal" else h_plus
+    lhs = op @ h @ op.conj().T
+    scale = max(float(np.abs(h_plus).max(initial=0.0)), 1e-300)
+    return float(np.abs(lhs - h_minus).max(initial=0.0)) / scale
 
 
-def check_time_reversal(u: NDArray, h_plus: NDArray, h_minus: NDArray, label: str) -> None:
-    """Raise unless U_T H(κ)* U_T† = H(−κ) on the samples."""
-    lhs = u @ h_plus.conj() @ u.conj().T
-    rel = _relative(lhs - h_minus, h_plus)
-    if rel > TOLERANCE:
-        raise SymmetryError(
-            f"time reversal does not hold for {label}: max |U_T H(κ)* U_T† − H(−κ)| / max|H| = "
-            f"{rel:.2e} at random κ. Check U_T, or remove time_reversal= if the model breaks it."
+def symmetry_error(kind: str, residual: float, where: str) -> SymmetryError:
+    """The error raised when a declared operator does not hold."""
+    if kind == "time_reversal":
+        return SymmetryError(
+            f"time reversal does not hold {where}: max |U_T H(κ)* U_T† − H(−κ)| / max|H| = "
+            f"{residual:.2e} at random κ. Check U_T, or the parameters that break it."
         )
-
-
-def check_inversion(p: NDArray, h_plus: NDArray, h_minus: NDArray, label: str) -> None:
-    """Raise unless P H(κ) P† = H(−κ) on the samples."""
-    normalised_inversion(p)
-    lhs = p @ h_plus @ p.conj().T
-    rel = _relative(lhs - h_minus, h_plus)
-    if rel > TOLERANCE:
-        raise SymmetryError(
-            f"inversion does not hold for {label}: max |P H(κ) P† − H(−κ)| / max|H| = {rel:.2e} "
-            "at random κ. Pass inversion=None (the Wilson loop does not need it) or fix P."
-        )
+    return SymmetryError(
+        f"inversion does not hold {where}: max |P H(κ) P† − H(−κ)| / max|H| = {residual:.2e} "
+        "at random κ. Pass inversion=None (the Wilson loop does not need it) or fix P."
+    )
