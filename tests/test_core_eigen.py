@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 import toposweep as ts
 from toposweep import _core
 
@@ -21,7 +20,9 @@ def test_eigh_matches_numpy(rng, n):
     np.testing.assert_allclose(e, np.linalg.eigh(h)[0], atol=1e-10 * max(1, n))
     # H V = V diag(E), V unitary
     np.testing.assert_allclose(h @ v, v * e[:, None, :], atol=1e-9)
-    np.testing.assert_allclose(v.conj().transpose(0, 2, 1) @ v, np.broadcast_to(np.eye(n), h.shape), atol=1e-10)
+    np.testing.assert_allclose(
+        v.conj().transpose(0, 2, 1) @ v, np.broadcast_to(np.eye(n), h.shape), atol=1e-10
+    )
 
 
 def test_assembled_hamiltonian_eigenvalues_match_numpy(rng):
@@ -35,7 +36,12 @@ def test_assembled_hamiltonian_eigenvalues_match_numpy(rng):
 
 def test_bloch_sum_matches_closed_form(rng):
     """H(κ) = t Σ sin k_i Γ_i + (m + t Σ cos k_i) Γ_4, written out with numpy."""
-    s0, sx, sy, sz = np.eye(2), np.array([[0, 1], [1, 0]]), np.array([[0, -1j], [1j, 0]]), np.diag([1, -1])
+    s0, sx, sy, sz = (
+        np.eye(2),
+        np.array([[0, 1], [1, 0]]),
+        np.array([[0, -1j], [1j, 0]]),
+        np.diag([1, -1]),
+    )
     gam = [np.kron(sx, s) for s in (sx, sy, sz)]
     g4 = np.kron(sz, s0)
     kappa = rng.random((30, 3))

@@ -1,5 +1,7 @@
-"""Type stubs of the Rust extension ``toposweep._core`` (hand-written; keep in step with
-src/python.rs)."""
+"""Type stubs of the Rust extension ``toposweep._core``.
+
+Hand-written; keep in step with src/python.rs.
+"""
 
 from collections.abc import Callable
 from typing import Any

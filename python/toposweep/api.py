@@ -163,8 +163,14 @@ def wcc_flow(
     pump = np.linspace(0.0, 0.5, pump_points)
     pos = None if model.positions is None else np.ascontiguousarray(model.positions.T)
     centres = _core.flow(
-        core, np.ascontiguousarray(coeffs[0]), f, plane, loop_points, pump,
-        positions=pos, threads=threads,
+        core,
+        np.ascontiguousarray(coeffs[0]),
+        f,
+        plane,
+        loop_points,
+        pump,
+        positions=pos,
+        threads=threads,
     )
     attrs: dict[str, Any] = {
         "loop_axis": loop_axis,
@@ -175,10 +181,14 @@ def wcc_flow(
         attrs.update(plane_axis=axis, cut=cut)
     return xr.Dataset(
         {
-            "centre": (("pump", "band"), centres, {
-                "long_name": f"hybrid Wannier centre along reduced axis {loop_axis}",
-                "units": "1",
-            })
+            "centre": (
+                ("pump", "band"),
+                centres,
+                {
+                    "long_name": f"hybrid Wannier centre along reduced axis {loop_axis}",
+                    "units": "1",
+                },
+            )
         },
         coords={
             "pump": ("pump", pump, {"long_name": f"kappa_{pump_axis}", "units": "1"}),

@@ -52,7 +52,8 @@ def classify_phase(nu0: NDArray, nu: NDArray | None) -> NDArray[np.int8]:
     Examples
     --------
     >>> import numpy as np
-    >>> classify_phase(np.array([1, 0, 0, -1]), np.array([[0, 0, 0], [1, 0, 0], [0, 0, 0], [-1, -1, -1]]))
+    >>> weak = np.array([[0, 0, 0], [1, 0, 0], [0, 0, 0], [-1, -1, -1]])
+    >>> classify_phase(np.array([1, 0, 0, -1]), weak)
     array([ 2,  1,  0, -1], dtype=int8)
     >>> classify_phase(np.array([1, 0]), None)
     array([3, 0], dtype=int8)
@@ -100,77 +101,171 @@ def build_dataset(
 
     data: dict[str, tuple] = {}
     nu_raw = grid(raw["nu"], (3,)) if three_d else None
-    data["nu0"] = (dims, grid(raw["nu0"]).astype(np.int8), {
-        "long_name": "strong Z2 index nu0" if three_d else "Z2 index",
-        "units": "1", **INDEX_FLAGS,
-    })
-    if three_d:
-        data["nu"] = (dims + ("axis",), nu_raw.astype(np.int8), {
-            "long_name": "weak Z2 indices nu1 nu2 nu3", "units": "1", **INDEX_FLAGS,
-        })
-        data["z2_plane"] = (dims + ("axis", "cut"), grid(raw["z2_plane"], (3, 2)).astype(np.int8), {
-            "long_name": "Z2 index of the time-reversal-invariant plane kappa_axis = cut",
-            "units": "1", **INDEX_FLAGS,
-        })
-        data["nu0_by_axis"] = (dims + ("axis",), grid(raw["nu0_by_axis"], (3,)).astype(np.int8), {
-            "long_name": "nu0 estimated from the two planes normal to axis", "units": "1",
+    data["nu0"] = (
+        dims,
+        grid(raw["nu0"]).astype(np.int8),
+        {
+            "long_name": "strong Z2 index nu0" if three_d else "Z2 index",
+            "units": "1",
             **INDEX_FLAGS,
-        })
+        },
+    )
+    if three_d:
+        data["nu"] = (
+            dims + ("axis",),
+            nu_raw.astype(np.int8),
+            {
+                "long_name": "weak Z2 indices nu1 nu2 nu3",
+                "units": "1",
+                **INDEX_FLAGS,
+            },
+        )
+        data["z2_plane"] = (
+            dims + ("axis", "cut"),
+            grid(raw["z2_plane"], (3, 2)).astype(np.int8),
+            {
+                "long_name": "Z2 index of the time-reversal-invariant plane kappa_axis = cut",
+                "units": "1",
+                **INDEX_FLAGS,
+            },
+        )
+        data["nu0_by_axis"] = (
+            dims + ("axis",),
+            grid(raw["nu0_by_axis"], (3,)).astype(np.int8),
+            {
+                "long_name": "nu0 estimated from the two planes normal to axis",
+                "units": "1",
+                **INDEX_FLAGS,
+            },
+        )
     phase = classify_phase(data["nu0"][1], nu_raw)
-    data["phase"] = (dims, phase, {"long_name": "topological phase", "units": "1", **_flags(PHASES)})
-    data["undefined_reason"] = (dims, grid(raw["reason"]).astype(np.int8), {
-        "long_name": "why the Wilson-loop indices are undefined", "units": "1", **_flags(REASONS),
-    })
-    data["gap_direct"] = (dims, grid(raw["gap_direct"]), {
-        "long_name": "smallest direct band gap at the filling over sampled kappa", "units": unit,
-    })
-    data["gap_indirect"] = (dims, grid(raw["gap_indirect"]), {
-        "long_name": "lowest empty minus highest occupied energy over sampled kappa "
-        "(negative: band overlap)", "units": unit,
-    })
-    data["gap_kappa"] = (dims + ("kappa_axis",), grid(raw["gap_kappa"], (model.dim,)), {
-        "long_name": "reduced coordinates of the smallest sampled direct gap", "units": "1",
-    })
-    data["bandwidth"] = (dims, grid(raw["bandwidth"]), {
-        "long_name": "spread of all band energies over sampled kappa", "units": unit,
-    })
-    data["converged"] = (dims, grid(raw["converged"]).astype(np.int8), {
-        "long_name": "hybrid Wannier centre flow resolved within max_lines", "units": "1",
-        "flag_values": np.array([0, 1], np.int8), "flag_meanings": "no yes",
-    })
-    data["lines_used"] = (dims, grid(raw["lines_used"]).astype(np.int32), {
-        "long_name": "largest number of pump lines used in one half plane", "units": "1",
-    })
-    data["max_step"] = (dims, grid(raw["max_step"]), {
-        "long_name": "largest hybrid Wannier centre motion between neighbouring pump lines",
-        "units": "1",
-    })
-    data["min_clearance"] = (dims, grid(raw["min_clearance"]), {
-        "long_name": "smallest distance between a largest-gap midpoint and a centre of the "
-        "neighbouring line", "units": "1",
-    })
+    data["phase"] = (
+        dims,
+        phase,
+        {"long_name": "topological phase", "units": "1", **_flags(PHASES)},
+    )
+    data["undefined_reason"] = (
+        dims,
+        grid(raw["reason"]).astype(np.int8),
+        {
+            "long_name": "why the Wilson-loop indices are undefined",
+            "units": "1",
+            **_flags(REASONS),
+        },
+    )
+    data["gap_direct"] = (
+        dims,
+        grid(raw["gap_direct"]),
+        {
+            "long_name": "smallest direct band gap at the filling over sampled kappa",
+            "units": unit,
+        },
+    )
+    data["gap_indirect"] = (
+        dims,
+        grid(raw["gap_indirect"]),
+        {
+            "long_name": "lowest empty minus highest occupied energy over sampled kappa "
+            "(negative: band overlap)",
+            "units": unit,
+        },
+    )
+    data["gap_kappa"] = (
+        dims + ("kappa_axis",),
+        grid(raw["gap_kappa"], (model.dim,)),
+        {
+            "long_name": "reduced coordinates of the smallest sampled direct gap",
+            "units": "1",
+        },
+    )
+    data["bandwidth"] = (
+        dims,
+        grid(raw["bandwidth"]),
+        {
+            "long_name": "spread of all band energies over sampled kappa",
+            "units": unit,
+        },
+    )
+    data["converged"] = (
+        dims,
+        grid(raw["converged"]).astype(np.int8),
+        {
+            "long_name": "hybrid Wannier centre flow resolved within max_lines",
+            "units": "1",
+            "flag_values": np.array([0, 1], np.int8),
+            "flag_meanings": "no yes",
+        },
+    )
+    data["lines_used"] = (
+        dims,
+        grid(raw["lines_used"]).astype(np.int32),
+        {
+            "long_name": "largest number of pump lines used in one half plane",
+            "units": "1",
+        },
+    )
+    data["max_step"] = (
+        dims,
+        grid(raw["max_step"]),
+        {
+            "long_name": "largest hybrid Wannier centre motion between neighbouring pump lines",
+            "units": "1",
+        },
+    )
+    data["min_clearance"] = (
+        dims,
+        grid(raw["min_clearance"]),
+        {
+            "long_name": "smallest distance between a largest-gap midpoint and a centre of the "
+            "neighbouring line",
+            "units": "1",
+        },
+    )
     if parity_known:
         nu0p = grid(raw["nu0_parity"]).astype(np.int8)
-        data["nu0_parity"] = (dims, nu0p, {
-            "long_name": ("strong Z2 index nu0" if three_d else "Z2 index")
-            + " from Fu-Kane parity", "units": "1", **INDEX_FLAGS,
-        })
+        data["nu0_parity"] = (
+            dims,
+            nu0p,
+            {
+                "long_name": ("strong Z2 index nu0" if three_d else "Z2 index")
+                + " from Fu-Kane parity",
+                "units": "1",
+                **INDEX_FLAGS,
+            },
+        )
         agree = np.where(nu0p == data["nu0"][1], 1, 0)
         if three_d:
             nup = grid(raw["nu_parity"], (3,)).astype(np.int8)
-            data["nu_parity"] = (dims + ("axis",), nup, {
-                "long_name": "weak Z2 indices from Fu-Kane parity", "units": "1", **INDEX_FLAGS,
-            })
+            data["nu_parity"] = (
+                dims + ("axis",),
+                nup,
+                {
+                    "long_name": "weak Z2 indices from Fu-Kane parity",
+                    "units": "1",
+                    **INDEX_FLAGS,
+                },
+            )
             agree = np.where(np.all(nup == nu_raw, axis=-1), agree, 0)
         both = (nu0p >= 0) & (data["nu0"][1] >= 0)
-        data["parity_agrees"] = (dims, np.where(both, agree, -1).astype(np.int8), {
-            "long_name": "Fu-Kane parity indices equal the Wilson-loop indices", "units": "1",
-            "flag_values": np.array([-1, 0, 1], np.int8),
-            "flag_meanings": "not_comparable disagree agree",
-        })
-        data["parity_undefined_reason"] = (dims, grid(raw["parity_reason"]).astype(np.int8), {
-            "long_name": "why the parity indices are undefined", "units": "1", **_flags(REASONS),
-        })
+        data["parity_agrees"] = (
+            dims,
+            np.where(both, agree, -1).astype(np.int8),
+            {
+                "long_name": "Fu-Kane parity indices equal the Wilson-loop indices",
+                "units": "1",
+                "flag_values": np.array([-1, 0, 1], np.int8),
+                "flag_meanings": "not_comparable disagree agree",
+            },
+        )
+        data["parity_undefined_reason"] = (
+            dims,
+            grid(raw["parity_reason"]).astype(np.int8),
+            {
+                "long_name": "why the parity indices are undefined",
+                "units": "1",
+                **_flags(REASONS),
+            },
+        )
 
     coord_vars: dict[str, Any] = {}
     for d in dims:
@@ -178,15 +273,30 @@ def build_dataset(
     for name, value in fixed.items():
         coord_vars[name] = ((), float(value), model.describe(name))
     if three_d:
-        coord_vars["axis"] = ("axis", np.array([1, 2, 3], np.int8), {
-            "long_name": "reciprocal lattice axis", "units": "1",
-        })
-        coord_vars["cut"] = ("cut", np.array([0.0, 0.5]), {
-            "long_name": "reduced coordinate of the time-reversal-invariant plane", "units": "1",
-        })
-    coord_vars["kappa_axis"] = ("kappa_axis", np.arange(1, model.dim + 1, dtype=np.int8), {
-        "long_name": "reduced coordinate index", "units": "1",
-    })
+        coord_vars["axis"] = (
+            "axis",
+            np.array([1, 2, 3], np.int8),
+            {
+                "long_name": "reciprocal lattice axis",
+                "units": "1",
+            },
+        )
+        coord_vars["cut"] = (
+            "cut",
+            np.array([0.0, 0.5]),
+            {
+                "long_name": "reduced coordinate of the time-reversal-invariant plane",
+                "units": "1",
+            },
+        )
+    coord_vars["kappa_axis"] = (
+        "kappa_axis",
+        np.arange(1, model.dim + 1, dtype=np.int8),
+        {
+            "long_name": "reduced coordinate index",
+            "units": "1",
+        },
+    )
 
     attrs: dict[str, Any] = {
         "title": f"Z2 indices of {model.name or 'a lattice model'}",

@@ -122,7 +122,9 @@ class Model(ABC):
             try:
                 value = float(value)
             except (TypeError, ValueError):
-                raise ParameterError(f"parameter {name!r} must be a real number, got {value!r}") from None
+                raise ParameterError(
+                    f"parameter {name!r} must be a real number, got {value!r}"
+                ) from None
             if not math.isfinite(value):
                 raise ParameterError(f"parameter {name!r} must be finite, got {value!r}")
             out[name] = value
@@ -191,8 +193,12 @@ class Model(ABC):
     def describe(self, name: str) -> dict[str, str]:
         """``long_name`` and ``units`` of a parameter (defaults: its name, the energy unit)."""
         info = self.parameter_info.get(name, {})
-        return {"long_name": info.get("long_name", name), "units": info.get("units", self.energy_unit)}
+        return {
+            "long_name": info.get("long_name", name),
+            "units": info.get("units", self.energy_unit),
+        }
 
     def __repr__(self) -> str:
         label = f" {self.name!r}" if self.name else ""
-        return f"<{type(self).__name__}{label} dim={self.dim} norb={self.norb} parameters={list(self.parameters)}>"
+        params = list(self.parameters)
+        return f"<{type(self).__name__}{label} dim={self.dim} norb={self.norb} parameters={params}>"

@@ -10,7 +10,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from . import _core
 from .errors import ModelError
-from .model import Model, Params, matrix_from_json, matrix_to_json
+from .model import Model, matrix_from_json, matrix_to_json
 
 __all__ = ["TightBinding"]
 
@@ -134,7 +134,9 @@ class TightBinding(Model):
                 raise ModelError("the model has no hoppings; call add() first")
             nhop = len(self._hops)
             r = np.array([h[0] for h in self._hops], dtype=np.int64).reshape(nhop, self.dim)
-            t = np.array([h[1] for h in self._hops], dtype=complex).reshape(nhop, self.norb, self.norb)
+            t = np.array([h[1] for h in self._hops], dtype=complex).reshape(
+                nhop, self.norb, self.norb
+            )
             idx = {name: i for i, name in enumerate(self._terms)}
             term = np.array([-1 if h[2] is None else idx[h[2]] for h in self._hops], dtype=np.int64)
             self._core_cache = _core.CoreModel.tight_binding(
@@ -144,9 +146,9 @@ class TightBinding(Model):
 
     def prepare(self, points: Sequence[Mapping[str, float]]) -> tuple[Any, NDArray[np.float64]]:
         """Core model and coefficient rows for resolved parameter dicts."""
-        coeffs = np.array(
-            [[p[name] for name in self._terms] for p in points], dtype=float
-        ).reshape(len(points), len(self._terms))
+        coeffs = np.array([[p[name] for name in self._terms] for p in points], dtype=float).reshape(
+            len(points), len(self._terms)
+        )
         return self._core(), coeffs
 
     def symmetry_residuals(
@@ -167,7 +169,9 @@ class TightBinding(Model):
         hp, hm = blocks[:, : len(kappa)], blocks[:, len(kappa) :]
         h = hp.conj() if kind == "time_reversal" else hp
         resid = operator @ h @ operator.conj().T - hm
-        coeffs = np.array([[1.0, *(p[t] for t in self._terms)] for p in points]).reshape(-1, nterm + 1)
+        coeffs = np.array([[1.0, *(p[t] for t in self._terms)] for p in points]).reshape(
+            -1, nterm + 1
+        )
         res = np.abs(np.einsum("pt,t...->p...", coeffs, resid)).reshape(len(points), -1).max(axis=1)
         scale = np.abs(np.einsum("pt,t...->p...", coeffs, hp)).reshape(len(points), -1).max(axis=1)
         return res / np.maximum(scale, 1e-300)

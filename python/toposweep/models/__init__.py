@@ -1,5 +1,7 @@
-"""Builtin model catalogue: each function returns a :class:`~toposweep.TightBinding` with named
-terms, ``.defaults`` and its symmetry operators, built from the published form.
+"""Builtin model catalogue.
+
+Each function returns a :class:`~toposweep.TightBinding` with named terms, ``.defaults`` and
+its symmetry operators, built from the published form.
 """
 
 from __future__ import annotations
