@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import toposweep as ts
-from scipy.optimize import minimize
+from scipy.optimize import minimize, minimize_scalar
 
 MODEL = ts.models.kane_mele()
 SQRT3 = np.sqrt(3.0)
@@ -114,3 +114,29 @@ def test_rashba_boundary(lso, ratio):
         assert int(ds.nu0) == -1  # no index for a semimetal
         assert int(ds.undefined_reason) != 0
     assert int(ds.parity_undefined_reason) == 7  # Rashba breaks the declared inversion
+
+
+def test_generic_point_without_inversion_or_sz_conservation():
+    """Rashba and staggered terms together: only the Wilson loop can answer.
+
+    With λ_R = 0.1 (below the Rashba closing, so λ_v = 0 is still the Z2-odd phase of the
+    tests above) the gap closes once as λ_v grows (Kane & Mele 2005, phase diagram, from
+    memory). Where exactly is found here independently: scipy minimises the numpy direct gap
+    over κ and λ_v. The engine must switch from 1 to 0 across that point.
+    """
+    base = {"spin_orbit": 0.1, "rashba": 0.1}
+    bound = 3 * SQRT3 * 0.1
+    res = minimize_scalar(
+        lambda lv: true_direct_gap({**base, "staggered": lv}),
+        bounds=(0.6 * bound, bound),
+        method="bounded",
+        options={"xatol": 1e-6},
+    )
+    lv_c = float(res.x)
+    assert res.fun < 1e-3  # the gap really closes there
+    for ratio, z2 in [(0.0, 1), (0.96, 1), (1.04, 0), (2.0, 0)]:
+        params = {**base, "staggered": ratio * lv_c}
+        if ratio:
+            assert true_direct_gap(params) > 0.01  # open on both sides
+        ds = ts.invariants(MODEL, filling=2, params=params)
+        assert int(ds.nu0) == z2, f"λ_v = {ratio} λ_c: reason {int(ds.undefined_reason)}"
