@@ -52,7 +52,7 @@ def fu_kane_mele(
     ----------
     hopping, spin_orbit, dimerisation : float
         Default values of the three terms (stored in ``.defaults``), dimensionless energies.
-        The defaults give (1;111) with a direct gap of about 0.5 (bandwidth 8).
+        The defaults give (1;111) with a direct gap of 2δt = 0.8 (bandwidth about 8.8).
 
     Examples
     --------
