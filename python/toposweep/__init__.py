@@ -25,6 +25,8 @@ from .errors import (
 )
 from .model import Model
 from .sampling import Sampling
+from .store import open_result
+from .sweep import SweepInterrupted, sweep
 from .tightbinding import TightBinding
 
 __all__ = [
@@ -37,12 +39,15 @@ __all__ = [
     "Sampling",
     "SamplingError",
     "StoreError",
+    "SweepInterrupted",
     "SymmetryError",
     "TightBinding",
     "ToposweepError",
     "invariants",
     "model_from_dict",
     "models",
+    "open_result",
+    "sweep",
     "wcc_flow",
 ]
 

@@ -1,0 +1,216 @@
+"""What a sweep will compute: the validated grid, the fixed parameters and the parameter points.
+
+A :class:`SweepPlan` is built once per sweep. It turns flat point indices (C order over the grid
+dims, in the order the grid was given) into resolved model-parameter dicts, chunk by chunk, so
+memory stays flat however many points the grid has. Its :attr:`~SweepPlan.identity` says
+exactly what the run computes; a result file records it so an interrupted run is only ever
+continued with the same model, grid, filling and sampling.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .errors import ParameterError
+from .evaluation import Request
+from .model import Model, matrix_to_json
+
+__all__ = ["SweepPlan", "make_plan", "callable_name"]
+
+#: dimension and variable names a grid parameter may not take (they are used by the dataset)
+RESERVED = frozenset(
+    {"axis", "cut", "kappa_axis", "band", "pump", "term", "point"}
+    | {"nu0", "nu", "z2_plane", "nu0_by_axis", "phase", "undefined_reason", "gap_direct"}
+    | {"gap_indirect", "gap_kappa", "bandwidth", "converged", "lines_used", "max_step"}
+    | {"min_clearance", "nu0_parity", "nu_parity", "parity_agrees", "parity_undefined_reason"}
+)
+
+Coefficients = Callable[[dict[str, float]], Mapping[str, float]]
+
+
+def callable_name(func: Callable[..., Any]) -> str:
+    """``module:qualname`` of a function, recorded so a result says which mapping made it.
+
+    Examples
+    --------
+    >>> callable_name(math.floor)
+    'math:floor'
+    """
+    return f"{getattr(func, '__module__', '?')}:{getattr(func, '__qualname__', repr(func))}"
+
+
+def _digest(obj: Any) -> str:
+    text = json.dumps(obj, sort_keys=True, separators=(",", ":"))
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def _grid_axis(name: Any, values: Any) -> tuple[str, NDArray[np.float64], dict[str, str]]:
+    """One validated grid axis: its name, float values and the user's attrs (if any)."""
+    if not isinstance(name, str) or not name.isidentifier():
+        raise ParameterError(
+            f"grid names must be identifiers such as 'mass', got {name!r}; rename the parameter"
+        )
+    if name in RESERVED:
+        raise ParameterError(
+            f"grid parameter {name!r} clashes with a name the result dataset uses; "
+            "rename it (use coefficients= to map your names onto model terms)"
+        )
+    attrs = {
+        k: str(v) for k, v in getattr(values, "attrs", {}).items() if k in ("long_name", "units")
+    }
+    try:
+        arr = np.asarray(values, dtype=float)
+    except (TypeError, ValueError):
+        raise ParameterError(
+            f"grid[{name!r}] must be a 1-D array of real numbers, got {type(values).__name__}"
+        ) from None
+    if arr.ndim == 0:
+        arr = arr.reshape(1)
+    if arr.ndim != 1 or arr.size == 0:
+        raise ParameterError(
+            f"grid[{name!r}] must be a non-empty 1-D array, got shape {arr.shape}; "
+            "use e.g. numpy.linspace(start, stop, num)"
+        )
+    if not np.all(np.isfinite(arr)):
+        raise ParameterError(f"grid[{name!r}] contains NaN or infinity")
+    if np.unique(arr).size != arr.size:
+        raise ParameterError(
+            f"grid[{name!r}] repeats a value; give each value once so the coordinate is unique"
+        )
+    return name, arr.copy(), attrs
+
+
+@dataclass
+class SweepPlan:
+    """A validated sweep: grid dims and values, fixed parameters, the model mapping."""
+
+    request: Request
+    dims: tuple[str, ...]
+    coords: dict[str, NDArray[np.float64]]
+    #: ``long_name``/``units`` per grid dim (the user's, else the model's)
+    coord_attrs: dict[str, dict[str, str]]
+    #: parameters that are not swept: model parameters, or the user's when coefficients is set
+    fixed: dict[str, float]
+    coefficients: Coefficients | None = None
+    identity: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        """Grid shape (one length per dim)."""
+        return tuple(len(self.coords[d]) for d in self.dims)
+
+    @property
+    def size(self) -> int:
+        """Number of parameter points."""
+        return math.prod(self.shape)
+
+    def user_point(self, flat: int) -> dict[str, float]:
+        """The grid values and fixed parameters of one flat point index (C order)."""
+        idx = np.unravel_index(flat, self.shape)
+        point = dict(self.fixed)
+        point.update({d: float(self.coords[d][i]) for d, i in zip(self.dims, idx, strict=True)})
+        return point
+
+    def model_point(self, user: dict[str, float]) -> dict[str, float]:
+        """Resolved model parameters of one point (through ``coefficients`` when given)."""
+        model = self.request.model
+        if self.coefficients is None:
+            return model.resolve(user)
+        terms = self.coefficients(dict(user))
+        if not isinstance(terms, Mapping):
+            raise ParameterError(
+                f"coefficients {callable_name(self.coefficients)} must return a dict "
+                f"{{term: value}}, got {type(terms).__name__}"
+            )
+        try:
+            return model.resolve(terms)
+        except ParameterError as exc:
+            raise ParameterError(
+                f"coefficients {callable_name(self.coefficients)} returned {dict(terms)!r} "
+                f"for {user!r}: {exc}"
+            ) from None
+
+    def points(self, start: int, stop: int) -> list[dict[str, float]]:
+        """Resolved model-parameter dicts of the flat points ``start … stop-1``."""
+        return [self.model_point(self.user_point(i)) for i in range(start, stop)]
+
+
+def make_plan(
+    request: Request,
+    grid: Mapping[str, Any],
+    *,
+    params: Mapping[str, float] | None,
+    coefficients: Coefficients | None,
+) -> SweepPlan:
+    """Validate grid and parameters against the model and build the plan of a sweep."""
+    model: Model = request.model
+    if not isinstance(grid, Mapping) or not grid:
+        raise ParameterError(
+            "grid must be a non-empty dict {parameter name: 1-D array of values}, "
+            f"got {grid!r:.80}"
+        )
+    if coefficients is not None and not callable(coefficients):
+        raise ParameterError(
+            "coefficients must be a function params -> {term: value}, "
+            f"got {type(coefficients).__name__}"
+        )
+    axes = [_grid_axis(name, values) for name, values in grid.items()]
+    dims = tuple(a[0] for a in axes)
+    given = dict(params or {})
+    overlap = sorted(set(given) & set(dims))
+    if overlap:
+        raise ParameterError(
+            f"parameter(s) {overlap} are both swept (grid) and fixed (params); give each once"
+        )
+    if coefficients is None:
+        known = set(model.parameters)
+        unknown = [d for d in dims if d not in known]
+        if unknown:
+            raise ParameterError(
+                f"grid parameter(s) {unknown} are not parameters of model "
+                f"{model.name or type(model).__name__!r}; its parameters are "
+                f"{list(model.parameters)} (or pass coefficients= to map your own names)"
+            )
+        fixed = {k: v for k, v in model.resolve(given).items() if k not in dims}
+    else:
+        fixed = {}
+        for k, v in given.items():
+            try:
+                value = float(v)
+            except (TypeError, ValueError):
+                raise ParameterError(f"params[{k!r}] must be a real number, got {v!r}") from None
+            if not math.isfinite(value):
+                raise ParameterError(f"params[{k!r}] must be finite, got {v!r}")
+            fixed[str(k)] = value
+    coord_attrs = {}
+    for name, _, attrs in axes:
+        base = model.describe(name) if coefficients is None else {"long_name": name, "units": "1"}
+        coord_attrs[name] = {**base, **attrs}
+    plan = SweepPlan(
+        request=request,
+        dims=dims,
+        coords={name: values for name, values, _ in axes},
+        coord_attrs=coord_attrs,
+        fixed=fixed,
+        coefficients=coefficients,
+    )
+    plan.model_point(plan.user_point(0))  # a bad mapping fails now, not after the first chunk
+    inv = request.inversion
+    plan.identity = {
+        "model": _digest(model.to_dict()),
+        "filling": request.filling,
+        "sampling": request.sampling.as_dict(),
+        "grid": {d: [len(plan.coords[d]), _digest(plan.coords[d].tolist())] for d in dims},
+        "fixed": {k: repr(v) for k, v in sorted(fixed.items())},
+        "coefficients": None if coefficients is None else callable_name(coefficients),
+        "inversion": None if inv is None else _digest(matrix_to_json(inv)),
+    }
+    return plan

@@ -1,0 +1,246 @@
+"""The streaming store: SIGKILL and resume, torn writes, refusals, unreadable files."""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import sys
+import textwrap
+import time
+from importlib import import_module
+from pathlib import Path
+
+import numpy as np
+import pytest
+import toposweep as ts
+import xarray as xr
+from toposweep.errors import StoreError
+from toposweep.store import journal_path
+from toposweep.sweep import SweepInterrupted
+
+sweep_module = import_module("toposweep.sweep")  # the package's `sweep` is the function
+
+# 80 × 50 = 4000 points of the spinful square-lattice model, in 40 chunks of 100
+KILL_SCRIPT = textwrap.dedent(
+    """
+    import sys, numpy as np, toposweep as ts
+    ts.sweep(ts.models.bhz(), {"mass": np.linspace(-3, 3, 80), "hopping": np.linspace(0.2, 2, 50)},
+             2, out=sys.argv[1], chunk_size=100, progress=False, loop_points=12, lines=7)
+    """
+)
+KILL_GRID = {"mass": np.linspace(-3, 3, 80), "hopping": np.linspace(0.2, 2, 50)}
+KILL_OPTIONS = {"loop_points": 12, "lines": 7, "progress": False}
+
+
+def same(a: xr.Dataset, b: xr.Dataset) -> None:
+    """Identical apart from the creation time."""
+    xr.testing.assert_identical(a.assign_attrs(created=""), b.assign_attrs(created=""))
+
+
+def test_sigkill_half_way_then_resume_equals_uninterrupted_run(tmp_path: Path) -> None:
+    model = ts.models.bhz()
+    t0 = time.perf_counter()
+    full = ts.sweep(model, KILL_GRID, 2, out=tmp_path / "full.nc", chunk_size=100, **KILL_OPTIONS)
+    full_seconds = time.perf_counter() - t0
+
+    out = tmp_path / "killed.nc"
+    journal = journal_path(out)
+    proc = subprocess.Popen([sys.executable, "-c", KILL_SCRIPT, str(out)])
+    try:
+        deadline = time.monotonic() + 120
+        while time.monotonic() < deadline and proc.poll() is None:
+            if journal.is_dir() and len(list(journal.glob("chunk-*.npz"))) >= 18:
+                break
+            time.sleep(0.01)
+        os.kill(proc.pid, signal.SIGKILL)  # no chance to clean up: the journal must be enough
+    finally:
+        proc.wait()
+    assert proc.returncode == -signal.SIGKILL
+    assert not out.exists()
+    kept = len(list(journal.glob("chunk-*.npz")))
+    assert 18 <= kept < 40
+
+    t0 = time.perf_counter()
+    resumed = ts.sweep(model, KILL_GRID, 2, out=out, resume=True, chunk_size=100, **KILL_OPTIONS)
+    resume_seconds = time.perf_counter() - t0
+    same(resumed, full)
+    with xr.open_dataset(out) as a, xr.open_dataset(tmp_path / "full.nc") as b:
+        same(a, b)
+    assert not journal.exists()
+    # about half the work was left: resuming must be clearly cheaper than a full run
+    assert resume_seconds < 0.8 * full_seconds, (resume_seconds, full_seconds)
+    full.close()
+    resumed.close()
+
+
+def interrupted_run(out: Path, after: int, calls: list[float] | None = None) -> None:
+    """Start a 60-point sweep into ``out`` and Ctrl-C it after ``after`` points were mapped."""
+    seen = [] if calls is None else calls
+
+    def mapping(p: dict[str, float]) -> dict[str, float]:
+        seen.append(p["m"])
+        if len(seen) == after:
+            os.kill(os.getpid(), signal.SIGINT)
+        return {"mass": p["m"]}
+
+    mapping.__qualname__ = "mapping"  # the run records the mapping's name; resume checks it
+    with pytest.raises(SweepInterrupted) as info:
+        ts.sweep(
+            ts.models.bhz(), {"m": np.linspace(-3, 3, 60)}, 2, out=out,
+            coefficients=mapping, chunk_size=10, progress=False, loop_points=16, lines=9,
+        )  # fmt: skip
+    assert info.value.out == os.fspath(out) and "resume=True" in str(info.value)
+
+
+def counting_mapping(calls: list[float]):
+    def mapping(p: dict[str, float]) -> dict[str, float]:
+        calls.append(p["m"])
+        return {"mass": p["m"]}
+
+    mapping.__qualname__ = "mapping"
+    return mapping
+
+
+def resume_run(out: Path, calls: list[float], **kw) -> xr.Dataset:
+    return ts.sweep(
+        ts.models.bhz(), {"m": np.linspace(-3, 3, 60)}, 2, out=out,
+        coefficients=counting_mapping(calls), chunk_size=10, progress=False,
+        **{"loop_points": 16, "lines": 9, **kw},
+    )  # fmt: skip
+
+
+def test_torn_and_damaged_chunks_are_recomputed_and_nothing_else(tmp_path: Path) -> None:
+    reference = resume_run(tmp_path / "ref.nc", [])
+    out = tmp_path / "map.nc"
+    interrupted_run(out, after=25)  # chunks 0-9, 10-19, 20-29 finish
+    journal = journal_path(out)
+    chunks = sorted(journal.glob("chunk-*.npz"))
+    assert len(chunks) == 3
+    (journal / (chunks[-1].name + ".tmp")).write_bytes(b"PK\x03\x04 half a chunk")  # torn
+    data = chunks[1].read_bytes()
+    chunks[1].write_bytes(data[: len(data) // 2])  # a damaged chunk is never trusted
+    calls: list[float] = []
+    resumed = resume_run(out, calls, resume=True)
+    same(resumed, reference)
+    # the first point is mapped once to validate the mapping; then only the damaged chunk
+    # (10 points) and the 30 never computed are evaluated
+    assert len(calls) == 1 + 10 + 30
+    resumed.close()
+    reference.close()
+
+
+def test_kill_while_writing_the_file_is_harmless(tmp_path: Path, monkeypatch) -> None:
+    reference = resume_run(tmp_path / "ref.nc", [])
+    out = tmp_path / "map.nc"
+
+    def killed(*args, **kwargs):
+        (tmp_path / "map.nc.writing").write_bytes(b"\x89HDF\r\n half written")
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(sweep_module, "_consolidate", killed)
+    with pytest.raises(KeyboardInterrupt):
+        resume_run(out, [])
+    monkeypatch.undo()
+    assert not out.exists() and journal_path(out).is_dir()
+    calls: list[float] = []
+    resumed = resume_run(out, calls, resume=True)
+    assert len(calls) == 1  # nothing recomputed: only the file was written
+    same(resumed, reference)
+    assert not (tmp_path / "map.nc.writing").exists()
+    resumed.close()
+    reference.close()
+
+
+@pytest.mark.parametrize(
+    ("change", "words"),
+    [
+        ({"loop_points": 20}, "sampling loop_points: 20 now, 16 in the file"),
+        ({"grid": {"m": np.linspace(-3, 3, 61)}}, "grid values of 'm': 61 values now, 60"),
+        ({"filling": 4}, None),  # checked before the store (filling 4 is invalid for 4 bands)
+        ({"model": ts.models.bhz(hopping=2.0)}, "model: a different model"),
+    ],
+)
+def test_resume_refuses_a_different_run(tmp_path: Path, change, words) -> None:
+    out = tmp_path / "map.nc"
+    interrupted_run(out, after=15)
+    before = sorted(p.name for p in journal_path(out).iterdir())
+    args = {
+        "model": ts.models.bhz(),
+        "grid": {"m": np.linspace(-3, 3, 60)},
+        "filling": 2,
+        "loop_points": 16,
+        "lines": 9,
+    }
+    args.update(change)
+    with pytest.raises(ValueError, match=words or "filling") as info:
+        ts.sweep(
+            out=out, resume=True, coefficients=counting_mapping([]), chunk_size=10,
+            progress=False, **args,
+        )  # fmt: skip
+    if words:
+        assert isinstance(info.value, StoreError)
+        assert "cannot resume" in str(info.value)
+    assert sorted(p.name for p in journal_path(out).iterdir()) == before  # untouched
+
+
+def test_resume_of_a_finished_file(tmp_path: Path) -> None:
+    out = tmp_path / "map.nc"
+    first = resume_run(out, [])
+    calls: list[float] = []
+    again = resume_run(out, calls, resume=True)
+    assert len(calls) == 1  # returned from the file, nothing evaluated
+    same(again, first)
+    with pytest.raises(StoreError, match="different run"):
+        resume_run(out, [], resume=True, lines=7)
+    first.close()
+    again.close()
+
+
+def test_open_result_rejects_what_is_not_a_result(tmp_path: Path) -> None:
+    garbage = tmp_path / "garbage.nc"
+    garbage.write_bytes(os.urandom(2000))
+    with pytest.raises(StoreError, match="not a readable NetCDF4/HDF5 file"):
+        ts.open_result(garbage)
+    good = tmp_path / "good.nc"
+    resume_run(good, []).close()
+    data = good.read_bytes()
+    truncated = tmp_path / "truncated.nc"
+    truncated.write_bytes(data[: len(data) // 2])
+    with pytest.raises(StoreError, match="truncated or corrupt"):
+        ts.open_result(truncated)
+    other = tmp_path / "other.nc"
+    xr.Dataset({"x": ("i", np.arange(3))}).to_netcdf(other, engine="h5netcdf")
+    with pytest.raises(StoreError, match="not a toposweep result file"):
+        ts.open_result(other)
+    unfinished = tmp_path / "unfinished.nc"
+    interrupted_run(unfinished, after=15)
+    with pytest.raises(StoreError, match="unfinished"):
+        ts.open_result(unfinished)
+    with ts.open_result(good) as ds:
+        assert ds.sizes["m"] == 60
+
+
+def test_flat_ranges_map_onto_the_grid_like_numpy_ravel() -> None:
+    from toposweep.store import flat_boxes
+
+    rng = np.random.default_rng(5)
+    for _ in range(500):
+        shape = tuple(int(n) for n in rng.integers(1, 5, size=rng.integers(1, 5)))
+        total = int(np.prod(shape))
+        a = int(rng.integers(0, total))
+        b = int(rng.integers(a, total + 1))
+        grid = np.zeros(shape, int)
+        values = np.arange(a, b) + 1
+        pos = 0
+        for lo, hi in flat_boxes(a, b, shape):
+            box = tuple(h - a_ for a_, h in zip(lo, hi, strict=True))
+            n = int(np.prod(box))
+            grid[tuple(slice(a_, h) for a_, h in zip(lo, hi, strict=True))] = values[
+                pos : pos + n
+            ].reshape(box)
+            pos += n
+        expected = np.zeros(total, int)
+        expected[a:b] = values
+        np.testing.assert_array_equal(grid.ravel(), expected)  # numpy's C order is the truth
+        assert len(flat_boxes(a, b, shape)) <= 2 * len(shape) - 1
