@@ -10,6 +10,7 @@
 use crate::bloch::BlochSource;
 use crate::error::{invalid, CoreResult};
 use crate::flow::{inspect, z2_of_flow};
+use crate::gap_search::{gaps_at, minimise, pick_starts, SearchSettings};
 use crate::parity::{parity_indices, reason, trims, ParityResult};
 use crate::wilson::{evaluate_lines, evaluate_points, BandStats, LineResult, LineSpec};
 use crate::C64;
@@ -29,12 +30,17 @@ pub struct Sampling {
     pub gap_floor: f64,
     /// points per axis of the uniform bulk grid used only for the gap (3D); 0 = none
     pub gap_points: usize,
+    /// starting points of the gap minimiser (smallest sampled gaps first); 0 = no search
+    pub gap_starts: usize,
 }
 
 impl Sampling {
     pub fn validate(&self) -> CoreResult<()> {
         if self.loop_points < 4 {
-            return Err(invalid!("loop_points must be at least 4, got {}", self.loop_points));
+            return Err(invalid!(
+                "loop_points must be at least 4, got {}",
+                self.loop_points
+            ));
         }
         if self.lines < 2 {
             return Err(invalid!("lines must be at least 2, got {}", self.lines));
@@ -47,7 +53,10 @@ impl Sampling {
             ));
         }
         if !(self.step_limit > 0.0 && self.step_limit < 0.5) {
-            return Err(invalid!("step_limit must lie in (0, 0.5), got {}", self.step_limit));
+            return Err(invalid!(
+                "step_limit must lie in (0, 0.5), got {}",
+                self.step_limit
+            ));
         }
         if !self.gap_floor.is_finite() {
             return Err(invalid!("gap_floor must be finite"));
@@ -82,6 +91,8 @@ pub struct PointResult {
     pub converged: bool,
     pub reason: u8,
     pub lines_used: usize,
+    /// Hamiltonians evaluated by the gap minimiser
+    pub search_evaluations: usize,
     pub max_step: f64,
     pub min_clearance: f64,
     pub parity: Option<ParityResult>,
@@ -99,24 +110,45 @@ impl Plane {
     pub fn line(&self, t: f64) -> LineSpec {
         let mut base = self.base;
         base[self.pump_axis] = t;
-        LineSpec { base, axis: self.loop_axis }
+        LineSpec {
+            base,
+            axis: self.loop_axis,
+        }
     }
 }
 
 /// The planes of a `dim`-dimensional model, in the order (axis 0, cut 0), (axis 0, cut 1/2), …
 pub fn planes(dim: usize) -> Vec<Plane> {
     match dim {
-        2 => vec![Plane { base: [0.0; 3], loop_axis: 0, pump_axis: 1 }],
+        2 => vec![Plane {
+            base: [0.0; 3],
+            loop_axis: 0,
+            pump_axis: 1,
+        }],
         _ => (0..3)
             .flat_map(|i| {
                 [0.0, 0.5].map(|c| {
                     let mut base = [0.0; 3];
                     base[i] = c;
-                    Plane { base, loop_axis: (i + 1) % 3, pump_axis: (i + 2) % 3 }
+                    Plane {
+                        base,
+                        loop_axis: (i + 1) % 3,
+                        pump_axis: (i + 2) % 3,
+                    }
                 })
             })
             .collect(),
     }
+}
+
+/// Largest spacing between neighbouring sampled κ points (loop, pump or bulk grid), which
+/// bounds how far the true gap minimum can lie from the smallest sampled gap.
+fn sampled_spacing(dim: usize, s: &Sampling) -> f64 {
+    let mut h = (1.0 / s.loop_points as f64).max(0.5 / (s.lines - 1) as f64);
+    if dim == 3 && s.gap_points > 0 {
+        h = h.max(1.0 / s.gap_points as f64);
+    }
+    h
 }
 
 /// Uniform bulk grid of m³ points (m per axis), offset by half a step so it avoids the planes
@@ -137,82 +169,120 @@ fn bulk_grid(dim: usize, m: usize) -> Vec<f64> {
     k
 }
 
-/// Adaptive flow of several planes at once, so every round is one batch for the source.
-fn flows(
+/// The pump lines of one plane computed so far, in ascending pump coordinate.
+#[derive(Clone, Debug, Default)]
+struct PlaneLines {
+    pump: Vec<f64>,
+    lines: Vec<LineResult>,
+}
+
+/// The initial, evenly spaced pump lines of several planes, as one batch for the source.
+fn initial_lines(
     src: &dyn BlochSource,
     planes: &[Plane],
     filling: usize,
     s: &Sampling,
-    refine: bool,
-) -> CoreResult<(Vec<PlaneResult>, BandStats)> {
-    let t0: Vec<f64> = (0..s.lines).map(|m| 0.5 * m as f64 / (s.lines - 1) as f64).collect();
+    loop_points: usize,
+) -> CoreResult<Vec<PlaneLines>> {
+    let t0: Vec<f64> = (0..s.lines)
+        .map(|m| 0.5 * m as f64 / (s.lines - 1) as f64)
+        .collect();
     let specs: Vec<LineSpec> = planes
         .iter()
         .flat_map(|p| t0.iter().map(move |&t| p.line(t)))
         .collect();
-    let mut res = evaluate_lines(src, &specs, s.loop_points, filling, None)?.into_iter();
-    let mut pump: Vec<Vec<f64>> = vec![t0.clone(); planes.len()];
-    let mut lines: Vec<Vec<LineResult>> = planes
+    let mut res = evaluate_lines(src, &specs, loop_points, filling, None)?.into_iter();
+    Ok(planes
         .iter()
-        .map(|_| res.by_ref().take(s.lines).collect())
-        .collect();
+        .map(|_| PlaneLines {
+            pump: t0.clone(),
+            lines: res.by_ref().take(s.lines).collect(),
+        })
+        .collect())
+}
+
+/// Adaptive insertion of pump lines (all planes in one batch per round) until every
+/// neighbouring pair passes the refinement test or `max_lines` is reached.
+fn refine_lines(
+    src: &dyn BlochSource,
+    planes: &[Plane],
+    all: &mut [PlaneLines],
+    filling: usize,
+    s: &Sampling,
+    loop_points: usize,
+) -> CoreResult<()> {
     loop {
         let mut wanted: Vec<(usize, f64)> = Vec::new();
-        if refine {
-            for (p, (ts, ls)) in pump.iter().zip(&lines).enumerate() {
-                let budget = s.max_lines.saturating_sub(ts.len());
-                let mut new: Vec<(f64, f64)> = (0..ts.len() - 1)
-                    .filter(|&m| ts[m + 1] - ts[m] > MIN_INTERVAL)
-                    .filter_map(|m| {
-                        let iv = inspect(&ls[m].centres, &ls[m + 1].centres, s.step_limit);
-                        iv.refine.then_some((iv.step, 0.5 * (ts[m] + ts[m + 1])))
-                    })
-                    .collect();
-                // largest motion first when the budget cannot take them all
-                new.sort_by(|a, b| b.0.total_cmp(&a.0));
-                wanted.extend(new.into_iter().take(budget).map(|(_, t)| (p, t)));
-            }
+        for (p, pl) in all.iter().enumerate() {
+            let (ts, ls) = (&pl.pump, &pl.lines);
+            let budget = s.max_lines.saturating_sub(ts.len());
+            let mut new: Vec<(f64, f64)> = (0..ts.len() - 1)
+                .filter(|&m| ts[m + 1] - ts[m] > MIN_INTERVAL)
+                .filter_map(|m| {
+                    let iv = inspect(&ls[m].centres, &ls[m + 1].centres, s.step_limit);
+                    iv.refine.then_some((iv.step, 0.5 * (ts[m] + ts[m + 1])))
+                })
+                .collect();
+            // largest motion first when the budget cannot take them all
+            new.sort_by(|a, b| b.0.total_cmp(&a.0));
+            wanted.extend(new.into_iter().take(budget).map(|(_, t)| (p, t)));
         }
         if wanted.is_empty() {
-            break;
+            return Ok(());
         }
         let specs: Vec<LineSpec> = wanted.iter().map(|&(p, t)| planes[p].line(t)).collect();
-        let got = evaluate_lines(src, &specs, s.loop_points, filling, None)?;
+        let got = evaluate_lines(src, &specs, loop_points, filling, None)?;
         for ((p, t), r) in wanted.into_iter().zip(got) {
-            let at = pump[p].partition_point(|&x| x < t);
-            pump[p].insert(at, t);
-            lines[p].insert(at, r);
+            let at = all[p].pump.partition_point(|&x| x < t);
+            all[p].pump.insert(at, t);
+            all[p].lines.insert(at, r);
         }
     }
-    let mut stats = BandStats::default();
-    let results = pump
-        .into_iter()
-        .zip(lines)
-        .map(|(ts, ls)| {
-            ls.iter().for_each(|l| stats.merge(&l.stats));
-            let mut converged = true;
-            let (mut max_step, mut min_clear) = (0.0f64, f64::INFINITY);
-            for m in 0..ls.len() - 1 {
-                let iv = inspect(&ls[m].centres, &ls[m + 1].centres, s.step_limit);
-                converged &= !iv.refine;
-                max_step = max_step.max(iv.step);
-                min_clear = min_clear.min(iv.clearance);
-            }
-            let centres: Vec<Vec<f64>> = ls.into_iter().map(|l| l.centres).collect();
-            let refs: Vec<&[f64]> = centres.iter().map(|c| c.as_slice()).collect();
-            let z2 = if converged { z2_of_flow(&refs) as i8 } else { -1 };
-            PlaneResult {
-                z2,
-                converged,
-                lines_used: ts.len(),
-                max_step,
-                min_clearance: min_clear,
-                pump: ts,
-                centres,
-            }
-        })
-        .collect();
-    Ok((results, stats))
+}
+
+/// Z2 and flow diagnostics of each plane from its lines.
+fn summarise(all: Vec<PlaneLines>, s: &Sampling) -> Vec<PlaneResult> {
+    all.into_iter()
+        .map(
+            |PlaneLines {
+                 pump: ts,
+                 lines: ls,
+             }| {
+                let mut converged = true;
+                let (mut max_step, mut min_clear) = (0.0f64, f64::INFINITY);
+                for m in 0..ls.len() - 1 {
+                    let iv = inspect(&ls[m].centres, &ls[m + 1].centres, s.step_limit);
+                    converged &= !iv.refine;
+                    max_step = max_step.max(iv.step);
+                    min_clear = min_clear.min(iv.clearance);
+                }
+                let centres: Vec<Vec<f64>> = ls.into_iter().map(|l| l.centres).collect();
+                let refs: Vec<&[f64]> = centres.iter().map(|c| c.as_slice()).collect();
+                let z2 = if converged {
+                    z2_of_flow(&refs) as i8
+                } else {
+                    -1
+                };
+                PlaneResult {
+                    z2,
+                    converged,
+                    lines_used: ts.len(),
+                    max_step,
+                    min_clearance: min_clear,
+                    pump: ts,
+                    centres,
+                }
+            },
+        )
+        .collect()
+}
+
+/// Band statistics of every line, and each line's own smallest gap (gap-search candidates).
+fn line_stats(all: &[PlaneLines], stats: &mut BandStats, cand: &mut Vec<(f64, [f64; 3])>) {
+    for l in all.iter().flat_map(|p| &p.lines) {
+        stats.merge(&l.stats);
+        cand.push((l.stats.min_direct, l.stats.min_direct_at));
+    }
 }
 
 /// Evaluate one parameter point. `inversion` (n×n, P² = 1) enables the parity indices.
@@ -225,17 +295,34 @@ pub fn evaluate_point(
     s.validate()?;
     let (dim, n) = (src.dim(), src.norb());
     if !(2..=3).contains(&dim) {
-        return Err(invalid!("Z2 indices need a 2D or 3D model, got dim = {dim}"));
+        return Err(invalid!(
+            "Z2 indices need a 2D or 3D model, got dim = {dim}"
+        ));
     }
     if filling == 0 || filling >= n {
         return Err(invalid!("filling must lie in 1…{}, got {filling}", n - 1));
     }
-    // TRIMs first: gaps, parity, and an early exit for points that are plainly gapless.
+    // TRIMs first (gaps, parity), then a uniform bulk grid (3D) and the initial pump lines;
+    // every sampled κ point is a candidate start for the gap search.
     let trim_k: Vec<f64> = trims(dim).iter().flat_map(|k| k[..dim].to_vec()).collect();
     let (trim_stats, trim_e, trim_v) = evaluate_points(src, &trim_k, filling, true)?;
-    let (bulk_stats, _, _) = evaluate_points(src, &bulk_grid(dim, s.gap_points), filling, false)?;
     let mut stats = trim_stats;
-    stats.merge(&bulk_stats);
+    let trim_gap: Vec<f64> = trim_e.iter().map(|e| e[filling] - e[filling - 1]).collect();
+    let mut cand: Vec<(f64, [f64; 3])> = trims(dim)
+        .into_iter()
+        .zip(&trim_gap)
+        .map(|(k, &g)| (g, k))
+        .collect();
+    let bulk_k = bulk_grid(dim, s.gap_points);
+    let bulk_gap = gaps_at(src, &bulk_k, filling, &mut stats)?;
+    for (g, k) in bulk_gap.iter().zip(bulk_k.chunks_exact(dim)) {
+        let mut at = [0.0; 3];
+        at[..dim].copy_from_slice(k);
+        cand.push((*g, at));
+    }
+    let pl = planes(dim);
+    let mut lines = initial_lines(src, &pl, filling, s, s.loop_points)?;
+    line_stats(&lines, &mut stats, &mut cand);
     let floor_of = |st: &BandStats| {
         if s.gap_floor > 0.0 {
             s.gap_floor
@@ -243,15 +330,32 @@ pub fn evaluate_point(
             (AUTO_FLOOR_REL * st.bandwidth()).max(1e-12)
         }
     };
-    let trim_gap: Vec<f64> = trim_e.iter().map(|e| e[filling] - e[filling - 1]).collect();
-    let early_gapless = stats.min_direct < floor_of(&stats);
-    let pl = planes(dim);
-    let (plane_res, line_stats) = flows(src, &pl, filling, s, !early_gapless)?;
-    stats.merge(&line_stats);
+    // True gap minimum: follow the smallest sampled gaps down to the model's local minima.
+    let mut search_evaluations = 0;
+    if s.gap_starts > 0 && stats.min_direct >= floor_of(&stats) {
+        let starts = pick_starts(&mut cand, s.gap_starts, dim);
+        let set = SearchSettings::new(0.5 * sampled_spacing(dim, s), floor_of(&stats));
+        let found = minimise(src, filling, &starts, &set, &mut stats)?;
+        search_evaluations = found.evaluations;
+        if found.gap < stats.min_direct {
+            stats.min_direct = found.gap;
+            stats.min_direct_at = found.kappa;
+        }
+    }
+    // Adaptive pump lines only where the point is gapped: near a closing they would be spent
+    // resolving a flow that has no Z2 anyway.
+    if stats.min_direct >= floor_of(&stats) {
+        refine_lines(src, &pl, &mut lines, filling, s, s.loop_points)?;
+        let mut none = Vec::new();
+        line_stats(&lines, &mut stats, &mut none);
+    }
+    let plane_res = summarise(lines, s);
     let floor = floor_of(&stats);
 
     let parity = match inversion {
-        Some(p) => Some(parity_indices(&trim_v, &trim_gap, p, n, filling, dim, floor)?),
+        Some(p) => Some(parity_indices(
+            &trim_v, &trim_gap, p, n, filling, dim, floor,
+        )?),
         None => None,
     };
 
@@ -278,8 +382,7 @@ pub fn evaluate_point(
         reason::GAPLESS
     } else if !converged {
         reason::NOT_CONVERGED
-    } else if dim == 3 && !(nu0_by_axis[0] == nu0_by_axis[1] && nu0_by_axis[1] == nu0_by_axis[2])
-    {
+    } else if dim == 3 && !(nu0_by_axis[0] == nu0_by_axis[1] && nu0_by_axis[1] == nu0_by_axis[2]) {
         reason::NU0_ESTIMATES_DISAGREE
     } else {
         reason::DEFINED
@@ -301,8 +404,12 @@ pub fn evaluate_point(
         converged,
         reason: why,
         lines_used: plane_res.iter().map(|p| p.lines_used).max().unwrap_or(0),
+        search_evaluations,
         max_step: plane_res.iter().map(|p| p.max_step).fold(0.0, f64::max),
-        min_clearance: plane_res.iter().map(|p| p.min_clearance).fold(f64::INFINITY, f64::min),
+        min_clearance: plane_res
+            .iter()
+            .map(|p| p.min_clearance)
+            .fold(f64::INFINITY, f64::min),
         parity,
     })
 }
@@ -369,13 +476,21 @@ mod tests {
             step_limit: 0.1,
             gap_floor: 0.0,
             gap_points: 0,
+            gap_starts: 3,
         }
     }
 
     #[test]
     fn bhz_phases() {
         let model = bhz();
-        for (m, want) in [(-3.0, 0), (-1.0, 1), (-0.3, 1), (0.5, 1), (1.7, 1), (2.5, 0)] {
+        for (m, want) in [
+            (-3.0, 0),
+            (-1.0, 1),
+            (-0.3, 1),
+            (0.5, 1),
+            (1.7, 1),
+            (2.5, 0),
+        ] {
             let src = model.at(&[m]).unwrap();
             let r = evaluate_point(&src, 2, None, &sampling()).unwrap();
             assert_eq!(r.reason, reason::DEFINED, "m = {m}");

@@ -9,6 +9,7 @@ pub mod eigen;
 pub mod engine;
 pub mod error;
 pub mod flow;
+pub mod gap_search;
 pub mod matrix;
 pub mod parity;
 pub mod wilson;

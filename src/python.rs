@@ -237,7 +237,7 @@ fn matrix(a: &PyReadonlyArray2<C64>, n: usize, what: &str) -> PyResult<Vec<C64>>
 /// of arrays whose first axis is the point.
 #[pyfunction]
 #[pyo3(signature = (model, coeffs, filling, *, inversion=None, loop_points, lines, max_lines,
-                    step_limit, gap_floor, gap_points, threads=None))]
+                    step_limit, gap_floor, gap_points, gap_starts=3, threads=None))]
 #[allow(clippy::too_many_arguments)]
 fn evaluate<'py>(
     py: Python<'py>,
@@ -251,11 +251,20 @@ fn evaluate<'py>(
     step_limit: f64,
     gap_floor: f64,
     gap_points: usize,
+    gap_starts: usize,
     threads: Option<usize>,
 ) -> PyResult<Bound<'py, PyDict>> {
     let rows = coeff_rows(model, &coeffs)?;
     let inv = inversion.map(|p| matrix(&p, model.norb, "inversion")).transpose()?;
-    let s = Sampling { loop_points, lines, max_lines, step_limit, gap_floor, gap_points };
+    let s = Sampling {
+        loop_points,
+        lines,
+        max_lines,
+        step_limit,
+        gap_floor,
+        gap_points,
+        gap_starts,
+    };
     s.validate().map_err(to_py)?;
     let error = Arc::new(Mutex::new(None));
     let run = detached(py, threads, || {

@@ -46,6 +46,7 @@ def evaluate(
     step_limit: float,
     gap_floor: float,
     gap_points: int,
+    gap_starts: int = 3,
     threads: int | None = None,
 ) -> dict[str, NDArray[Any]]: ...
 def hamiltonian(

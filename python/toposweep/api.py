@@ -32,6 +32,7 @@ def invariants(
     step_limit: float = _DEFAULT.step_limit,
     gap_floor: float | None = _DEFAULT.gap_floor,
     gap_points: int = _DEFAULT.gap_points,
+    gap_starts: int = _DEFAULT.gap_starts,
     threads: int | None = None,
 ) -> xr.Dataset:
     """Z2 indices of a time-reversal-invariant insulator at one parameter point.
@@ -51,7 +52,7 @@ def invariants(
         Parameter values; the rest come from ``model.defaults``.
     inversion : array (norb, norb), optional
         Inversion matrix for this call (overrides the model's).
-    loop_points, lines, max_lines, step_limit, gap_floor, gap_points
+    loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts
         Sampling options, see :class:`toposweep.Sampling`.
     threads : int, optional
         Worker threads (default: all cores, or ``RAYON_NUM_THREADS``).
@@ -76,6 +77,7 @@ def invariants(
         step_limit=step_limit,
         gap_floor=gap_floor,
         gap_points=gap_points,
+        gap_starts=gap_starts,
     )
     if not isinstance(model, Model):
         raise ModelError(f"expected a toposweep model, got {type(model).__name__}")

@@ -157,7 +157,7 @@ def build_dataset(
         dims,
         grid(raw["gap_direct"]),
         {
-            "long_name": "smallest direct band gap at the filling over sampled kappa",
+            "long_name": "smallest direct band gap at the filling (minimised over kappa)",
             "units": unit,
         },
     )
@@ -174,7 +174,7 @@ def build_dataset(
         dims + ("kappa_axis",),
         grid(raw["gap_kappa"], (model.dim,)),
         {
-            "long_name": "reduced coordinates of the smallest sampled direct gap",
+            "long_name": "reduced coordinates of the smallest direct gap",
             "units": "1",
         },
     )
@@ -183,6 +183,14 @@ def build_dataset(
         grid(raw["bandwidth"]),
         {
             "long_name": "spread of all band energies over sampled kappa",
+            "units": unit,
+        },
+    )
+    data["gap_floor"] = (
+        dims,
+        grid(raw["gap_floor"]),
+        {
+            "long_name": "direct gap below which the point counts as gapless",
             "units": unit,
         },
     )

@@ -32,6 +32,11 @@ class Sampling:
     gap_points : int
         Points per axis of an extra uniform bulk grid (3D only) used for the gap, so gap
         closings away from the time-reversal-invariant planes are seen. 0 disables it.
+    gap_starts : int
+        Starting points of the gap minimiser: from the smallest sampled direct gaps, a compass
+        search over κ finds the model's true local gap minima, so a band touching between
+        sampled κ points is not missed and ``gap_direct`` is the model's minimum, not the
+        grid's. 0 switches the search off (the gap is then only the sampled minimum).
 
     Examples
     --------
@@ -45,9 +50,10 @@ class Sampling:
     step_limit: float = 0.08
     gap_floor: float | None = None
     gap_points: int = 8
+    gap_starts: int = 3
 
     def __post_init__(self) -> None:
-        for name in ("loop_points", "lines", "max_lines", "gap_points"):
+        for name in ("loop_points", "lines", "max_lines", "gap_points", "gap_starts"):
             value = getattr(self, name)
             if isinstance(value, bool) or not isinstance(value, int | float):
                 raise SamplingError(f"{name} must be an integer, got {value!r}")
@@ -65,6 +71,8 @@ class Sampling:
             )
         if self.gap_points < 0:
             raise SamplingError(f"gap_points must be 0 or positive, got {self.gap_points}")
+        if self.gap_starts < 0:
+            raise SamplingError(f"gap_starts must be 0 or positive, got {self.gap_starts}")
         step = self.step_limit
         if isinstance(step, bool) or not isinstance(step, int | float) or not 0 < step < 0.5:
             raise SamplingError(f"step_limit must lie in (0, 0.5), got {step!r}")
