@@ -52,3 +52,11 @@ def test_hermitian_and_kramers_degenerate_at_trims(model, rng):
 def test_builder_keywords_set_the_defaults(builder):
     for name in builder().parameters:
         assert builder(**{name: 0.123}).defaults[name] == 0.123
+
+
+@pytest.mark.parametrize("builder", BUILDERS, ids=ts.models.__all__)
+@pytest.mark.parametrize("bad", ["1.0", float("nan"), float("inf"), None, True])
+def test_builder_rejects_bad_defaults_with_a_clear_error(builder, bad):
+    name = builder().parameters[0]
+    with pytest.raises(ts.ParameterError, match=rf"{name}=.*finite real number"):
+        builder(**{name: bad})

@@ -8,6 +8,7 @@ for −3 < m/t < −1, (0;111) for |m/t| < 1, (1;111) for 1 < m/t < 3.
 from __future__ import annotations
 
 from ..tightbinding import TightBinding
+from ._defaults import checked_defaults
 from ._matrices import kron, s0, spin_time_reversal, sx, sy, sz
 
 __all__ = ["wilson_dirac"]
@@ -45,7 +46,7 @@ def wilson_dirac(*, mass: float = -2.0, hopping: float = 1.0) -> TightBinding:
         r = [0, 0, 0]
         r[i] = 1
         m.add(tuple(r), 0.5 * (g4 - 1j * kron(sx, s)), term="hopping")
-    m.defaults = {"mass": float(mass), "hopping": float(hopping)}
+    m.defaults = checked_defaults("wilson_dirac", mass=mass, hopping=hopping)
     m.parameter_info = {
         "mass": {"long_name": "Dirac mass m", "units": "1"},
         "hopping": {"long_name": "hopping t", "units": "1"},

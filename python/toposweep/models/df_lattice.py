@@ -35,6 +35,7 @@ import itertools
 import numpy as np
 
 from ..tightbinding import TightBinding
+from ._defaults import checked_defaults
 from ._matrices import kron, s0, spin_time_reversal, sx, sy, sz
 
 __all__ = ["df_lattice"]
@@ -113,12 +114,13 @@ def df_lattice(
         r = [0, 0, 0]
         r[axis] = 1
         m.add(tuple(r), -0.5j * kron(sx, s), term="hybridisation")
-    m.defaults = {
-        "d_hopping": float(d_hopping),
-        "f_hopping": float(f_hopping),
-        "f_level": float(f_level),
-        "hybridisation": float(hybridisation),
-    }
+    m.defaults = checked_defaults(
+        "df_lattice",
+        d_hopping=d_hopping,
+        f_hopping=f_hopping,
+        f_level=f_level,
+        hybridisation=hybridisation,
+    )
     m.parameter_info = {
         "d_hopping": {"long_name": "d-band hopping t_d", "units": "eV"},
         "f_hopping": {"long_name": "f-band hopping t_f", "units": "eV"},

@@ -22,6 +22,7 @@ import numpy as np
 
 from ..tightbinding import TightBinding
 from ._bonds import add_spin_bond, bond_shells, common_neighbour
+from ._defaults import checked_defaults
 from ._matrices import kron, s0, spin_time_reversal, sx, sy, sz
 
 __all__ = ["fu_kane_mele"]
@@ -82,11 +83,9 @@ def fu_kane_mele(
         c = 8.0 * np.cross(d1, d2)  # a = 1
         spin = c[0] * sx + c[1] * sy + c[2] * sz
         add_spin_bond(m, bond, 2, 1j * spin, "spin_orbit")
-    m.defaults = {
-        "hopping": float(hopping),
-        "spin_orbit": float(spin_orbit),
-        "dimerisation": float(dimerisation),
-    }
+    m.defaults = checked_defaults(
+        "fu_kane_mele", hopping=hopping, spin_orbit=spin_orbit, dimerisation=dimerisation
+    )
     m.parameter_info = {
         "hopping": {"long_name": "nearest-neighbour hopping t", "units": "1"},
         "spin_orbit": {"long_name": "spin-orbit coupling lambda_SO", "units": "1"},

@@ -16,6 +16,7 @@ import numpy as np
 
 from ..tightbinding import TightBinding
 from ._bonds import add_spin_bond, bond_shells, common_neighbour
+from ._defaults import checked_defaults
 from ._matrices import kron, s0, spin_time_reversal, sx, sy, sz
 
 __all__ = ["kane_mele"]
@@ -83,12 +84,9 @@ def kane_mele(
         s_cross_d = sx * d[1] - sy * d[0]  # (s × d̂)_z
         add_spin_bond(m, bond, 2, 1j * s_cross_d, "rashba")
     m.add((0, 0), kron(sz, s0), term="staggered")
-    m.defaults = {
-        "hopping": float(hopping),
-        "spin_orbit": float(spin_orbit),
-        "rashba": float(rashba),
-        "staggered": float(staggered),
-    }
+    m.defaults = checked_defaults(
+        "kane_mele", hopping=hopping, spin_orbit=spin_orbit, rashba=rashba, staggered=staggered
+    )
     m.parameter_info = {
         "hopping": {"long_name": "nearest-neighbour hopping t", "units": "1"},
         "spin_orbit": {"long_name": "spin-orbit coupling lambda_SO", "units": "1"},

@@ -9,6 +9,7 @@ and its time-reversed partner h*(−k) for spin down (Bernevig, Hughes & Zhang, 
 from __future__ import annotations
 
 from ..tightbinding import TightBinding
+from ._defaults import checked_defaults
 from ._matrices import kron, s0, spin_time_reversal, sx, sy, sz
 
 __all__ = ["bhz"]
@@ -44,7 +45,7 @@ def bhz(*, mass: float = -1.0, hopping: float = 1.0) -> TightBinding:
     # T e^{ik} + T† e^{-ik} = Γ_a sin k + Γ_z cos k  ⇔  T = (Γ_z − iΓ_a)/2
     m.add((1, 0), 0.5 * (gz - 1j * kron(sz, sx)), term="hopping")
     m.add((0, 1), 0.5 * (gz - 1j * kron(s0, sy)), term="hopping")
-    m.defaults = {"mass": float(mass), "hopping": float(hopping)}
+    m.defaults = checked_defaults("bhz", mass=mass, hopping=hopping)
     m.parameter_info = {
         "mass": {"long_name": "mass m", "units": "1"},
         "hopping": {"long_name": "hopping t", "units": "1"},
