@@ -104,15 +104,11 @@ def common_neighbour(
     cart = sites @ lattice
     r_i = cart[bond.i]
     r_j = cart[bond.j] + np.asarray(bond.R) @ lattice
-    legs = []
-    for k in range(len(sites)):
-        for cell in _cells(lattice.shape[0], 3):
-            r_k = cart[k] + np.asarray(cell) @ lattice
-            if (
-                abs(np.linalg.norm(r_k - r_i) - nn_distance) < _TOL
-                and abs(np.linalg.norm(r_k - r_j) - nn_distance) < _TOL
-            ):
-                legs.append((r_k - r_j, r_i - r_k))
+    shifts = np.asarray(_cells(lattice.shape[0], 3), dtype=float) @ lattice
+    candidates = (cart[:, None, :] + shifts[None, :, :]).reshape(-1, lattice.shape[0])
+    near_i = np.abs(np.linalg.norm(candidates - r_i, axis=1) - nn_distance) < _TOL
+    near_j = np.abs(np.linalg.norm(candidates - r_j, axis=1) - nn_distance) < _TOL
+    legs = [(r_k - r_j, r_i - r_k) for r_k in candidates[near_i & near_j]]
     if len(legs) != 1:
         raise ValueError(f"expected one shared neighbour for {bond}, found {len(legs)}")
     return legs[0]
