@@ -274,6 +274,15 @@ def build_dataset(
                 **_flags(REASONS),
             },
         )
+        ntrim = 2**model.dim
+        data["odd_parity_states"] = (
+            dims + ("trim",),
+            grid(raw["odd_count"], (ntrim,)).astype(np.int16),
+            {
+                "long_name": "occupied states of odd parity at each TRIM (-1: undefined)",
+                "units": "1",
+            },
+        )
 
     coord_vars: dict[str, Any] = {}
     for d in dims:
@@ -294,6 +303,25 @@ def build_dataset(
             np.array([0.0, 0.5]),
             {
                 "long_name": "reduced coordinate of the time-reversal-invariant plane",
+                "units": "1",
+            },
+        )
+    if parity_known:
+        # TRIM g has kappa_i = 1/2 where bit i of g is set (the core's order)
+        bits = (np.arange(2**model.dim)[:, None] >> np.arange(model.dim)[None, :]) & 1
+        coord_vars["trim"] = (
+            "trim",
+            np.arange(2**model.dim, dtype=np.int8),
+            {
+                "long_name": "time-reversal-invariant momentum index",
+                "units": "1",
+            },
+        )
+        coord_vars["trim_kappa"] = (
+            ("trim", "kappa_axis"),
+            0.5 * bits,
+            {
+                "long_name": "reduced coordinates of the TRIM",
                 "units": "1",
             },
         )
