@@ -15,6 +15,7 @@ from ._version import __version__
 from .api import invariants, wcc_flow
 from .callable_model import CallableModel
 from .errors import (
+    ConfigError,
     FillingError,
     ModelError,
     ParameterError,
@@ -32,6 +33,7 @@ from .tightbinding import TightBinding
 __all__ = [
     "__version__",
     "CallableModel",
+    "ConfigError",
     "FillingError",
     "Model",
     "ModelError",

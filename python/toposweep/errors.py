@@ -14,6 +14,7 @@ __all__ = [
     "SamplingError",
     "FillingError",
     "StoreError",
+    "ConfigError",
 ]
 
 
@@ -43,3 +44,7 @@ class FillingError(ToposweepError, ValueError):
 
 class StoreError(ToposweepError, ValueError):
     """A result file is unreadable, corrupt, or belongs to a different run."""
+
+
+class ConfigError(ToposweepError, ValueError):
+    """A run configuration file is malformed or names something that does not exist."""

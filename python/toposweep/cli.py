@@ -1,0 +1,195 @@
+"""The ``toposweep`` command: ``run``, ``summary``, ``plot`` and ``demo``.
+
+Mistakes in a configuration or an argument end with one line on stderr naming the key or the
+argument, and exit code 2 (no traceback). Ctrl-C during ``run`` keeps the finished chunks and
+exits with code 130; ``run --resume`` continues.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+from typing import NoReturn
+
+from ._version import __version__
+from .errors import ConfigError, ParameterError, ToposweepError
+from .store import journal_path, open_result
+
+__all__ = ["main"]
+
+EXIT_USAGE = 2
+EXIT_INTERRUPTED = 130
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse, but a usage mistake is one line (no usage block), exit code 2."""
+
+    def error(self, message: str) -> NoReturn:
+        sys.stderr.write(f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+        raise SystemExit(EXIT_USAGE)
+
+
+def _point(items: Sequence[str] | None) -> dict[str, float]:
+    out: dict[str, float] = {}
+    for item in items or []:
+        name, sep, value = item.partition("=")
+        try:
+            if not sep or not name:
+                raise ValueError
+            out[name.strip()] = float(value)
+        except ValueError:
+            raise ParameterError(
+                f"--at expects NAME=VALUE such as f_level=-0.5, got {item!r}"
+            ) from None
+    return out
+
+
+def _run(args: argparse.Namespace) -> int:
+    from .config import load_config
+    from .summary import summarise
+    from .sweep import SweepInterrupted, sweep
+
+    cfg = load_config(args.config)
+    out = cfg.output
+    leftover = journal_path(out).is_dir()
+    if not (args.resume or args.overwrite) and (out.exists() or leftover):
+        what = "an interrupted run's journal " + str(journal_path(out)) if leftover else str(out)
+        raise ConfigError(
+            f"{args.config}: output: {what} exists; pass --resume to continue (or reuse) it, "
+            "or --overwrite to start over"
+        )
+    try:
+        ds = sweep(**cfg.sweep_kwargs(), out=out, resume=args.resume, progress=not args.quiet)
+    except SweepInterrupted as exc:
+        raise KeyboardInterrupt(
+            f"interrupted after {exc.done} of {exc.total} points; the finished chunks are kept "
+            f"in {journal_path(out)}; continue with: toposweep run {args.config} --resume"
+        ) from None
+    print(summarise(ds, str(out)))
+    ds.close()
+    return 0
+
+
+def _summary(args: argparse.Namespace) -> int:
+    from .summary import summarise
+
+    with open_result(args.file) as ds:
+        print(summarise(ds, str(args.file)))
+    return 0
+
+
+def _plot(args: argparse.Namespace) -> int:
+    import matplotlib.pyplot as plt
+
+    from .flowplot import flow_figure
+    from .plotting import plot_line, plot_phase_map
+
+    at = _point(args.at)
+    path = Path(args.file)
+    with open_result(path) as ds:
+        dims = [str(d) for d in ds.phase.dims]
+        if args.flow:
+            fig = flow_figure(ds, at)
+            default = path.with_name(path.stem + "-flow.png")
+        elif not dims:
+            raise ParameterError(f"{path} holds a single point; use --flow to draw its HWC flow")
+        else:
+            x = args.x or dims[0]
+            others = [d for d in dims if d != x and d not in at]
+            if args.line or (args.y is None and not others):
+                fig = plot_line(ds, x, at=at)
+                default = path.with_name(f"{path.stem}-{x}.png")
+            else:
+                y = args.y or others[0]
+                fig = plot_phase_map(ds, x, y, at=at)
+                default = path.with_suffix(".png")
+    out = Path(args.out) if args.out else default
+    fig.savefig(out, dpi=args.dpi)
+    plt.close(fig)
+    print(f"wrote {out}")
+    return 0
+
+
+def _demo(args: argparse.Namespace) -> int:
+    from .demo import run_demo
+
+    for p in run_demo(args.out, progress=not args.quiet):
+        print(f"wrote {p}")
+    return 0
+
+
+def _parser() -> _Parser:
+    p = _Parser(
+        prog="toposweep",
+        description="Z2 topological indices of lattice models over parameter grids.",
+    )
+    p.add_argument("--version", action="version", version=f"toposweep {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
+
+    run = sub.add_parser("run", help="run the sweep described by a TOML configuration")
+    run.add_argument("config", help="configuration file (TOML)")
+    mode = run.add_mutually_exclusive_group()
+    mode.add_argument(
+        "--resume", action="store_true", help="continue an interrupted run (or reuse its file)"
+    )
+    mode.add_argument("--overwrite", action="store_true", help="replace an existing output")
+    run.add_argument("--quiet", action="store_true", help="no progress bar")
+    run.set_defaults(func=_run)
+
+    summ = sub.add_parser("summary", help="phases and counts, undefined points, parity checks")
+    summ.add_argument("file", help="result file (.nc)")
+    summ.set_defaults(func=_summary)
+
+    plot = sub.add_parser("plot", help="phase diagram, index/gap line, or HWC flow as PNG")
+    plot.add_argument("file", help="result file (.nc)")
+    plot.add_argument("--x", help="swept parameter along the horizontal axis")
+    plot.add_argument("--y", help="swept parameter along the vertical axis (phase diagram)")
+    plot.add_argument(
+        "--at",
+        nargs="+",
+        metavar="NAME=VALUE",
+        help="values of the other swept parameters (nearest grid point; default: middle)",
+    )
+    plot.add_argument("--line", action="store_true", help="indices and gap against --x")
+    plot.add_argument("--flow", action="store_true", help="HWC flow of the point given by --at")
+    plot.add_argument("--out", help="PNG file to write (default: next to the result file)")
+    plot.add_argument("--dpi", type=int, default=130, help="resolution (default 130)")
+    plot.set_defaults(func=_plot)
+
+    demo = sub.add_parser("demo", help="sweep a fictional mixed-valence compound")
+    demo.add_argument("--out", default="demo-output", help="folder for the files")
+    demo.add_argument("--quiet", action="store_true", help="no progress bar")
+    demo.set_defaults(func=_demo)
+    return p
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``toposweep`` command; returns the exit code.
+
+    Examples
+    --------
+    >>> main(["summary", "no/such/file.nc"])
+    2
+    """
+    args = _parser().parse_args(argv)
+    try:
+        return int(args.func(args))
+    except KeyboardInterrupt as exc:  # SweepInterrupted says where the finished chunks are
+        sys.stderr.write(f"toposweep: {exc or 'interrupted'}\n")
+        return EXIT_INTERRUPTED
+    except (ToposweepError, OSError) as exc:
+        sys.stderr.write(f"toposweep: error: {_one_line(exc)}\n")
+        return EXIT_USAGE
+
+
+def _one_line(exc: BaseException) -> str:
+    text = str(exc) or type(exc).__name__
+    if isinstance(exc, OSError) and exc.filename:
+        text = f"{exc.filename}: {exc.strerror or text}"
+    return " ".join(text.split())
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,62 @@
+"""Hybrid Wannier centre flow of one point of a result file, recomputed from its model."""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Mapping
+
+import xarray as xr
+from matplotlib.figure import Figure
+
+from .api import wcc_flow
+from .errors import StoreError
+from .model import Model
+from .plotting import plot_flow, select
+
+__all__ = ["flow_figure", "point_of"]
+
+
+def point_of(ds: xr.Dataset, at: Mapping[str, float]) -> tuple[Model, xr.Dataset, dict[str, float]]:
+    """The model of a result, the grid point nearest to ``at`` and its model parameters."""
+    from . import model_from_dict
+
+    if "coefficients" in ds.attrs:
+        raise StoreError(
+            "this result was computed through a coefficients mapping, which the file does not "
+            "hold; draw the flow in Python with toposweep.wcc_flow(model, filling, params)"
+        )
+    try:
+        model = model_from_dict(json.loads(ds.attrs["model"]))
+    except (KeyError, ValueError) as exc:
+        raise StoreError(f"the file's model description cannot be rebuilt: {exc}") from None
+    point = select(ds, [], at)
+    params = {
+        str(k): float(v)
+        for k, v in point.coords.items()
+        if v.ndim == 0 and str(k) in model.parameters
+    }
+    return model, point, params
+
+
+def flow_figure(ds: xr.Dataset, at: Mapping[str, float]) -> Figure:
+    """HWC flow on every time-reversal-invariant plane at the grid point nearest to ``at``.
+
+    Grid dims not in ``at`` are taken at their middle value.
+    """
+    model, point, params = point_of(ds, at)
+    filling = int(ds.attrs["filling"])
+    loop_points = int(json.loads(ds.attrs["sampling"]).get("loop_points", 32))
+    flows, z2 = [], []
+    if model.dim == 3:
+        for axis in (1, 2, 3):
+            for k, cut in enumerate((0.0, 0.5)):
+                flows.append(
+                    wcc_flow(model, filling, params, axis=axis, cut=cut, loop_points=loop_points)
+                )
+                z2.append(int(point.z2_plane.values[axis - 1, k]))
+    else:
+        flows.append(wcc_flow(model, filling, params, loop_points=loop_points))
+        z2.append(int(point.nu0))
+    where = ", ".join(f"{k} = {v:.4g}" for k, v in params.items())
+    title = f"hybrid Wannier centre flow, {model.name}\n{where}"
+    return plot_flow(flows, z2, title)

@@ -1,0 +1,171 @@
+"""The ``toposweep`` command end to end (run → summary → plot) and its handling of mistakes."""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+import textwrap
+from pathlib import Path
+
+import matplotlib.image as mpimg
+import pytest
+import xarray as xr
+from toposweep.cli import main
+
+CONFIG = textwrap.dedent(
+    """
+    # the cubic Wilson-Dirac model over mass and hopping
+    model = "wilson_dirac"
+    filling = 2
+    output = "wd.nc"
+
+    [grid]
+    mass = { start = -4.0, stop = 4.0, num = 9 }
+    hopping = { values = [0.5, 1.0], long_name = "overall hopping t", units = "1" }
+
+    [sampling]
+    loop_points = 16
+    lines = 9
+    """
+)
+
+
+def toposweep(*args: str, cwd: Path) -> subprocess.CompletedProcess[str]:
+    """Run the installed console script as a user would."""
+    exe = Path(sys.executable).with_name("toposweep")
+    return subprocess.run(
+        [str(exe), *args], cwd=cwd, capture_output=True, text=True, timeout=300, check=False
+    )
+
+
+def test_run_summary_plot_end_to_end(tmp_path: Path) -> None:
+    (tmp_path / "wd.toml").write_text(CONFIG)
+    run = toposweep("run", "wd.toml", cwd=tmp_path)
+    assert run.returncode == 0, run.stderr
+    assert run.stderr == ""  # no progress bar when stderr is not a terminal
+    assert "strong TI (1;000)" in run.stdout and "weak TI (0;111)" in run.stdout
+    out = tmp_path / "wd.nc"
+    with xr.open_dataset(out) as ds:
+        assert dict(ds.sizes)["mass"] == 9 and ds.hopping.attrs["long_name"] == "overall hopping t"
+
+    summary = toposweep("summary", "wd.nc", cwd=tmp_path)
+    assert summary.returncode == 0, summary.stderr
+    assert "Fu-Kane parity cross-check: " in summary.stdout
+    assert "0 disagree" in summary.stdout
+    assert "undefined points, by reason:" in summary.stdout  # |m/t| = 1, 3 lie on the grid
+
+    for args, png in [
+        ((), "wd.png"),
+        (("--line", "--at", "hopping=1"), "wd-mass.png"),
+        (("--flow", "--at", "mass=-2", "hopping=1"), "wd-flow.png"),
+    ]:
+        plot = toposweep("plot", "wd.nc", *args, cwd=tmp_path)
+        assert plot.returncode == 0, plot.stderr
+        image = mpimg.imread(tmp_path / png)
+        assert image.shape[0] > 300 and image.shape[1] > 500
+        assert image[..., :3].std() > 0.05  # not a blank canvas
+
+
+def test_existing_output_needs_resume_or_overwrite(tmp_path: Path, capsys) -> None:
+    (tmp_path / "wd.toml").write_text(CONFIG)
+    cfg = str(tmp_path / "wd.toml")
+    assert main(["run", cfg, "--quiet"]) == 0
+    capsys.readouterr()
+    assert main(["run", cfg]) == 2
+    assert "--resume" in capsys.readouterr().err
+    assert main(["run", cfg, "--resume"]) == 0  # reuses the finished file
+    assert main(["run", cfg, "--overwrite", "--quiet"]) == 0
+
+
+BAD_CONFIGS = [
+    ("model = \n", "not valid TOML", "line 1"),
+    ('model = "nope"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = [1.0]\n', "model", "nope"),
+    ('model = "bhz"\nfilling = 2\n[grid]\nmass = [1.0]\n', "output", "missing"),
+    ('model = "bhz"\nfiling = 2\noutput = "x.nc"\n[grid]\nmass = [1.0]\n', "filing", "unknown"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = { start = 0, num = 3 }\n',
+     "grid.mass", "stop"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = [1.0, "a"]\n',
+     "grid.mass[1]", "number"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\n'
+     'mass = { start = 0, stop = 1, num = 0 }\n', "grid.mass.num", "positive"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = [1.0]\n[sampling]\nloops = 3\n',
+     "sampling", "loops"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = [1.0]\n[model_options]\nx = 1\n',
+     "model_options", "x"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = [1.0]\n[run]\ncores = 2\n',
+     "run.cores", "unknown"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\nspin = [1.0]\n',
+     "spin", "not parameters"),
+    ('model = "bhz"\nfilling = 3\noutput = "x.nc"\n[grid]\nmass = [1.0]\n', "filling", "odd"),
+    ('model = "missing.py:build"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = [1.0]\n',
+     "model", "no such file"),
+]  # fmt: skip
+
+
+@pytest.mark.parametrize(("text", "key", "words"), BAD_CONFIGS)
+def test_bad_config_is_one_line_naming_the_key(tmp_path: Path, capsys, text, key, words) -> None:
+    cfg = tmp_path / "bad.toml"
+    cfg.write_text(text)
+    assert main(["run", str(cfg)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and err.startswith("toposweep: error: ")
+    assert key in err and words in err
+    assert "Traceback" not in err
+    assert not (tmp_path / "x.nc").exists()
+
+
+@pytest.mark.parametrize(
+    "argv",
+    [
+        ["frobnicate"],
+        ["run"],
+        ["summary", "missing.nc"],
+        ["plot", "missing.nc"],
+        ["run", "missing.toml"],
+        ["run", "a.toml", "--resume", "--overwrite"],
+    ],
+)
+def test_bad_arguments_are_one_line_exit_2(argv, capsys, tmp_path: Path) -> None:
+    os.chdir(tmp_path)
+    try:
+        code = main(argv)
+    except SystemExit as exc:  # argparse's own mistakes
+        code = exc.code
+    assert code == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_model_from_a_user_file(tmp_path: Path, capsys) -> None:
+    (tmp_path / "mine.py").write_text(
+        textwrap.dedent(
+            """
+            import toposweep as ts
+
+            def build(scale=1.0):
+                m = ts.models.bhz()
+                m.name = "my square-lattice model"
+                return m
+            """
+        )
+    )
+    (tmp_path / "mine.toml").write_text(
+        'model = "mine.py:build"\nfilling = 2\noutput = "mine.nc"\n'
+        "[model_options]\nscale = 2.0\n[grid]\nmass = [-3.0, -1.0]\n"
+        "[sampling]\nloop_points = 12\nlines = 7\n"
+    )
+    assert main(["run", str(tmp_path / "mine.toml"), "--quiet"]) == 0
+    out = capsys.readouterr().out
+    assert "my square-lattice model" in out and "Z2-odd 2D insulator (Z2 = 1)" in out
+
+
+def test_plot_rejects_unknown_parameter(tmp_path: Path, capsys) -> None:
+    (tmp_path / "wd.toml").write_text(CONFIG)
+    assert main(["run", str(tmp_path / "wd.toml"), "--quiet"]) == 0
+    capsys.readouterr()
+    assert main(["plot", str(tmp_path / "wd.nc"), "--at", "nope=1"]) == 2
+    err = capsys.readouterr().err
+    assert "'nope' is not a swept parameter" in err
+    assert main(["plot", str(tmp_path / "wd.nc"), "--at", "mass"]) == 2
+    assert "NAME=VALUE" in capsys.readouterr().err
