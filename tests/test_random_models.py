@@ -1,0 +1,200 @@
+"""Acceptance on random models (issue 2): Wilson loop against parity, basis and perturbation.
+
+Every model is a random time-reversal- (and inversion-) symmetric insulator from
+``random_models.py`` with an open gap (NumPy estimate ≥ 4 % of the bandwidth). All runs use the
+DEFAULT sampling of :func:`toposweep.invariants`; nothing here is tuned per model.
+
+Outside references:
+- Fu & Kane, Phys. Rev. B 76, 045302 (2007): with inversion, the Z2 indices follow from the
+  parity eigenvalues of the occupied Kramers pairs at the TRIMs. Computed here independently
+  with ``numpy.linalg.eigh`` on a NumPy Bloch sum (``random_models.parity_indices``).
+- Z2 indices are invariant under a unitary change of orbital basis and under any symmetric
+  deformation that keeps the gap open (common practice, no source); Weyl's inequality
+  (Horn & Johnson, Matrix Analysis, 2nd ed., Cor. 4.3.15 (2013), from memory) bounds the
+  eigenvalue shift by ‖ΔH‖, so a perturbation with ‖ΔH(κ)‖ < gap/4 cannot close the gap.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass
+
+import numpy as np
+import pytest
+import random_models as rm
+import toposweep as ts
+from toposweep.evaluation import check_filling
+from toposweep.symmetry import TOLERANCE
+
+N3D = 140  # random 3D models
+N2D = 100  # random 2D models
+N_TRANSFORMED = 30  # of each dimension, checked again after basis change and perturbation
+
+
+@dataclass
+class Outcome:
+    case: rm.RandomModel
+    dim: int
+    seed: int
+    wilson: tuple[int, tuple[int, ...]]
+    core_parity: tuple[int, tuple[int, ...]]
+    numpy_parity: tuple[int, tuple[int, ...]]
+    reason: int
+    parity_agrees: int
+    gap_direct: float
+    gap_at_reported_kappa: float
+
+    def label(self) -> str:
+        m = self.case.model
+        return (
+            f"dim={self.dim} seed={self.seed} norb={m.norb} filling={self.case.filling} "
+            f"gap/bandwidth={self.case.gap / self.case.bandwidth:.3f}"
+        )
+
+
+def indices(ds, dim: int) -> tuple[int, tuple[int, ...]]:
+    weak = tuple(int(x) for x in ds.nu.values) if dim == 3 else ()
+    return int(ds.nu0), weak
+
+
+def parity_from(ds, dim: int) -> tuple[int, tuple[int, ...]]:
+    weak = tuple(int(x) for x in ds.nu_parity.values) if dim == 3 else ()
+    return int(ds.nu0_parity), weak
+
+
+def core_phase(dim: int, seed: int) -> str:
+    # spread the uncoupled cores evenly over the phases; couplings up to 1.5× the core gap can
+    # still move a model to another phase, so the final phase is whatever the model has
+    return rm.PHASES[seed % 3] if dim == 3 else ("trivial", "strong")[seed % 2]
+
+
+def survey_one(dim: int, seed: int) -> Outcome:
+    case = rm.random_model(seed, dim=dim, core_phase=core_phase(dim, seed))
+    ds = ts.invariants(case.model, case.filling)
+    nu0p, weak = rm.parity_indices(case.model, case.filling)
+    kappa = ds.gap_kappa.values[None, :]
+    e = np.linalg.eigvalsh(rm.bloch_hamiltonian(case.model, kappa))[0]
+    return Outcome(
+        case=case,
+        dim=dim,
+        seed=seed,
+        wilson=indices(ds, dim),
+        core_parity=parity_from(ds, dim),
+        numpy_parity=(nu0p, weak if dim == 3 else ()),
+        reason=int(ds.undefined_reason),
+        parity_agrees=int(ds.parity_agrees),
+        gap_direct=float(ds.gap_direct),
+        gap_at_reported_kappa=float(e[case.filling] - e[case.filling - 1]),
+    )
+
+
+@pytest.fixture(scope="module")
+def survey() -> list[Outcome]:
+    return [survey_one(3, s) for s in range(N3D)] + [survey_one(2, s) for s in range(N2D)]
+
+
+def test_wilson_loop_agrees_with_parity_on_random_models(survey):
+    undefined = [o.label() + f" reason={o.reason}" for o in survey if o.reason != 0]
+    assert not undefined, f"default sampling left gapped random models undefined: {undefined}"
+    wrong = [
+        f"{o.label()}: Wilson {o.wilson}, core parity {o.core_parity}, "
+        f"NumPy parity {o.numpy_parity}"
+        for o in survey
+        if not (o.wilson == o.core_parity == o.numpy_parity and o.parity_agrees == 1)
+    ]
+    assert not wrong, "\n".join(wrong)
+
+
+def test_random_models_reach_every_phase(survey):
+    counts = Counter((o.dim, rm.phase_of(o.wilson[0], o.wilson[1], o.dim)) for o in survey)
+    print("phases hit by the random models:", dict(sorted(counts.items())))
+    for phase in rm.PHASES:
+        assert counts[(3, phase)] >= 5, counts
+    assert counts[(2, "trivial")] >= 5 and counts[(2, "strong")] >= 5, counts
+
+
+def test_reported_gap_is_the_gap_at_the_reported_kappa(survey):
+    # the core's gap_direct is a real gap of the model (NumPy at gap_kappa) and no larger
+    # than the NumPy grid-and-minimiser estimate by more than 2 % of it
+    for o in survey:
+        assert o.gap_direct == pytest.approx(o.gap_at_reported_kappa, abs=1e-9), o.label()
+        assert o.gap_direct <= 1.02 * o.case.gap + 1e-12, (o.label(), o.gap_direct, o.case.gap)
+
+
+def transformed_subset(survey) -> list[Outcome]:
+    three = [o for o in survey if o.dim == 3][:N_TRANSFORMED]
+    two = [o for o in survey if o.dim == 2][:N_TRANSFORMED]
+    return three + two
+
+
+def test_indices_unchanged_under_random_basis_change(survey):
+    rng = np.random.default_rng(2026)
+    for o in transformed_subset(survey):
+        model = o.case.model
+        w = rm.random_unitary(rng, model.norb)
+        rotated = rm.change_basis(model, w)
+        # the rotation really scrambles the orbitals, and the spectrum is unchanged
+        k = rng.random((3, o.dim))
+        h0, h1 = rm.bloch_hamiltonian(model, k), rm.bloch_hamiltonian(rotated, k)
+        assert np.abs(h1 - h0).max() > 0.1
+        np.testing.assert_allclose(np.linalg.eigvalsh(h1), np.linalg.eigvalsh(h0), atol=1e-10)
+        ds = ts.invariants(rotated, o.case.filling)
+        assert indices(ds, o.dim) == o.wilson, o.label()
+        assert parity_from(ds, o.dim) == o.numpy_parity, o.label()
+        assert rm.parity_indices(rotated, o.case.filling)[0] == o.numpy_parity[0], o.label()
+
+
+def test_indices_unchanged_under_small_inversion_breaking_perturbation(survey):
+    rng = np.random.default_rng(7)
+    for o in transformed_subset(survey):
+        model = o.case.model
+        strength = rng.uniform(0.5, 0.95) * o.case.gap / 4
+        perturbed = rm.inversion_breaking_perturbation(model, strength, rng)
+        assert perturbed.inversion is None
+        # inversion is really broken (by far more than the symmetry tolerance) ...
+        res = perturbed.symmetry_residuals([perturbed.resolve()], model.inversion, "inversion")[0]
+        assert res > 1e3 * TOLERANCE, (o.label(), res)
+        # ... time reversal is not, and the gap stays open
+        assert (
+            perturbed.symmetry_residuals(
+                [perturbed.resolve()], model.time_reversal, "time_reversal"
+            )[0]
+            < TOLERANCE
+        )
+        check_filling(perturbed, o.case.filling)
+        ds = ts.invariants(perturbed, o.case.filling)
+        assert int(ds.undefined_reason) == 0, o.label()
+        assert indices(ds, o.dim) == o.wilson, (o.label(), strength / o.case.gap)
+        assert "nu0_parity" not in ds
+
+
+def test_generator_is_reproducible_and_symmetric():
+    a = rm.random_model(11, dim=3, norb=6)
+    b = rm.random_model(11, dim=3, norb=6)
+    assert a.model.to_dict() == b.model.to_dict() and a.filling == b.filling
+    m = a.model
+    pts = [m.resolve()]
+    assert m.symmetry_residuals(pts, m.time_reversal, "time_reversal")[0] < 1e-13
+    assert m.symmetry_residuals(pts, m.inversion, "inversion")[0] < 1e-13
+    # without inversion the couplings break it
+    c = rm.random_model(11, dim=3, norb=6, inversion=False)
+    assert c.model.inversion is None
+    p = a.model.inversion
+    assert c.model.symmetry_residuals([c.model.resolve()], p, "inversion")[0] > 1e-3
+
+
+def test_numpy_bloch_sum_matches_core(rng):
+    case = rm.random_model(3, dim=3, norb=8)
+    k = rng.random((20, 3))
+    np.testing.assert_allclose(
+        case.model.hamiltonian(k), rm.bloch_hamiltonian(case.model, k), atol=1e-12
+    )
+
+
+def test_inversion_free_random_models_are_defined():
+    # time reversal only: the Wilson loop must still give a defined answer with defaults
+    for seed in range(6):
+        case = rm.random_model(100 + seed, dim=3, inversion=False)
+        ds = ts.invariants(case.model, case.filling)
+        assert int(ds.undefined_reason) == 0, seed
+        assert "nu0_parity" not in ds
