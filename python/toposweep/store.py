@@ -288,7 +288,9 @@ def write_result(
     path = Path(out)
     tmp = path.with_name(path.name + ".writing")
     grid_shape = tuple(coords[d].size for d in dims)
-    scalar_coords = " ".join(sorted(k for k, v in coords.items() if v.ndim == 0))
+    # non-dimension coordinates are listed in "coordinates" attributes, as xarray does it
+    aux = {k: set(v.dims) for k, v in coords.items() if k not in v.dims}
+    listed: set[str] = set()
     start, first = next(chunks)
     # the layout (dimensions, dimension scales, attributes) by h5netcdf, as xarray writes it
     with h5netcdf.File(tmp, "w") as f:
@@ -300,10 +302,14 @@ def write_result(
             v[...] = var.values
         for name, var in first.data_vars.items():
             vdims = tuple(dims) + tuple(d for d in var.dims if d != FLAT_DIM)
-            extra = {"coordinates": scalar_coords} if scalar_coords else {}
+            own = sorted(k for k, kdims in aux.items() if kdims <= set(vdims))
+            listed.update(own)
+            extra = {"coordinates": " ".join(own)} if own else {}
             _create(f, str(name), vdims, var.dtype, {**var.attrs, **extra})
         for k, v in attrs.items():
             f.attrs[k] = v
+        if set(aux) - listed:
+            f.attrs["coordinates"] = " ".join(sorted(set(aux) - listed))
     # the data by plain h5py: many small hyperslab writes, each far cheaper this way
     with h5py.File(tmp, "r+") as h5:
         for at, chunk in itertools.chain([(start, first)], chunks):

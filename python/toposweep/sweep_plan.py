@@ -31,6 +31,7 @@ RESERVED = frozenset(
     | {"nu0", "nu", "z2_plane", "nu0_by_axis", "phase", "undefined_reason", "gap_direct"}
     | {"gap_indirect", "gap_kappa", "bandwidth", "converged", "lines_used", "max_step"}
     | {"min_clearance", "nu0_parity", "nu_parity", "parity_agrees", "parity_undefined_reason"}
+    | {"trim", "trim_kappa", "odd_parity_states"}
 )
 
 Coefficients = Callable[[dict[str, float]], Mapping[str, float]]
