@@ -11,9 +11,9 @@ from numpy.typing import ArrayLike
 from . import _core
 from .dataset import build_dataset
 from .errors import ModelError, SamplingError
-from .evaluation import check_filling, prepare_request, run_points
+from .evaluation import check_filling, check_threads, prepare_request, run_points
 from .model import Model, Params
-from .sampling import Sampling
+from .sampling import MAXIMA, Sampling
 
 __all__ = ["invariants", "wcc_flow"]
 
@@ -157,9 +157,17 @@ def wcc_flow(
         plane, loop_axis, pump_axis = 0, 1, 2
     else:
         raise ModelError("wcc_flow needs a 2D or 3D model")
-    if isinstance(pump_points, bool) or not isinstance(pump_points, int) or pump_points < 2:
-        raise SamplingError(f"pump_points must be an integer ≥ 2, got {pump_points!r}")
+    if (
+        isinstance(pump_points, bool)
+        or not isinstance(pump_points, int | np.integer)
+        or not 2 <= pump_points <= MAXIMA["lines"]
+    ):
+        raise SamplingError(
+            f"pump_points must be an integer in 2 … {MAXIMA['lines']}, got {pump_points!r}"
+        )
+    pump_points = int(pump_points)
     Sampling(loop_points=loop_points)  # validates loop_points
+    threads = check_threads(threads)
     point = model.resolve(params)
     core, coeffs = model.prepare([point])
     pump = np.linspace(0.0, 0.5, pump_points)

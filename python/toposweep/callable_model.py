@@ -107,7 +107,12 @@ class CallableModel(Model):
                     f"{self.name}: func returned shape {h.shape}, expected "
                     f"({len(kappa)}, {norb}, {norb}) for {len(kappa)} κ points"
                 )
-            h = np.ascontiguousarray(h, dtype=np.complex128)
+            try:
+                h = np.ascontiguousarray(h, dtype=np.complex128)
+            except (TypeError, ValueError) as exc:
+                raise ModelError(
+                    f"{self.name}: func must return complex numbers, got dtype {h.dtype} ({exc})"
+                ) from None
             if not np.all(np.isfinite(h)):
                 raise ModelError(f"{self.name}: func returned NaN or infinity at {pts[point]}")
             herm = np.abs(h - h.conj().transpose(0, 2, 1)).max(initial=0.0)

@@ -14,7 +14,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from . import _core
-from .errors import FillingError, ModelError
+from .errors import FillingError, ModelError, SamplingError
 from .model import Model
 from .sampling import Sampling
 from .symmetry import TOLERANCE, as_operator, normalised_inversion, symmetry_error
@@ -56,6 +56,17 @@ def check_filling(model: Model, filling: Any) -> int:
     return f
 
 
+def check_threads(threads: Any) -> int | None:
+    """Validate the worker-thread count (None: all cores)."""
+    if threads is None:
+        return None
+    if isinstance(threads, bool) or not isinstance(threads, int | np.integer) or threads < 1:
+        raise SamplingError(
+            f"threads must be a positive integer, or None for all cores; got {threads!r}"
+        )
+    return int(threads)
+
+
 def prepare_request(
     model: Model,
     filling: Any,
@@ -75,10 +86,7 @@ def prepare_request(
             "(Θ = U_T K, U_T U_T* = −1; for spin as the slowest index U_T = iσ_y ⊗ 1)"
         )
     f = check_filling(model, filling)
-    if threads is not None and (
-        isinstance(threads, bool) or not isinstance(threads, int) or threads < 1
-    ):
-        raise ModelError(f"threads must be a positive integer or None, got {threads!r}")
+    threads = check_threads(threads)
     explicit = inversion is not None
     p = as_operator(inversion, model.norb, "inversion") if explicit else model.inversion
     return Request(

@@ -100,6 +100,11 @@ class Model(ABC):
         >>> m.resolve({"mass": -1.0})["mass"]
         -1.0
         """
+        if params is not None and not isinstance(params, Mapping):
+            raise ParameterError(
+                f"params must be a dict of parameter name → value, got {type(params).__name__}; "
+                f"this model's parameters are {list(self.parameters)}"
+            )
         given = dict(params or {})
         known = self.parameters
         unknown = sorted(set(given) - set(known))
@@ -120,6 +125,8 @@ class Model(ABC):
                     f"or set model.defaults[{name!r}]"
                 )
             try:
+                if isinstance(value, bool | np.bool_ | str):  # float() would accept these
+                    raise TypeError
                 value = float(value)
             except (TypeError, ValueError):
                 raise ParameterError(
@@ -136,7 +143,12 @@ class Model(ABC):
 
         Returns an array of shape ``(..., norb, norb)``.
         """
-        k = np.asarray(kappa, dtype=float)
+        try:
+            k = np.asarray(kappa, dtype=float)
+        except (TypeError, ValueError) as exc:
+            raise ModelError(
+                f"kappa must be real reduced coordinates of shape (..., {self.dim}): {exc}"
+            ) from None
         if k.ndim == 0 or k.shape[-1] != self.dim:
             raise ModelError(f"kappa must have shape (..., {self.dim}), got {k.shape}")
         if not np.all(np.isfinite(k)):

@@ -4,11 +4,33 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass, fields
+from numbers import Real
 from typing import Any
+
+import numpy as np
 
 from .errors import SamplingError
 
-__all__ = ["Sampling"]
+__all__ = ["MAXIMA", "Sampling"]
+
+#: Largest accepted value of each integer option. Far beyond any useful sampling; they stop a
+#: typo (an extra zero or three) from allocating more memory than the machine has instead of
+#: failing with a message: the core holds loop_points·norb² complex numbers per Wilson loop and
+#: gap_points^3 κ points for the bulk gap grid.
+MAXIMA: dict[str, int] = {
+    "loop_points": 10_000,
+    "lines": 100_000,
+    "max_lines": 100_000,
+    "gap_points": 200,
+    "gap_starts": 1_000,
+}
+_WHY_MAXIMA = {
+    "loop_points": "κ points per Wilson loop; memory grows as loop_points × norb²",
+    "lines": "pump lines per half plane",
+    "max_lines": "pump lines per half plane",
+    "gap_points": "the 3D gap grid has gap_points³ κ points",
+    "gap_starts": "starting points of the gap minimiser",
+}
 
 
 @dataclass(frozen=True)
@@ -55,11 +77,19 @@ class Sampling:
     def __post_init__(self) -> None:
         for name in ("loop_points", "lines", "max_lines", "gap_points", "gap_starts"):
             value = getattr(self, name)
-            if isinstance(value, bool) or not isinstance(value, int | float):
+            # numpy integers are not ``int``; NaN/inf must not reach int() (ValueError /
+            # OverflowError with numpy's wording instead of ours)
+            if isinstance(value, bool | np.bool_) or not isinstance(value, Real):
                 raise SamplingError(f"{name} must be an integer, got {value!r}")
-            if value != int(value):
+            if not math.isfinite(value) or value != int(value):
                 raise SamplingError(f"{name} must be an integer, got {value!r}")
-            object.__setattr__(self, name, int(value))
+            value = int(value)
+            if value > MAXIMA[name]:
+                raise SamplingError(
+                    f"{name} = {value} is beyond the supported maximum {MAXIMA[name]} "
+                    f"({_WHY_MAXIMA[name]}); use a smaller value"
+                )
+            object.__setattr__(self, name, value)
         if self.loop_points < 4:
             raise SamplingError(f"loop_points must be at least 4, got {self.loop_points}")
         if self.lines < 2:
@@ -74,16 +104,19 @@ class Sampling:
         if self.gap_starts < 0:
             raise SamplingError(f"gap_starts must be 0 or positive, got {self.gap_starts}")
         step = self.step_limit
-        if isinstance(step, bool) or not isinstance(step, int | float) or not 0 < step < 0.5:
+        if isinstance(step, bool | np.bool_) or not isinstance(step, Real) or not 0 < step < 0.5:
             raise SamplingError(f"step_limit must lie in (0, 0.5), got {step!r}")
+        object.__setattr__(self, "step_limit", float(step))  # plain floats for provenance
         floor = self.gap_floor
         if floor is not None and (
-            isinstance(floor, bool)
-            or not isinstance(floor, int | float)
+            isinstance(floor, bool | np.bool_)
+            or not isinstance(floor, Real)
             or not math.isfinite(floor)
             or floor <= 0
         ):
             raise SamplingError(f"gap_floor must be a positive number or None, got {floor!r}")
+        if floor is not None:
+            object.__setattr__(self, "gap_floor", float(floor))
 
     @classmethod
     def from_options(cls, **options: Any) -> Sampling:

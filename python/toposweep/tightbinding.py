@@ -14,6 +14,10 @@ from .model import Model, matrix_from_json, matrix_to_json
 
 __all__ = ["TightBinding"]
 
+#: Longest accepted bond, in unit cells along any axis (far beyond any real model; keeps
+#: 2π κ·R well inside double precision)
+MAX_BOND = 1_000_000
+
 
 class TightBinding(Model):
     r"""A lattice model H(κ) = Σ_term c_term Σ_R [T e^{2πiκ·R} + h.c.] in reduced coordinates.
@@ -77,16 +81,21 @@ class TightBinding(Model):
 
     def _lattice_vector(self, R: Sequence[int]) -> tuple[int, ...]:
         try:
-            arr = np.asarray(R)
-        except (TypeError, ValueError):
+            arr = np.asarray(R, dtype=float)  # ints beyond int64 or strings fail here or below
+        except (TypeError, ValueError, OverflowError):
             arr = np.asarray([])
-        if arr.shape != (self.dim,) or not np.all(np.isfinite(arr.astype(float, copy=False))):
+        if arr.shape != (self.dim,) or not np.all(np.isfinite(arr)):
             raise ModelError(
                 f"R must be {self.dim} integers (a lattice vector in units of the primitive "
                 f"vectors), got {R!r}"
             )
         if not np.all(arr == np.round(arr)):
             raise ModelError(f"R must hold integers, got {R!r}")
+        if np.abs(arr).max() > MAX_BOND:
+            raise ModelError(
+                f"R = {R!r} reaches beyond {MAX_BOND} unit cells; a tight-binding bond that "
+                "long is almost surely a units mistake (R counts primitive lattice vectors)"
+            )
         return tuple(int(x) for x in arr)
 
     def _hopping_matrix(self, T: ArrayLike, r: tuple[int, ...]) -> NDArray[np.complex128]:
