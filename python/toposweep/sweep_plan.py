@@ -141,7 +141,14 @@ class SweepPlan:
 
     def points(self, start: int, stop: int) -> list[dict[str, float]]:
         """Resolved model-parameter dicts of the flat points ``start … stop-1``."""
-        return [self.model_point(self.user_point(i)) for i in range(start, stop)]
+        idx = np.unravel_index(np.arange(start, stop), self.shape)
+        columns = [self.coords[d][i].tolist() for d, i in zip(self.dims, idx, strict=True)]
+        out = []
+        for values in zip(*columns, strict=True):
+            user = dict(self.fixed)
+            user.update(zip(self.dims, values, strict=True))
+            out.append(self.model_point(user))
+        return out
 
 
 def make_plan(
