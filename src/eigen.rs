@@ -1,9 +1,17 @@
 //! Dense Hermitian eigensolvers.
 //!
-//! Small matrices (n ≤ `JACOBI_MAX_N`) use a cyclic complex Jacobi method on a stack-free flat
-//! buffer: it is simple, accurate to machine precision in every eigenvector and, for the 4–8
-//! band models that dominate sweeps, faster than a Householder reduction. Larger matrices use
-//! nalgebra's Householder tridiagonalisation + implicit QL (`SymmetricEigen`).
+//! Small matrices (n ≤ `JACOBI_MAX_N`) use a cyclic complex Jacobi method: simple, accurate to
+//! machine precision in every eigenvector and, for the 4–8 band models that dominate sweeps,
+//! faster than a Householder reduction. The production path (`eigh_into`, `eigh_warm_into`) is a
+//! size-specialised, allocation-free version on fixed-size arrays (`[[C64; N]; N]`, one
+//! instantiation per n ≤ 8, so loops unroll and everything stays in registers/stack) that
+//! updates only the two rotated columns and mirrors them into the rows (A is Hermitian).
+//! `eigh_warm_into` starts from a guess of the eigenvectors — the previous κ point of a
+//! Wilson loop — so A = G†HG is nearly diagonal and one or two sweeps suffice.
+//! The straightforward dynamic-size Jacobi (`eigh_reference_into`) is kept as the reference the
+//! fast paths are tested against. Larger matrices use nalgebra's Householder tridiagonalisation +
+//! implicit QL (`SymmetricEigen`), the fastest of the pure-Rust candidates we measured at
+//! n = 16…64 (see benches/RESULTS.md).
 //!
 //! Layout: `h` is row-major n×n; eigenvalues come out ascending and eigenvector k is column k
 //! of the row-major `vecs` (component i at `vecs[i * n + k]`).
@@ -16,21 +24,80 @@ use nalgebra::DMatrix;
 pub const JACOBI_MAX_N: usize = 8;
 const MAX_SWEEPS: usize = 60;
 
-/// Eigen-decomposition into caller-provided buffers (`evals`: n, `vecs`: n*n).
-pub fn eigh_into(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResult<()> {
+fn check_buffers(h: &[C64], n: usize, evals: &[f64], vecs: &[C64]) -> CoreResult<()> {
     if h.len() < n * n || evals.len() < n || vecs.len() < n * n {
         return Err(CoreError::Internal("eigh_into: buffer too small".into()));
     }
-    if h[..n * n].iter().any(|z| !z.re.is_finite() || !z.im.is_finite()) {
+    if h[..n * n]
+        .iter()
+        .any(|z| !z.re.is_finite() || !z.im.is_finite())
+    {
         return Err(CoreError::InvalidInput(
             "Hamiltonian contains NaN or infinity".into(),
         ));
     }
+    Ok(())
+}
+
+/// Eigen-decomposition into caller-provided buffers (`evals`: n, `vecs`: n*n).
+pub fn eigh_into(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResult<()> {
+    check_buffers(h, n, evals, vecs)?;
+    if n <= JACOBI_MAX_N {
+        fixed_dispatch(h, n, None, evals, vecs)
+    } else {
+        householder(h, n, evals, vecs)
+    }
+}
+
+/// Like [`eigh_into`], starting from `guess` (n×n, columns ≈ eigenvectors, e.g. those of the
+/// previous κ point on a loop). The guess is re-orthonormalised implicitly: any unitary guess
+/// gives the exact decomposition; a poor guess only costs sweeps. For n > `JACOBI_MAX_N` the
+/// guess is ignored.
+pub fn eigh_warm_into(
+    h: &[C64],
+    n: usize,
+    guess: &[C64],
+    evals: &mut [f64],
+    vecs: &mut [C64],
+) -> CoreResult<()> {
+    check_buffers(h, n, evals, vecs)?;
+    if guess.len() < n * n {
+        return Err(CoreError::Internal(
+            "eigh_warm_into: guess too small".into(),
+        ));
+    }
+    if n <= JACOBI_MAX_N {
+        fixed_dispatch(h, n, Some(guess), evals, vecs)
+    } else {
+        householder(h, n, evals, vecs)
+    }
+}
+
+/// The straightforward path: dynamic-size cyclic Jacobi for n ≤ `JACOBI_MAX_N`, Householder
+/// above. Reference for tests and benchmarks of the fast paths.
+pub fn eigh_reference_into(
+    h: &[C64],
+    n: usize,
+    evals: &mut [f64],
+    vecs: &mut [C64],
+) -> CoreResult<()> {
+    check_buffers(h, n, evals, vecs)?;
     if n <= JACOBI_MAX_N {
         jacobi(h, n, evals, vecs)
     } else {
         householder(h, n, evals, vecs)
     }
+}
+
+/// nalgebra's Householder + QL path at any n (benchmarks compare it with the Jacobi paths).
+pub fn eigh_householder_into(
+    h: &[C64],
+    n: usize,
+    evals: &mut [f64],
+    vecs: &mut [C64],
+) -> CoreResult<()> {
+    check_buffers(h, n, evals, vecs)?;
+    householder(h, n, evals, vecs)
 }
 
 /// Allocating convenience wrapper: returns (eigenvalues, eigenvectors).
@@ -39,6 +106,263 @@ pub fn eigh(h: &[C64], n: usize) -> CoreResult<(Vec<f64>, Vec<C64>)> {
     let mut v = vec![C64::new(0.0, 0.0); n * n];
     eigh_into(h, n, &mut e, &mut v)?;
     Ok((e, v))
+}
+
+fn fixed_dispatch(
+    h: &[C64],
+    n: usize,
+    guess: Option<&[C64]>,
+    evals: &mut [f64],
+    vecs: &mut [C64],
+) -> CoreResult<()> {
+    match n {
+        0 => Ok(()),
+        1 => {
+            evals[0] = h[0].re;
+            vecs[0] = C64::new(1.0, 0.0);
+            Ok(())
+        }
+        2 => jacobi_fixed::<2>(h, guess, evals, vecs),
+        3 => jacobi_fixed::<3>(h, guess, evals, vecs),
+        4 => jacobi_fixed::<4>(h, guess, evals, vecs),
+        5 => jacobi_fixed::<5>(h, guess, evals, vecs),
+        6 => jacobi_fixed::<6>(h, guess, evals, vecs),
+        7 => jacobi_fixed::<7>(h, guess, evals, vecs),
+        8 => jacobi_fixed::<8>(h, guess, evals, vecs),
+        _ => Err(CoreError::Internal(format!(
+            "fixed Jacobi called with n = {n}"
+        ))),
+    }
+}
+
+/// One complex Jacobi rotation J = D R that annihilates a[p][q]:
+/// J[p][p] = c, J[p][q] = s, J[q][p] = −s e^{−iφ}, J[q][q] = c e^{−iφ} with e^{iφ} = a_pq/|a_pq|.
+#[derive(Clone, Copy)]
+struct Rot {
+    active: bool,
+    c: f64,
+    s: f64,
+    jqp: C64,
+    jqq: C64,
+    /// t·|a_pq|: a_pp decreases and a_qq increases by this much
+    shift: f64,
+}
+
+impl Rot {
+    const IDLE: Rot = Rot {
+        active: false,
+        c: 1.0,
+        s: 0.0,
+        jqp: C64::new(0.0, 0.0),
+        jqq: C64::new(1.0, 0.0),
+        shift: 0.0,
+    };
+
+    #[inline(always)]
+    fn annihilating(apq: C64, app: f64, aqq: f64, tol: f64) -> Rot {
+        let mag2 = apq.norm_sqr();
+        if mag2 == 0.0 || mag2 <= tol * 1e-4 {
+            return Rot::IDLE;
+        }
+        let mag = mag2.sqrt();
+        let ph_c = apq.conj() / mag; // e^{−iφ}
+        let tau = (aqq - app) / (2.0 * mag);
+        let t = if tau >= 0.0 {
+            1.0 / (tau + (1.0 + tau * tau).sqrt())
+        } else {
+            -1.0 / (-tau + (1.0 + tau * tau).sqrt())
+        };
+        let c = 1.0 / (1.0 + t * t).sqrt();
+        let s = t * c;
+        Rot {
+            active: true,
+            c,
+            s,
+            jqp: -ph_c * s,
+            jqq: ph_c * c,
+            shift: t * mag,
+        }
+    }
+}
+
+/// Round-robin schedules of all pairs (p < q) for n = 0…`JACOBI_MAX_N`: rounds of n/2 disjoint
+/// pairs (n − 1 rounds for even n, n rounds for odd n, where one index sits out each round).
+const SCHEDULE: [[(u8, u8); 32]; JACOBI_MAX_N + 1] = {
+    let mut all = [[(0u8, 0u8); 32]; JACOBI_MAX_N + 1];
+    let mut n = 2;
+    while n <= JACOBI_MAX_N {
+        // circle method on m = n (even) or n + 1 (odd, index n is a dummy) players
+        let m = if n % 2 == 0 { n } else { n + 1 };
+        let mut idx = 0;
+        let mut r = 0;
+        while r < m - 1 {
+            let mut k = 0;
+            while k < m / 2 {
+                let (x, y) = if k == 0 {
+                    (m - 1, r)
+                } else {
+                    ((r + k) % (m - 1), (r + m - 1 - k) % (m - 1))
+                };
+                if x < n && y < n {
+                    let (p, q) = if x < y { (x, y) } else { (y, x) };
+                    all[n][idx] = (p as u8, q as u8);
+                    idx += 1;
+                }
+                k += 1;
+            }
+            r += 1;
+        }
+        n += 1;
+    }
+    all
+};
+
+/// Size-specialised cyclic Jacobi (see the module notes). Same rotations and the same
+/// convergence test as [`jacobi`]; `guess` (if any) sets the starting basis.
+#[inline(always)]
+fn jacobi_fixed<const N: usize>(
+    h: &[C64],
+    guess: Option<&[C64]>,
+    evals: &mut [f64],
+    vecs: &mut [C64],
+) -> CoreResult<()> {
+    let zero = C64::new(0.0, 0.0);
+    let mut a = [[zero; N]; N];
+    // symmetrise: use the Hermitian part so round-off in the input cannot bias the result
+    for i in 0..N {
+        for j in 0..N {
+            a[i][j] = (h[i * N + j] + h[j * N + i].conj()) * 0.5;
+        }
+    }
+    let total: f64 = a.iter().flatten().map(|z| z.norm_sqr()).sum();
+    // v[k] is eigenvector k (stored by columns of V as rows here, so a rotation touches two
+    // contiguous rows)
+    let mut v = [[zero; N]; N];
+    match guess {
+        None => {
+            for (k, row) in v.iter_mut().enumerate() {
+                row[k] = C64::new(1.0, 0.0);
+            }
+        }
+        Some(g) => {
+            for k in 0..N {
+                for i in 0..N {
+                    v[k][i] = g[i * N + k];
+                }
+            }
+            // A ← G† A G, G's columns are v[k]
+            let mut ag = [[zero; N]; N];
+            for i in 0..N {
+                for k in 0..N {
+                    let mut s = zero;
+                    for j in 0..N {
+                        s += a[i][j] * v[k][j];
+                    }
+                    ag[i][k] = s;
+                }
+            }
+            for k in 0..N {
+                for l in k..N {
+                    let mut s = zero;
+                    for i in 0..N {
+                        s += v[k][i].conj() * ag[i][l];
+                    }
+                    a[k][l] = s;
+                    a[l][k] = s.conj();
+                }
+                a[k][k].im = 0.0;
+            }
+        }
+    }
+    let tol = (f64::EPSILON * f64::EPSILON) * total.max(f64::MIN_POSITIVE);
+    let mut converged = false;
+    for _ in 0..MAX_SWEEPS {
+        let mut off = 0.0;
+        for p in 0..N {
+            for q in p + 1..N {
+                off += a[p][q].norm_sqr();
+            }
+        }
+        if off <= tol {
+            converged = true;
+            break;
+        }
+        // Tournament (round-robin) order: the pairs of one round are disjoint, so their
+        // rotation parameters — the sqrt/div chain that dominates at small n — depend only on
+        // entries no other rotation of the round touches and can be computed together, letting
+        // the CPU overlap them. Applying them one after the other is then exactly the
+        // sequential cyclic method in this order.
+        let sched = &SCHEDULE[N];
+        let per_round = N / 2;
+        for round in 0..N - 1 + (N % 2) {
+            let pairs = &sched[round * per_round..(round + 1) * per_round];
+            let mut rot = [Rot::IDLE; JACOBI_MAX_N / 2];
+            for (r, &(p, q)) in rot.iter_mut().zip(pairs) {
+                *r = Rot::annihilating(
+                    a[p as usize][q as usize],
+                    a[p as usize][p as usize].re,
+                    a[q as usize][q as usize].re,
+                    tol,
+                );
+            }
+            for (r, &(p, q)) in rot.iter().zip(pairs) {
+                if !r.active {
+                    continue;
+                }
+                let (p, q) = (p as usize, q as usize);
+                let (c, s, jqp, jqq) = (r.c, r.s, r.jqp, r.jqq);
+                let (app, aqq) = (a[p][p].re, a[q][q].re);
+                // columns p, q of A J for the rows k ≠ p, q; rows p, q follow by Hermiticity
+                for k in 0..N {
+                    if k == p || k == q {
+                        continue;
+                    }
+                    let akp = a[k][p];
+                    let akq = a[k][q];
+                    let np = akp * c + akq * jqp;
+                    let nq = akp * s + akq * jqq;
+                    a[k][p] = np;
+                    a[k][q] = nq;
+                    a[p][k] = np.conj();
+                    a[q][k] = nq.conj();
+                }
+                a[p][q] = zero;
+                a[q][p] = zero;
+                a[p][p] = C64::new(app - r.shift, 0.0);
+                a[q][q] = C64::new(aqq + r.shift, 0.0);
+                for i in 0..N {
+                    let vp = v[p][i];
+                    let vq = v[q][i];
+                    v[p][i] = vp * c + vq * jqp;
+                    v[q][i] = vp * s + vq * jqq;
+                }
+            }
+        }
+    }
+    if !converged {
+        return Err(CoreError::NoConvergence(format!(
+            "Jacobi eigensolver, n = {N}, after {MAX_SWEEPS} sweeps"
+        )));
+    }
+    // sort ascending (insertion sort on an index array), then write columns
+    let mut order = [0usize; N];
+    for (k, o) in order.iter_mut().enumerate() {
+        *o = k;
+    }
+    for i in 1..N {
+        let mut j = i;
+        while j > 0 && a[order[j - 1]][order[j - 1]].re > a[order[j]][order[j]].re {
+            order.swap(j - 1, j);
+            j -= 1;
+        }
+    }
+    for (k, &o) in order.iter().enumerate() {
+        evals[k] = a[o][o].re;
+        for i in 0..N {
+            vecs[i * N + k] = v[o][i];
+        }
+    }
+    Ok(())
 }
 
 /// Cyclic complex Jacobi. Each rotation J = D R (D a diagonal phase, R a real Givens rotation)
@@ -133,9 +457,8 @@ fn jacobi(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResul
 
 fn householder(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResult<()> {
     let m = DMatrix::from_fn(n, n, |i, j| (h[i * n + j] + h[j * n + i].conj()) * 0.5);
-    let eig = nalgebra::linalg::SymmetricEigen::try_new(m, 1e-15, 0).ok_or_else(|| {
-        CoreError::NoConvergence(format!("Householder eigensolver, n = {n}"))
-    })?;
+    let eig = nalgebra::linalg::SymmetricEigen::try_new(m, 1e-15, 0)
+        .ok_or_else(|| CoreError::NoConvergence(format!("Householder eigensolver, n = {n}")))?;
     for i in 0..n {
         evals[i] = eig.eigenvalues[i];
         for k in 0..n {
@@ -167,7 +490,9 @@ mod tests {
     fn random_hermitian(n: usize, seed: u64) -> Vec<C64> {
         let mut s = seed;
         let mut next = || {
-            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            s = s
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
             ((s >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
         };
         let mut h = vec![C64::new(0.0, 0.0); n * n];
@@ -233,6 +558,90 @@ mod tests {
         let (e, _) = eigh(&h, n).unwrap();
         assert!((e[0] - 1.0).abs() < 1e-14 && (e[3] - 2.0).abs() < 1e-14);
         check(&h, n);
+    }
+
+    /// Eigenvalues equal and the same invariant subspaces (projectors onto the lowest k states,
+    /// gauge-free) for two decompositions.
+    fn same_decomposition(n: usize, e1: &[f64], v1: &[C64], e2: &[f64], v2: &[C64]) {
+        for k in 0..n {
+            assert!(
+                (e1[k] - e2[k]).abs() < 1e-12,
+                "n={n} eigenvalue {k}: {} vs {}",
+                e1[k],
+                e2[k]
+            );
+        }
+        for k in 1..n {
+            if e1[k] - e1[k - 1] < 1e-8 {
+                continue; // projector of a split degenerate pair is not defined
+            }
+            for i in 0..n {
+                for j in 0..n {
+                    let p1: C64 = (0..k).map(|b| v1[i * n + b] * v1[j * n + b].conj()).sum();
+                    let p2: C64 = (0..k).map(|b| v2[i * n + b] * v2[j * n + b].conj()).sum();
+                    assert!((p1 - p2).norm() < 1e-10, "n={n} projector {k}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn fast_paths_match_reference() {
+        for n in 1..=12 {
+            for seed in 0..6 {
+                let h = random_hermitian(n, 77 * n as u64 + seed);
+                let (mut e0, mut v0) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * n]);
+                eigh_reference_into(&h, n, &mut e0, &mut v0).unwrap();
+                let (e1, v1) = eigh(&h, n).unwrap();
+                same_decomposition(n, &e0, &v0, &e1, &v1);
+                // warm start from the eigenvectors of a nearby matrix, and from a bad guess
+                let mut h2 = random_hermitian(n, 5 + seed);
+                for (x, y) in h2.iter_mut().zip(&h) {
+                    *x = *y + *x * 1e-3;
+                }
+                let (_, guess) = eigh(&h2, n).unwrap();
+                let (mut e2, mut v2) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * n]);
+                eigh_warm_into(&h, n, &guess, &mut e2, &mut v2).unwrap();
+                same_decomposition(n, &e0, &v0, &e2, &v2);
+                let (_, bad) = eigh(&random_hermitian(n, 999 + seed), n).unwrap();
+                eigh_warm_into(&h, n, &bad, &mut e2, &mut v2).unwrap();
+                same_decomposition(n, &e0, &v0, &e2, &v2);
+                check(&h, n);
+            }
+        }
+    }
+
+    #[test]
+    fn householder_path_matches_jacobi() {
+        for n in [2, 4, 8] {
+            let h = random_hermitian(n, 4242 + n as u64);
+            let (e0, v0) = eigh(&h, n).unwrap();
+            let (mut e1, mut v1) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * n]);
+            eigh_householder_into(&h, n, &mut e1, &mut v1).unwrap();
+            same_decomposition(n, &e0, &v0, &e1, &v1);
+        }
+    }
+
+    #[test]
+    fn schedule_covers_every_pair_once_in_disjoint_rounds() {
+        for n in 2..=JACOBI_MAX_N {
+            let per = n / 2;
+            let rounds = n - 1 + n % 2;
+            let pairs = &SCHEDULE[n][..per * rounds];
+            let mut seen = std::collections::HashSet::new();
+            for round in pairs.chunks(per) {
+                let mut used = std::collections::HashSet::new();
+                for &(p, q) in round {
+                    assert!(p < q && (q as usize) < n);
+                    assert!(
+                        used.insert(p) && used.insert(q),
+                        "n={n}: round not disjoint"
+                    );
+                    assert!(seen.insert((p, q)), "n={n}: pair twice");
+                }
+            }
+            assert_eq!(seen.len(), n * (n - 1) / 2);
+        }
     }
 
     #[test]

@@ -1,7 +1,7 @@
 //! Small dense complex matrices stored row-major in flat slices: products, the unitary part of
 //! an overlap matrix, and the eigenphases of a unitary matrix.
 
-use crate::eigen::{eigh, eigh_into};
+use crate::eigen::{eigh_into, eigh_reference_into, JACOBI_MAX_N};
 use crate::error::{CoreError, CoreResult};
 use crate::C64;
 use nalgebra::DMatrix;
@@ -24,7 +24,9 @@ pub fn matmul(a: &[C64], b: &[C64], c: &mut [C64], m: usize, k: usize, n: usize)
 /// Overlap `m[a][b] = Σ_i conj(u[i][a]) v[i][b]` of the first `cols` columns of two (rows×ld)
 /// column-stacked sets of vectors (eigenvectors are columns, stored row-major with stride `ld`).
 pub fn overlap(u: &[C64], v: &[C64], rows: usize, ld: usize, cols: usize, m: &mut [C64]) {
-    m[..cols * cols].iter_mut().for_each(|x| *x = C64::new(0.0, 0.0));
+    m[..cols * cols]
+        .iter_mut()
+        .for_each(|x| *x = C64::new(0.0, 0.0));
     for i in 0..rows {
         let ur = &u[i * ld..i * ld + cols];
         let vr = &v[i * ld..i * ld + cols];
@@ -40,17 +42,124 @@ pub fn overlap(u: &[C64], v: &[C64], rows: usize, ld: usize, cols: usize, m: &mu
 
 /// Replace the square matrix `m` (n×n) by its unitary polar factor U = m (m†m)^{-1/2}, which
 /// equals W V† of the singular value decomposition m = W Σ V†. Returns the smallest singular
-/// value, so callers can tell a near-singular overlap (states changing too fast) from a good one.
+/// value, so callers can tell a near-singular overlap (states changing too fast) from a good one;
+/// when it is below 1e-14 × the largest, `m` is left alone and 0 is returned.
+///
+/// Fast paths: n = 1 and 2 in closed form (one Kramers pair is the most common occupied set),
+/// n ≤ `JACOBI_MAX_N` on stack buffers with the size-specialised eigensolver; larger n allocate.
 pub fn unitarise(m: &mut [C64], n: usize) -> CoreResult<f64> {
-    if n == 1 {
-        let r = m[0].norm();
-        if r == 0.0 {
-            return Ok(0.0);
+    match n {
+        0 => Ok(1.0),
+        1 => {
+            let r = m[0].norm();
+            if r == 0.0 {
+                return Ok(0.0);
+            }
+            m[0] /= r;
+            Ok(r)
         }
-        m[0] /= r;
-        return Ok(r);
+        2 => Ok(unitarise_2x2(m)),
+        _ if n <= JACOBI_MAX_N => {
+            const K: usize = JACOBI_MAX_N * JACOBI_MAX_N;
+            let zero = C64::new(0.0, 0.0);
+            let (mut mtm, mut v, mut w) = ([zero; K], [zero; K], [zero; K]);
+            let mut lam = [0.0; JACOBI_MAX_N];
+            polar_with(
+                m,
+                n,
+                &mut mtm[..n * n],
+                &mut lam[..n],
+                &mut v[..n * n],
+                &mut w[..n * n],
+            )
+        }
+        _ => {
+            let zero = C64::new(0.0, 0.0);
+            let (mut mtm, mut v, mut w) = (vec![zero; n * n], vec![zero; n * n], vec![zero; n * n]);
+            let mut lam = vec![0.0; n];
+            polar_with(m, n, &mut mtm, &mut lam, &mut v, &mut w)
+        }
     }
+}
+
+/// Closed-form polar factor of a 2×2 matrix. With A = M†M, s = |det M| = σ₁σ₂ and
+/// t = √(tr A + 2s) = σ₁ + σ₂, one has √A = (A + s·1)/t, hence
+/// U = M (√A)⁻¹ = M adj(A + s·1) / (s t).
+fn unitarise_2x2(m: &mut [C64]) -> f64 {
+    let (m00, m01, m10, m11) = (m[0], m[1], m[2], m[3]);
+    let a00 = m00.norm_sqr() + m10.norm_sqr();
+    let a11 = m01.norm_sqr() + m11.norm_sqr();
+    let a01 = m00.conj() * m01 + m10.conj() * m11;
+    let s = (m00 * m11 - m01 * m10).norm();
+    let t2 = a00 + a11 + 2.0 * s;
+    let t = t2.sqrt();
+    let smax = 0.5 * (t + (t2 - 4.0 * s).max(0.0).sqrt());
+    let smin = if smax > 0.0 { s / smax } else { 0.0 };
+    if smin <= 1e-14 * smax.max(1e-300) {
+        return 0.0;
+    }
+    // adj(A + s) = [[a11 + s, −a01], [−conj(a01), a00 + s]]
+    let f = 1.0 / (s * t);
+    let (b00, b01, b10, b11) = (a11 + s, -a01, -a01.conj(), a00 + s);
+    m[0] = (m00 * b00 + m01 * b10) * f;
+    m[1] = (m00 * b01 + m01 * b11) * f;
+    m[2] = (m10 * b00 + m11 * b10) * f;
+    m[3] = (m10 * b01 + m11 * b11) * f;
+    smin
+}
+
+/// Polar factor via the eigen-decomposition of m†m, with caller-provided scratch (n×n each).
+fn polar_with(
+    m: &mut [C64],
+    n: usize,
+    mtm: &mut [C64],
+    lam: &mut [f64],
+    v: &mut [C64],
+    w: &mut [C64],
+) -> CoreResult<f64> {
     // m†m = V Λ V†  →  (m†m)^{-1/2} = V Λ^{-1/2} V†
+    for a in 0..n {
+        for b in 0..n {
+            let mut s = C64::new(0.0, 0.0);
+            for i in 0..n {
+                s += m[i * n + a].conj() * m[i * n + b];
+            }
+            mtm[a * n + b] = s;
+        }
+    }
+    eigh_into(mtm, n, lam, v)?;
+    let smin = lam[0].max(0.0).sqrt();
+    if smin <= 1e-14 * lam[n - 1].max(1e-300).sqrt() {
+        return Ok(0.0);
+    }
+    // w = m V Λ^{-1/2}; then m ← w V†
+    for i in 0..n {
+        for k in 0..n {
+            let mut s = C64::new(0.0, 0.0);
+            for j in 0..n {
+                s += m[i * n + j] * v[j * n + k];
+            }
+            w[i * n + k] = s / lam[k].sqrt();
+        }
+    }
+    for i in 0..n {
+        for b in 0..n {
+            let mut s = C64::new(0.0, 0.0);
+            for k in 0..n {
+                s += w[i * n + k] * v[b * n + k].conj();
+            }
+            m[i * n + b] = s;
+        }
+    }
+    Ok(smin)
+}
+
+/// The straightforward polar factor (allocating, eigen-decomposition of m†m by the reference
+/// eigensolver at every n), kept as the reference for the fast paths of [`unitarise`].
+pub fn unitarise_reference(m: &mut [C64], n: usize) -> CoreResult<f64> {
+    if n == 1 {
+        return unitarise(m, 1);
+    }
     let mut mtm = vec![C64::new(0.0, 0.0); n * n];
     for a in 0..n {
         for b in 0..n {
@@ -61,12 +170,13 @@ pub fn unitarise(m: &mut [C64], n: usize) -> CoreResult<f64> {
             mtm[a * n + b] = s;
         }
     }
-    let (lam, v) = eigh(&mtm, n)?;
+    let mut lam = vec![0.0; n];
+    let mut v = vec![C64::new(0.0, 0.0); n * n];
+    eigh_reference_into(&mtm, n, &mut lam, &mut v)?;
     let smin = lam[0].max(0.0).sqrt();
     if smin <= 1e-14 * lam[n - 1].max(1e-300).sqrt() {
         return Ok(0.0);
     }
-    // inv_sqrt = V diag(λ^{-1/2}) V†
     let mut inv_sqrt = vec![C64::new(0.0, 0.0); n * n];
     for a in 0..n {
         for b in 0..n {
@@ -132,7 +242,9 @@ mod tests {
     fn rand_matrix(n: usize, seed: u64) -> Vec<C64> {
         let mut s = seed;
         let mut next = || {
-            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            s = s
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
             ((s >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
         };
         (0..n * n).map(|_| C64::new(next(), next())).collect()
@@ -156,6 +268,34 @@ mod tests {
     }
 
     #[test]
+    fn fast_unitarise_matches_reference() {
+        for n in 1..12 {
+            for seed in 0..8 {
+                let m0 = rand_matrix(n, 1000 + 31 * n as u64 + seed);
+                let (mut a, mut b) = (m0.clone(), m0.clone());
+                let sa = unitarise(&mut a, n).unwrap();
+                let sb = unitarise_reference(&mut b, n).unwrap();
+                assert!(
+                    (sa - sb).abs() < 1e-12 * sb.max(1.0),
+                    "n={n}: smin {sa} vs {sb}"
+                );
+                for (x, y) in a.iter().zip(&b) {
+                    assert!((x - y).norm() < 1e-10, "n={n}: {x} vs {y}");
+                }
+            }
+        }
+        // a singular 2×2 overlap is reported, not divided by zero
+        let mut z = vec![
+            C64::new(1.0, 0.0),
+            C64::new(2.0, 0.0),
+            C64::new(2.0, 0.0),
+            C64::new(4.0, 0.0),
+        ];
+        assert_eq!(unitarise(&mut z, 2).unwrap(), 0.0);
+        assert_eq!(unitarise_reference(&mut z, 2).unwrap(), 0.0);
+    }
+
+    #[test]
     fn phases_of_diagonal_unitary_after_basis_change() {
         for n in 1..7 {
             let phases: Vec<f64> = (0..n).map(|i| -2.5 + 0.9 * i as f64).collect();
@@ -166,7 +306,8 @@ mod tests {
             for a in 0..n {
                 for b in 0..n {
                     for (k, &t) in phases.iter().enumerate() {
-                        w[a * n + b] += q[a * n + k] * C64::from_polar(1.0, t) * q[b * n + k].conj();
+                        w[a * n + b] +=
+                            q[a * n + k] * C64::from_polar(1.0, t) * q[b * n + k].conj();
                     }
                 }
             }

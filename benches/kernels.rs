@@ -1,0 +1,232 @@
+//! Kernel benchmarks of the Rust core (a small `cargo bench` harness, no extra dependencies):
+//! Hermitian eigensolvers per matrix at n = 4…64 (reference Jacobi, size-specialised Jacobi
+//! cold and warm-started, nalgebra Householder), Bloch sums, one Wilson line and one full
+//! parameter point of the cubic Wilson–Dirac model at fixed sampling (40 × 41 × 6).
+//!
+//! `cargo bench --no-default-features --bench kernels` prints a markdown table; set
+//! `KERNEL_BENCH_QUICK=1` for a fast smoke run. Timings are the best of several repeats (other
+//! jobs share the machine); use `valgrind --tool=callgrind` on `--bench kernels -- ONLY` for
+//! instruction counts when comparing kernels A/B.
+
+use std::hint::black_box;
+use std::time::Instant;
+use toposweep::bloch::{BlochSource, Hoppings};
+use toposweep::eigen::{eigh_householder_into, eigh_into, eigh_reference_into, eigh_warm_into};
+use toposweep::engine::{evaluate_point, Sampling};
+use toposweep::matrix::{unitarise, unitarise_reference};
+use toposweep::wilson::{wilson_line_with, Kernels};
+use toposweep::C64;
+
+fn c(re: f64, im: f64) -> C64 {
+    C64::new(re, im)
+}
+
+struct Rng(u64);
+impl Rng {
+    fn next(&mut self) -> f64 {
+        self.0 = self
+            .0
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        ((self.0 >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
+    }
+    fn hermitian(&mut self, n: usize) -> Vec<C64> {
+        let mut h = vec![c(0.0, 0.0); n * n];
+        for i in 0..n {
+            h[i * n + i] = c(self.next(), 0.0);
+            for j in i + 1..n {
+                let z = c(self.next(), self.next());
+                h[i * n + j] = z;
+                h[j * n + i] = z.conj();
+            }
+        }
+        h
+    }
+}
+
+/// Best time per call in ns over `repeats` runs of `inner` calls each.
+fn time_ns(repeats: usize, inner: usize, mut f: impl FnMut(usize)) -> f64 {
+    let mut best = f64::INFINITY;
+    for _ in 0..repeats {
+        let t = Instant::now();
+        for i in 0..inner {
+            f(i);
+        }
+        best = best.min(t.elapsed().as_nanos() as f64 / inner as f64);
+    }
+    best
+}
+
+fn kron(a: &[C64; 4], b: &[C64; 4]) -> Vec<C64> {
+    let mut k = vec![c(0.0, 0.0); 16];
+    for i in 0..2 {
+        for j in 0..2 {
+            for p in 0..2 {
+                for q in 0..2 {
+                    k[(2 * i + p) * 4 + 2 * j + q] = a[2 * i + j] * b[2 * p + q];
+                }
+            }
+        }
+    }
+    k
+}
+
+/// Cubic Wilson–Dirac model with terms (mass, hopping), as `toposweep.models.wilson_dirac`.
+fn wilson_dirac() -> Hoppings {
+    let z = c(0.0, 0.0);
+    let s0 = [c(1.0, 0.0), z, z, c(1.0, 0.0)];
+    let sx = [z, c(1.0, 0.0), c(1.0, 0.0), z];
+    let sy = [z, c(0.0, -1.0), c(0.0, 1.0), z];
+    let sz = [c(1.0, 0.0), z, z, c(-1.0, 0.0)];
+    let g4 = kron(&sz, &s0);
+    let mut t = g4.clone();
+    let mut r = vec![0i64, 0, 0];
+    let mut term = vec![0i64];
+    for (i, s) in [sx, sy, sz].iter().enumerate() {
+        let gi = kron(&sx, s);
+        t.extend(g4.iter().zip(&gi).map(|(a, b)| (a - c(0.0, 1.0) * b) * 0.5));
+        let mut rv = [0i64; 3];
+        rv[i] = 1;
+        r.extend(rv);
+        term.push(1);
+    }
+    Hoppings::new(3, 4, 2, r, t, term).unwrap()
+}
+
+fn main() {
+    let quick = std::env::var_os("KERNEL_BENCH_QUICK").is_some();
+    let only = std::env::args().nth(1).filter(|a| !a.starts_with('-'));
+    let want = |name: &str| only.as_deref().is_none_or(|o| name.contains(o));
+    let (reps, scale) = if quick { (2, 0.05) } else { (7, 1.0) };
+    let inner = |base: usize| ((base as f64 * scale) as usize).max(1);
+    let mut rng = Rng(12345);
+
+    if want("eigen") {
+        println!("| n | reference Jacobi (µs) | fixed-size Jacobi (µs) | warm-started (µs) | nalgebra Householder (µs) |");
+        println!("|---|---|---|---|---|");
+        for n in [4usize, 8, 16, 32, 64] {
+            let batch = 64;
+            let hs: Vec<Vec<C64>> = (0..batch).map(|_| rng.hermitian(n)).collect();
+            // warm start: a matrix 1e-2 away and its eigenvectors (a neighbouring κ point)
+            let guesses: Vec<Vec<C64>> = hs
+                .iter()
+                .map(|h| {
+                    let d = rng.hermitian(n);
+                    let hn: Vec<C64> = h.iter().zip(&d).map(|(a, b)| a + b * 1e-2).collect();
+                    let (mut e, mut v) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+                    eigh_into(&hn, n, &mut e, &mut v).unwrap();
+                    v
+                })
+                .collect();
+            let (mut e, mut v) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+            let k = inner(200_000 / (n * n));
+            let fmt = |x: f64| format!("{:.3}", x / 1e3);
+            let refj = time_ns(reps, k, |i| {
+                eigh_reference_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
+            });
+            let (fixed, warm) = if n <= 8 {
+                (
+                    fmt(time_ns(reps, k, |i| {
+                        eigh_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
+                    })),
+                    fmt(time_ns(reps, k, |i| {
+                        eigh_warm_into(
+                            black_box(&hs[i % batch]),
+                            n,
+                            &guesses[i % batch],
+                            &mut e,
+                            &mut v,
+                        )
+                        .unwrap()
+                    })),
+                )
+            } else {
+                ("–".into(), "–".into())
+            };
+            let hh = time_ns(reps, k, |i| {
+                eigh_householder_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
+            });
+            let refj = if n <= 8 {
+                fmt(refj)
+            } else {
+                "(= Householder)".into()
+            };
+            println!("| {n} | {refj} | {fixed} | {warm} | {} |", fmt(hh));
+        }
+        println!();
+    }
+
+    if want("polar") {
+        println!("| occupied n | polar factor, reference (ns) | fast (ns) |");
+        println!("|---|---|---|");
+        for n in [2usize, 4, 8] {
+            let ms: Vec<Vec<C64>> = (0..64).map(|_| rng.hermitian(n)).collect();
+            let mut buf = vec![c(0.0, 0.0); n * n];
+            let k = inner(100_000 / n);
+            let r = time_ns(reps, k, |i| {
+                buf.copy_from_slice(&ms[i % 64]);
+                unitarise_reference(black_box(&mut buf), n).unwrap();
+            });
+            let f = time_ns(reps, k, |i| {
+                buf.copy_from_slice(&ms[i % 64]);
+                unitarise(black_box(&mut buf), n).unwrap();
+            });
+            println!("| {n} | {r:.0} | {f:.0} |");
+        }
+        println!();
+    }
+
+    let wd = wilson_dirac().at(&[-2.0, 1.0]).unwrap();
+    if want("line") {
+        let lp = 40;
+        let kappa: Vec<f64> = (0..lp)
+            .flat_map(|s| [0.0, s as f64 / lp as f64, 0.2])
+            .collect();
+        let mut h = vec![c(0.0, 0.0); lp * 16];
+        let k = inner(2000);
+        let bloch = time_ns(reps, k, |_| wd.fill(black_box(&kappa), &mut h).unwrap());
+        let fast = time_ns(reps, k, |_| {
+            wilson_line_with(black_box(&h), &kappa, 3, 4, 2, None, Kernels::Fast).unwrap();
+        });
+        let slow = time_ns(reps, k, |_| {
+            wilson_line_with(black_box(&h), &kappa, 3, 4, 2, None, Kernels::Reference).unwrap();
+        });
+        println!("| Wilson–Dirac, one line of 40 κ points | time (µs) | per κ point (ns) |");
+        println!("|---|---|---|");
+        for (name, t) in [
+            ("Bloch sums H(κ)", bloch),
+            ("Wilson line, reference kernels", slow),
+            ("Wilson line, fast kernels", fast),
+        ] {
+            println!("| {name} | {:.2} | {:.0} |", t / 1e3, t / lp as f64);
+        }
+        println!();
+    }
+
+    if want("point") {
+        let s = Sampling {
+            loop_points: 40,
+            lines: 41,
+            max_lines: 41,
+            step_limit: 0.08,
+            gap_floor: 0.0,
+            gap_points: 8,
+        };
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(1)
+            .build()
+            .unwrap();
+        let t = pool.install(|| {
+            time_ns(reps.min(5), inner(20), |_| {
+                black_box(evaluate_point(&wd, 2, None, &s).unwrap());
+            })
+        });
+        let r = evaluate_point(&wd, 2, None, &s).unwrap();
+        println!(
+            "Wilson–Dirac point (m = −2), 6 planes × 41 lines × 40 points, one thread: {:.3} ms → ({};{:?})\n",
+            t / 1e6,
+            r.nu0,
+            r.nu
+        );
+    }
+}
