@@ -194,9 +194,24 @@ class Model(ABC):
             "positions": None if self.positions is None else self.positions.tolist(),
             "time_reversal": matrix_to_json(self.time_reversal),
             "inversion": matrix_to_json(self.inversion),
-            "defaults": dict(self.defaults),
-            "parameter_info": {k: dict(v) for k, v in self.parameter_info.items()},
+            # plain floats and strings: numpy scalars (np.float32 …) are not JSON-able
+            "defaults": {str(k): self._default_value(k, v) for k, v in self.defaults.items()},
+            "parameter_info": {
+                str(k): {str(a): str(b) for a, b in v.items()}
+                for k, v in self.parameter_info.items()
+            },
         }
+
+    @staticmethod
+    def _default_value(name: Any, value: Any) -> float:
+        try:
+            if isinstance(value, bool | np.bool_ | str):
+                raise TypeError
+            return float(value)
+        except (TypeError, ValueError):
+            raise ParameterError(
+                f"model.defaults[{name!r}] must be a real number, got {value!r}"
+            ) from None
 
     @abstractmethod
     def to_dict(self) -> dict[str, Any]:
