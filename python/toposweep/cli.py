@@ -8,6 +8,7 @@ exits with code 130; ``run --resume`` continues.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from collections.abc import Sequence
 from pathlib import Path
@@ -176,6 +177,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
         return int(args.func(args))
+    except BrokenPipeError:  # output piped into e.g. `head`, which stopped reading
+        sys.stdout = open(os.devnull, "w")  # keeps the interpreter quiet at exit
+        return 0
     except KeyboardInterrupt as exc:  # SweepInterrupted says where the finished chunks are
         sys.stderr.write(f"toposweep: {exc or 'interrupted'}\n")
         return EXIT_INTERRUPTED

@@ -58,6 +58,7 @@ class ProgressBar:
         self._start_done = self.done
         self._t0 = time.monotonic()
         self._last = 0.0
+        self._drawn = -1
 
     def update(self, n: int) -> None:
         """Count ``n`` more finished points."""
@@ -68,6 +69,7 @@ class ProgressBar:
             self._draw(now)
 
     def _draw(self, now: float) -> None:
+        self._drawn = self.done
         frac = min(self.done / self.total, 1.0)
         width = 28
         filled = int(round(frac * width))
@@ -86,7 +88,8 @@ class ProgressBar:
     def close(self) -> None:
         """End the bar's line."""
         if self.shown:
-            self._draw(time.monotonic())
+            if self._drawn != self.done:
+                self._draw(time.monotonic())
             self.stream.write("\n")
             self.stream.flush()
             self.shown = False
