@@ -355,6 +355,17 @@ def test_time_reversal_broken_at_some_points_only_marks_those():
     assert raw["nu0_parity"].tolist() == [1, -1]
 
 
+def test_wrong_model_inversion_leaves_only_parity_undefined():
+    # P = 1 is not an inversion of the Wilson–Dirac model (its orbitals have opposite parity):
+    # declared on the model it must not raise, but it must not give a parity answer either
+    m = ts.models.wilson_dirac()
+    m.inversion = np.eye(4, dtype=complex)
+    ds = ts.invariants(m, 2, {"mass": -2.0})
+    assert int(ds.nu0) == 1  # Fu & Kane, Phys. Rev. B 76, 045302 (2007): (1;000) at m = -2
+    assert int(ds.nu0_parity) == -1 and int(ds.parity_undefined_reason) == 7
+    assert int(ds.parity_agrees) == -1
+
+
 # -- callable models ----------------------------------------------------------------------------
 def _wrong_shape(kappa, mass=-2.0):
     return wilson_dirac_func(kappa, mass)[:, :3, :3]
