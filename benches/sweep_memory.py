@@ -55,7 +55,7 @@ def run_case(points: int, to_disk: bool) -> dict[str, float]:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 100_000])
+    parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 10_000, 100_000])
     parser.add_argument("--out", help="also write the markdown table to this file")
     parser.add_argument("--no-memory-case", action="store_true", help="skip the in-memory runs")
     args = parser.parse_args()

@@ -154,6 +154,9 @@ def test_coefficients_map_user_variables() -> None:
     assert ds.nu0.values[:, 0].tolist() == [0, -1, 1]
     assert ds.z.attrs["long_name"] == "renormalisation factor"
     assert ds.attrs["coefficients"].endswith("renormalised")
+    # the model's term values are kept per point, so the file says what was computed
+    np.testing.assert_allclose(ds.term_hopping.values[:, 0], [0.2, 0.5, 1.0])
+    np.testing.assert_allclose(ds.term_mass.values, -1.0)
 
 
 @pytest.mark.parametrize(

@@ -20,21 +20,19 @@ def point_of(ds: xr.Dataset, at: Mapping[str, float]) -> tuple[Model, xr.Dataset
     """The model of a result, the grid point nearest to ``at`` and its model parameters."""
     from . import model_from_dict
 
-    if "coefficients" in ds.attrs:
-        raise StoreError(
-            "this result was computed through a coefficients mapping, which the file does not "
-            "hold; draw the flow in Python with toposweep.wcc_flow(model, filling, params)"
-        )
     try:
         model = model_from_dict(json.loads(ds.attrs["model"]))
     except (KeyError, ValueError) as exc:
         raise StoreError(f"the file's model description cannot be rebuilt: {exc}") from None
     point = select(ds, [], at)
-    params = {
-        str(k): float(v)
-        for k, v in point.coords.items()
-        if v.ndim == 0 and str(k) in model.parameters
-    }
+    if "coefficients" in ds.attrs:  # the mapping's term values were kept per point
+        params = {t: float(point[f"term_{t}"]) for t in model.parameters}
+    else:
+        params = {
+            str(k): float(v)
+            for k, v in point.coords.items()
+            if v.ndim == 0 and str(k) in model.parameters
+        }
     return model, point, params
 
 

@@ -46,8 +46,11 @@ __all__ = ["sweep", "SweepInterrupted"]
 #: progress bar, long enough that the per-call overhead does not matter
 CHUNK_SECONDS = 1.0
 MAX_CHUNK = 4096
+#: with a coefficients mapping, the model's term values are kept per point as ``term_<name>``
+TERM_PREFIX = "term_"
+TERM_VALUES = "term_values"
 #: points per write when the journal is streamed into the result file (~100 bytes each)
-WRITE_BLOCK = 1 << 16
+WRITE_BLOCK = 1 << 14
 
 
 class SweepInterrupted(KeyboardInterrupt):
@@ -131,6 +134,17 @@ def assemble(
     if plan.coefficients is not None:  # fixed values are the user's own variables
         for k in plan.fixed:
             ds[k].attrs = {"long_name": k, "units": "1"}
+        model = req.model
+        shape = tuple(len(coords[d]) for d in dims)
+        for j, term in enumerate(model.parameters):
+            ds[TERM_PREFIX + term] = (
+                dims,
+                np.asarray(raw[TERM_VALUES])[:, j].reshape(shape),
+                {
+                    "long_name": f"model term {term} given by the coefficients mapping",
+                    "units": model.describe(term)["units"],
+                },
+            )
     return ds
 
 
@@ -159,7 +173,11 @@ def _run(
         while start < hi:
             stop = min(hi, start + size)
             t0 = time.perf_counter()
-            raw = run_points(plan.request, plan.points(start, stop))
+            points = plan.points(start, stop)
+            raw = run_points(plan.request, points)
+            if plan.coefficients is not None:  # keep the model's term values of every point
+                terms = plan.request.model.parameters
+                raw[TERM_VALUES] = np.array([[p[t] for t in terms] for p in points], float)
             save(start, stop, raw)
             bar.update(stop - start)
             if chunk_size is None:  # next chunk sized to last about CHUNK_SECONDS

@@ -171,6 +171,12 @@ def make_plan(
             f"got {type(coefficients).__name__}"
         )
     axes = [_grid_axis(name, values) for name, values in grid.items()]
+    clash = [a[0] for a in axes if coefficients is not None and a[0].startswith("term_")]
+    if clash:
+        raise ParameterError(
+            f"grid name(s) {clash} start with 'term_', which a coefficients sweep uses for the "
+            "model's term values; rename them"
+        )
     dims = tuple(a[0] for a in axes)
     given = dict(params or {})
     overlap = sorted(set(given) & set(dims))
