@@ -99,6 +99,12 @@ BAD_CONFIGS = [
     ('model = "bhz"\nfilling = 3\noutput = "x.nc"\n[grid]\nmass = [1.0]\n', "filling", "odd"),
     ('model = "missing.py:build"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = [1.0]\n',
      "model", "no such file"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\n'
+     'mass = { start = 0, stop = 1, num = 100000000000 }\n', "grid.mass.num", "more than"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[model_options]\nmass = "abc"\n'
+     "[grid]\nhopping = [1.0]\n", "model_options", "abc"),
+    ('model = "bhz"\nfilling = 2\noutput = "x.nc"\n[grid]\nmass = [1979-05-27]\n',
+     "grid.mass[0]", "number"),
 ]  # fmt: skip
 
 

@@ -55,6 +55,8 @@ TOP_KEYS = {
 }
 RUN_KEYS = {"threads", "chunk_size"}
 RANGE_KEYS = {"start", "stop", "num", "values", "long_name", "units"}
+#: values per grid axis a configuration may ask for (a typo like num = 1e9 must not eat memory)
+MAX_AXIS = 10_000_000
 
 
 @dataclass
@@ -136,6 +138,8 @@ def _grid_axis(source: str, name: str, spec: Any) -> Any:
             start = _number(source, f"{key}.start", spec["start"])
             stop = _number(source, f"{key}.stop", spec["stop"])
             num = _positive_int(source, f"{key}.num", spec["num"])
+            if num > MAX_AXIS:
+                raise _fail(source, f"{key}.num", f"{num} values is more than {MAX_AXIS:,}")
             values = np.linspace(start, stop, num).tolist()
     else:
         raise _fail(
@@ -193,7 +197,9 @@ def _model(source: str, spec: Any, options: dict[str, Any], base: Path) -> Model
         )
     try:
         model = builder(**options)
-    except TypeError as exc:
+    except ConfigError:
+        raise
+    except (TypeError, ValueError) as exc:  # bad option names or values
         raise _fail(source, "model_options", f"{spec}: {exc}") from None
     if not isinstance(model, Model):
         raise _fail(
