@@ -200,10 +200,10 @@ def plot_flow(flows: Sequence[xr.Dataset], z2: Sequence[int], title: str) -> Fig
     n = len(flows)
     cols = 3 if n == 6 else n
     rows = 2 if n == 6 else 1
+    size = (3.0 * cols + 0.6, 2.9 * rows + 0.6) if n > 1 else (6.4, 4.6)
     fig, axes = plt.subplots(
-        rows, cols, figsize=(3.0 * cols + 0.6, 2.9 * rows + 0.6), layout="constrained",
-        squeeze=False, sharey=True,
-    )  # fmt: skip
+        rows, cols, figsize=size, layout="constrained", squeeze=False, sharey=True
+    )
     for i, (flow, z) in enumerate(zip(flows, z2, strict=True)):
         ax = axes[i % rows][i // rows] if n == 6 else axes[0][i]
         pump = flow.pump.values
@@ -214,7 +214,7 @@ def plot_flow(flows: Sequence[xr.Dataset], z2: Sequence[int], title: str) -> Fig
         if "plane_axis" in flow.attrs:
             plane = f"κ{flow.attrs['plane_axis']} = {flow.attrs['cut']:g}"
         else:
-            plane = "the plane"
+            plane = "2D model"
         z_text = "undefined" if z < 0 else str(z)
         ax.set_title(f"{plane}: Z2 = {z_text}", fontsize=9)
         ax.set_xlabel(axis_label(flow.pump))
