@@ -183,6 +183,16 @@ def test_generator_is_reproducible_and_symmetric():
     assert c.model.symmetry_residuals([c.model.resolve()], p, "inversion")[0] > 1e-3
 
 
+@pytest.mark.parametrize("phase", rm.PHASES)
+def test_core_phase_steers_the_uncoupled_model(phase):
+    # with the couplings switched off the model is the designed core: its NumPy parity phase
+    # is the requested one (the occupied pair at TRIM a has parity -sign M_a)
+    for seed in range(4):
+        case = rm.random_model(seed, dim=3, core_phase=phase)
+        nu0, weak = rm.parity_indices(case.model, case.filling, {"coupling": 0.0})
+        assert rm.phase_of(nu0, weak, 3) == phase
+
+
 def test_numpy_bloch_sum_matches_core(rng):
     case = rm.random_model(3, dim=3, norb=8)
     k = rng.random((20, 3))
