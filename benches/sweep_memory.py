@@ -26,7 +26,8 @@ import numpy as np
 import toposweep as ts
 
 n_points, out = int(sys.argv[1]), sys.argv[2]
-rows = int(round(np.sqrt(n_points * 0.625)))          # mass × hopping grid, ratio 0.625
+# mass × hopping grid as square as the point count allows (1000 = 25 × 40, 10^5 = 250 × 400)
+rows = max(d for d in range(1, int(np.sqrt(n_points)) + 1) if n_points % d == 0)
 cols = n_points // rows
 grid = {"mass": np.linspace(-3.0, 3.0, rows), "hopping": np.linspace(0.2, 2.0, cols)}
 after_import = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
