@@ -8,7 +8,9 @@
 //! and ν_i = z(i, 1/2).
 
 use crate::bloch::BlochSource;
-use crate::error::{invalid, CoreResult};
+use crate::error::{invalid, CoreError, CoreResult};
+use crate::indices::{combine, Indices};
+use crate::lattice_z2::{lattice_z2, LatticeOutcome, LatticePlane};
 use crate::flow::{inspect, z2_of_flow};
 use crate::gap_search::{gaps_at, minimise, pick_starts, SearchSettings};
 use crate::parity::{parity_indices, reason, trims, ParityResult};
@@ -19,6 +21,8 @@ use crate::C64;
 pub const AUTO_FLOOR_REL: f64 = 1e-6;
 /// Pump intervals narrower than this are never split further.
 const MIN_INTERVAL: f64 = 1e-7;
+/// How often the lattice mesh may be doubled in each direction before giving up.
+const LATTICE_DOUBLINGS: usize = 2;
 
 #[derive(Clone, Debug, PartialEq)]
 pub struct Sampling {
@@ -32,6 +36,32 @@ pub struct Sampling {
     pub gap_points: usize,
     /// starting points of the gap minimiser (smallest sampled gaps first); 0 = no search
     pub gap_starts: usize,
+    /// which Z2 method(s) to run
+    pub method: Method,
+    /// recompute tight planes with doubled loop points (convergence certificate)
+    pub certify: bool,
+}
+
+/// The Z2 method(s) of a run.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Method {
+    /// hybrid Wannier centre flow of Wilson loops (Soluyanov–Vanderbilt)
+    Wilson,
+    /// lattice Z2 (Fukui–Hatsugai)
+    Lattice,
+    /// both, compared point by point
+    Both,
+}
+
+impl Method {
+    pub fn parse(name: &str) -> CoreResult<Self> {
+        match name {
+            "wilson" => Ok(Self::Wilson),
+            "lattice" => Ok(Self::Lattice),
+            "both" => Ok(Self::Both),
+            other => Err(invalid!("method must be 'wilson', 'lattice' or 'both', got {other:?}")),
+        }
+    }
 }
 
 impl Sampling {
@@ -69,6 +99,10 @@ impl Sampling {
 pub struct PlaneResult {
     pub z2: i8,
     pub converged: bool,
+    /// κ points per loop of this result (doubled when the certificate recomputed the plane)
+    pub loop_points: usize,
+    /// the certificate's finer run gave a different Z2
+    pub changed: bool,
     pub lines_used: usize,
     pub max_step: f64,
     pub min_clearance: f64,
@@ -91,11 +125,23 @@ pub struct PointResult {
     pub converged: bool,
     pub reason: u8,
     pub lines_used: usize,
+    /// κ points per Wilson loop of the finest run that decided (certificate: 2 × loop_points)
+    pub loop_points_used: usize,
     /// Hamiltonians evaluated by the gap minimiser
     pub search_evaluations: usize,
     pub max_step: f64,
     pub min_clearance: f64,
     pub parity: Option<ParityResult>,
+    pub lattice: Option<LatticeSummary>,
+}
+
+/// The lattice (Fukui–Hatsugai) result of a point and the roughness of its finest mesh.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LatticeSummary {
+    pub indices: Indices,
+    pub max_field: f64,
+    pub min_link: f64,
+    pub mesh: (usize, usize),
 }
 
 /// A time-reversal-invariant plane: base point, loop axis and pump axis.
@@ -107,6 +153,9 @@ pub struct Plane {
 }
 
 impl Plane {
+    pub fn lattice(&self) -> LatticePlane {
+        LatticePlane { base: self.base, loop_axis: self.loop_axis, pump_axis: self.pump_axis }
+    }
     pub fn line(&self, t: f64) -> LineSpec {
         let mut base = self.base;
         base[self.pump_axis] = t;
@@ -266,6 +315,8 @@ fn summarise(all: Vec<PlaneLines>, s: &Sampling) -> Vec<PlaneResult> {
                 PlaneResult {
                     z2,
                     converged,
+                    loop_points: s.loop_points,
+                    changed: false,
                     lines_used: ts.len(),
                     max_step,
                     min_clearance: min_clear,
@@ -285,34 +336,114 @@ fn line_stats(all: &[PlaneLines], stats: &mut BandStats, cand: &mut Vec<(f64, [f
     }
 }
 
-/// Evaluate one parameter point. `inversion` (n×n, P² = 1) enables the parity indices.
+/// Lattice Z2 of every plane at the base mesh (loop points rounded up to even × pump
+/// intervals of the initial lines).
+fn lattice_initial(
+    src: &dyn BlochSource,
+    pl: &[Plane],
+    filling: usize,
+    u_t: &[C64],
+    s: &Sampling,
+    stats: &mut BandStats,
+    cand: &mut Vec<(f64, [f64; 3])>,
+) -> CoreResult<Vec<LatticeOutcome>> {
+    let n1 = s.loop_points + s.loop_points % 2;
+    pl.iter()
+        .map(|p| lattice_z2(src, &p.lattice(), filling, u_t, n1, s.lines - 1, stats, cand))
+        .collect()
+}
+
+/// Double the lattice mesh of every plane whose field or links are too rough, up to
+/// `LATTICE_DOUBLINGS` times.
+fn lattice_refine(
+    src: &dyn BlochSource,
+    pl: &[Plane],
+    filling: usize,
+    u_t: &[C64],
+    lat: &mut [LatticeOutcome],
+    stats: &mut BandStats,
+) -> CoreResult<()> {
+    for (p, out) in pl.iter().zip(lat.iter_mut()) {
+        for _ in 0..LATTICE_DOUBLINGS {
+            if out.admissible() {
+                break;
+            }
+            let (n1, n2) = out.mesh;
+            *out = lattice_z2(src, &p.lattice(), filling, u_t, 2 * n1, 2 * n2, stats, &mut Vec::new())?;
+        }
+    }
+    Ok(())
+}
+
+/// A plane's flow is tight when a largest-gap midpoint comes within reach of a centre: closer
+/// than `step_limit`, or closer than twice the largest step a centre made between neighbouring
+/// lines. Then the jump count could depend on how finely the loops sample κ.
+fn is_tight(p: &PlaneResult, s: &Sampling) -> bool {
+    p.converged && p.min_clearance < s.step_limit.max(2.0 * p.max_step)
+}
+
+/// Convergence certificate: recompute the tight planes with twice the loop points (initial
+/// lines and adaptive insertion as before). A plane keeps its Z2 only if the finer run agrees;
+/// its diagnostics become those of the finer run.
+fn certify(
+    src: &dyn BlochSource,
+    pl: &[Plane],
+    res: &mut [PlaneResult],
+    filling: usize,
+    s: &Sampling,
+    stats: &mut BandStats,
+) -> CoreResult<()> {
+    let tight: Vec<usize> = (0..res.len()).filter(|&i| is_tight(&res[i], s)).collect();
+    if tight.is_empty() {
+        return Ok(());
+    }
+    let sub: Vec<Plane> = tight.iter().map(|&i| pl[i]).collect();
+    let fine = 2 * s.loop_points;
+    let mut lines = initial_lines(src, &sub, filling, s, fine)?;
+    refine_lines(src, &sub, &mut lines, filling, s, fine)?;
+    line_stats(&lines, stats, &mut Vec::new());
+    for (&i, mut again) in tight.iter().zip(summarise(lines, s)) {
+        again.loop_points = fine;
+        if again.z2 != res[i].z2 {
+            again.z2 = -1;
+            again.changed = true;
+        }
+        res[i] = again;
+    }
+    Ok(())
+}
+
+/// Evaluate one parameter point. `inversion` (n×n, P² = 1) enables the parity indices;
+/// `time_reversal` (n×n U_T) is needed by the lattice method.
 pub fn evaluate_point(
     src: &dyn BlochSource,
     filling: usize,
     inversion: Option<&[C64]>,
+    time_reversal: Option<&[C64]>,
     s: &Sampling,
 ) -> CoreResult<PointResult> {
     s.validate()?;
     let (dim, n) = (src.dim(), src.norb());
     if !(2..=3).contains(&dim) {
-        return Err(invalid!(
-            "Z2 indices need a 2D or 3D model, got dim = {dim}"
-        ));
+        return Err(invalid!("Z2 indices need a 2D or 3D model, got dim = {dim}"));
     }
     if filling == 0 || filling >= n {
         return Err(invalid!("filling must lie in 1…{}, got {filling}", n - 1));
     }
-    // TRIMs first (gaps, parity), then a uniform bulk grid (3D) and the initial pump lines;
-    // every sampled κ point is a candidate start for the gap search.
+    let want_wilson = s.method != Method::Lattice;
+    let u_t = match (s.method, time_reversal) {
+        (Method::Wilson, _) => None,
+        (_, Some(u)) if u.len() == n * n => Some(u),
+        _ => return Err(invalid!("the lattice method needs the {n}×{n} time-reversal matrix")),
+    };
+    // TRIMs first (gaps, parity), then a uniform bulk grid (3D), the initial pump lines and
+    // the base lattice mesh; every sampled κ point is a candidate start for the gap search.
     let trim_k: Vec<f64> = trims(dim).iter().flat_map(|k| k[..dim].to_vec()).collect();
     let (trim_stats, trim_e, trim_v) = evaluate_points(src, &trim_k, filling, true)?;
     let mut stats = trim_stats;
     let trim_gap: Vec<f64> = trim_e.iter().map(|e| e[filling] - e[filling - 1]).collect();
-    let mut cand: Vec<(f64, [f64; 3])> = trims(dim)
-        .into_iter()
-        .zip(&trim_gap)
-        .map(|(k, &g)| (g, k))
-        .collect();
+    let mut cand: Vec<(f64, [f64; 3])> =
+        trims(dim).into_iter().zip(&trim_gap).map(|(k, &g)| (g, k)).collect();
     let bulk_k = bulk_grid(dim, s.gap_points);
     let bulk_gap = gaps_at(src, &bulk_k, filling, &mut stats)?;
     for (g, k) in bulk_gap.iter().zip(bulk_k.chunks_exact(dim)) {
@@ -321,8 +452,15 @@ pub fn evaluate_point(
         cand.push((*g, at));
     }
     let pl = planes(dim);
-    let mut lines = initial_lines(src, &pl, filling, s, s.loop_points)?;
-    line_stats(&lines, &mut stats, &mut cand);
+    let mut lines = Vec::new();
+    if want_wilson {
+        lines = initial_lines(src, &pl, filling, s, s.loop_points)?;
+        line_stats(&lines, &mut stats, &mut cand);
+    }
+    let mut lat = match u_t {
+        Some(u) => lattice_initial(src, &pl, filling, u, s, &mut stats, &mut cand)?,
+        None => Vec::new(),
+    };
     let floor_of = |st: &BandStats| {
         if s.gap_floor > 0.0 {
             s.gap_floor
@@ -342,75 +480,89 @@ pub fn evaluate_point(
             stats.min_direct_at = found.kappa;
         }
     }
-    // Adaptive pump lines only where the point is gapped: near a closing they would be spent
-    // resolving a flow that has no Z2 anyway.
-    if stats.min_direct >= floor_of(&stats) {
+    // Adaptive pump lines, certificates and finer lattice meshes only where the point is
+    // gapped: near a closing they would be spent on a flow that has no Z2 anyway.
+    let gapped = stats.min_direct >= floor_of(&stats);
+    if gapped && want_wilson {
         refine_lines(src, &pl, &mut lines, filling, s, s.loop_points)?;
-        let mut none = Vec::new();
-        line_stats(&lines, &mut stats, &mut none);
+        line_stats(&lines, &mut stats, &mut Vec::new());
     }
-    let plane_res = summarise(lines, s);
+    let mut plane_res = summarise(lines, s);
+    if gapped && want_wilson && s.certify {
+        certify(src, &pl, &mut plane_res, filling, s, &mut stats)?;
+    }
+    if let (true, Some(u)) = (gapped, u_t) {
+        lattice_refine(src, &pl, filling, u, &mut lat, &mut stats)?;
+    }
     let floor = floor_of(&stats);
 
     let parity = match inversion {
-        Some(p) => Some(parity_indices(
-            &trim_v, &trim_gap, p, n, filling, dim, floor,
-        )?),
+        Some(p) => Some(parity_indices(&trim_v, &trim_gap, p, n, filling, dim, floor)?),
         None => None,
     };
-
-    let mut z2_plane = [[-1i8; 2]; 3];
-    let mut nu0_by_axis = [-1i8; 3];
-    let mut nu = [-1i8; 3];
-    let mut nu0;
-    let converged = plane_res.iter().all(|p| p.converged);
-    if dim == 3 {
-        for i in 0..3 {
-            z2_plane[i] = [plane_res[2 * i].z2, plane_res[2 * i + 1].z2];
-            if z2_plane[i][0] >= 0 && z2_plane[i][1] >= 0 {
-                nu0_by_axis[i] = (z2_plane[i][0] + z2_plane[i][1]) % 2;
-                nu[i] = z2_plane[i][1];
-            }
-        }
-        nu0 = nu0_by_axis[0];
-    } else {
-        nu0 = plane_res[0].z2;
-    }
-    let why = if trim_gap.iter().any(|&g| g < floor) {
+    let blocking = if trim_gap.iter().any(|&g| g < floor) {
         reason::DEGENERATE_AT_TRIM
     } else if stats.min_direct < floor {
         reason::GAPLESS
-    } else if !converged {
-        reason::NOT_CONVERGED
-    } else if dim == 3 && !(nu0_by_axis[0] == nu0_by_axis[1] && nu0_by_axis[1] == nu0_by_axis[2]) {
-        reason::NU0_ESTIMATES_DISAGREE
     } else {
         reason::DEFINED
     };
-    if why != reason::DEFINED {
-        nu0 = -1;
-        nu = [-1; 3];
-    }
+    let lattice = (!lat.is_empty()).then(|| {
+        let z: Vec<i8> = lat.iter().map(|o| if o.admissible() { o.z2 } else { -1 }).collect();
+        LatticeSummary {
+            indices: combine(dim, &z, blocking, reason::LATTICE_MESH_TOO_COARSE),
+            max_field: lat.iter().map(|o| o.max_field).fold(0.0, f64::max),
+            min_link: lat.iter().map(|o| o.min_link).fold(f64::INFINITY, f64::min),
+            mesh: lat.iter().map(|o| o.mesh).max().unwrap_or((0, 0)),
+        }
+    });
+    let wilson = want_wilson.then(|| {
+        let z: Vec<i8> = plane_res.iter().map(|p| p.z2).collect();
+        let unresolved = if plane_res.iter().any(|p| p.changed) {
+            reason::CHANGES_WITH_LOOP_POINTS
+        } else {
+            reason::NOT_CONVERGED
+        };
+        combine(dim, &z, blocking, unresolved)
+    });
+    // the headline indices: the Wilson loop when it ran, else the lattice method
+    let main = match (&wilson, &lattice) {
+        (Some(w), _) => *w,
+        (None, Some(l)) => l.indices,
+        (None, None) => return Err(CoreError::Internal("no method ran".into())),
+    };
+    let converged = if want_wilson {
+        plane_res.iter().all(|p| p.converged && !p.changed)
+    } else {
+        lat.iter().all(|o| o.admissible())
+    };
+    let (max_step, min_clearance) = if want_wilson {
+        (
+            plane_res.iter().map(|p| p.max_step).fold(0.0, f64::max),
+            plane_res.iter().map(|p| p.min_clearance).fold(f64::INFINITY, f64::min),
+        )
+    } else {
+        (f64::NAN, f64::NAN)
+    };
     Ok(PointResult {
-        nu0,
-        nu,
-        z2_plane,
-        nu0_by_axis,
+        nu0: main.nu0,
+        nu: main.nu,
+        z2_plane: main.z2_plane,
+        nu0_by_axis: main.nu0_by_axis,
         gap_direct: stats.min_direct,
         gap_indirect: stats.indirect(),
         gap_kappa: stats.min_direct_at,
         bandwidth: stats.bandwidth(),
         gap_floor: floor,
         converged,
-        reason: why,
+        reason: main.reason,
         lines_used: plane_res.iter().map(|p| p.lines_used).max().unwrap_or(0),
+        loop_points_used: plane_res.iter().map(|p| p.loop_points).max().unwrap_or(0),
         search_evaluations,
-        max_step: plane_res.iter().map(|p| p.max_step).fold(0.0, f64::max),
-        min_clearance: plane_res
-            .iter()
-            .map(|p| p.min_clearance)
-            .fold(f64::INFINITY, f64::min),
+        max_step,
+        min_clearance,
         parity,
+        lattice,
     })
 }
 
@@ -477,6 +629,8 @@ mod tests {
             gap_floor: 0.0,
             gap_points: 0,
             gap_starts: 3,
+            method: Method::Wilson,
+            certify: true,
         }
     }
 
@@ -492,10 +646,39 @@ mod tests {
             (2.5, 0),
         ] {
             let src = model.at(&[m]).unwrap();
-            let r = evaluate_point(&src, 2, None, &sampling()).unwrap();
+            let r = evaluate_point(&src, 2, None, None, &sampling()).unwrap();
             assert_eq!(r.reason, reason::DEFINED, "m = {m}");
             assert_eq!(r.nu0, want, "m = {m}");
         }
+    }
+
+    /// U_T = iσ_y ⊗ 1 (spin slowest) of the `bhz` test model.
+    fn bhz_time_reversal() -> Vec<C64> {
+        let mut u = vec![c(0.0, 0.0); 16];
+        for i in 0..2 {
+            u[i * 4 + 2 + i] = c(1.0, 0.0);
+            u[(2 + i) * 4 + i] = c(-1.0, 0.0);
+        }
+        u
+    }
+
+    #[test]
+    fn lattice_method_agrees_with_the_flow() {
+        let model = bhz();
+        let u_t = bhz_time_reversal();
+        for method in [Method::Lattice, Method::Both] {
+            let s = Sampling { method, ..sampling() };
+            for (m, want) in [(-3.0, 0), (-1.0, 1), (0.5, 1), (2.5, 0)] {
+                let src = model.at(&[m]).unwrap();
+                let r = evaluate_point(&src, 2, None, Some(&u_t), &s).unwrap();
+                let lat = r.lattice.expect("lattice ran");
+                assert_eq!((lat.indices.nu0, lat.indices.reason), (want, reason::DEFINED), "m = {m}");
+                assert_eq!(r.nu0, want, "m = {m}");
+            }
+        }
+        // the lattice method cannot run without U_T
+        let s = Sampling { method: Method::Both, ..sampling() };
+        assert!(evaluate_point(&model.at(&[1.0]).unwrap(), 2, None, None, &s).is_err());
     }
 
     #[test]
@@ -503,7 +686,7 @@ mod tests {
         // m = 0: gap closes at (1/2, 0) and (0, 1/2); m = 2: at (1/2, 1/2) — all sampled TRIMs
         for m in [0.0, 2.0] {
             let src = bhz().at(&[m]).unwrap();
-            let r = evaluate_point(&src, 2, None, &sampling()).unwrap();
+            let r = evaluate_point(&src, 2, None, None, &sampling()).unwrap();
             assert_eq!(r.nu0, -1);
             assert_eq!(r.reason, reason::DEGENERATE_AT_TRIM);
         }
@@ -514,7 +697,7 @@ mod tests {
         let src = bhz().at(&[1.0]).unwrap();
         let mut s = sampling();
         s.step_limit = 0.0;
-        assert!(evaluate_point(&src, 2, None, &s).is_err());
-        assert!(evaluate_point(&src, 4, None, &sampling()).is_err());
+        assert!(evaluate_point(&src, 2, None, None, &s).is_err());
+        assert!(evaluate_point(&src, 4, None, None, &sampling()).is_err());
     }
 }

@@ -10,6 +10,8 @@ pub mod engine;
 pub mod error;
 pub mod flow;
 pub mod gap_search;
+pub mod indices;
+pub mod lattice_z2;
 pub mod matrix;
 pub mod parity;
 pub mod wilson;

@@ -18,6 +18,11 @@ pub mod reason {
     pub const NOT_CONVERGED: u8 = 4;
     pub const INVERSION_MIXES_FILLING: u8 = 5;
     pub const ODD_KRAMERS_COUNT: u8 = 6;
+    // 7 and 8 are set by the Python front (symmetry broken at the point)
+    /// a plane's Z2 changed when the loops were recomputed with twice the points
+    pub const CHANGES_WITH_LOOP_POINTS: u8 = 9;
+    /// the lattice field or links stayed too rough on the finest lattice mesh
+    pub const LATTICE_MESH_TOO_COARSE: u8 = 10;
 }
 
 /// The 2^dim TRIMs in reduced coordinates, in binary order (bit i ↔ κ_i = 1/2).

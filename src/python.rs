@@ -5,7 +5,7 @@
 
 use crate::bloch::{BlochSource, Hoppings};
 use crate::eigen::eigh_into;
-use crate::engine::{evaluate_point, plane_flow, planes, Plane, PointResult, Sampling};
+use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, Sampling};
 use crate::error::{CoreError, CoreResult};
 use crate::C64;
 use numpy::ndarray::{Array1, Array2, Array3};
@@ -236,8 +236,9 @@ fn matrix(a: &PyReadonlyArray2<C64>, n: usize, what: &str) -> PyResult<Vec<C64>>
 /// Indices, gaps and diagnostics at every row of `coeffs` (npoints, nterms). Returns a dict
 /// of arrays whose first axis is the point.
 #[pyfunction]
-#[pyo3(signature = (model, coeffs, filling, *, inversion=None, loop_points, lines, max_lines,
-                    step_limit, gap_floor, gap_points, gap_starts=3, threads=None))]
+#[pyo3(signature = (model, coeffs, filling, *, inversion=None, time_reversal=None, loop_points,
+                    lines, max_lines, step_limit, gap_floor, gap_points, gap_starts=3,
+                    method="wilson", certify=true, threads=None))]
 #[allow(clippy::too_many_arguments)]
 fn evaluate<'py>(
     py: Python<'py>,
@@ -245,6 +246,7 @@ fn evaluate<'py>(
     coeffs: PyReadonlyArray2<f64>,
     filling: usize,
     inversion: Option<PyReadonlyArray2<C64>>,
+    time_reversal: Option<PyReadonlyArray2<C64>>,
     loop_points: usize,
     lines: usize,
     max_lines: usize,
@@ -252,10 +254,16 @@ fn evaluate<'py>(
     gap_floor: f64,
     gap_points: usize,
     gap_starts: usize,
+    method: &str,
+    certify: bool,
     threads: Option<usize>,
 ) -> PyResult<Bound<'py, PyDict>> {
     let rows = coeff_rows(model, &coeffs)?;
     let inv = inversion.map(|p| matrix(&p, model.norb, "inversion")).transpose()?;
+    let u_t = time_reversal
+        .map(|p| matrix(&p, model.norb, "time_reversal"))
+        .transpose()?;
+    let method = Method::parse(method).map_err(to_py)?;
     let s = Sampling {
         loop_points,
         lines,
@@ -264,6 +272,8 @@ fn evaluate<'py>(
         gap_floor,
         gap_points,
         gap_starts,
+        method,
+        certify,
     };
     s.validate().map_err(to_py)?;
     let error = Arc::new(Mutex::new(None));
@@ -272,7 +282,7 @@ fn evaluate<'py>(
             .enumerate()
             .map(|(i, c)| {
                 model.with_source(c, i, &error, |src| {
-                    evaluate_point(src, filling, inv.as_deref(), &s)
+                    evaluate_point(src, filling, inv.as_deref(), u_t.as_deref(), &s)
                 })
             })
             .collect::<CoreResult<Vec<PointResult>>>()
@@ -312,6 +322,33 @@ fn pack<'py>(py: Python<'py>, res: &[PointResult], dim: usize) -> PyResult<Bound
         "lines_used",
         Array1::from_iter(res.iter().map(|r| r.lines_used as i32)).into_pyarray(py),
     )?;
+    d.set_item(
+        "loop_points_used",
+        Array1::from_iter(res.iter().map(|r| r.loop_points_used as i32)).into_pyarray(py),
+    )?;
+    if res.iter().all(|r| r.lattice.is_some()) && np > 0 {
+        let l = |i: usize| res[i].lattice.as_ref().expect("checked above");
+        d.set_item("nu0_lattice", Array1::from_shape_fn(np, |i| l(i).indices.nu0).into_pyarray(py))?;
+        d.set_item(
+            "nu_lattice",
+            Array2::from_shape_fn((np, 3), |(i, j)| l(i).indices.nu[j]).into_pyarray(py),
+        )?;
+        d.set_item(
+            "z2_plane_lattice",
+            Array3::from_shape_fn((np, 3, 2), |(i, j, k)| l(i).indices.z2_plane[j][k]).into_pyarray(py),
+        )?;
+        d.set_item("lattice_reason", Array1::from_shape_fn(np, |i| l(i).indices.reason).into_pyarray(py))?;
+        d.set_item("lattice_max_field", Array1::from_shape_fn(np, |i| l(i).max_field).into_pyarray(py))?;
+        d.set_item("lattice_min_link", Array1::from_shape_fn(np, |i| l(i).min_link).into_pyarray(py))?;
+        d.set_item(
+            "lattice_mesh",
+            Array2::from_shape_fn((np, 2), |(i, j)| {
+                let m = l(i).mesh;
+                (if j == 0 { m.0 } else { m.1 }) as i32
+            })
+            .into_pyarray(py),
+        )?;
+    }
     if res.iter().all(|r| r.parity.is_some()) && np > 0 {
         let p = |i: usize| res[i].parity.as_ref().expect("checked above");
         d.set_item("nu0_parity", Array1::from_shape_fn(np, |i| p(i).nu0).into_pyarray(py))?;

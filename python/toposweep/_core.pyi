@@ -40,6 +40,7 @@ def evaluate(
     filling: int,
     *,
     inversion: NDArray[np.complex128] | None = None,
+    time_reversal: NDArray[np.complex128] | None = None,
     loop_points: int,
     lines: int,
     max_lines: int,
@@ -47,6 +48,8 @@ def evaluate(
     gap_floor: float,
     gap_points: int,
     gap_starts: int = 3,
+    method: str = "wilson",
+    certify: bool = True,
     threads: int | None = None,
 ) -> dict[str, NDArray[Any]]: ...
 def hamiltonian(

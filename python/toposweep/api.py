@@ -33,6 +33,8 @@ def invariants(
     gap_floor: float | None = _DEFAULT.gap_floor,
     gap_points: int = _DEFAULT.gap_points,
     gap_starts: int = _DEFAULT.gap_starts,
+    method: str = _DEFAULT.method,
+    certify: bool = _DEFAULT.certify,
     threads: int | None = None,
 ) -> xr.Dataset:
     """Z2 indices of a time-reversal-invariant insulator at one parameter point.
@@ -52,7 +54,7 @@ def invariants(
         Parameter values; the rest come from ``model.defaults``.
     inversion : array (norb, norb), optional
         Inversion matrix for this call (overrides the model's).
-    loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts
+    loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts, method, certify
         Sampling options, see :class:`toposweep.Sampling`.
     threads : int, optional
         Worker threads (default: all cores, or ``RAYON_NUM_THREADS``).
@@ -78,6 +80,8 @@ def invariants(
         gap_floor=gap_floor,
         gap_points=gap_points,
         gap_starts=gap_starts,
+        method=method,
+        certify=certify,
     )
     if not isinstance(model, Model):
         raise ModelError(f"expected a toposweep model, got {type(model).__name__}")

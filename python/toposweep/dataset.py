@@ -16,6 +16,7 @@ import xarray as xr
 from numpy.typing import NDArray
 
 from ._version import __version__
+from .dataset_methods import method_variables
 from .model import Model
 from .sampling import Sampling
 
@@ -41,6 +42,15 @@ REASONS: dict[int, str] = {
     6: "odd_count_of_odd_parity_kramers_states",
     7: "inversion_not_a_symmetry_at_this_point",
     8: "time_reversal_broken_at_this_point",
+    9: "changes_with_doubled_loop_points",
+    10: "lattice_mesh_too_coarse",
+}
+
+_METHOD_TEXT = {
+    "wilson": "Wilson loop, hybrid Wannier centre flow with largest-gap tracking",
+    "lattice": "lattice Z2 (Fukui-Hatsugai)",
+    "both": "Wilson loop, hybrid Wannier centre flow with largest-gap tracking; "
+    "lattice Z2 (Fukui-Hatsugai) cross-check",
 }
 
 INDEX_FLAGS = {"flag_values": np.array([-1, 0, 1], np.int8), "flag_meanings": "undefined even odd"}
@@ -148,7 +158,7 @@ def build_dataset(
         dims,
         grid(raw["reason"]).astype(np.int8),
         {
-            "long_name": "why the Wilson-loop indices are undefined",
+            "long_name": "why the indices are undefined",
             "units": "1",
             **_flags(REASONS),
         },
@@ -198,7 +208,8 @@ def build_dataset(
         dims,
         grid(raw["converged"]).astype(np.int8),
         {
-            "long_name": "hybrid Wannier centre flow resolved within max_lines",
+            "long_name": "indices converged: flow resolved within max_lines and, where it was "
+            "tight, unchanged with doubled loop_points (lattice-only runs: mesh fine enough)",
             "units": "1",
             "flag_values": np.array([0, 1], np.int8),
             "flag_meanings": "no yes",
@@ -216,7 +227,8 @@ def build_dataset(
         dims,
         grid(raw["max_step"]),
         {
-            "long_name": "largest hybrid Wannier centre motion between neighbouring pump lines",
+            "long_name": "largest hybrid Wannier centre motion between neighbouring pump lines "
+            "in the runs that decided (NaN: no Wilson loops)",
             "units": "1",
         },
     )
@@ -225,9 +237,20 @@ def build_dataset(
         grid(raw["min_clearance"]),
         {
             "long_name": "smallest distance between a largest-gap midpoint and a centre of the "
-            "neighbouring line",
+            "neighbouring line in the runs that decided (NaN: no Wilson loops)",
             "units": "1",
         },
+    )
+    data.update(
+        method_variables(
+            raw,
+            grid,
+            dims,
+            three_d=three_d,
+            method=sampling.method,
+            index_flags=INDEX_FLAGS,
+            reason_flags=_flags(REASONS),
+        )
     )
     if parity_known:
         nu0p = grid(raw["nu0_parity"]).astype(np.int8)
@@ -343,7 +366,7 @@ def build_dataset(
         "model": json.dumps(model.to_dict(), sort_keys=True),
         "filling": int(filling),
         "sampling": json.dumps(sampling.as_dict(), sort_keys=True),
-        "method": "Wilson loop, hybrid Wannier centre flow with largest-gap tracking"
+        "method": _METHOD_TEXT[sampling.method]
         + ("; Fu-Kane parity cross-check" if parity_known else ""),
     }
     attrs.update(extra_attrs or {})

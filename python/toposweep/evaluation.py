@@ -110,6 +110,10 @@ def _mark(raw: dict[str, NDArray], mask: NDArray[np.bool_], reason: int, *, pari
         raw["nu0"][mask] = -1
         raw["nu"][mask] = -1
         raw["reason"][mask] = reason
+        if "nu0_lattice" in raw:
+            raw["nu0_lattice"][mask] = -1
+            raw["nu_lattice"][mask] = -1
+            raw["lattice_reason"][mask] = reason
 
 
 def run_points(req: Request, points: Sequence[dict[str, float]]) -> dict[str, NDArray]:
@@ -142,6 +146,7 @@ def run_points(req: Request, points: Sequence[dict[str, float]]) -> dict[str, ND
         np.ascontiguousarray(coeffs, dtype=float),
         req.filling,
         inversion=inv,
+        time_reversal=np.ascontiguousarray(u_t, dtype=complex),
         threads=req.threads,
         **req.sampling.core_kwargs(),
     )

@@ -11,7 +11,10 @@ import numpy as np
 
 from .errors import SamplingError
 
-__all__ = ["MAXIMA", "Sampling"]
+__all__ = ["MAXIMA", "METHODS", "Sampling"]
+
+#: the Z2 methods a run can use
+METHODS = ("wilson", "lattice", "both")
 
 #: Largest accepted value of each integer option. Far beyond any useful sampling; they stop a
 #: typo (an extra zero or three) from allocating more memory than the machine has instead of
@@ -59,6 +62,20 @@ class Sampling:
         search over κ finds the model's true local gap minima, so a band touching between
         sampled κ points is not missed and ``gap_direct`` is the model's minimum, not the
         grid's. 0 switches the search off (the gap is then only the sampled minimum).
+    method : {"wilson", "lattice", "both"}
+        Z2 method. ``"wilson"`` (default): hybrid Wannier centre flow of Wilson loops
+        (Soluyanov & Vanderbilt, Phys. Rev. B 83, 035108 (2011)). ``"lattice"``: the lattice
+        Z2 of Fukui & Hatsugai, J. Phys. Soc. Jpn. 76, 053702 (2007). ``"both"``: run both and
+        report ``methods_agree``; the headline indices stay the Wilson-loop ones. The lattice
+        method costs about as much again as the Wilson loops, so it is opt-in; use ``"both"``
+        for maps you publish.
+    certify : bool
+        Convergence certificate: planes whose flow is tight (a largest-gap midpoint closer to
+        a centre of the neighbouring line than ``step_limit`` or than twice the largest step of
+        a centre between lines) are recomputed with twice ``loop_points``; the indices stand
+        only if the finer run agrees (otherwise undefined, reason
+        ``changes_with_doubled_loop_points``). ``max_step`` and ``min_clearance`` then
+        describe the finer run.
 
     Examples
     --------
@@ -73,6 +90,8 @@ class Sampling:
     gap_floor: float | None = None
     gap_points: int = 8
     gap_starts: int = 3
+    method: str = "wilson"
+    certify: bool = True
 
     def __post_init__(self) -> None:
         for name in ("loop_points", "lines", "max_lines", "gap_points", "gap_starts"):
@@ -101,6 +120,11 @@ class Sampling:
             )
         if self.gap_points < 0:
             raise SamplingError(f"gap_points must be 0 or positive, got {self.gap_points}")
+        if not isinstance(self.method, str) or self.method not in METHODS:
+            raise SamplingError(f"method must be one of {list(METHODS)}, got {self.method!r}")
+        if not isinstance(self.certify, bool | np.bool_):
+            raise SamplingError(f"certify must be True or False, got {self.certify!r}")
+        object.__setattr__(self, "certify", bool(self.certify))
         if self.gap_starts < 0:
             raise SamplingError(f"gap_starts must be 0 or positive, got {self.gap_starts}")
         step = self.step_limit
