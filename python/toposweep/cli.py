@@ -82,8 +82,6 @@ def _summary(args: argparse.Namespace) -> int:
 
 
 def _plot(args: argparse.Namespace) -> int:
-    import matplotlib.pyplot as plt
-
     from .flowplot import flow_figure
     from .plotting import plot_line, plot_phase_map
 
@@ -108,7 +106,6 @@ def _plot(args: argparse.Namespace) -> int:
                 default = path.with_suffix(".png")
     out = Path(args.out) if args.out else default
     fig.savefig(out, dpi=args.dpi)
-    plt.close(fig)
     print(f"wrote {out}")
     return 0
 

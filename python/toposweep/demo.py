@@ -12,7 +12,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import matplotlib.pyplot as plt
 import numpy as np
 import xarray as xr
 
@@ -70,14 +69,11 @@ def run_demo(out_dir: str | Path, *, progress: bool = True) -> list[Path]:
     fig = plot_phase_map(ds, "f_level", "hybridisation")
     written.append(out / "tessarine-phases.png")
     fig.savefig(written[-1], dpi=130)
-    plt.close(fig)
     fig = plot_line(ds, "f_level", at={"hybridisation": 0.2})
     written.append(out / "tessarine-cut.png")
     fig.savefig(written[-1], dpi=130)
-    plt.close(fig)
     fig = flow_figure(ds, FLOW_POINT)
     written.append(out / "tessarine-flow.png")
     fig.savefig(written[-1], dpi=130)
-    plt.close(fig)
     ds.close()
     return written

@@ -1,9 +1,10 @@
-"""Pictures of results (matplotlib, Agg): phase diagrams, index/gap lines, Wannier centre flow.
+"""Pictures of results (matplotlib): phase diagrams, index/gap lines, Wannier centre flow.
 
 Phases get discrete colours by class — trivial insulator, weak TI, strong TI, Z2-odd 2D
 insulator, undefined — with a shade per set of indices inside a class, so (1;000) and (1;111)
 are told apart. In phase diagrams the colour is darkened where the direct gap is small, so gap
-closings show as dark lines; a grey bar gives the scale.
+closings show as dark lines; a grey bar gives the scale. Figures are built without pyplot, so
+importing this module changes no global matplotlib state (notebooks keep their backend).
 """
 
 from __future__ import annotations
@@ -11,19 +12,15 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-import matplotlib
+import numpy as np
+import xarray as xr
+from matplotlib.cm import ScalarMappable
+from matplotlib.colors import LinearSegmentedColormap, PowerNorm, to_rgb
+from matplotlib.figure import Figure
+from matplotlib.patches import Patch
 
-matplotlib.use("Agg")  # files only; no display needed
-
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import xarray as xr  # noqa: E402
-from matplotlib.colors import to_rgb  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-from matplotlib.patches import Patch  # noqa: E402
-
-from .errors import ParameterError  # noqa: E402
-from .summary import phase_labels  # noqa: E402
+from .errors import ParameterError
+from .summary import phase_labels
 
 __all__ = ["axis_label", "phase_colours", "plot_flow", "plot_line", "plot_phase_map", "select"]
 
@@ -123,7 +120,7 @@ def plot_phase_map(
     shade = 0.3 + 0.7 * np.sqrt(np.clip(np.nan_to_num(gap, nan=scale) / scale, 0, 1))
     rgb = rgb * shade[..., None]
 
-    fig = plt.figure(figsize=(8.4, 5.2), layout="constrained")
+    fig = Figure(figsize=(8.4, 5.2), layout="constrained")
     grid = fig.add_gridspec(1, 2, width_ratios=[3.2, 1.25])
     ax = fig.add_subplot(grid[0, 0])
     side = fig.add_subplot(grid[0, 1])
@@ -137,11 +134,9 @@ def plot_phase_map(
     side.legend(handles=handles, loc="upper left", frameon=False, fontsize=9, title="phase")
     # the shading scale: a small horizontal bar under the legend
     cax = side.inset_axes((0.05, 0.12, 0.85, 0.05))
-    mappable = plt.cm.ScalarMappable(
-        cmap=matplotlib.colors.LinearSegmentedColormap.from_list(
-            "shade", [(0.3, 0.3, 0.3), (1, 1, 1)]
-        ),
-        norm=matplotlib.colors.PowerNorm(0.5, vmin=0, vmax=scale),
+    mappable = ScalarMappable(
+        cmap=LinearSegmentedColormap.from_list("shade", [(0.3, 0.3, 0.3), (1, 1, 1)]),
+        norm=PowerNorm(0.5, vmin=0, vmax=scale),
     )
     bar = fig.colorbar(mappable, cax=cax, orientation="horizontal")
     unit = str(sub.gap_direct.attrs.get("units", ""))
@@ -163,9 +158,8 @@ def plot_line(ds: xr.Dataset, x: str, *, at: Mapping[str, float] | None = None) 
          (xs[1:] + xs[:-1]) / 2,
          [xs[-1] + (xs[-1] - xs[-2]) / 2 if len(xs) > 1 else xs[0] + 0.5]]
     )  # fmt: skip
-    fig, (top, bottom) = plt.subplots(
-        2, 1, sharex=True, figsize=(7.8, 5.2), layout="constrained", height_ratios=[1, 1.4]
-    )
+    fig = Figure(figsize=(7.8, 5.2), layout="constrained")
+    top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[1, 1.4])
     for axis in (top, bottom):
         for i, lab in enumerate(labels):
             axis.axvspan(edges[i], edges[i + 1], color=colours[lab], alpha=0.55, lw=0)
@@ -201,9 +195,8 @@ def plot_flow(flows: Sequence[xr.Dataset], z2: Sequence[int], title: str) -> Fig
     cols = 3 if n == 6 else n
     rows = 2 if n == 6 else 1
     size = (3.0 * cols + 0.6, 2.9 * rows + 0.6) if n > 1 else (6.4, 4.6)
-    fig, axes = plt.subplots(
-        rows, cols, figsize=size, layout="constrained", squeeze=False, sharey=True
-    )
+    fig = Figure(figsize=size, layout="constrained")
+    axes = fig.subplots(rows, cols, squeeze=False, sharey=True)
     for i, (flow, z) in enumerate(zip(flows, z2, strict=True)):
         ax = axes[i % rows][i // rows] if n == 6 else axes[0][i]
         pump = flow.pump.values
