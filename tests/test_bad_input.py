@@ -303,6 +303,12 @@ CASES = [
     ),
     ("wcc_flow axis 4", lambda: ts.wcc_flow(wd(), 2, axis=4), ModelError, ["axis", "1, 2 or 3"]),
     ("wcc_flow cut 0.3", lambda: ts.wcc_flow(wd(), 2, cut=0.3), ModelError, ["cut", "0.5"]),
+    (
+        "wcc_flow plane options on a 2D model",
+        lambda: ts.wcc_flow(ts.models.bhz(), 2, axis=1),
+        ModelError,
+        ["2D model has one plane", "axis=1"],
+    ),
     # -- serialised descriptions ------------------------------------------------------------
     (
         "model dict missing keys",

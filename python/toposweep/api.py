@@ -158,6 +158,11 @@ def wcc_flow(
         plane = 2 * (axis - 1) + (1 if cut == 0.5 else 0)
         loop_axis, pump_axis = axis % 3 + 1, (axis + 1) % 3 + 1
     elif model.dim == 2:
+        if axis is not None or cut != 0.0:  # silently ignoring them would plot another plane
+            raise ModelError(
+                "axis and cut select a plane of a 3D model; a 2D model has one plane (loops "
+                f"along κ_1, pump κ_2): leave them out (got axis={axis!r}, cut={cut!r})"
+            )
         plane, loop_axis, pump_axis = 0, 1, 2
     else:
         raise ModelError("wcc_flow needs a 2D or 3D model")
