@@ -144,6 +144,8 @@ class Model(ABC):
         Returns an array of shape ``(..., norb, norb)``.
         """
         try:
+            if np.iscomplexobj(kappa):  # a cast would drop the imaginary parts silently
+                raise TypeError("complex values given")
             k = np.asarray(kappa, dtype=float)
         except (TypeError, ValueError) as exc:
             raise ModelError(

@@ -81,8 +81,9 @@ class TightBinding(Model):
 
     def _lattice_vector(self, R: Sequence[int]) -> tuple[int, ...]:
         try:
-            arr = np.asarray(R, dtype=float)  # ints beyond int64 or strings fail here or below
-        except (TypeError, ValueError, OverflowError):
+            # complex input would be cast to float with only a warning, dropping imaginary parts
+            arr = np.asarray([]) if np.iscomplexobj(R) else np.asarray(R, dtype=float)
+        except (TypeError, ValueError, OverflowError):  # ints beyond int64, strings, ...
             arr = np.asarray([])
         if arr.shape != (self.dim,) or not np.all(np.isfinite(arr)):
             raise ModelError(
