@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import subprocess
 import sys
 import tempfile
@@ -92,8 +91,8 @@ def main() -> None:
         factor = large["points"] / small["points"]
         lines.append("")
         lines.append(
-            f"Streamed to disk, {factor:.0f}× more points (10^{math.log10(small['points']):.0f}"
-            f" → 10^{math.log10(large['points']):.0f}) raise the peak by {growth:.1f} MiB."
+            f"Streamed to disk, {factor:.0f}× more points ({small['points']:,} → "
+            f"{large['points']:,}) raise the peak by {growth:.1f} MiB."
         )
     lines.append(f"\n(total benchmark time {time.perf_counter() - t0:.0f} s)")
     table = "\n".join(lines)
