@@ -107,7 +107,9 @@ def test_wilson_loop_agrees_with_parity_on_random_models(survey):
 
 def test_random_models_reach_every_phase(survey):
     counts = Counter((o.dim, rm.phase_of(o.wilson[0], o.wilson[1], o.dim)) for o in survey)
-    print("phases hit by the random models:", dict(sorted(counts.items())))
+    report = {f"3D {p}": counts[(3, p)] for p in rm.PHASES}
+    report.update({"2D Z2-even": counts[(2, "trivial")], "2D Z2-odd": counts[(2, "strong")]})
+    print("phases hit by the random models:", report)
     for phase in rm.PHASES:
         assert counts[(3, phase)] >= 5, counts
     assert counts[(2, "trivial")] >= 5 and counts[(2, "strong")] >= 5, counts
