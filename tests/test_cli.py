@@ -193,3 +193,17 @@ def test_coefficients_mapping_from_a_file_and_its_flow(tmp_path: Path, capsys) -
     assert "trivial insulator (Z2 = 0)" in out and "Z2-odd 2D insulator (Z2 = 1)" in out
     assert main(["plot", str(tmp_path / "z.nc"), "--flow", "--at", "z=1.0"]) == 0
     assert (tmp_path / "z-flow.png").stat().st_size > 10_000
+
+
+def test_demo_writes_its_files_and_prints_the_summary(tmp_path: Path, capsys) -> None:
+    assert main(["demo", "--out", str(tmp_path / "demo"), "--quiet"]) == 0
+    out = capsys.readouterr().out
+    # the d-f model's boundaries (df_lattice docstring; Fu & Kane, PRB 76, 045302 (2007)
+    # parity counting): inversion at X only → (1;111), at X and Γ → (0;111)
+    assert "strong TI (1;111)" in out and "weak TI (0;111)" in out
+    assert "0 disagree" in out
+    for name in ("tessarine.nc", "tessarine-phases.png", "tessarine-cut.png", "tessarine-flow.png"):
+        assert (tmp_path / "demo" / name).stat().st_size > 10_000, name
+    with xr.open_dataset(tmp_path / "demo" / "tessarine.nc") as ds:
+        assert ds.f_level.attrs["units"] == "eV"
+        assert int((ds.phase == 2).sum()) > 0
