@@ -56,6 +56,9 @@ def test_sigkill_half_way_then_resume_equals_uninterrupted_run(tmp_path: Path) -
             if journal.is_dir() and len(list(journal.glob("chunk-*.npz"))) >= 9:
                 break
             time.sleep(0.01)
+        assert proc.poll() is None
+        with pytest.raises(StoreError, match="another process is writing"):  # one writer only
+            ts.sweep(model, KILL_GRID, 2, out=out, resume=True, **KILL_OPTIONS)
         os.kill(proc.pid, signal.SIGKILL)  # no chance to clean up: the journal must be enough
     finally:
         proc.wait()

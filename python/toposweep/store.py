@@ -25,6 +25,11 @@ from collections.abc import Callable, Iterator, Mapping
 from pathlib import Path
 from typing import Any
 
+try:  # POSIX advisory locks; elsewhere a second writer is not detected
+    import fcntl
+except ImportError:  # pragma: no cover
+    fcntl = None  # type: ignore[assignment]
+
 import h5netcdf
 import h5py
 import numpy as np
@@ -43,6 +48,7 @@ __all__ = [
 ]
 
 IDENTITY_FILE = "run.json"
+LOCK_FILE = "lock"
 #: global attribute holding the run identity (model, grid, filling, sampling fingerprints)
 IDENTITY_ATTR = "run_identity"
 FLAT_DIM = "point"
@@ -129,40 +135,71 @@ def missing_ranges(done: list[tuple[int, int]], total: int) -> list[tuple[int, i
 
 
 class Journal:
-    """Finished chunks of one run, one atomically written ``.npz`` file per chunk."""
+    """Finished chunks of one run, one atomically written ``.npz`` file per chunk.
 
-    def __init__(self, path: Path, identity: Mapping[str, Any]) -> None:
+    The journal holds an exclusive lock (``flock`` on ``<journal>/lock``) while a run uses it,
+    so two processes never write the same result; the kernel drops the lock when its process
+    dies, even by SIGKILL, so a killed run can always be resumed.
+    """
+
+    def __init__(self, path: Path, identity: Mapping[str, Any], lock: Any = None) -> None:
         self.path = path
         self.identity = dict(identity)
+        self._lock = lock
+
+    @staticmethod
+    def _acquire(path: Path, out: str) -> Any:
+        path.mkdir(parents=True, exist_ok=True)
+        fh = open(path / LOCK_FILE, "a+b")  # noqa: SIM115 - held for the whole run
+        if fcntl is not None:
+            try:
+                fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                fh.close()
+                raise StoreError(
+                    f"another process is writing {out} right now (its journal {path} is "
+                    "locked); wait for it to finish or choose another output file"
+                ) from None
+        return fh
 
     @classmethod
     def start(
         cls, out: str | os.PathLike[str], identity: Mapping[str, Any], resume: bool
     ) -> Journal:
-        """Open the journal of ``out``: continue it (``resume``) or start a new one."""
+        """Open and lock the journal of ``out``: continue it (``resume``) or start anew."""
         path = journal_path(out)
-        if resume and path.is_dir():
-            try:
-                found = json.loads((path / IDENTITY_FILE).read_text())
-            except (OSError, ValueError):
-                found = None
-            if isinstance(found, dict):
-                diff = identity_differences(identity, found)
-                if diff:
-                    raise StoreError(
-                        f"cannot resume {os.fspath(out)}: the interrupted run differs — "
-                        + "; ".join(diff)
-                        + ". Use the original settings, or resume=False to start over."
-                    )
-                return cls(path, identity)
-            # the identity file itself was never completed: nothing of this run is trustworthy
-        if path.exists():
-            shutil.rmtree(path)
-        path.mkdir(parents=True)
-        journal = cls(path, identity)
-        text = json.dumps(journal.identity, sort_keys=True).encode()
-        _atomic_write(path / IDENTITY_FILE, lambda fh: fh.write(text))
-        return journal
+        lock = cls._acquire(path, os.fspath(out))
+        try:
+            if resume:
+                try:
+                    found = json.loads((path / IDENTITY_FILE).read_text())
+                except (OSError, ValueError):
+                    found = None  # never completed: nothing of that run is trustworthy
+                if isinstance(found, dict):
+                    diff = identity_differences(identity, found)
+                    if diff:
+                        raise StoreError(
+                            f"cannot resume {os.fspath(out)}: the interrupted run differs — "
+                            + "; ".join(diff)
+                            + ". Use the original settings, or resume=False to start over."
+                        )
+                    return cls(path, identity, lock)
+            for p in path.iterdir():  # a new run: clear everything but the lock
+                if p.name != LOCK_FILE:
+                    shutil.rmtree(p) if p.is_dir() else p.unlink()
+            journal = cls(path, identity, lock)
+            text = json.dumps(journal.identity, sort_keys=True).encode()
+            _atomic_write(path / IDENTITY_FILE, lambda fh: fh.write(text))
+            return journal
+        except BaseException:
+            lock.close()
+            raise
+
+    def close(self) -> None:
+        """Release the lock (the journal stays on disk for a later resume)."""
+        if self._lock is not None:
+            self._lock.close()
+            self._lock = None
 
     @staticmethod
     def _name(start: int, stop: int) -> str:
@@ -184,6 +221,8 @@ class Journal:
         for p in self.path.iterdir():
             if p.name.endswith(".tmp"):
                 p.unlink()  # a write that a kill interrupted
+                continue
+            if p.name in (LOCK_FILE, IDENTITY_FILE):
                 continue
             parts = p.name.removeprefix("chunk-").removesuffix(".npz").split("-")
             if not p.name.startswith("chunk-") or len(parts) != 2:
@@ -208,8 +247,9 @@ class Journal:
         return kept
 
     def remove(self) -> None:
-        """Delete the journal (after the result file is complete)."""
+        """Delete the journal (after the result file is complete) and release the lock."""
         shutil.rmtree(self.path, ignore_errors=True)
+        self.close()
 
 
 def flat_boxes(

@@ -312,29 +312,33 @@ def _sweep_to_file(
             )
         return ds
     journal = Journal.start(out, plan.identity, resume)
-    finished = journal.finished()
-    todo = missing_ranges(finished, plan.size)
-    bar = ProgressBar(plan.size, done=plan.size - sum(b - a for a, b in todo), enabled=progress)
+    try:
+        finished = journal.finished()
+        todo = missing_ranges(finished, plan.size)
+        done = plan.size - sum(b - a for a, b in todo)
+        bar = ProgressBar(plan.size, done=done, enabled=progress)
 
-    def save(start: int, stop: int, raw: Mapping[str, NDArray[Any]]) -> None:
-        journal.save(start, stop, raw)
-        finished.append((start, stop))
+        def save(start: int, stop: int, raw: Mapping[str, NDArray[Any]]) -> None:
+            journal.save(start, stop, raw)
+            finished.append((start, stop))
 
-    with _InterruptFlag() as flag:
-        complete = _run(plan, todo, save, bar, chunk_size, flag)
-    bar.close()
-    if not complete:
-        done = sum(b - a for a, b in finished)
-        raise SweepInterrupted(
-            f"sweep interrupted after {done} of {plan.size} points; the finished chunks are kept "
-            f"in {journal.path} — run again with resume=True to continue",
-            done=done,
-            total=plan.size,
-            out=out,
-            partial=None,
-        )
-    _consolidate(plan, journal, sorted(finished), out)
-    journal.remove()
+        with _InterruptFlag() as flag:
+            complete = _run(plan, todo, save, bar, chunk_size, flag)
+        bar.close()
+        if not complete:
+            done = sum(b - a for a, b in finished)
+            raise SweepInterrupted(
+                f"sweep interrupted after {done} of {plan.size} points; the finished chunks "
+                f"are kept in {journal.path} — run again with resume=True to continue",
+                done=done,
+                total=plan.size,
+                out=out,
+                partial=None,
+            )
+        _consolidate(plan, journal, sorted(finished), out)
+        journal.remove()
+    finally:
+        journal.close()
     return xr.open_dataset(out, engine="h5netcdf")
 
 
