@@ -150,7 +150,7 @@ class Journal:
     @staticmethod
     def _acquire(path: Path, out: str) -> Any:
         path.mkdir(parents=True, exist_ok=True)
-        fh = open(path / LOCK_FILE, "a+b")  # noqa: SIM115 - held for the whole run
+        fh = open(path / LOCK_FILE, "a+b")  # held open (and locked) for the whole run
         if fcntl is not None:
             try:
                 fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
