@@ -361,6 +361,18 @@ def test_time_reversal_broken_at_some_points_only_marks_those():
     assert raw["nu0_parity"].tolist() == [1, -1]
 
 
+def test_nearly_symmetric_model_is_told_how_to_symmetrise():
+    # hoppings symmetric only to ~1e-6, as fitted or Wannier-derived models often are
+    m = ts.models.wilson_dirac()
+    noise = 1e-6 * np.random.default_rng(3).normal(size=(4, 4))
+    m.add((1, 1, 0), noise)
+    with pytest.raises(SymmetryError, match=r"nearly symmetric.*\(T \+ U_T T\* U_T†\)/2"):
+        ts.invariants(m, 2)
+    with pytest.raises(SymmetryError) as info:
+        ts.invariants(broken_tr_model(), 2)
+    assert "nearly" not in str(info.value)
+
+
 def test_wrong_model_inversion_leaves_only_parity_undefined():
     # P = 1 is not an inversion of the Wilson–Dirac model (its orbitals have opposite parity):
     # declared on the model it must not raise, but it must not give a parity answer either

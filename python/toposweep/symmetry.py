@@ -66,14 +66,33 @@ def symmetry_residual(op: NDArray, h_plus: NDArray, h_minus: NDArray, kind: str)
     return float(np.abs(lhs - h_minus).max(initial=0.0)) / scale
 
 
+#: residuals below this (but above TOLERANCE) look like rounding in the model's source, e.g.
+#: Wannier-derived hoppings, rather than a wrong operator
+NEARLY = 1e-2
+
+
 def symmetry_error(kind: str, residual: float, where: str) -> SymmetryError:
     """The error raised when a declared operator does not hold."""
     if kind == "time_reversal":
-        return SymmetryError(
+        text = (
             f"time reversal does not hold {where}: max |U_T H(κ)* U_T† − H(−κ)| / max|H| = "
-            f"{residual:.2e} at random κ. Check U_T, or the parameters that break it."
+            f"{residual:.2e} at random κ (tolerance {TOLERANCE:.0e}). "
         )
-    return SymmetryError(
+        if residual < NEARLY:
+            return SymmetryError(
+                text + "The model is only nearly symmetric (typical of fitted or "
+                "Wannier-derived hoppings): symmetrise it, replacing every hopping T by "
+                "(T + U_T T* U_T†)/2."
+            )
+        return SymmetryError(text + "Check U_T, or the parameters that break it.")
+    text = (
         f"inversion does not hold {where}: max |P H(κ) P† − H(−κ)| / max|H| = {residual:.2e} "
-        "at random κ. Pass inversion=None (the Wilson loop does not need it) or fix P."
+        f"at random κ (tolerance {TOLERANCE:.0e}). "
     )
+    if residual < NEARLY:
+        return SymmetryError(
+            text + "The model is only nearly symmetric: symmetrise it (the hopping on bond R "
+            "becomes (T_R + P T_{−R} P†)/2, with T_{−R} = T_R† for a bond added once), or "
+            "pass inversion=None (the Wilson loop does not need it)."
+        )
+    return SymmetryError(text + "Pass inversion=None (the Wilson loop does not need it) or fix P.")
