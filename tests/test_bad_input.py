@@ -405,6 +405,14 @@ def _non_hermitian(kappa, mass=-2.0):
     return h
 
 
+def _nan_in_big_batches(kappa, mass=-2.0):
+    # passes the small symmetry-check batches, fails inside the core's parallel run
+    h = wilson_dirac_func(kappa, mass)
+    if len(kappa) > 100:
+        h[5, 0, 0] = np.inf
+    return h
+
+
 def _returns_none(kappa, mass=-2.0):
     return None
 
@@ -419,6 +427,7 @@ def _returns_text(kappa, mass=-2.0):
         (_wrong_shape, ["shape", "(8, 3, 3)", "(8, 4, 4)"]),
         (_too_few_rows, ["shape", "(1, 4, 4)", "(8, 4, 4)"]),
         (_nan, ["NaN"]),
+        (_nan_in_big_batches, ["NaN or infinity", "'mass': -2.0"]),
         (_non_hermitian, ["non-Hermitian", "5.00e-01"]),
         (_returns_none, ["shape ()"]),
         (_returns_text, ["complex numbers"]),
