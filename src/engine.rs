@@ -9,20 +9,17 @@
 
 use crate::bloch::BlochSource;
 use crate::error::{invalid, CoreError, CoreResult};
-use crate::indices::{combine, Indices};
-use crate::lattice_z2::{lattice_z2, LatticeOutcome, LatticePlane};
-use crate::flow::{inspect, z2_of_flow};
 use crate::gap_search::{gaps_at, minimise, pick_starts, SearchSettings};
+use crate::indices::{combine, Indices};
+use crate::lattice_z2::{lattice_planes_initial, lattice_planes_refine};
 use crate::parity::{parity_indices, reason, trims, ParityResult};
-use crate::wilson::{evaluate_lines, evaluate_points, BandStats, LineResult, LineSpec};
+use crate::plane_flows::{certify, initial_lines, line_stats, refine_lines, summarise};
+pub use crate::plane_flows::{plane_flow, planes, Plane, PlaneResult};
+use crate::wilson::{evaluate_points, BandStats};
 use crate::C64;
 
 /// Relative gap floor (× bandwidth) used when the caller gives none.
 pub const AUTO_FLOOR_REL: f64 = 1e-6;
-/// Pump intervals narrower than this are never split further.
-const MIN_INTERVAL: f64 = 1e-7;
-/// How often the lattice mesh may be doubled in each direction before giving up.
-const LATTICE_DOUBLINGS: usize = 2;
 
 #[derive(Clone, Debug, PartialEq)]
 pub struct Sampling {
@@ -59,7 +56,9 @@ impl Method {
             "wilson" => Ok(Self::Wilson),
             "lattice" => Ok(Self::Lattice),
             "both" => Ok(Self::Both),
-            other => Err(invalid!("method must be 'wilson', 'lattice' or 'both', got {other:?}")),
+            other => Err(invalid!(
+                "method must be 'wilson', 'lattice' or 'both', got {other:?}"
+            )),
         }
     }
 }
@@ -96,22 +95,6 @@ impl Sampling {
 }
 
 #[derive(Clone, Debug, PartialEq)]
-pub struct PlaneResult {
-    pub z2: i8,
-    pub converged: bool,
-    /// κ points per loop of this result (doubled when the certificate recomputed the plane)
-    pub loop_points: usize,
-    /// the certificate's finer run gave a different Z2
-    pub changed: bool,
-    pub lines_used: usize,
-    pub max_step: f64,
-    pub min_clearance: f64,
-    /// pump coordinates and centres of every line (kept for flow plots)
-    pub pump: Vec<f64>,
-    pub centres: Vec<Vec<f64>>,
-}
-
-#[derive(Clone, Debug, PartialEq)]
 pub struct PointResult {
     pub nu0: i8,
     pub nu: [i8; 3],
@@ -144,52 +127,6 @@ pub struct LatticeSummary {
     pub mesh: (usize, usize),
 }
 
-/// A time-reversal-invariant plane: base point, loop axis and pump axis.
-#[derive(Clone, Copy, Debug)]
-pub struct Plane {
-    pub base: [f64; 3],
-    pub loop_axis: usize,
-    pub pump_axis: usize,
-}
-
-impl Plane {
-    pub fn lattice(&self) -> LatticePlane {
-        LatticePlane { base: self.base, loop_axis: self.loop_axis, pump_axis: self.pump_axis }
-    }
-    pub fn line(&self, t: f64) -> LineSpec {
-        let mut base = self.base;
-        base[self.pump_axis] = t;
-        LineSpec {
-            base,
-            axis: self.loop_axis,
-        }
-    }
-}
-
-/// The planes of a `dim`-dimensional model, in the order (axis 0, cut 0), (axis 0, cut 1/2), …
-pub fn planes(dim: usize) -> Vec<Plane> {
-    match dim {
-        2 => vec![Plane {
-            base: [0.0; 3],
-            loop_axis: 0,
-            pump_axis: 1,
-        }],
-        _ => (0..3)
-            .flat_map(|i| {
-                [0.0, 0.5].map(|c| {
-                    let mut base = [0.0; 3];
-                    base[i] = c;
-                    Plane {
-                        base,
-                        loop_axis: (i + 1) % 3,
-                        pump_axis: (i + 2) % 3,
-                    }
-                })
-            })
-            .collect(),
-    }
-}
-
 /// Largest spacing between neighbouring sampled κ points (loop, pump or bulk grid), which
 /// bounds how far the true gap minimum can lie from the smallest sampled gap.
 fn sampled_spacing(dim: usize, s: &Sampling) -> f64 {
@@ -218,201 +155,6 @@ fn bulk_grid(dim: usize, m: usize) -> Vec<f64> {
     k
 }
 
-/// The pump lines of one plane computed so far, in ascending pump coordinate.
-#[derive(Clone, Debug, Default)]
-struct PlaneLines {
-    pump: Vec<f64>,
-    lines: Vec<LineResult>,
-}
-
-/// The initial, evenly spaced pump lines of several planes, as one batch for the source.
-fn initial_lines(
-    src: &dyn BlochSource,
-    planes: &[Plane],
-    filling: usize,
-    s: &Sampling,
-    loop_points: usize,
-) -> CoreResult<Vec<PlaneLines>> {
-    let t0: Vec<f64> = (0..s.lines)
-        .map(|m| 0.5 * m as f64 / (s.lines - 1) as f64)
-        .collect();
-    let specs: Vec<LineSpec> = planes
-        .iter()
-        .flat_map(|p| t0.iter().map(move |&t| p.line(t)))
-        .collect();
-    let mut res = evaluate_lines(src, &specs, loop_points, filling, None)?.into_iter();
-    Ok(planes
-        .iter()
-        .map(|_| PlaneLines {
-            pump: t0.clone(),
-            lines: res.by_ref().take(s.lines).collect(),
-        })
-        .collect())
-}
-
-/// Adaptive insertion of pump lines (all planes in one batch per round) until every
-/// neighbouring pair passes the refinement test or `max_lines` is reached.
-fn refine_lines(
-    src: &dyn BlochSource,
-    planes: &[Plane],
-    all: &mut [PlaneLines],
-    filling: usize,
-    s: &Sampling,
-    loop_points: usize,
-) -> CoreResult<()> {
-    loop {
-        let mut wanted: Vec<(usize, f64)> = Vec::new();
-        for (p, pl) in all.iter().enumerate() {
-            let (ts, ls) = (&pl.pump, &pl.lines);
-            let budget = s.max_lines.saturating_sub(ts.len());
-            let mut new: Vec<(f64, f64)> = (0..ts.len() - 1)
-                .filter(|&m| ts[m + 1] - ts[m] > MIN_INTERVAL)
-                .filter_map(|m| {
-                    let iv = inspect(&ls[m].centres, &ls[m + 1].centres, s.step_limit);
-                    iv.refine.then_some((iv.step, 0.5 * (ts[m] + ts[m + 1])))
-                })
-                .collect();
-            // largest motion first when the budget cannot take them all
-            new.sort_by(|a, b| b.0.total_cmp(&a.0));
-            wanted.extend(new.into_iter().take(budget).map(|(_, t)| (p, t)));
-        }
-        if wanted.is_empty() {
-            return Ok(());
-        }
-        let specs: Vec<LineSpec> = wanted.iter().map(|&(p, t)| planes[p].line(t)).collect();
-        let got = evaluate_lines(src, &specs, loop_points, filling, None)?;
-        for ((p, t), r) in wanted.into_iter().zip(got) {
-            let at = all[p].pump.partition_point(|&x| x < t);
-            all[p].pump.insert(at, t);
-            all[p].lines.insert(at, r);
-        }
-    }
-}
-
-/// Z2 and flow diagnostics of each plane from its lines.
-fn summarise(all: Vec<PlaneLines>, s: &Sampling) -> Vec<PlaneResult> {
-    all.into_iter()
-        .map(
-            |PlaneLines {
-                 pump: ts,
-                 lines: ls,
-             }| {
-                let mut converged = true;
-                let (mut max_step, mut min_clear) = (0.0f64, f64::INFINITY);
-                for m in 0..ls.len() - 1 {
-                    let iv = inspect(&ls[m].centres, &ls[m + 1].centres, s.step_limit);
-                    converged &= !iv.refine;
-                    max_step = max_step.max(iv.step);
-                    min_clear = min_clear.min(iv.clearance);
-                }
-                let centres: Vec<Vec<f64>> = ls.into_iter().map(|l| l.centres).collect();
-                let refs: Vec<&[f64]> = centres.iter().map(|c| c.as_slice()).collect();
-                let z2 = if converged {
-                    z2_of_flow(&refs) as i8
-                } else {
-                    -1
-                };
-                PlaneResult {
-                    z2,
-                    converged,
-                    loop_points: s.loop_points,
-                    changed: false,
-                    lines_used: ts.len(),
-                    max_step,
-                    min_clearance: min_clear,
-                    pump: ts,
-                    centres,
-                }
-            },
-        )
-        .collect()
-}
-
-/// Band statistics of every line, and each line's own smallest gap (gap-search candidates).
-fn line_stats(all: &[PlaneLines], stats: &mut BandStats, cand: &mut Vec<(f64, [f64; 3])>) {
-    for l in all.iter().flat_map(|p| &p.lines) {
-        stats.merge(&l.stats);
-        cand.push((l.stats.min_direct, l.stats.min_direct_at));
-    }
-}
-
-/// Lattice Z2 of every plane at the base mesh (loop points rounded up to even × pump
-/// intervals of the initial lines).
-fn lattice_initial(
-    src: &dyn BlochSource,
-    pl: &[Plane],
-    filling: usize,
-    u_t: &[C64],
-    s: &Sampling,
-    stats: &mut BandStats,
-    cand: &mut Vec<(f64, [f64; 3])>,
-) -> CoreResult<Vec<LatticeOutcome>> {
-    let n1 = s.loop_points + s.loop_points % 2;
-    pl.iter()
-        .map(|p| lattice_z2(src, &p.lattice(), filling, u_t, n1, s.lines - 1, stats, cand))
-        .collect()
-}
-
-/// Double the lattice mesh of every plane whose field or links are too rough, up to
-/// `LATTICE_DOUBLINGS` times.
-fn lattice_refine(
-    src: &dyn BlochSource,
-    pl: &[Plane],
-    filling: usize,
-    u_t: &[C64],
-    lat: &mut [LatticeOutcome],
-    stats: &mut BandStats,
-) -> CoreResult<()> {
-    for (p, out) in pl.iter().zip(lat.iter_mut()) {
-        for _ in 0..LATTICE_DOUBLINGS {
-            if out.admissible() {
-                break;
-            }
-            let (n1, n2) = out.mesh;
-            *out = lattice_z2(src, &p.lattice(), filling, u_t, 2 * n1, 2 * n2, stats, &mut Vec::new())?;
-        }
-    }
-    Ok(())
-}
-
-/// A plane's flow is tight when a largest-gap midpoint comes within reach of a centre: closer
-/// than `step_limit`, or closer than twice the largest step a centre made between neighbouring
-/// lines. Then the jump count could depend on how finely the loops sample κ.
-fn is_tight(p: &PlaneResult, s: &Sampling) -> bool {
-    p.converged && p.min_clearance < s.step_limit.max(2.0 * p.max_step)
-}
-
-/// Convergence certificate: recompute the tight planes with twice the loop points (initial
-/// lines and adaptive insertion as before). A plane keeps its Z2 only if the finer run agrees;
-/// its diagnostics become those of the finer run.
-fn certify(
-    src: &dyn BlochSource,
-    pl: &[Plane],
-    res: &mut [PlaneResult],
-    filling: usize,
-    s: &Sampling,
-    stats: &mut BandStats,
-) -> CoreResult<()> {
-    let tight: Vec<usize> = (0..res.len()).filter(|&i| is_tight(&res[i], s)).collect();
-    if tight.is_empty() {
-        return Ok(());
-    }
-    let sub: Vec<Plane> = tight.iter().map(|&i| pl[i]).collect();
-    let fine = 2 * s.loop_points;
-    let mut lines = initial_lines(src, &sub, filling, s, fine)?;
-    refine_lines(src, &sub, &mut lines, filling, s, fine)?;
-    line_stats(&lines, stats, &mut Vec::new());
-    for (&i, mut again) in tight.iter().zip(summarise(lines, s)) {
-        again.loop_points = fine;
-        if again.z2 != res[i].z2 {
-            again.z2 = -1;
-            again.changed = true;
-        }
-        res[i] = again;
-    }
-    Ok(())
-}
-
 /// Evaluate one parameter point. `inversion` (n×n, P² = 1) enables the parity indices;
 /// `time_reversal` (n×n U_T) is needed by the lattice method.
 pub fn evaluate_point(
@@ -425,7 +167,9 @@ pub fn evaluate_point(
     s.validate()?;
     let (dim, n) = (src.dim(), src.norb());
     if !(2..=3).contains(&dim) {
-        return Err(invalid!("Z2 indices need a 2D or 3D model, got dim = {dim}"));
+        return Err(invalid!(
+            "Z2 indices need a 2D or 3D model, got dim = {dim}"
+        ));
     }
     if filling == 0 || filling >= n {
         return Err(invalid!("filling must lie in 1…{}, got {filling}", n - 1));
@@ -434,7 +178,11 @@ pub fn evaluate_point(
     let u_t = match (s.method, time_reversal) {
         (Method::Wilson, _) => None,
         (_, Some(u)) if u.len() == n * n => Some(u),
-        _ => return Err(invalid!("the lattice method needs the {n}×{n} time-reversal matrix")),
+        _ => {
+            return Err(invalid!(
+                "the lattice method needs the {n}×{n} time-reversal matrix"
+            ))
+        }
     };
     // TRIMs first (gaps, parity), then a uniform bulk grid (3D), the initial pump lines and
     // the base lattice mesh; every sampled κ point is a candidate start for the gap search.
@@ -442,8 +190,11 @@ pub fn evaluate_point(
     let (trim_stats, trim_e, trim_v) = evaluate_points(src, &trim_k, filling, true)?;
     let mut stats = trim_stats;
     let trim_gap: Vec<f64> = trim_e.iter().map(|e| e[filling] - e[filling - 1]).collect();
-    let mut cand: Vec<(f64, [f64; 3])> =
-        trims(dim).into_iter().zip(&trim_gap).map(|(k, &g)| (g, k)).collect();
+    let mut cand: Vec<(f64, [f64; 3])> = trims(dim)
+        .into_iter()
+        .zip(&trim_gap)
+        .map(|(k, &g)| (g, k))
+        .collect();
     let bulk_k = bulk_grid(dim, s.gap_points);
     let bulk_gap = gaps_at(src, &bulk_k, filling, &mut stats)?;
     for (g, k) in bulk_gap.iter().zip(bulk_k.chunks_exact(dim)) {
@@ -458,7 +209,19 @@ pub fn evaluate_point(
         line_stats(&lines, &mut stats, &mut cand);
     }
     let mut lat = match u_t {
-        Some(u) => lattice_initial(src, &pl, filling, u, s, &mut stats, &mut cand)?,
+        Some(u) => {
+            let lp: Vec<_> = pl.iter().map(|p| p.lattice()).collect();
+            let n1 = s.loop_points + s.loop_points % 2;
+            lattice_planes_initial(
+                src,
+                &lp,
+                filling,
+                u,
+                (n1, s.lines - 1),
+                &mut stats,
+                &mut cand,
+            )?
+        }
         None => Vec::new(),
     };
     let floor_of = |st: &BandStats| {
@@ -492,12 +255,15 @@ pub fn evaluate_point(
         certify(src, &pl, &mut plane_res, filling, s, &mut stats)?;
     }
     if let (true, Some(u)) = (gapped, u_t) {
-        lattice_refine(src, &pl, filling, u, &mut lat, &mut stats)?;
+        let lp: Vec<_> = pl.iter().map(|p| p.lattice()).collect();
+        lattice_planes_refine(src, &lp, filling, u, &mut lat, &mut stats)?;
     }
     let floor = floor_of(&stats);
 
     let parity = match inversion {
-        Some(p) => Some(parity_indices(&trim_v, &trim_gap, p, n, filling, dim, floor)?),
+        Some(p) => Some(parity_indices(
+            &trim_v, &trim_gap, p, n, filling, dim, floor,
+        )?),
         None => None,
     };
     let blocking = if trim_gap.iter().any(|&g| g < floor) {
@@ -508,7 +274,10 @@ pub fn evaluate_point(
         reason::DEFINED
     };
     let lattice = (!lat.is_empty()).then(|| {
-        let z: Vec<i8> = lat.iter().map(|o| if o.admissible() { o.z2 } else { -1 }).collect();
+        let z: Vec<i8> = lat
+            .iter()
+            .map(|o| if o.admissible() { o.z2 } else { -1 })
+            .collect();
         LatticeSummary {
             indices: combine(dim, &z, blocking, reason::LATTICE_MESH_TOO_COARSE),
             max_field: lat.iter().map(|o| o.max_field).fold(0.0, f64::max),
@@ -539,7 +308,10 @@ pub fn evaluate_point(
     let (max_step, min_clearance) = if want_wilson {
         (
             plane_res.iter().map(|p| p.max_step).fold(0.0, f64::max),
-            plane_res.iter().map(|p| p.min_clearance).fold(f64::INFINITY, f64::min),
+            plane_res
+                .iter()
+                .map(|p| p.min_clearance)
+                .fold(f64::INFINITY, f64::min),
         )
     } else {
         (f64::NAN, f64::NAN)
@@ -564,21 +336,6 @@ pub fn evaluate_point(
         parity,
         lattice,
     })
-}
-
-/// Hybrid Wannier centre flow of one plane with fixed pump lines (no insertion), for plots.
-/// `cut` picks the plane of 3D models (axis, value); `positions` (dim × norb, axis-major)
-/// reports centres in the tight-binding convention.
-pub fn plane_flow(
-    src: &dyn BlochSource,
-    filling: usize,
-    plane: Plane,
-    loop_points: usize,
-    pump: &[f64],
-    positions: Option<&[f64]>,
-) -> CoreResult<Vec<LineResult>> {
-    let specs: Vec<LineSpec> = pump.iter().map(|&t| plane.line(t)).collect();
-    evaluate_lines(src, &specs, loop_points, filling, positions)
 }
 
 #[cfg(test)]
@@ -667,17 +424,27 @@ mod tests {
         let model = bhz();
         let u_t = bhz_time_reversal();
         for method in [Method::Lattice, Method::Both] {
-            let s = Sampling { method, ..sampling() };
+            let s = Sampling {
+                method,
+                ..sampling()
+            };
             for (m, want) in [(-3.0, 0), (-1.0, 1), (0.5, 1), (2.5, 0)] {
                 let src = model.at(&[m]).unwrap();
                 let r = evaluate_point(&src, 2, None, Some(&u_t), &s).unwrap();
                 let lat = r.lattice.expect("lattice ran");
-                assert_eq!((lat.indices.nu0, lat.indices.reason), (want, reason::DEFINED), "m = {m}");
+                assert_eq!(
+                    (lat.indices.nu0, lat.indices.reason),
+                    (want, reason::DEFINED),
+                    "m = {m}"
+                );
                 assert_eq!(r.nu0, want, "m = {m}");
             }
         }
         // the lattice method cannot run without U_T
-        let s = Sampling { method: Method::Both, ..sampling() };
+        let s = Sampling {
+            method: Method::Both,
+            ..sampling()
+        };
         assert!(evaluate_point(&model.at(&[1.0]).unwrap(), 2, None, None, &s).is_err());
     }
 

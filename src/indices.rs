@@ -46,7 +46,13 @@ pub fn combine(dim: usize, plane_z2: &[i8], blocking: u8, unresolved: u8) -> Ind
         nu0 = -1;
         nu = [-1; 3];
     }
-    Indices { nu0, nu, z2_plane, nu0_by_axis, reason: why }
+    Indices {
+        nu0,
+        nu,
+        z2_plane,
+        nu0_by_axis,
+        reason: why,
+    }
 }
 
 #[cfg(test)]
@@ -56,13 +62,23 @@ mod tests {
     #[test]
     fn strong_weak_and_undefined() {
         // z(1,0)=1, z(1,½)=0 for every axis: (1;000)
-        let r = combine(3, &[1, 0, 1, 0, 1, 0], reason::DEFINED, reason::NOT_CONVERGED);
+        let r = combine(
+            3,
+            &[1, 0, 1, 0, 1, 0],
+            reason::DEFINED,
+            reason::NOT_CONVERGED,
+        );
         assert_eq!((r.nu0, r.nu, r.reason), (1, [0, 0, 0], reason::DEFINED));
         // all planes odd: (0;111)
         let r = combine(3, &[1; 6], reason::DEFINED, reason::NOT_CONVERGED);
         assert_eq!((r.nu0, r.nu), (0, [1, 1, 1]));
         // inconsistent ν0 estimates
-        let r = combine(3, &[1, 0, 0, 0, 1, 0], reason::DEFINED, reason::NOT_CONVERGED);
+        let r = combine(
+            3,
+            &[1, 0, 0, 0, 1, 0],
+            reason::DEFINED,
+            reason::NOT_CONVERGED,
+        );
         assert_eq!((r.nu0, r.reason), (-1, reason::NU0_ESTIMATES_DISAGREE));
         let r = combine(2, &[-1], reason::DEFINED, reason::NOT_CONVERGED);
         assert_eq!((r.nu0, r.reason), (-1, reason::NOT_CONVERGED));

@@ -175,7 +175,9 @@ pub fn lattice_z2(
 ) -> CoreResult<LatticeOutcome> {
     let (dim, n, m) = (src.dim(), src.norb(), filling);
     if n1 < 4 || n1 % 2 != 0 || n2 < 1 {
-        return Err(invalid!("lattice mesh needs an even n1 ≥ 4 and n2 ≥ 1, got {n1} × {n2}"));
+        return Err(invalid!(
+            "lattice mesh needs an even n1 ≥ 4 and n2 ≥ 1, got {n1} × {n2}"
+        ));
     }
     if u_t.len() != n * n {
         return Err(invalid!("time-reversal matrix must be {n}×{n}"));
@@ -234,7 +236,11 @@ pub fn lattice_z2(
         .map(|p| {
             let (i, j) = (p / n1, p % n1);
             let u1 = link(&psi[p], &psi[idx(i, (j + 1) % n1)], n, m);
-            let u2 = if i < n2 { link(&psi[p], &psi[idx(i + 1, j)], n, m) } else { C64::new(1.0, 0.0) };
+            let u2 = if i < n2 {
+                link(&psi[p], &psi[idx(i + 1, j)], n, m)
+            } else {
+                C64::new(1.0, 0.0)
+            };
             (u1, u2)
         })
         .collect();
@@ -244,7 +250,12 @@ pub fn lattice_z2(
         .chain(links[n2 * n1..].iter().map(|(a, _)| a.norm()))
         .fold(f64::INFINITY, f64::min);
     if min_link < 1e-10 {
-        return Ok(LatticeOutcome { z2: -1, max_field: f64::INFINITY, min_link, mesh: (n1, n2) });
+        return Ok(LatticeOutcome {
+            z2: -1,
+            max_field: f64::INFINITY,
+            min_link,
+            mesh: (n1, n2),
+        });
     }
     // Link phases. On the two invariant rows the link s → s + δ and its time-reversed
     // partner −s − δ → −s are equal in exact arithmetic; they often sit right at the branch
@@ -272,7 +283,53 @@ pub fn lattice_z2(
             max_field = max_field.max(f.abs());
         }
     }
-    Ok(LatticeOutcome { z2: total.rem_euclid(2) as i8, max_field, min_link, mesh: (n1, n2) })
+    Ok(LatticeOutcome {
+        z2: total.rem_euclid(2) as i8,
+        max_field,
+        min_link,
+        mesh: (n1, n2),
+    })
+}
+
+/// How often the lattice mesh may be doubled in each direction before giving up.
+const LATTICE_DOUBLINGS: usize = 2;
+
+/// Lattice Z2 of every plane at the base mesh (loop points rounded up to even × pump
+/// intervals of the initial lines).
+pub fn lattice_planes_initial(
+    src: &dyn BlochSource,
+    pl: &[LatticePlane],
+    filling: usize,
+    u_t: &[C64],
+    mesh: (usize, usize),
+    stats: &mut BandStats,
+    cand: &mut Vec<(f64, [f64; 3])>,
+) -> CoreResult<Vec<LatticeOutcome>> {
+    pl.iter()
+        .map(|p| lattice_z2(src, p, filling, u_t, mesh.0, mesh.1, stats, cand))
+        .collect()
+}
+
+/// Double the lattice mesh of every plane whose field or links are too rough, up to
+/// `LATTICE_DOUBLINGS` times.
+pub fn lattice_planes_refine(
+    src: &dyn BlochSource,
+    pl: &[LatticePlane],
+    filling: usize,
+    u_t: &[C64],
+    lat: &mut [LatticeOutcome],
+    stats: &mut BandStats,
+) -> CoreResult<()> {
+    for (p, out) in pl.iter().zip(lat.iter_mut()) {
+        for _ in 0..LATTICE_DOUBLINGS {
+            if out.admissible() {
+                break;
+            }
+            let (n1, n2) = out.mesh;
+            *out = lattice_z2(src, p, filling, u_t, 2 * n1, 2 * n2, stats, &mut Vec::new())?;
+        }
+    }
+    Ok(())
 }
 
 #[cfg(test)]
@@ -290,7 +347,17 @@ mod tests {
         let want = a[0] * a[3] - a[1] * a[2];
         assert!((det(&a, 2) - want).norm() < 1e-14);
         // permutation matrix with one swap: det = −1
-        let p = [c(0.0, 0.0), c(1.0, 0.0), c(0.0, 0.0), c(1.0, 0.0), c(0.0, 0.0), c(0.0, 0.0), c(0.0, 0.0), c(0.0, 0.0), c(1.0, 0.0)];
+        let p = [
+            c(0.0, 0.0),
+            c(1.0, 0.0),
+            c(0.0, 0.0),
+            c(1.0, 0.0),
+            c(0.0, 0.0),
+            c(0.0, 0.0),
+            c(0.0, 0.0),
+            c(0.0, 0.0),
+            c(1.0, 0.0),
+        ];
         assert!((det(&p, 3) + 1.0).norm() < 1e-14);
     }
 
@@ -316,21 +383,41 @@ mod tests {
         let sx = [z, o, o, z];
         let sy = [z, -i, i, z];
         let sz = [o, z, z, -o];
-        let add = |a: Vec<C64>, b: Vec<C64>, f: C64| -> Vec<C64> { a.iter().zip(&b).map(|(x, y)| x + f * y).collect() };
+        let add = |a: Vec<C64>, b: Vec<C64>, f: C64| -> Vec<C64> {
+            a.iter().zip(&b).map(|(x, y)| x + f * y).collect()
+        };
         let gz = kron(s0, sz);
-        let tx = add(gz.clone(), kron(sz, sx), -i).iter().map(|x| x * 0.5).collect::<Vec<_>>();
-        let ty = add(gz.clone(), kron(s0, sy), -i).iter().map(|x| x * 0.5).collect::<Vec<_>>();
+        let tx = add(gz.clone(), kron(sz, sx), -i)
+            .iter()
+            .map(|x| x * 0.5)
+            .collect::<Vec<_>>();
+        let ty = add(gz.clone(), kron(s0, sy), -i)
+            .iter()
+            .map(|x| x * 0.5)
+            .collect::<Vec<_>>();
         let ra: Vec<C64> = kron(sx, sy).iter().map(|x| x * rashba).collect();
         let mut t = gz;
         t.extend(ra);
         t.extend(tx);
         t.extend(ty);
-        let h = Hoppings::new(2, 4, 1, vec![0, 0, 0, 0, 1, 0, 0, 1], t, vec![0, -1, -1, -1]).unwrap();
+        let h = Hoppings::new(
+            2,
+            4,
+            1,
+            vec![0, 0, 0, 0, 1, 0, 0, 1],
+            t,
+            vec![0, -1, -1, -1],
+        )
+        .unwrap();
         (h, kron([z, o, -o, z], s0)) // U_T = iσ_y ⊗ 1
     }
 
     fn plane() -> LatticePlane {
-        LatticePlane { base: [0.0; 3], loop_axis: 0, pump_axis: 1 }
+        LatticePlane {
+            base: [0.0; 3],
+            loop_axis: 0,
+            pump_axis: 1,
+        }
     }
 
     #[test]
@@ -340,7 +427,8 @@ mod tests {
             for (m, want) in [(-2.7, 0), (-1.0, 1), (0.6, 1), (1.4, 1), (2.6, 0)] {
                 let src = model.at(&[m]).unwrap();
                 let mut st = BandStats::default();
-                let r = lattice_z2(&src, &plane(), 2, &u_t, 24, 12, &mut st, &mut Vec::new()).unwrap();
+                let r =
+                    lattice_z2(&src, &plane(), 2, &u_t, 24, 12, &mut st, &mut Vec::new()).unwrap();
                 assert!(r.admissible(), "m = {m}: {r:?}");
                 assert_eq!(r.z2, want, "m = {m}, rashba = {rashba}");
             }

@@ -14,6 +14,7 @@ pub mod indices;
 pub mod lattice_z2;
 pub mod matrix;
 pub mod parity;
+pub mod plane_flows;
 pub mod wilson;
 
 #[cfg(feature = "python")]
