@@ -109,3 +109,24 @@ def test_sweep_carries_the_lattice_result():
     ds = ts.sweep(ts.models.bhz(), grid, 2, method="both", progress=False)
     assert ds.nu0_lattice.values.tolist() == [0, 1, 1, 0]
     assert ds.methods_agree.values.tolist() == [1, 1, 1, 1]
+
+
+def test_rough_mesh_is_refined_near_a_transition():
+    # 0.01 inside the strong phase of Fu & Kane, PRB 76, 045302 (2007) (−3 < m < −1): the base
+    # mesh's links are too rough (|U| < 0.5), one doubling resolves it
+    ds = ts.invariants(ts.models.wilson_dirac(), 2, {"mass": -2.99}, method="both")
+    assert (int(ds.lattice_loop_points), int(ds.lattice_pump_steps)) == (64, 40)
+    assert int(ds.nu0_lattice) == 1 and int(ds.methods_agree) == 1
+    assert float(ds.lattice_min_link) >= 0.5
+
+
+def test_too_coarse_mesh_is_undefined_not_wrong():
+    # Kane & Mele, PRL 95, 226801 (2005): λ_v = 0.87 × 3√3 λ_SO is still Z2-odd
+    params = {"staggered": 0.45}
+    coarse = ts.invariants(
+        ts.models.kane_mele(), 2, params, method="lattice", loop_points=4, lines=3
+    )
+    assert int(coarse.nu0) == -1 and int(coarse.lattice_undefined_reason) == 10
+    assert int(coarse.lattice_loop_points) == 16  # two doublings of the rounded-up 4 points
+    fine = ts.invariants(ts.models.kane_mele(), 2, params, method="lattice")
+    assert int(fine.nu0) == 1

@@ -96,6 +96,24 @@ def method_variables(
             "units": "1",
         },
     )
+    mesh = grid(raw["lattice_mesh"], (2,)).astype(np.int32)
+    data["lattice_loop_points"] = (
+        dims,
+        mesh[..., 0],
+        {
+            "long_name": "kappa points along the loop axis of the finest lattice mesh used "
+            "(doubled where the field or links were too rough)",
+            "units": "1",
+        },
+    )
+    data["lattice_pump_steps"] = (
+        dims,
+        mesh[..., 1],
+        {
+            "long_name": "steps from 0 to 1/2 along the pump axis of the finest lattice mesh used",
+            "units": "1",
+        },
+    )
     if method == "both":
         nu0w = grid(raw["nu0"]).astype(np.int8)
         agree = nu0w == nu0l
