@@ -205,7 +205,7 @@ def direct_gap(
 
     best = float(gaps.min())
     for i in np.argsort(gaps)[:starts]:
-        res = minimize(gap_at, grid[i], method="Nelder-Mead", options={"xatol": 1e-6})
+        res = minimize(gap_at, grid[i], method="Nelder-Mead", options={"xatol": 1e-4})
         best = min(best, float(res.fun))
     return best, bandwidth
 
