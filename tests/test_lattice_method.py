@@ -105,10 +105,14 @@ def test_method_is_validated():
 
 
 def test_sweep_carries_the_lattice_result():
-    grid = {"mass": np.array([-2.5, -1.0, 1.0, 2.5])}
+    from toposweep.summary import summarise
+
+    grid = {"mass": np.array([-2.5, -1.0, 1.0, 2.0])}
     ds = ts.sweep(ts.models.bhz(), grid, 2, method="both", progress=False)
-    assert ds.nu0_lattice.values.tolist() == [0, 1, 1, 0]
-    assert ds.methods_agree.values.tolist() == [1, 1, 1, 1]
+    assert ds.nu0_lattice.values.tolist() == [0, 1, 1, -1]  # m = 2: gap closes at a TRIM
+    assert ds.methods_agree.values.tolist() == [1, 1, 1, -1]
+    text = summarise(ds, "bhz")
+    assert "lattice Z2 cross-check (Fukui-Hatsugai): 3 agree, 0 disagree, 1 not comparable" in text
 
 
 def test_rough_mesh_is_refined_near_a_transition():

@@ -145,6 +145,21 @@ def summarise(ds: xr.Dataset, name: str = "result") -> str:
             lines.append(f"  disagree at {where}: Wilson loop {labels[idx]}, parity {par}")
         if n_bad > MAX_LISTED:
             lines.append(f"  … and {n_bad - MAX_LISTED} more")
+    if "methods_agree" in ds:
+        agree = ds.methods_agree.values
+        n_ok, n_bad, n_na = (int((agree == v).sum()) for v in (1, 0, -1))
+        lines.append(
+            f"lattice Z2 cross-check (Fukui-Hatsugai): {n_ok} agree, {n_bad} disagree, "
+            f"{n_na} not comparable"
+        )
+        for idx in list(map(tuple, np.argwhere(agree == 0)))[:MAX_LISTED]:
+            nu0_l = int(ds.nu0_lattice.values[idx])
+            if "nu_lattice" in ds:
+                lat = f"({nu0_l};{''.join(str(int(v)) for v in ds.nu_lattice.values[idx])})"
+            else:
+                lat = f"(Z2 = {nu0_l})"
+            where = _where(ds, idx) or "the point"
+            lines.append(f"  disagree at {where}: Wilson loop {labels[idx]}, lattice {lat}")
     gap = np.where(reason == 0, ds.gap_direct.values, np.nan)
     if np.isfinite(gap).any():
         idx = np.unravel_index(int(np.nanargmin(gap)), gap.shape)
