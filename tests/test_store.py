@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import shutil
 import signal
 import subprocess
 import sys
@@ -251,3 +252,21 @@ def test_flat_ranges_map_onto_the_grid_like_numpy_ravel() -> None:
         expected[a:b] = values
         np.testing.assert_array_equal(grid.ravel(), expected)  # numpy's C order is the truth
         assert len(flat_boxes(a, b, shape)) <= 2 * len(shape) - 1
+
+
+@pytest.mark.skipif(shutil.which("ncdump") is None, reason="ncdump (Debian netcdf-bin) absent")
+def test_the_netcdf_c_library_reads_the_file(tmp_path: Path) -> None:
+    # an outside reader: ncdump of the reference netCDF-C library, not h5py/xarray
+    out = tmp_path / "map.nc"
+    ds = resume_run(out, [])
+    header = subprocess.run(
+        ["ncdump", "-h", str(out)], capture_output=True, text=True, check=True
+    ).stdout
+    assert "m = 60 ;" in header
+    assert "byte nu0(m) ;" in header and "phase:flag_meanings" in header
+    values = subprocess.run(
+        ["ncdump", "-v", "nu0", str(out)], capture_output=True, text=True, check=True
+    ).stdout
+    body = values[values.index("nu0 =") + 5 :].replace(";", "").replace("}", "")
+    assert [int(v) for v in body.replace(",", " ").split()] == ds.nu0.values.tolist()
+    ds.close()
