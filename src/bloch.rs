@@ -20,6 +20,33 @@ pub trait BlochSource: Sync {
     fn dim(&self) -> usize;
     fn norb(&self) -> usize;
     fn fill(&self, kappa: &[f64], out: &mut [C64]) -> CoreResult<()>;
+
+    /// True when `fill` should get large batches (a Python callback); false when H(κ) is
+    /// cheap to build anywhere, so each worker builds its own line right before using it
+    /// (`fill_line`) and no batch buffer is needed.
+    fn prefers_batches(&self) -> bool {
+        true
+    }
+
+    /// H at the `points` κ points base + (s/points) e_axis, s = 0…points−1 (a Wilson loop),
+    /// serially on the calling thread. The default builds the κ list and calls `fill`.
+    fn fill_line(
+        &self,
+        base: &[f64],
+        axis: usize,
+        points: usize,
+        out: &mut [C64],
+    ) -> CoreResult<()> {
+        let dim = self.dim();
+        let mut kappa = Vec::with_capacity(points * dim);
+        for s in 0..points {
+            let mut k = [0.0; 3];
+            k[..dim].copy_from_slice(&base[..dim]);
+            k[axis] = s as f64 / points as f64;
+            kappa.extend_from_slice(&k[..dim]);
+        }
+        self.fill(&kappa, out)
+    }
 }
 
 /// The hopping list of a tight-binding model: independent of the parameter values.
@@ -65,7 +92,14 @@ impl Hoppings {
         if t.iter().any(|z| !z.re.is_finite() || !z.im.is_finite()) {
             return Err(invalid!("hopping matrix contains NaN or infinity"));
         }
-        Ok(Self { dim, norb, nterms, r, t, term })
+        Ok(Self {
+            dim,
+            norb,
+            nterms,
+            r,
+            t,
+            term,
+        })
     }
 
     /// Fold the hoppings for one coefficient vector into one matrix per distinct R.
@@ -88,51 +122,82 @@ impl Hoppings {
                 continue;
             }
             let key = self.r[h * self.dim..(h + 1) * self.dim].to_vec();
-            let acc = by_r.entry(key).or_insert_with(|| vec![C64::new(0.0, 0.0); nn]);
+            let acc = by_r
+                .entry(key)
+                .or_insert_with(|| vec![C64::new(0.0, 0.0); nn]);
             for (a, &x) in acc.iter_mut().zip(&self.t[h * nn..(h + 1) * nn]) {
                 *a += x * c;
             }
         }
         let mut onsite = vec![C64::new(0.0, 0.0); nn];
         let mut rs = Vec::new();
-        let mut mats = Vec::new();
+        let mut cos_part = Vec::new();
+        let mut sin_part = Vec::new();
+        let n = self.norb;
         for (key, m) in by_r {
             if key.iter().all(|&x| x == 0) {
                 onsite = m;
             } else {
                 rs.extend(key.iter().map(|&x| x as f64));
-                mats.extend(m);
+                // M e^{iφ} + M† e^{−iφ} = (M + M†) cos φ + i(M − M†) sin φ: two Hermitian
+                // matrices scaled by real numbers, so a κ point is a real linear combination
+                for i in 0..n {
+                    for j in 0..n {
+                        let (a, b) = (m[i * n + j], m[j * n + i].conj());
+                        cos_part.push(a + b);
+                        sin_part.push((a - b) * C64::new(0.0, 1.0));
+                    }
+                }
             }
         }
-        Ok(Bloch { dim: self.dim, norb: self.norb, onsite, rs, mats })
+        Ok(Bloch {
+            dim: self.dim,
+            norb: self.norb,
+            onsite,
+            rs,
+            cos_part,
+            sin_part,
+        })
     }
 }
 
-/// A tight-binding model at one parameter point.
+/// A tight-binding model at one parameter point: H(κ) = onsite + Σ_R (C_R cos φ_R + S_R sin φ_R)
+/// with φ_R = 2πκ·R and Hermitian C_R = M_R + M_R†, S_R = i(M_R − M_R†).
 #[derive(Clone, Debug)]
 pub struct Bloch {
     dim: usize,
     norb: usize,
     onsite: Vec<C64>,
     rs: Vec<f64>,
-    mats: Vec<C64>,
+    cos_part: Vec<C64>,
+    sin_part: Vec<C64>,
 }
 
 impl Bloch {
     /// H(κ) at one κ point into `out` (norb×norb).
     pub fn at_point(&self, kappa: &[f64], out: &mut [C64]) {
-        let n = self.norb;
-        let nn = n * n;
-        out[..nn].copy_from_slice(&self.onsite);
-        for (r, m) in self.rs.chunks_exact(self.dim).zip(self.mats.chunks_exact(nn)) {
+        let nn = self.norb * self.norb;
+        let out = &mut out[..nn];
+        out.copy_from_slice(&self.onsite);
+        for ((r, cp), sp) in self
+            .rs
+            .chunks_exact(self.dim)
+            .zip(self.cos_part.chunks_exact(nn))
+            .zip(self.sin_part.chunks_exact(nn))
+        {
             let phase: f64 = r.iter().zip(kappa).map(|(a, b)| a * b).sum::<f64>() * TAU;
-            let e = C64::from_polar(1.0, phase);
-            for i in 0..n {
-                for j in 0..n {
-                    out[i * n + j] += m[i * n + j] * e + m[j * n + i].conj() * e.conj();
-                }
-            }
+            let (sn, cs) = phase.sin_cos();
+            add_combination(out, cp, sp, cs, sn);
         }
+    }
+}
+
+/// out += c·cp + s·sp (real scalars, complex matrices): contiguous, vectorises.
+#[inline(always)]
+fn add_combination(out: &mut [C64], cp: &[C64], sp: &[C64], c: f64, s: f64) {
+    for ((o, a), b) in out.iter_mut().zip(cp).zip(sp) {
+        o.re += a.re * c + b.re * s;
+        o.im += a.im * c + b.im * s;
     }
 }
 
@@ -156,6 +221,56 @@ impl BlochSource for Bloch {
             .for_each(|(o, k)| self.at_point(k, o));
         Ok(())
     }
+
+    fn prefers_batches(&self) -> bool {
+        false
+    }
+
+    /// Along a loop φ_R(s) = φ_R(0) + 2π R_axis s / L, so e^{iφ_R(s)} = e^{iφ_R(0)} ω^{R_axis s}
+    /// with ω = e^{2πi/L}: one table of the L-th roots of unity per line replaces a sin/cos per
+    /// R and κ point (the index R_axis·s mod L keeps it exact, no error accumulates).
+    fn fill_line(
+        &self,
+        base: &[f64],
+        axis: usize,
+        points: usize,
+        out: &mut [C64],
+    ) -> CoreResult<()> {
+        let nn = self.norb * self.norb;
+        if out.len() < points * nn || axis >= self.dim || points == 0 {
+            return Err(invalid!("fill_line: bad axis, point count or buffer size"));
+        }
+        let roots: Vec<(f64, f64)> = (0..points)
+            .map(|k| (TAU * k as f64 / points as f64).sin_cos())
+            .collect();
+        let nr = self.rs.len() / self.dim.max(1);
+        let mut start = Vec::with_capacity(nr);
+        let mut steps = Vec::with_capacity(nr);
+        for r in self.rs.chunks_exact(self.dim) {
+            // base[axis] is ignored: the loop coordinate runs over s / points
+            let phase: f64 = (0..self.dim)
+                .filter(|&d| d != axis)
+                .map(|d| r[d] * base[d])
+                .sum::<f64>()
+                * TAU;
+            start.push(phase.sin_cos());
+            steps.push((r[axis] as i64).rem_euclid(points as i64) as usize);
+        }
+        for (s, o) in out[..points * nn].chunks_exact_mut(nn).enumerate() {
+            o.copy_from_slice(&self.onsite);
+            for (i, (cp, sp)) in self
+                .cos_part
+                .chunks_exact(nn)
+                .zip(self.sin_part.chunks_exact(nn))
+                .enumerate()
+            {
+                let (s0, c0) = start[i];
+                let (s1, c1) = roots[(steps[i] * s) % points];
+                add_combination(o, cp, sp, c0 * c1 - s0 * s1, s0 * c1 + c0 * s1);
+            }
+        }
+        Ok(())
+    }
 }
 
 #[cfg(test)]
@@ -167,7 +282,12 @@ mod tests {
     fn chain_matches_closed_form() {
         let z = C64::new(0.0, 0.0);
         let sz = vec![C64::new(1.0, 0.0), z, z, C64::new(-1.0, 0.0)];
-        let hop = vec![C64::new(0.5, 0.0), C64::new(0.0, -0.5), C64::new(0.0, -0.5), C64::new(-0.5, 0.0)];
+        let hop = vec![
+            C64::new(0.5, 0.0),
+            C64::new(0.0, -0.5),
+            C64::new(0.0, -0.5),
+            C64::new(-0.5, 0.0),
+        ];
         let mut t = sz.clone();
         t.extend(hop);
         let model = Hoppings::new(1, 2, 1, vec![0, 1], t, vec![0, -1]).unwrap();
@@ -181,6 +301,49 @@ mod tests {
             assert!((out[3] + (m + c)).norm() < 1e-14);
             assert!((out[1] - s).norm() < 1e-14);
             assert!((out[2] - s).norm() < 1e-14);
+        }
+    }
+
+    /// The per-line fill (roots-of-unity table) equals H built point by point.
+    #[test]
+    fn fill_line_matches_points() {
+        let n = 3;
+        let mut st = 99u64;
+        let mut next = || {
+            st = st
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            ((st >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
+        };
+        let r = vec![0, 0, 0, 1, 0, 0, 1, -2, 0, 0, 3, 1];
+        let mut t: Vec<C64> = (0..4 * n * n).map(|_| C64::new(next(), next())).collect();
+        for i in 0..n {
+            for j in 0..n {
+                t[i * n + j] = if i <= j {
+                    t[i * n + j]
+                } else {
+                    t[j * n + i].conj()
+                };
+            }
+            t[i * n + i].im = 0.0;
+        }
+        let b = Hoppings::new(3, n, 1, r, t, vec![-1, 0, -1, 0])
+            .unwrap()
+            .at(&[0.7])
+            .unwrap();
+        for (axis, lp) in [(0, 7), (1, 40), (2, 13)] {
+            let base = [0.31, 0.5, 0.07];
+            let mut line = vec![C64::new(0.0, 0.0); lp * n * n];
+            b.fill_line(&base, axis, lp, &mut line).unwrap();
+            let mut one = vec![C64::new(0.0, 0.0); n * n];
+            for s in 0..lp {
+                let mut k = base;
+                k[axis] = s as f64 / lp as f64;
+                b.at_point(&k, &mut one);
+                for (x, y) in one.iter().zip(&line[s * n * n..(s + 1) * n * n]) {
+                    assert!((x - y).norm() < 1e-13, "axis {axis} s {s}: {x} vs {y}");
+                }
+            }
         }
     }
 

@@ -219,6 +219,8 @@ const SCHEDULE: [[(u8, u8); 32]; JACOBI_MAX_N + 1] = {
 
 /// Size-specialised cyclic Jacobi (see the module notes). Same rotations and the same
 /// convergence test as [`jacobi`]; `guess` (if any) sets the starting basis.
+// Index loops read like the matrix algebra they implement; iterator forms obscure p/q symmetry.
+#[allow(clippy::needless_range_loop)]
 #[inline(always)]
 fn jacobi_fixed<const N: usize>(
     h: &[C64],
@@ -623,6 +625,7 @@ mod tests {
     }
 
     #[test]
+    #[allow(clippy::needless_range_loop)]
     fn schedule_covers_every_pair_once_in_disjoint_rounds() {
         for n in 2..=JACOBI_MAX_N {
             let per = n / 2;
