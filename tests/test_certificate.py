@@ -4,7 +4,9 @@ is marked converged only if the answer holds.
 The test model stretches the spinful square-lattice model along x (its x bonds reach five
 cells), so each spin block's Chern number is multiplied by the degree 5 of the map
 κx ↦ 5κx and the Z2 index stays odd (common practice, no source: the Chern number of a
-pulled-back bundle is the degree times the original one). Loops of 7 points alias those bonds.
+pulled-back bundle is the degree times the original one). Loops of 7 points alias those bonds:
+as a tight-binding model such sampling is refused outright; as a callable model (reach unknown)
+the certificate is what catches it.
 """
 
 from __future__ import annotations
@@ -13,6 +15,7 @@ import sys
 from pathlib import Path
 
 import numpy as np
+import pytest
 import toposweep as ts
 from toposweep.models._matrices import kron, s0, spin_time_reversal, sx, sy, sz
 
@@ -31,11 +34,28 @@ def stretched_bhz(reach: int) -> ts.TightBinding:
     return m
 
 
+def as_callable(model: ts.TightBinding) -> ts.CallableModel:
+    """The same Hamiltonian as a function: toposweep cannot see how far its hoppings reach."""
+
+    def h(kappa, mass=-1.0):
+        return model.hamiltonian(kappa, {"mass": mass})
+
+    return ts.CallableModel(h, 2, 4, time_reversal=model.time_reversal)
+
+
 COARSE = {"loop_points": 7, "lines": 3, "step_limit": 0.45}
 
 
+def test_tight_binding_loops_too_coarse_for_the_hoppings_are_refused():
+    with pytest.raises(ts.SamplingError, match="cannot resolve hoppings that reach 5 cells"):
+        ts.invariants(stretched_bhz(5), 2, **COARSE)
+    # the lattice method has its own mesh check and is not refused
+    ds = ts.invariants(stretched_bhz(5), 2, method="lattice", loop_points=4, lines=3)
+    assert int(ds.nu0) == -1 and int(ds.lattice_undefined_reason) == 10
+
+
 def test_certificate_rejects_an_aliased_answer():
-    model = stretched_bhz(5)
+    model = as_callable(stretched_bhz(5))
     assert int(ts.invariants(model, 2).nu0) == 1  # default sampling resolves it
     blind = ts.invariants(model, 2, certify=False, **COARSE)
     assert int(blind.nu0) == 0  # wrong, and nothing in the flow alone says so

@@ -18,6 +18,7 @@ from .errors import FillingError, ModelError, SamplingError
 from .model import Model
 from .sampling import Sampling
 from .symmetry import TOLERANCE, as_operator, normalised_inversion, symmetry_error
+from .tightbinding import TightBinding
 
 #: reason codes set on the Python side (the core's codes are 0–6; see dataset.REASONS)
 REASON_INVERSION_BROKEN = 7
@@ -67,6 +68,30 @@ def check_threads(threads: Any) -> int | None:
     return int(threads)
 
 
+def check_loop_resolution(model: Model, sampling: Sampling) -> None:
+    """Refuse Wilson loops too coarse to represent the model's longest hoppings.
+
+    Along a loop of L points a hopping that reaches r cells contributes exp(2πi r s/L); for
+    L ≤ 2r it aliases onto a shorter hopping and the loop sees a different model, so the Z2
+    index can come out wrong without any warning sign in the flow. Tight-binding models know
+    their reach; for callable models the convergence certificate is the guard.
+
+    Examples
+    --------
+    >>> import toposweep as ts
+    >>> check_loop_resolution(ts.models.bhz(), Sampling(loop_points=4))  # reach 1: fine
+    """
+    if not isinstance(model, TightBinding) or sampling.method == "lattice":
+        return
+    reach = max((abs(int(x)) for r, _, _ in model.hoppings() for x in r), default=0)
+    if sampling.loop_points <= 2 * reach:
+        raise SamplingError(
+            f"loop_points = {sampling.loop_points} cannot resolve hoppings that reach {reach} "
+            f"cells (a loop needs more than 2 × {reach} points, or the long hoppings alias onto "
+            f"short ones); use loop_points ≥ {4 * reach}"
+        )
+
+
 def prepare_request(
     model: Model,
     filling: Any,
@@ -87,6 +112,7 @@ def prepare_request(
         )
     f = check_filling(model, filling)
     threads = check_threads(threads)
+    check_loop_resolution(model, sampling)
     explicit = inversion is not None
     p = as_operator(inversion, model.norb, "inversion") if explicit else model.inversion
     return Request(
