@@ -24,7 +24,7 @@ from toposweep.config import load_config, parse_config
 from toposweep.store import open_result
 
 FUZZ = settings(
-    max_examples=60,
+    max_examples=150,
     deadline=timedelta(seconds=10),
     derandomize=True,
     suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture],

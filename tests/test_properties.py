@@ -41,7 +41,7 @@ from random_models import (  # noqa: E402
 )
 
 FEW = settings(
-    max_examples=5,
+    max_examples=12,
     deadline=None,
     derandomize=True,
     suppress_health_check=[HealthCheck.too_slow],
@@ -129,7 +129,7 @@ def test_small_time_reversal_preserving_perturbation(seed, dim, pert_seed, fract
     assert indices(bent, case.filling) == want
 
 
-@settings(max_examples=4, deadline=None, derandomize=True)
+@settings(max_examples=6, deadline=None, derandomize=True)
 @given(seed=seeds, axis=st.integers(min_value=0, max_value=2))
 def test_doubled_cell_3d(seed, axis):
     case = random_model(seed, dim=3, norb=4)
@@ -141,7 +141,7 @@ def test_doubled_cell_3d(seed, axis):
     assert doubled == (nu0, want_nu, 0)
 
 
-@settings(max_examples=4, deadline=None, derandomize=True)
+@settings(max_examples=6, deadline=None, derandomize=True)
 @given(seed=seeds, axis=st.integers(min_value=0, max_value=1))
 def test_doubled_cell_2d(seed, axis):
     case, want = reference(seed, 2)
