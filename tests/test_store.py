@@ -270,3 +270,18 @@ def test_the_netcdf_c_library_reads_the_file(tmp_path: Path) -> None:
     body = values[values.index("nu0 =") + 5 :].replace(";", "").replace("}", "")
     assert [int(v) for v in body.replace(",", " ").split()] == ds.nu0.values.tolist()
     ds.close()
+
+
+def test_damaged_data_is_reported_not_read(tmp_path: Path) -> None:
+    import h5py
+
+    out = tmp_path / "map.nc"
+    resume_run(out, []).close()
+    with h5py.File(out, "r") as f:  # where the phase array's first chunk lies in the file
+        info = f["phase"].id.get_chunk_info(0)
+        offset, size = info.byte_offset, info.size
+    data = bytearray(out.read_bytes())
+    data[offset + size // 2] ^= 0xFF  # one flipped byte, as a failing disk would do
+    out.write_bytes(bytes(data))
+    with pytest.raises(StoreError, match="damaged data"):  # Fletcher-32 checksum, not garbage
+        ts.open_result(out, load=True)

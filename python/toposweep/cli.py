@@ -76,7 +76,7 @@ def _run(args: argparse.Namespace) -> int:
 def _summary(args: argparse.Namespace) -> int:
     from .summary import summarise
 
-    with open_result(args.file) as ds:
+    with open_result(args.file, load=True) as ds:
         print(summarise(ds, str(args.file)))
     return 0
 
@@ -87,7 +87,7 @@ def _plot(args: argparse.Namespace) -> int:
 
     at = _point(args.at)
     path = Path(args.file)
-    with open_result(path) as ds:
+    with open_result(path, load=True) as ds:
         dims = [str(d) for d in ds.phase.dims]
         if args.flow:
             fig = flow_figure(ds, at)

@@ -49,6 +49,8 @@ __all__ = [
 
 IDENTITY_FILE = "run.json"
 LOCK_FILE = "lock"
+#: bytes per HDF5 chunk of a result variable (compressed and checksummed chunk by chunk)
+CHUNK_BYTES = 1 << 18
 #: global attribute holding the run identity (model, grid, filling, sampling fingerprints)
 IDENTITY_ATTR = "run_identity"
 FLAT_DIM = "point"
@@ -300,12 +302,55 @@ def _write_flat(var: Any, grid_shape: tuple[int, ...], start: int, data: NDArray
         pos += n
 
 
+def _chunks(shape: tuple[int, ...], itemsize: int) -> tuple[int, ...]:
+    """HDF5 chunk shape of about CHUNK_BYTES that follows the C order of the grid.
+
+    Trailing axes are kept whole as long as they fit, so the row-wise writes of
+    :func:`_write_flat` fill whole chunks.
+
+    Examples
+    --------
+    >>> _chunks((400, 250), 8), _chunks((400, 250, 3), 1), _chunks((10,), 8)
+    ((131, 250), (349, 250, 3), (10,))
+    """
+    budget = max(CHUNK_BYTES // itemsize, 1)
+    out = list(shape)
+    for i in range(len(shape)):
+        inner = math.prod(shape[i + 1 :])
+        if inner * shape[i] <= budget:
+            continue  # whole axis fits with everything after it
+        out[:i] = [1] * i
+        out[i] = max(1, min(shape[i], budget // max(inner, 1)))
+        break
+    return tuple(int(n) for n in out)
+
+
 def _create(
-    f: Any, name: str, dims: tuple[str, ...], dtype: np.dtype, attrs: Mapping[str, Any]
+    f: Any,
+    name: str,
+    dims: tuple[str, ...],
+    dtype: np.dtype,
+    attrs: Mapping[str, Any],
+    shape: tuple[int, ...] | None = None,
 ) -> Any:
     # floats get a NaN _FillValue, as xarray writes them
     fill = np.nan if np.issubdtype(dtype, np.floating) else None
-    var = f.create_variable(name, dims, dtype=dtype, fillvalue=fill)
+    if shape is None or 0 in shape:
+        var = f.create_variable(name, dims, dtype=dtype, fillvalue=fill)
+    else:
+        # result arrays: compressed, and Fletcher-32 checksummed so that a damaged file is
+        # reported when read instead of giving wrong numbers (netCDF-C reads both filters)
+        var = f.create_variable(
+            name,
+            dims,
+            dtype=dtype,
+            fillvalue=fill,
+            chunks=_chunks(shape, np.dtype(dtype).itemsize),
+            compression="gzip",
+            compression_opts=4,
+            shuffle=True,
+            fletcher32=True,
+        )
     for k, v in attrs.items():
         var.attrs[k] = v
     return var
@@ -345,7 +390,8 @@ def write_result(
             own = sorted(k for k, kdims in aux.items() if kdims <= set(vdims))
             listed.update(own)
             extra = {"coordinates": " ".join(own)} if own else {}
-            _create(f, str(name), vdims, var.dtype, {**var.attrs, **extra})
+            vshape = tuple(sizes[d] for d in vdims)
+            _create(f, str(name), vdims, var.dtype, {**var.attrs, **extra}, vshape)
         for k, v in attrs.items():
             f.attrs[k] = v
         if set(aux) - listed:
@@ -361,8 +407,11 @@ def write_result(
     _fsync_dir(path.parent)
 
 
-def open_result(path: str | os.PathLike[str]) -> xr.Dataset:
+def open_result(path: str | os.PathLike[str], *, load: bool = False) -> xr.Dataset:
     """Open a toposweep result file, with a clear :class:`StoreError` if it is not one.
+
+    The data are read lazily unless ``load`` is set; then every array is read at once and
+    checked against its Fletcher-32 checksum, so damage is reported here.
 
     Examples
     --------
@@ -392,6 +441,14 @@ def open_result(path: str | os.PathLike[str]) -> xr.Dataset:
     if "toposweep_version" not in ds.attrs or "model" not in ds.attrs or missing:
         ds.close()
         raise StoreError(f"{p}: not a toposweep result file (no toposweep variables/attributes)")
+    if load:
+        try:
+            ds.load()
+        except Exception as exc:  # a checksum or decompression failure inside HDF5
+            ds.close()
+            raise StoreError(
+                f"{p}: damaged data ({type(exc).__name__}: {exc}); recompute the file"
+            ) from None
     return ds
 
 
