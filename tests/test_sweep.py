@@ -168,6 +168,12 @@ def test_coefficients_map_user_variables() -> None:
         ({"grid": {"mass": [1.0, np.nan]}}, ParameterError, "NaN"),
         ({"grid": {"mass": [1.0, 1.0]}}, ParameterError, "repeats"),
         ({"grid": {"nu0": [1.0]}}, ParameterError, "clashes"),
+        # a name the dataset gained after the static list was written is still refused
+        (
+            {"grid": {"gap_floor": [1.0]}, "coefficients": lambda p: {}},
+            ParameterError,
+            "also names of result variables",
+        ),
         ({"params": {"mass": 1.0}}, ParameterError, "both swept"),
         ({"filling": 3}, FillingError, "odd"),
         ({"loop_points": 0}, SamplingError, "loop_points"),

@@ -148,6 +148,32 @@ def assemble(
     return ds
 
 
+def _check_names(plan: SweepPlan, raw: Mapping[str, NDArray[Any]]) -> None:
+    """Refuse parameter names that the result dataset uses itself.
+
+    Checked on the first chunk, so it holds for every variable the dataset has now or gains
+    later, not just for a list written down once.
+    """
+    req = plan.request
+    n = len(raw["nu0"])
+    probe = build_dataset(
+        req.model,
+        raw,
+        dims=(FLAT_DIM,),
+        coords={FLAT_DIM: np.arange(n)},
+        fixed={},
+        filling=req.filling,
+        sampling=req.sampling,
+        parity_known=req.inversion is not None,
+    )
+    clash = sorted((set(plan.dims) | set(plan.fixed)) & {str(v) for v in probe.variables})
+    if clash:
+        raise ParameterError(
+            f"parameter name(s) {clash} are also names of result variables; rename them "
+            "(with coefficients= you can sweep variables of your own naming)"
+        )
+
+
 def _flat_chunk(plan: SweepPlan, start: int, raw: Mapping[str, NDArray[Any]]) -> xr.Dataset:
     n = len(next(iter(raw.values())))
     return assemble(plan, raw, (FLAT_DIM,), {FLAT_DIM: np.arange(start, start + n)})
@@ -168,6 +194,7 @@ def _run(
     """Evaluate the flat ranges ``todo`` chunk by chunk; False if Ctrl-C stopped it."""
     workers = plan.request.threads or os.cpu_count() or 1
     size = chunk_size or max(8, 4 * workers)
+    first = True
     for lo, hi in todo:
         start = lo
         while start < hi:
@@ -175,6 +202,9 @@ def _run(
             t0 = time.perf_counter()
             points = plan.points(start, stop)
             raw = run_points(plan.request, points)
+            if first:
+                _check_names(plan, raw)
+                first = False
             if plan.coefficients is not None:  # keep the model's term values of every point
                 terms = plan.request.model.parameters
                 raw[TERM_VALUES] = np.array([[p[t] for t in terms] for p in points], float)
