@@ -33,7 +33,7 @@ demo: build ## sweep a fictional mixed-valence compound; writes demo-output/
 test: test-rust test-python ## run cargo test and pytest (what CI runs)
 
 test-rust: ## Rust unit tests of the numerical kernels
-	cargo test --release --no-default-features --quiet
+	cargo test --no-default-features --quiet
 
 test-python: build ## pytest, doctests included
 	$(PY) -m pytest -q tests python/toposweep --doctest-modules
