@@ -200,11 +200,11 @@ pub fn line_stats(all: &[PlaneLines], stats: &mut BandStats, cand: &mut Vec<(f64
     }
 }
 
-/// A plane's flow is tight when a largest-gap midpoint comes within reach of a centre: closer
-/// than `step_limit`, or closer than twice the largest step a centre made between neighbouring
+/// A plane's flow is tight when a largest-gap midpoint comes within reach of a centre of the
+/// neighbouring line: closer than `step_limit` or than the largest step a centre made between
 /// lines. Then the jump count could depend on how finely the loops sample κ.
-fn is_tight(p: &PlaneResult, s: &Sampling) -> bool {
-    p.converged && p.min_clearance < s.step_limit.max(2.0 * p.max_step)
+pub fn is_tight(p: &PlaneResult, s: &Sampling) -> bool {
+    p.converged && p.min_clearance < s.step_limit.max(p.max_step)
 }
 
 /// Convergence certificate: recompute the tight planes with twice the loop points (initial

@@ -72,13 +72,13 @@ def test_certified_points_keep_their_answer_and_report_the_finer_run():
     recomputed = 0
     for seed in range(8):
         case = random_model(seed, dim=2)
-        ds = ts.invariants(case.model, case.filling, loop_points=6, lines=5)
+        ds = ts.invariants(case.model, case.filling, loop_points=6, lines=3, step_limit=0.3)
         assert int(ds.nu0) in (-1, int(ds.nu0_parity)), f"seed {seed}"
         if int(ds.loop_points_used) == 12:
             recomputed += 1
             assert int(ds.nu0) == int(ds.nu0_parity)
         assert np.isfinite(float(ds.max_step)) and np.isfinite(float(ds.min_clearance))
-    assert recomputed >= 2  # the coarse lines make several flows tight
+    assert recomputed >= 3  # the coarse lines and loose step limit make several flows tight
 
 
 def test_clean_flows_are_not_recomputed():

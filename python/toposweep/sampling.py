@@ -71,8 +71,8 @@ class Sampling:
         for maps you publish.
     certify : bool
         Convergence certificate: planes whose flow is tight (a largest-gap midpoint closer to
-        a centre of the neighbouring line than ``step_limit`` or than twice the largest step of
-        a centre between lines) are recomputed with twice ``loop_points``; the indices stand
+        a centre of the neighbouring line than ``step_limit`` or than the largest step of a
+        centre between lines) are recomputed with twice ``loop_points``; the indices stand
         only if the finer run agrees (otherwise undefined, reason
         ``changes_with_doubled_loop_points``). ``max_step`` and ``min_clearance`` then
         describe the finer run.
