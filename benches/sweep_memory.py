@@ -92,7 +92,7 @@ def main() -> None:
         lines.append("")
         lines.append(
             f"Streamed to disk, {factor:.0f}× more points ({small['points']:,} → "
-            f"{large['points']:,}) raise the peak by {growth:.1f} MiB."
+            f"{large['points']:,}) change the peak by {growth:+.1f} MiB."
         )
     lines.append(f"\n(total benchmark time {time.perf_counter() - t0:.0f} s)")
     table = "\n".join(lines)
