@@ -252,3 +252,58 @@ pub fn plane_flow(
     let specs: Vec<LineSpec> = pump.iter().map(|&t| plane.line(t)).collect();
     evaluate_lines(src, &specs, loop_points, filling, positions)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::Method;
+
+    fn sampling() -> Sampling {
+        Sampling {
+            loop_points: 16,
+            lines: 5,
+            max_lines: 50,
+            step_limit: 0.08,
+            gap_floor: 0.0,
+            gap_points: 0,
+            gap_starts: 0,
+            method: Method::Wilson,
+            certify: true,
+        }
+    }
+
+    fn plane(clearance: f64, step: f64, converged: bool) -> PlaneResult {
+        PlaneResult {
+            z2: if converged { 1 } else { -1 },
+            converged,
+            loop_points: 16,
+            changed: false,
+            lines_used: 5,
+            max_step: step,
+            min_clearance: clearance,
+            pump: Vec::new(),
+            centres: Vec::new(),
+        }
+    }
+
+    #[test]
+    fn tightness() {
+        let s = sampling();
+        assert!(!is_tight(&plane(0.2, 0.07, true), &s)); // clear of every centre
+        assert!(is_tight(&plane(0.05, 0.01, true), &s)); // midpoint within step_limit
+        assert!(is_tight(&plane(0.1, 0.15, true), &s)); // a centre's step could reach it
+        assert!(!is_tight(&plane(0.05, 0.01, false), &s)); // unresolved: nothing to certify
+    }
+
+    #[test]
+    fn planes_cover_the_half_zones() {
+        let p3 = planes(3);
+        assert_eq!(p3.len(), 6);
+        for (k, p) in p3.iter().enumerate() {
+            let axis = k / 2;
+            assert_eq!(p.base[axis], if k % 2 == 0 { 0.0 } else { 0.5 });
+            assert_eq!((p.loop_axis, p.pump_axis), ((axis + 1) % 3, (axis + 2) % 3));
+        }
+        assert_eq!(planes(2).len(), 1);
+    }
+}
