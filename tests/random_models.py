@@ -326,8 +326,9 @@ def random_model(
         Randomness; an int makes the model reproducible.
     dim : {2, 3}
         Spatial dimension.
-    norb : {4, 6, 8}, optional
-        Number of orbitals (random by default).
+    norb : int, optional
+        Number of orbitals, even and at least 4 (random among 4, 6, 8 by default). Up to 8
+        orbitals hold one or two Dirac blocks; larger models hold up to norb // 4 blocks.
     inversion : bool
         Keep the couplings inversion-symmetric and attach P to the model.
     coupling : float, optional
@@ -349,9 +350,12 @@ def random_model(
     if dim not in (2, 3):
         raise ValueError("dim must be 2 or 3")
     n = int(norb) if norb is not None else int(rng.choice([4, 6, 8]))
-    if n not in (4, 6, 8):
-        raise ValueError("norb must be 4, 6 or 8")
-    nblocks = 2 if n == 8 and rng.random() < 0.5 else 1
+    if n < 4 or n % 2:
+        raise ValueError("norb must be even and at least 4")
+    if n <= 8:  # (kept apart so that seeds reproduce the models they always gave)
+        nblocks = 2 if n == 8 and rng.random() < 0.5 else 1
+    else:
+        nblocks = int(rng.integers(1, n // 4 + 1))
     npairs = (n - 4 * nblocks) // 2
 
     for _ in range(1000):  # mass signs until the core has the requested phase

@@ -203,6 +203,16 @@ def test_numpy_bloch_sum_matches_core(rng):
     )
 
 
+def test_a_16_orbital_model_agrees_with_parity():
+    # larger models take the core's n > 8 eigensolver path; this one (seed 1, filling 10)
+    # used to stop with "Schur decomposition of a Wilson loop" (ArithmeticError)
+    case = rm.random_model(1, dim=3, norb=16)
+    ds = ts.invariants(case.model, case.filling)
+    nu0, weak = rm.parity_indices(case.model, case.filling)
+    assert int(ds.undefined_reason) == 0
+    assert indices(ds, 3) == (nu0, weak) == parity_from(ds, 3)
+
+
 def test_inversion_free_random_models_are_defined():
     # time reversal only: the Wilson loop must still give a defined answer with defaults
     for seed in range(6):
