@@ -12,7 +12,7 @@ use std::hint::black_box;
 use std::time::Instant;
 use toposweep::bloch::{BlochSource, Hoppings};
 use toposweep::eigen::{eigh_householder_into, eigh_into, eigh_reference_into, eigh_warm_into};
-use toposweep::engine::{evaluate_point, Sampling};
+use toposweep::engine::{evaluate_point, Method, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
 use toposweep::wilson::{wilson_line_with, Kernels};
 use toposweep::C64;
@@ -212,6 +212,8 @@ fn main() {
             gap_floor: 0.0,
             gap_points: 8,
             gap_starts: 0,
+            method: Method::Wilson,
+            certify: false,
         };
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(1)
@@ -219,10 +221,10 @@ fn main() {
             .unwrap();
         let t = pool.install(|| {
             time_ns(reps.min(5), inner(20), |_| {
-                black_box(evaluate_point(&wd, 2, None, &s).unwrap());
+                black_box(evaluate_point(&wd, 2, None, None, &s).unwrap());
             })
         });
-        let r = evaluate_point(&wd, 2, None, &s).unwrap();
+        let r = evaluate_point(&wd, 2, None, None, &s).unwrap();
         println!(
             "Wilson–Dirac point (m = −2), 6 planes × 41 lines × 40 points, one thread: {:.3} ms → ({};{:?})\n",
             t / 1e6,
