@@ -10,7 +10,7 @@ Outside references:
   with ``numpy.linalg.eigh`` on a NumPy Bloch sum (``random_models.parity_indices``).
 - Z2 indices are invariant under a unitary change of orbital basis and under any symmetric
   deformation that keeps the gap open (common practice, no source); Weyl's inequality
-  (Horn & Johnson, Matrix Analysis, 2nd ed., Cor. 4.3.15 (2013), from memory) bounds the
+  (Horn & Johnson, Matrix Analysis, 2nd ed. (2013), chapter 4; from memory) bounds the
   eigenvalue shift by ‖ΔH‖, so a perturbation with ‖ΔH(κ)‖ < gap/4 cannot close the gap.
 """
 
