@@ -207,3 +207,36 @@ def test_demo_writes_its_files_and_prints_the_summary(tmp_path: Path, capsys) ->
     with xr.open_dataset(tmp_path / "demo" / "tessarine.nc") as ds:
         assert ds.f_level.attrs["units"] == "eV"
         assert int((ds.phase == 2).sum()) > 0
+
+
+def test_ctrl_c_keeps_finished_chunks_and_resume_finishes(tmp_path: Path) -> None:
+    import signal
+    import time
+
+    (tmp_path / "long.toml").write_text(
+        'model = "bhz"\nfilling = 2\noutput = "long.nc"\n'
+        "[grid]\nmass = { start = -3.0, stop = 3.0, num = 100 }\n"
+        "hopping = { start = 0.5, stop = 1.5, num = 40 }\n"
+        "[run]\nchunk_size = 100\n"
+    )
+    exe = Path(sys.executable).with_name("toposweep")
+    proc = subprocess.Popen(
+        [str(exe), "run", "long.toml"], cwd=tmp_path, stderr=subprocess.PIPE, text=True
+    )
+    journal = tmp_path / "long.nc.partial"
+    deadline = time.monotonic() + 120
+    while time.monotonic() < deadline and proc.poll() is None:
+        if journal.is_dir() and len(list(journal.glob("chunk-*.npz"))) >= 3:
+            break
+        time.sleep(0.01)
+    proc.send_signal(signal.SIGINT)  # what Ctrl-C in the terminal does
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130, err
+    assert "continue with: toposweep run long.toml --resume" in err
+    assert err.count("\n") == 1 and "Traceback" not in err
+    kept = len(list(journal.glob("chunk-*.npz")))
+    assert 3 <= kept < 40
+    resumed = toposweep("run", "long.toml", "--resume", cwd=tmp_path)
+    assert resumed.returncode == 0, resumed.stderr
+    assert "= 4000 points" in resumed.stdout
+    assert not journal.exists()
