@@ -47,7 +47,9 @@ pub fn largest_step(a: &[f64], b: &[f64]) -> f64 {
 
 /// Smallest distance from point `z` to any centre.
 pub fn clearance(z: f64, c: &[f64]) -> f64 {
-    c.iter().map(|&x| circ_dist(z, x)).fold(f64::INFINITY, f64::min)
+    c.iter()
+        .map(|&x| circ_dist(z, x))
+        .fold(f64::INFINITY, f64::min)
 }
 
 /// What the refinement test found between two neighbouring lines.
@@ -64,7 +66,11 @@ pub struct Interval {
 /// jump count between them could be wrong.
 pub fn inspect(a: &[f64], b: &[f64], step_limit: f64) -> Interval {
     if a.iter().chain(b).any(|x| !x.is_finite()) {
-        return Interval { step: 1.0, clearance: 0.0, refine: true };
+        return Interval {
+            step: 1.0,
+            clearance: 0.0,
+            refine: true,
+        };
     }
     let step = largest_step(a, b);
     let (za, ga) = largest_gap(a);
@@ -135,8 +141,14 @@ mod tests {
         for m in [5, 11, 41] {
             let o = odd_flow(m);
             let e = even_flow(m);
-            assert_eq!(z2_of_flow(&o.iter().map(|v| v.as_slice()).collect::<Vec<_>>()), 1);
-            assert_eq!(z2_of_flow(&e.iter().map(|v| v.as_slice()).collect::<Vec<_>>()), 0);
+            assert_eq!(
+                z2_of_flow(&o.iter().map(|v| v.as_slice()).collect::<Vec<_>>()),
+                1
+            );
+            assert_eq!(
+                z2_of_flow(&e.iter().map(|v| v.as_slice()).collect::<Vec<_>>()),
+                0
+            );
         }
     }
 
@@ -152,7 +164,10 @@ mod tests {
                     w
                 })
                 .collect();
-            assert_eq!(z2_of_flow(&o.iter().map(|v| v.as_slice()).collect::<Vec<_>>()), 1);
+            assert_eq!(
+                z2_of_flow(&o.iter().map(|v| v.as_slice()).collect::<Vec<_>>()),
+                1
+            );
         }
     }
 

@@ -93,10 +93,18 @@ pub fn parity_indices(
         odd_count[g] = minus;
     }
     if reason != reason::DEFINED {
-        return Ok(ParityResult { nu0: -1, nu: [-1; 3], reason, odd_count });
+        return Ok(ParityResult {
+            nu0: -1,
+            nu: [-1; 3],
+            reason,
+            odd_count,
+        });
     }
     let pairs = |sel: &dyn Fn(usize) -> bool| -> i8 {
-        let s: i32 = (0..occ.len()).filter(|&g| sel(g)).map(|g| odd_count[g] / 2).sum();
+        let s: i32 = (0..occ.len())
+            .filter(|&g| sel(g))
+            .map(|g| odd_count[g] / 2)
+            .sum();
         (s % 2) as i8
     };
     let nu0 = pairs(&|_| true);
@@ -106,7 +114,12 @@ pub fn parity_indices(
             *v = pairs(&|g| g >> i & 1 == 1);
         }
     }
-    Ok(ParityResult { nu0, nu, reason, odd_count })
+    Ok(ParityResult {
+        nu0,
+        nu,
+        reason,
+        odd_count,
+    })
 }
 
 #[cfg(test)]

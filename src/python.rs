@@ -9,7 +9,9 @@ use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResu
 use crate::error::{CoreError, CoreResult};
 use crate::C64;
 use numpy::ndarray::{Array1, Array2, Array3};
-use numpy::{IntoPyArray, PyReadonlyArray1, PyReadonlyArray2, PyReadonlyArray3, PyUntypedArrayMethods};
+use numpy::{
+    IntoPyArray, PyReadonlyArray1, PyReadonlyArray2, PyReadonlyArray3, PyUntypedArrayMethods,
+};
 use pyo3::exceptions::{PyArithmeticError, PyKeyboardInterrupt, PyRuntimeError, PyValueError};
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
@@ -23,7 +25,9 @@ fn to_py(e: CoreError) -> PyErr {
         CoreError::InvalidInput(m) => PyValueError::new_err(m),
         CoreError::NoConvergence(m) => PyArithmeticError::new_err(m),
         CoreError::Interrupted => PyKeyboardInterrupt::new_err("interrupted"),
-        e @ (CoreError::Callback(_) | CoreError::Internal(_)) => PyRuntimeError::new_err(e.to_string()),
+        e @ (CoreError::Callback(_) | CoreError::Internal(_)) => {
+            PyRuntimeError::new_err(e.to_string())
+        }
     }
 }
 
@@ -67,7 +71,9 @@ where
                 .cloned()
                 .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
                 .unwrap_or_else(|| "unknown panic".into());
-            Err(PyRuntimeError::new_err(format!("internal error in toposweep core: {msg}")))
+            Err(PyRuntimeError::new_err(format!(
+                "internal error in toposweep core: {msg}"
+            )))
         }
     }
 }
@@ -155,7 +161,11 @@ impl CoreModel {
             term.as_array().iter().copied().collect(),
         )
         .map_err(to_py)?;
-        Ok(Self { dim, norb, kind: Kind::Hoppings(h) })
+        Ok(Self {
+            dim,
+            norb,
+            kind: Kind::Hoppings(h),
+        })
     }
 
     /// Callable model: `func(kappa[(N, dim)], point) -> (N, norb, norb)` complex128.
@@ -164,7 +174,11 @@ impl CoreModel {
         if !(1..=3).contains(&dim) || norb == 0 {
             return Err(PyValueError::new_err("dim must be 1…3 and norb positive"));
         }
-        Ok(Self { dim, norb, kind: Kind::Callable(func) })
+        Ok(Self {
+            dim,
+            norb,
+            kind: Kind::Callable(func),
+        })
     }
 
     #[getter]
@@ -197,7 +211,13 @@ impl CoreModel {
             Kind::Hoppings(h) => f(&h.at(coeff)?),
             Kind::Callable(func) => {
                 let func = Python::with_gil(|py| func.clone_ref(py));
-                f(&PySource { func, dim: self.dim, norb: self.norb, point, error: error.clone() })
+                f(&PySource {
+                    func,
+                    dim: self.dim,
+                    norb: self.norb,
+                    point,
+                    error: error.clone(),
+                })
             }
         }
     }
@@ -228,7 +248,10 @@ fn coeff_rows(model: &CoreModel, coeffs: &PyReadonlyArray2<f64>) -> PyResult<Vec
 
 fn matrix(a: &PyReadonlyArray2<C64>, n: usize, what: &str) -> PyResult<Vec<C64>> {
     if a.shape() != [n, n] {
-        return Err(PyValueError::new_err(format!("{what} must be {n}×{n}, got {:?}", a.shape())));
+        return Err(PyValueError::new_err(format!(
+            "{what} must be {n}×{n}, got {:?}",
+            a.shape()
+        )));
     }
     Ok(a.as_array().iter().copied().collect())
 }
@@ -259,7 +282,9 @@ fn evaluate<'py>(
     threads: Option<usize>,
 ) -> PyResult<Bound<'py, PyDict>> {
     let rows = coeff_rows(model, &coeffs)?;
-    let inv = inversion.map(|p| matrix(&p, model.norb, "inversion")).transpose()?;
+    let inv = inversion
+        .map(|p| matrix(&p, model.norb, "inversion"))
+        .transpose()?;
     let u_t = time_reversal
         .map(|p| matrix(&p, model.norb, "time_reversal"))
         .transpose()?;
@@ -316,8 +341,14 @@ fn pack<'py>(py: Python<'py>, res: &[PointResult], dim: usize) -> PyResult<Bound
         "gap_kappa",
         Array2::from_shape_fn((np, dim), |(i, j)| res[i].gap_kappa[j]).into_pyarray(py),
     )?;
-    d.set_item("converged", Array1::from_iter(res.iter().map(|r| r.converged)).into_pyarray(py))?;
-    d.set_item("reason", Array1::from_iter(res.iter().map(|r| r.reason)).into_pyarray(py))?;
+    d.set_item(
+        "converged",
+        Array1::from_iter(res.iter().map(|r| r.converged)).into_pyarray(py),
+    )?;
+    d.set_item(
+        "reason",
+        Array1::from_iter(res.iter().map(|r| r.reason)).into_pyarray(py),
+    )?;
     d.set_item(
         "lines_used",
         Array1::from_iter(res.iter().map(|r| r.lines_used as i32)).into_pyarray(py),
@@ -328,18 +359,31 @@ fn pack<'py>(py: Python<'py>, res: &[PointResult], dim: usize) -> PyResult<Bound
     )?;
     if res.iter().all(|r| r.lattice.is_some()) && np > 0 {
         let l = |i: usize| res[i].lattice.as_ref().expect("checked above");
-        d.set_item("nu0_lattice", Array1::from_shape_fn(np, |i| l(i).indices.nu0).into_pyarray(py))?;
+        d.set_item(
+            "nu0_lattice",
+            Array1::from_shape_fn(np, |i| l(i).indices.nu0).into_pyarray(py),
+        )?;
         d.set_item(
             "nu_lattice",
             Array2::from_shape_fn((np, 3), |(i, j)| l(i).indices.nu[j]).into_pyarray(py),
         )?;
         d.set_item(
             "z2_plane_lattice",
-            Array3::from_shape_fn((np, 3, 2), |(i, j, k)| l(i).indices.z2_plane[j][k]).into_pyarray(py),
+            Array3::from_shape_fn((np, 3, 2), |(i, j, k)| l(i).indices.z2_plane[j][k])
+                .into_pyarray(py),
         )?;
-        d.set_item("lattice_reason", Array1::from_shape_fn(np, |i| l(i).indices.reason).into_pyarray(py))?;
-        d.set_item("lattice_max_field", Array1::from_shape_fn(np, |i| l(i).max_field).into_pyarray(py))?;
-        d.set_item("lattice_min_link", Array1::from_shape_fn(np, |i| l(i).min_link).into_pyarray(py))?;
+        d.set_item(
+            "lattice_reason",
+            Array1::from_shape_fn(np, |i| l(i).indices.reason).into_pyarray(py),
+        )?;
+        d.set_item(
+            "lattice_max_field",
+            Array1::from_shape_fn(np, |i| l(i).max_field).into_pyarray(py),
+        )?;
+        d.set_item(
+            "lattice_min_link",
+            Array1::from_shape_fn(np, |i| l(i).min_link).into_pyarray(py),
+        )?;
         d.set_item(
             "lattice_mesh",
             Array2::from_shape_fn((np, 2), |(i, j)| {
@@ -351,9 +395,18 @@ fn pack<'py>(py: Python<'py>, res: &[PointResult], dim: usize) -> PyResult<Bound
     }
     if res.iter().all(|r| r.parity.is_some()) && np > 0 {
         let p = |i: usize| res[i].parity.as_ref().expect("checked above");
-        d.set_item("nu0_parity", Array1::from_shape_fn(np, |i| p(i).nu0).into_pyarray(py))?;
-        d.set_item("nu_parity", Array2::from_shape_fn((np, 3), |(i, j)| p(i).nu[j]).into_pyarray(py))?;
-        d.set_item("parity_reason", Array1::from_shape_fn(np, |i| p(i).reason).into_pyarray(py))?;
+        d.set_item(
+            "nu0_parity",
+            Array1::from_shape_fn(np, |i| p(i).nu0).into_pyarray(py),
+        )?;
+        d.set_item(
+            "nu_parity",
+            Array2::from_shape_fn((np, 3), |(i, j)| p(i).nu[j]).into_pyarray(py),
+        )?;
+        d.set_item(
+            "parity_reason",
+            Array1::from_shape_fn(np, |i| p(i).reason).into_pyarray(py),
+        )?;
         let ntrim = 1usize << dim;
         d.set_item(
             "odd_count",
@@ -373,7 +426,9 @@ fn hamiltonian<'py>(
 ) -> PyResult<Bound<'py, numpy::PyArray3<C64>>> {
     let (n, dim) = (model.norb, model.dim);
     if kappa.shape()[1] != dim {
-        return Err(PyValueError::new_err(format!("kappa must have {dim} columns")));
+        return Err(PyValueError::new_err(format!(
+            "kappa must have {dim} columns"
+        )));
     }
     let c: Vec<f64> = coeff.as_array().to_vec();
     let k: Vec<f64> = kappa.as_array().iter().copied().collect();
@@ -385,9 +440,16 @@ fn hamiltonian<'py>(
         Ok(out)
     });
     let out = finish(py, run, &error)?;
-    let arr = Array3::from_shape_vec((npts, n, n), out).map_err(|e| PyRuntimeError::new_err(e.to_string()))?;
+    let arr = Array3::from_shape_vec((npts, n, n), out)
+        .map_err(|e| PyRuntimeError::new_err(e.to_string()))?;
     Ok(arr.into_pyarray(py))
 }
+
+/// Eigenvalues and eigenvectors of a batch, as returned to Python.
+type EighOut<'py> = (
+    Bound<'py, numpy::PyArray2<f64>>,
+    Bound<'py, numpy::PyArray3<C64>>,
+);
 
 /// Eigenvalues (N, n) and eigenvectors (N, n, n; column k ↔ eigenvalue k) of a batch of
 /// Hermitian matrices, in parallel.
@@ -397,7 +459,7 @@ fn eigh<'py>(
     py: Python<'py>,
     h: PyReadonlyArray3<C64>,
     threads: Option<usize>,
-) -> PyResult<(Bound<'py, numpy::PyArray2<f64>>, Bound<'py, numpy::PyArray3<C64>>)> {
+) -> PyResult<EighOut<'py>> {
     let sh = h.shape().to_vec();
     if sh[1] != sh[2] {
         return Err(PyValueError::new_err("matrices must be square"));
@@ -413,8 +475,10 @@ fn eigh<'py>(
             .try_for_each(|((e, v), h)| eigh_into(h, n, e, v))?;
         Ok((e, v))
     })?;
-    let e = Array2::from_shape_vec((m, n), e).map_err(|x| PyRuntimeError::new_err(x.to_string()))?;
-    let v = Array3::from_shape_vec((m, n, n), v).map_err(|x| PyRuntimeError::new_err(x.to_string()))?;
+    let e =
+        Array2::from_shape_vec((m, n), e).map_err(|x| PyRuntimeError::new_err(x.to_string()))?;
+    let v =
+        Array3::from_shape_vec((m, n, n), v).map_err(|x| PyRuntimeError::new_err(x.to_string()))?;
     Ok((e.into_pyarray(py), v.into_pyarray(py)))
 }
 
