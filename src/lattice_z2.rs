@@ -219,6 +219,24 @@ pub fn lattice_z2(
         stats.merge(&row);
     }
     psi.extend(solved.into_iter().map(|(_, v)| v));
+    z2_of_frames(psi, u_t, n, m, n1, n2)
+}
+
+/// The lattice Z2 from the occupied frames (n × m each, row-major) of an `n1` × (`n2` + 1)
+/// mesh, row by row, in any gauge: the frames of the two invariant rows are re-gauged here.
+pub fn z2_of_frames(
+    mut psi: Vec<Vec<C64>>,
+    u_t: &[C64],
+    n: usize,
+    m: usize,
+    n1: usize,
+    n2: usize,
+) -> CoreResult<LatticeOutcome> {
+    let npts = (n2 + 1) * n1;
+    if psi.len() != npts || psi.iter().any(|f| f.len() != n * m) {
+        return Err(invalid!("expected {npts} frames of {n} × {m}"));
+    }
+    let idx = |i: usize, j: usize| i * n1 + j;
     // time-reversal gauge on the two invariant rows
     for i in [0, n2] {
         for j in [0, n1 / 2] {
@@ -365,7 +383,7 @@ mod tests {
     /// Z2 = 1 for 0 < |m| < 2 (Qi, Wu & Zhang, PRB 74, 085308 (2006); Bernevig, Hughes & Zhang,
     /// Science 314, 1757 (2006)). An extra term `r` (Rashba-like, s_x ⊗ σ_y sin k_y... here the
     /// on-site s_x ⊗ σ_y) couples the spins and breaks s_z conservation but not time reversal.
-    fn bhz(rashba: f64) -> (Hoppings, Vec<C64>) {
+    fn bhz(rashba: f64, mix: f64) -> (Hoppings, Vec<C64>) {
         let z = c(0.0, 0.0);
         let o = c(1.0, 0.0);
         let i = c(0.0, 1.0);
@@ -395,7 +413,13 @@ mod tests {
             .iter()
             .map(|x| x * 0.5)
             .collect::<Vec<_>>();
-        let ra: Vec<C64> = kron(sx, sy).iter().map(|x| x * rashba).collect();
+        // on-site extras: spin mixing `rashba` s_x⊗σ_y, orbital mixing `mix` s_0⊗σ_x (breaks the
+        // two-fold rotation that otherwise makes the plaquette field vanish)
+        let ra: Vec<C64> = add(
+            kron(sx, sy).iter().map(|x| x * rashba).collect(),
+            kron(s0, sx),
+            c(mix, 0.0),
+        );
         let mut t = gz;
         t.extend(ra);
         t.extend(tx);
@@ -423,7 +447,7 @@ mod tests {
     #[test]
     fn bhz_phases_with_and_without_spin_mixing() {
         for rashba in [0.0, 0.3] {
-            let (model, u_t) = bhz(rashba);
+            let (model, u_t) = bhz(rashba, 0.0);
             for (m, want) in [(-2.7, 0), (-1.0, 1), (0.6, 1), (1.4, 1), (2.6, 0)] {
                 let src = model.at(&[m]).unwrap();
                 let mut st = BandStats::default();
@@ -435,9 +459,67 @@ mod tests {
         }
     }
 
+    /// Occupied frames of the lattice mesh straight from the eigensolver, each multiplied by a
+    /// random m×m unitary (a random gauge at every site).
+    fn scrambled_frames(
+        src: &dyn BlochSource,
+        m: usize,
+        n1: usize,
+        n2: usize,
+        seed: u64,
+    ) -> Vec<Vec<C64>> {
+        let n = src.norb();
+        let mut state = seed;
+        let mut next = || {
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            ((state >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
+        };
+        let mut out = Vec::new();
+        for i in 0..=n2 {
+            for j in 0..n1 {
+                let k = [j as f64 / n1 as f64, 0.5 * i as f64 / n2 as f64];
+                let mut h = vec![c(0.0, 0.0); n * n];
+                src.fill(&k, &mut h).unwrap();
+                let (_, v) = crate::eigen::eigh(&h, n).unwrap();
+                let mut g: Vec<C64> = (0..m * m).map(|_| c(next(), next())).collect();
+                crate::matrix::unitarise(&mut g, m).unwrap();
+                let mut f = vec![c(0.0, 0.0); n * m];
+                for r in 0..n {
+                    for a in 0..m {
+                        for b in 0..m {
+                            f[r * m + a] += v[r * n + b] * g[b * m + a];
+                        }
+                    }
+                }
+                out.push(f);
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn count_is_gauge_invariant() {
+        // spin mixing: the frames are genuinely 2×2 (no conserved spin to fix a gauge)
+        let (model, u_t) = bhz(0.2, 0.2); // ‖ΔH‖ ≤ 0.4 < half of every gap below: Weyl
+        for (m, want) in [(-1.0, 1), (0.6, 1), (2.6, 0)] {
+            let src = model.at(&[m]).unwrap();
+            for seed in 1..6 {
+                let frames = scrambled_frames(&src, 2, 16, 8, seed);
+                let r = z2_of_frames(frames, &u_t, 4, 2, 16, 8).unwrap();
+                assert_eq!(r.z2, want, "m = {m}, gauge {seed}");
+                assert!(
+                    r.max_field > 1e-3,
+                    "the plaquette field should not vanish here"
+                );
+            }
+        }
+    }
+
     #[test]
     fn mesh_checks() {
-        let (model, u_t) = bhz(0.0);
+        let (model, u_t) = bhz(0.0, 0.0);
         let src = model.at(&[1.0]).unwrap();
         let mut st = BandStats::default();
         assert!(lattice_z2(&src, &plane(), 2, &u_t, 7, 4, &mut st, &mut Vec::new()).is_err());
