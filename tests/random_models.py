@@ -12,8 +12,8 @@ Construction of a random model (``random_model``)
    M(κ) = Σ_S a_S Π_{i∈S} cos(2πκ_i) is a polynomial in the cosines whose 2^dim coefficients
    are fixed by a random value of M at every TRIM (a Walsh–Hadamard transform), so every TRIM
    region gets its own random mass sign and the block reaches every phase: trivial, weak and
-   strong. Optionally one or two spinful s-like orbital pairs (parity ±1, level far below or
-   above zero) fill the model up to 4–8 orbitals.
+   strong. Spinful s-like orbital pairs (parity ±1, level far below or above zero) fill the
+   model up to its size (4–8 orbitals by default; any even norb ≥ 4 on request).
 2. Random hoppings on every bond R with |R_i| ≤ 1 (on-site, nearest, next and third
    neighbours of the cubic/square lattice) couple everything, projected exactly onto the
    time-reversal-symmetric (and, with ``inversion=True``, inversion-symmetric) subspace. They
