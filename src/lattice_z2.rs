@@ -24,8 +24,10 @@ use rayon::prelude::*;
 use std::f64::consts::PI;
 
 /// Largest |F| (radians) accepted on any plaquette; above it the mesh is refined. Our choice
-/// (no source): with |F| ≤ 1 every plaquette's field lies far from the branch cut at ±π.
-pub const FIELD_LIMIT: f64 = 1.0;
+/// (no source): a plaquette is misread only if its true flux exceeds π, and the flux a gapped
+/// band touching spreads over the zone is at most of order π in all, so a measured |F| ≤ 2
+/// leaves more than 1 rad of margin once the mesh resolves the concentration.
+pub const FIELD_LIMIT: f64 = 2.0;
 
 /// Smallest |U| accepted on any link (our choice, no source): neighbouring occupied spaces
 /// must overlap well for the link phases to follow the states.
