@@ -21,6 +21,7 @@ import random_models as rm
 import toposweep as ts
 from test_callable_model import bhz_callable, wilson_dirac_callable, wilson_dirac_numpy
 from toposweep import CallableModel, TightBinding
+from toposweep.callable_model import file_module_name
 
 TESTS = Path(__file__).resolve().parent
 
@@ -170,4 +171,130 @@ def test_local_function_gives_a_clear_error():
         ts.model_from_dict(d)
     d["function"] = "test_callable_model:no_such_function"
     with pytest.raises(ts.ModelError, match="cannot import"):
+        ts.model_from_dict(d)
+
+
+# -- functions from files loaded by path (e.g. a `toposweep run` model file) ---------------------
+MODEL_FILE = """
+import numpy as np
+import toposweep as ts
+
+S0, SY, SZ = np.eye(2), np.array([[0, -1j], [1j, 0]]), np.diag([1.0, -1.0])
+SX = np.array([[0, 1], [1, 0]])
+G = np.array([np.kron(SZ, SX), np.kron(S0, SY)])
+GZ = np.kron(S0, SZ)
+
+
+def square_model(kappa, mass=-1.0):
+    k = 2 * np.pi * kappa
+    h = np.einsum("na,aij->nij", np.sin(k), G)
+    return h + (mass + np.cos(k).sum(axis=1))[:, None, None] * GZ
+
+
+def build():
+    return ts.CallableModel(square_model, 2, 4, time_reversal=np.kron(1j * SY, S0),
+                            name="square model from a file")
+"""
+
+
+def load_by_path(path: Path, name: str):
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location(name, path)
+    module = importlib.util.module_from_spec(spec)
+    sys.modules[name] = module
+    spec.loader.exec_module(module)
+    return module
+
+
+def test_function_from_a_file_loaded_by_path_round_trips(tmp_path, rng):
+    path = tmp_path / "user_model.py"
+    path.write_text(MODEL_FILE)
+    name = file_module_name(path)  # the name `toposweep run` loads model files under
+    model = load_by_path(path, name).build()
+    d = json.loads(json.dumps(model.to_dict()))
+    assert d["function"] == f"{name}:square_model"
+    assert d["function_file"] == str(path.resolve())
+    del sys.modules[name]  # as in a later process
+    back = ts.model_from_dict(d)
+    assert_same_model(model, back, rng)
+    # a file loaded under another name is still found by its path
+    other = load_by_path(path, "throwaway_module_name").build()
+    d = json.loads(json.dumps(other.to_dict()))
+    del sys.modules["throwaway_module_name"]
+    np.testing.assert_array_equal(
+        ts.model_from_dict(d).hamiltonian(np.full((1, 2), 0.3)),
+        other.hamiltonian(np.full((1, 2), 0.3)),
+    )
+    # ... and in a fresh interpreter that never saw the file
+    script = (
+        "import json, sys, numpy as np, toposweep as ts\n"
+        "m = ts.model_from_dict(json.loads(sys.stdin.read()))\n"
+        "print(int(ts.invariants(m, 2, {'mass': 1.0}).nu0), m.name)\n"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", script],
+        input=json.dumps(d),
+        capture_output=True,
+        text=True,
+        timeout=120,
+        check=True,
+        cwd=tmp_path.parent,
+    )
+    # Qi, Wu & Zhang, Phys. Rev. B 74, 085308 (2006): Z2 odd for 0 < |m| < 2
+    assert out.stdout.split() == ["1", "square", "model", "from", "a", "file"]
+
+
+def test_model_file_gives_the_same_description_in_every_process(tmp_path):
+    # resumed runs compare the model description: it must not depend on the process
+    (tmp_path / "user_model.py").write_text(MODEL_FILE)
+    (tmp_path / "run.toml").write_text(
+        'model = "user_model.py:build"\nfilling = 2\noutput = "out.nc"\n[grid]\nmass = [1.0]\n'
+    )
+    script = (
+        "import json; from pathlib import Path; from toposweep.config import load_config\n"
+        "print(json.dumps(load_config(Path('run.toml')).model.to_dict(), sort_keys=True))\n"
+    )
+    seen = {
+        subprocess.run(
+            [sys.executable, "-c", script],
+            cwd=tmp_path,
+            capture_output=True,
+            text=True,
+            timeout=120,
+            check=True,
+            env={**os.environ, "PYTHONHASHSEED": seed},
+        ).stdout
+        for seed in ("1", "2")
+    }
+    assert len(seen) == 1
+
+
+def test_flow_plot_of_a_run_with_a_model_file(tmp_path):
+    # `toposweep plot --flow` rebuilds the model in a new process from the result file
+    (tmp_path / "user_model.py").write_text(MODEL_FILE)
+    (tmp_path / "run.toml").write_text(
+        'model = "user_model.py:build"\nfilling = 2\noutput = "out.nc"\n'
+        "[grid]\nmass = [-3.0, -1.0, 1.0]\n"
+    )
+    command = str(Path(sys.executable).parent / "toposweep")
+    for args in (["run", "run.toml"], ["plot", "out.nc", "--flow", "--at", "mass=-1.0"]):
+        out = subprocess.run(
+            [command, *args], cwd=tmp_path, capture_output=True, text=True, timeout=120
+        )
+        assert out.returncode == 0, out.stderr
+    assert (tmp_path / "out-flow.png").stat().st_size > 10_000
+
+
+def test_function_of_a_script_run_as_main_gives_a_clear_error():
+    d = CallableModel(wilson_dirac_numpy, 3, 4).to_dict()
+    d["function"] = "__main__:a_function_only_the_script_had"
+    with pytest.raises(ts.ModelError, match="__main__.*module file"):
+        ts.model_from_dict(d)
+
+
+def test_incomplete_callable_description_gives_a_model_error():
+    d = CallableModel(wilson_dirac_numpy, 3, 4).to_dict()
+    del d["dim"]
+    with pytest.raises(ts.ModelError, match="not a valid callable model description"):
         ts.model_from_dict(d)

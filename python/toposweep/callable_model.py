@@ -2,9 +2,13 @@
 
 from __future__ import annotations
 
+import hashlib
 import importlib
+import importlib.util
 import inspect
+import sys
 from collections.abc import Callable, Mapping, Sequence
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -14,7 +18,7 @@ from . import _core
 from .errors import ModelError
 from .model import Model, matrix_from_json
 
-__all__ = ["CallableModel"]
+__all__ = ["CallableModel", "file_module_name"]
 
 
 class CallableModel(Model):
@@ -126,40 +130,115 @@ class CallableModel(Model):
         return core, np.zeros((len(pts), 0))
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-able description; the function is recorded by its import path."""
+        """JSON-able description; the function is recorded by its import path.
+
+        The path is ``module:qualified_name``; the function's source file is recorded too, so
+        a function from a file loaded by path (for example a ``toposweep run`` model file,
+        whose module name exists only in the process that loaded it) can be found again.
+        """
         d = self._base_dict()
         d["kind"] = "callable"
         d["parameters"] = list(self._parameters)
         module = getattr(self.func, "__module__", None)
         qualname = getattr(self.func, "__qualname__", None)
         d["function"] = f"{module}:{qualname}" if module and qualname else repr(self.func)
+        d["function_file"] = _source_file(self.func)
         return d
 
     @classmethod
     def from_dict(cls, d: Mapping[str, Any]) -> CallableModel:
         """Rebuild from :meth:`to_dict` output by importing the recorded function."""
         ref = str(d.get("function", ""))
-        module, _, qualname = ref.partition(":")
-        if not module or not qualname or "<" in qualname:
-            raise ModelError(f"cannot rebuild callable model: function {ref!r} is not importable")
+        func = _import_function(ref, d.get("function_file"))
         try:
-            obj: Any = importlib.import_module(module)
-            for part in qualname.split("."):
-                obj = getattr(obj, part)
-        except (ImportError, AttributeError) as exc:
-            raise ModelError(f"cannot import model function {ref!r}: {exc}") from None
-        m = cls(
-            obj,
-            d["dim"],
-            d["norb"],
-            parameters=d.get("parameters"),
-            lattice=d.get("lattice"),
-            positions=d.get("positions"),
-            time_reversal=matrix_from_json(d.get("time_reversal")),
-            inversion=matrix_from_json(d.get("inversion")),
-            energy_unit=d.get("energy_unit", "1"),
-            name=d.get("name", ""),
-        )
-        m.defaults.update({str(k): float(v) for k, v in d.get("defaults", {}).items()})
-        m.parameter_info = {str(k): dict(v) for k, v in d.get("parameter_info", {}).items()}
+            m = cls(
+                func,
+                d["dim"],
+                d["norb"],
+                parameters=d.get("parameters"),
+                lattice=d.get("lattice"),
+                positions=d.get("positions"),
+                time_reversal=matrix_from_json(d.get("time_reversal")),
+                inversion=matrix_from_json(d.get("inversion")),
+                energy_unit=d.get("energy_unit", "1"),
+                name=d.get("name", ""),
+            )
+            m.defaults.update({str(k): float(v) for k, v in d.get("defaults", {}).items()})
+            m.parameter_info = {str(k): dict(v) for k, v in d.get("parameter_info", {}).items()}
+        except (KeyError, TypeError, AttributeError) as exc:
+            raise ModelError(f"not a valid callable model description: {exc!r}") from None
         return m
+
+
+def _source_file(func: Any) -> str | None:
+    """Absolute path of the file defining ``func``, if it has one."""
+    try:
+        path = inspect.getsourcefile(func)
+    except TypeError:  # builtins, partials, callable instances without source
+        return None
+    return str(Path(path).resolve()) if path else None
+
+
+def _import_function(ref: str, file: Any) -> Callable[..., Any]:
+    """The function recorded as ``module:qualname``: by import, else from its source file."""
+    module, _, qualname = ref.partition(":")
+    if not module or not qualname or "<" in qualname:
+        raise ModelError(
+            f"cannot rebuild callable model: function {ref!r} is not importable (lambdas and "
+            "functions defined inside other functions cannot be found again; define it at "
+            "module level)"
+        )
+    try:
+        return _attribute(importlib.import_module(module), qualname)
+    except (ImportError, AttributeError) as exc:
+        first = exc
+    where = Path(file) if isinstance(file, str) and file else None
+    if module == "__main__" or where is None or not where.is_file():
+        hint = (
+            " It was defined in a script run as __main__: move it into a module file so results "
+            "can rebuild the model."
+            if module == "__main__"
+            else ""
+        )
+        raise ModelError(f"cannot import model function {ref!r}: {first}.{hint}") from None
+    # A file loaded by path (its module name existed only in the process that loaded it):
+    # load it again under the name fixed by its path, once per process.
+    name = file_module_name(where)
+    loaded = sys.modules.get(name)
+    if loaded is None:
+        spec = importlib.util.spec_from_file_location(name, where)
+        if spec is None or spec.loader is None:
+            raise ModelError(f"cannot import model function {ref!r} from {where}") from None
+        loaded = importlib.util.module_from_spec(spec)
+        sys.modules[name] = loaded
+        try:
+            spec.loader.exec_module(loaded)
+        except BaseException:
+            del sys.modules[name]
+            raise
+    try:
+        return _attribute(loaded, qualname)
+    except AttributeError as exc:
+        raise ModelError(f"cannot import model function {ref!r} from {where}: {exc}") from None
+
+
+def file_module_name(path: Path) -> str:
+    """Module name under which toposweep loads a Python file given by path.
+
+    Fixed by the file's absolute path (not by ``hash()``, which changes from process to
+    process), so a model from the file records the same function reference in every process:
+    results and resumed runs then identify the model alike.
+
+    Examples
+    --------
+    >>> file_module_name(Path("/tmp/m.py")) == file_module_name(Path("/tmp/../tmp/m.py"))
+    True
+    """
+    digest = hashlib.sha1(str(Path(path).resolve()).encode()).hexdigest()[:16]
+    return f"toposweep_user_{digest}"
+
+
+def _attribute(obj: Any, qualname: str) -> Any:
+    for part in qualname.split("."):
+        obj = getattr(obj, part)
+    return obj

@@ -36,6 +36,7 @@ import tomllib
 import xarray as xr
 
 from . import models
+from .callable_model import file_module_name
 from .errors import ConfigError
 from .model import Model
 from .sampling import Sampling
@@ -163,7 +164,7 @@ def _load_function(source: str, key: str, spec: str, base: Path) -> Callable[...
     path = (base / path_text).resolve()
     if not path.is_file():
         raise _fail(source, key, f"no such file {path}")
-    module_name = f"toposweep_user_{abs(hash(str(path))):x}"
+    module_name = file_module_name(path)  # the same in every process (resume, plots)
     module = sys.modules.get(module_name)
     if module is None:
         spec_obj = importlib.util.spec_from_file_location(module_name, path)
