@@ -145,6 +145,13 @@ CASES = [
         SymmetryError,
         ["unitary"],
     ),
+    (
+        # U U† overflows to NaN here, and NaN > tolerance is False: must still be refused
+        "operator with entries near the float limit",
+        lambda: TightBinding(2, 2, inversion=[[1e308, 1e308], [1e308, 1e308j]]),
+        SymmetryError,
+        ["unitary"],
+    ),
     # -- parameters and κ ----------------------------------------------------------------------
     (
         "parameter NaN",

@@ -154,14 +154,14 @@ def run_points(req: Request, points: Sequence[dict[str, float]]) -> dict[str, ND
     u_t = model.time_reversal
     assert u_t is not None  # checked in prepare_request
     tr_res = model.symmetry_residuals(points, u_t, "time_reversal")
-    tr_broken = tr_res > TOLERANCE
+    tr_broken = ~(tr_res <= TOLERANCE)  # NaN (overflowing H) counts as broken
     if tr_broken.all():
         where = "at this parameter point" if len(points) == 1 else "at any requested point"
         raise symmetry_error("time_reversal", float(tr_res.min()), where)
     p_broken = np.zeros(len(points), bool)
     if req.inversion is not None:
         p_res = model.symmetry_residuals(points, req.inversion, "inversion")
-        p_broken = p_res > TOLERANCE
+        p_broken = ~(p_res <= TOLERANCE)
         if req.inversion_from_call and p_broken.any():
             i = int(np.argmax(p_res))
             raise symmetry_error("inversion", float(p_res[i]), f"at parameters {points[i]}")
