@@ -19,7 +19,7 @@ use crate::wilson::{evaluate_points, BandStats};
 use crate::C64;
 
 /// Relative gap floor (× bandwidth) used when the caller gives none.
-pub const AUTO_FLOOR_REL: f64 = 1e-6;
+pub const AUTO_FLOOR_REL: f64 = 1e-5;
 
 #[derive(Clone, Debug, PartialEq)]
 pub struct Sampling {

@@ -40,7 +40,7 @@ impl SearchSettings {
             min_step: 1e-10,
             rel_tol: 1e-4,
             floor,
-            max_rounds: 80,
+            max_rounds: 160,
         }
     }
 }

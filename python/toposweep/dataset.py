@@ -34,7 +34,7 @@ PHASES: dict[int, str] = {
 #: reason codes of the core → CF flag meanings
 REASONS: dict[int, str] = {
     0: "defined",
-    1: "gapless_on_sampled_kappa",
+    1: "gapless_direct_gap_below_floor",
     2: "degenerate_at_filling_at_trim",
     3: "nu0_estimates_disagree",
     4: "not_converged_within_max_lines",

@@ -53,7 +53,7 @@ class Sampling:
         fraction of the unit cell; larger motion inserts a line between them.
     gap_floor : float or None
         Direct gap below which a point counts as gapless, in the model's energy unit.
-        ``None`` uses 1e-6 × the bandwidth of the point.
+        ``None`` uses 1e-5 × the bandwidth of the point.
     gap_points : int
         Points per axis of an extra uniform bulk grid (3D only) used for the gap, so gap
         closings away from the time-reversal-invariant planes are seen. 0 disables it.
