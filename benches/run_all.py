@@ -108,8 +108,10 @@ def point_cases(quick: bool) -> list[tuple[str, object, int, dict | None, dict]]
         cases.append(("diamond (Fu–Kane–Mele), 4 bands", ts.models.fu_kane_mele(), 2, None, FIXED))
     cases.append(("16 coupled bands, dense", stacked_wilson_dirac(4, seed=2), 8, None, FIXED))
     if not quick:
-        # 64 bands at full sampling costs NumPy seconds per point; a lighter fixed sampling
-        # keeps the benchmark to minutes (both sides use it)
+        # 64 bands at full sampling costs NumPy 10-20 s per point; a lighter fixed sampling
+        # keeps the benchmark to minutes (both sides use it). It is too light for the flow of
+        # 32 occupied bands to pass the refinement test, so both sides report "not converged":
+        # this row compares cost at identical work, not answers.
         light = {"loop_points": 16, "lines": 9, "gap_points": 4}
         cases.append(
             (
@@ -149,10 +151,13 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
             ),
             reps,
         )
-        nu = "".join(map(str, ref["nu"]))
+        if ref["nu0"] < 0:
+            result = f"undefined (reason {ref['reason']}), same on both sides"
+        else:
+            result = f"({ref['nu0']};{''.join(map(str, ref['nu']))})"
         out.append(
             f"| {label} | {t_np * 1e3:.1f} | {t1 * 1e3:.2f} | {t_np / t1:.1f}× | "
-            f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {t1 / tn:.2f}× | ({ref['nu0']};{nu}) |"
+            f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {t1 / tn:.2f}× | {result} |"
         )
         if label.startswith("16"):
             assert (ref["nu0"], ref["nu"]) == expected_indices(4)
