@@ -92,7 +92,8 @@ def eigensolver_table(repeats: int) -> list[str]:
 
 def cargo_kernel_tables() -> list[str]:
     """Run the Rust kernel harness; its stdout is already markdown."""
-    cmd = ["cargo", "bench", "--quiet", "--no-default-features", "--bench", "kernels"]
+    cmd = ["cargo", "bench", "--quiet", "--no-default-features", "--features", "faer"]
+    cmd += ["--bench", "kernels"]
     proc = subprocess.run(cmd, cwd=HERE.parent, capture_output=True, text=True)
     if proc.returncode != 0:
         return [f"(cargo bench failed: {proc.stderr.strip().splitlines()[-1:]})"]
@@ -295,17 +296,18 @@ def main() -> None:
         "(a) Hermitian eigensolver per matrix",
         eigensolver_table(repeats),
         "Batches of random complex Hermitian matrices; `_core.eigh` includes copying the batch "
-        "in and out of Python. n ≤ 8: size-specialised Jacobi; n > 8: nalgebra's Householder "
-        "+ QL.",
+        "in and out of Python. n ≤ 8: size-specialised Jacobi (n = 2, 4: closed form when the "
+        "spectrum is two Kramers-degenerate levels); 8 < n < 24: nalgebra's Householder + QL; "
+        "n ≥ 24: faer.",
     )
     if not args.no_cargo:
         section(
-            "Rust kernels (`cargo bench --no-default-features --bench kernels`)",
+            "Rust kernels (`cargo bench --no-default-features --features faer --bench kernels`)",
             cargo_kernel_tables(),
             "Per call, best of 7 repeats, no Python involved: candidate eigensolvers (the "
             "straightforward dynamic Jacobi, the size-specialised one cold and warm-started "
-            "from a nearby matrix's eigenvectors, nalgebra's Householder), polar factors, one "
-            "Wilson line and one full point on one thread.",
+            "from a nearby matrix's eigenvectors, nalgebra's Householder, faer), polar factors, "
+            "one Wilson line and one full point on one thread.",
         )
     section("(c) Sweep throughput", sweep_table(args.quick))
     section(
