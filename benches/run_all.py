@@ -9,7 +9,8 @@
 (c) sweep throughput (points/s) of a 2D and a 3D model;
 (d) peak memory against the number of points (``sweep_memory.py``, fresh processes).
 
-Timings are the best of several repeats, measured side by side in one run; other jobs on the
+Timings are the best of several repeats, measured side by side in one run and interleaved
+round by round (NumPy, one thread, all cores) so that all see the same load; other jobs on the
 machine make them noisy, so the load average is recorded with them. NumPy's BLAS is pinned to
 one thread so "one thread" means one thread on both sides.
 
@@ -64,6 +65,25 @@ def best_time(f: Callable[[], object], repeats: int, min_seconds: float = 0.2) -
             if dt >= min_seconds or n >= 1000:
                 break
         best = min(best, dt / n)
+    return best
+
+
+def best_times(fs: list[Callable[[], object]], repeats: int, min_seconds: float = 0.2) -> list:
+    """Like :func:`best_time` for several functions, interleaved round by round, so that every
+    function sees the same changes of machine load (ratios stay fair on a shared machine)."""
+    for f in fs:
+        f()
+    best = [float("inf")] * len(fs)
+    for _ in range(repeats):
+        for k, f in enumerate(fs):
+            n, t0 = 0, time.perf_counter()
+            while True:
+                f()
+                n += 1
+                dt = time.perf_counter() - t0
+                if dt >= min_seconds or n >= 1000:
+                    break
+            best[k] = min(best[k], dt / n)
     return best
 
 
@@ -136,20 +156,15 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
         opts = {"gap_points": 8, **sampling}
         ref, _ = compare(model, filling, params, **opts)  # asserts agreement
         reps = repeats if model.norb <= 16 else 1
-        t_np = best_time(
-            lambda m=model, f=filling, p=params, o=opts: invariants_numpy(m, f, p, **o),
-            reps,
-            min_seconds=0.5,
-        )
         kw = {**opts, **ENGINE_FIXED, "max_lines": opts["lines"]}
-        t1 = best_time(
-            lambda m=model, f=filling, p=params, kw=kw: ts.invariants(m, f, p, threads=1, **kw),
-            reps,
-        )
-        tn = best_time(
-            lambda m=model, f=filling, p=params, kw=kw: ts.invariants(
-                m, f, p, threads=os.cpu_count(), **kw
-            ),
+        t_np, t1, tn = best_times(
+            [
+                lambda m=model, f=filling, p=params, o=opts: invariants_numpy(m, f, p, **o),
+                lambda m=model, f=filling, p=params, kw=kw: ts.invariants(m, f, p, threads=1, **kw),
+                lambda m=model, f=filling, p=params, kw=kw: ts.invariants(
+                    m, f, p, threads=os.cpu_count(), **kw
+                ),
+            ],
             reps,
         )
         if ref["nu0"] < 0:
@@ -199,8 +214,7 @@ def core_only_table(repeats: int) -> list[str]:
         ),
     ]
     for name, f in rows:
-        t1 = best_time(lambda f=f: f(1), repeats)
-        tn = best_time(lambda f=f: f(os.cpu_count()), repeats)
+        t1, tn = best_times([lambda f=f: f(1), lambda f=f: f(os.cpu_count())], repeats)
         out.append(f"| {name} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} |")
     return out
 
