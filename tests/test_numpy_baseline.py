@@ -16,8 +16,8 @@ import pytest
 import toposweep as ts
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benches"))
-from numpy_baseline import BlochTerms, compare  # noqa: E402
 from baseline_models import expected_indices, stacked_wilson_dirac  # noqa: E402
+from numpy_baseline import BlochTerms, compare  # noqa: E402
 
 SAMPLING = {"loop_points": 24, "lines": 41}
 
