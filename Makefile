@@ -22,7 +22,8 @@ $(VENV)/.deps: pyproject.toml
 venv: $(VENV)/.deps ## create .venv with the Python dependencies
 
 $(VENV)/.built: $(VENV)/.deps $(RUST_SOURCES) pyproject.toml
-	$(VENV)/bin/maturin develop --release --quiet
+	@# flock: two builds into one .venv at once would race over the staged library
+	flock $(VENV)/.build-lock $(VENV)/bin/maturin develop --release --quiet
 	touch $@
 
 build: $(VENV)/.built ## build the Rust extension (release) into .venv
