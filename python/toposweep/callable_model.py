@@ -203,23 +203,36 @@ def _import_function(ref: str, file: Any) -> Callable[..., Any]:
         raise ModelError(f"cannot import model function {ref!r}: {first}.{hint}") from None
     # A file loaded by path (its module name existed only in the process that loaded it):
     # load it again under the name fixed by its path, once per process.
-    name = file_module_name(where)
-    loaded = sys.modules.get(name)
+    loaded = load_file_module(where)
     if loaded is None:
-        spec = importlib.util.spec_from_file_location(name, where)
-        if spec is None or spec.loader is None:
-            raise ModelError(f"cannot import model function {ref!r} from {where}") from None
-        loaded = importlib.util.module_from_spec(spec)
-        sys.modules[name] = loaded
-        try:
-            spec.loader.exec_module(loaded)
-        except BaseException:
-            del sys.modules[name]
-            raise
+        raise ModelError(f"cannot import model function {ref!r} from {where}") from None
     try:
         return _attribute(loaded, qualname)
     except AttributeError as exc:
         raise ModelError(f"cannot import model function {ref!r} from {where}: {exc}") from None
+
+
+def load_file_module(path: Path) -> Any:
+    """Import a Python file under :func:`file_module_name`, once per process.
+
+    Returns ``None`` when the file cannot be imported as Python; an exception raised by the
+    file's own code propagates (and the half-loaded module is forgotten).
+    """
+    name = file_module_name(path)
+    loaded = sys.modules.get(name)
+    if loaded is not None:
+        return loaded
+    spec = importlib.util.spec_from_file_location(name, path)
+    if spec is None or spec.loader is None:
+        return None
+    loaded = importlib.util.module_from_spec(spec)
+    sys.modules[name] = loaded
+    try:
+        spec.loader.exec_module(loaded)
+    except BaseException:
+        del sys.modules[name]
+        raise
+    return loaded
 
 
 def file_module_name(path: Path) -> str:

@@ -23,9 +23,7 @@ model terms, as ``coefficients=`` of :func:`toposweep.sweep` does. Every mistake
 
 from __future__ import annotations
 
-import importlib.util
 import math
-import sys
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -36,7 +34,7 @@ import tomllib
 import xarray as xr
 
 from . import models
-from .callable_model import file_module_name
+from .callable_model import load_file_module
 from .errors import ConfigError
 from .model import Model
 from .sampling import Sampling
@@ -164,19 +162,9 @@ def _load_function(source: str, key: str, spec: str, base: Path) -> Callable[...
     path = (base / path_text).resolve()
     if not path.is_file():
         raise _fail(source, key, f"no such file {path}")
-    module_name = file_module_name(path)  # the same in every process (resume, plots)
-    module = sys.modules.get(module_name)
+    module = load_file_module(path)  # same module name in every process (resume, plots)
     if module is None:
-        spec_obj = importlib.util.spec_from_file_location(module_name, path)
-        if spec_obj is None or spec_obj.loader is None:
-            raise _fail(source, key, f"cannot import {path} as Python")
-        module = importlib.util.module_from_spec(spec_obj)
-        sys.modules[module_name] = module
-        try:
-            spec_obj.loader.exec_module(module)
-        except BaseException:
-            del sys.modules[module_name]
-            raise
+        raise _fail(source, key, f"cannot import {path} as Python")
     func = getattr(module, func_name, None)
     if not callable(func):
         raise _fail(source, key, f"{path} has no function {func_name!r}")
