@@ -73,6 +73,30 @@ def _model_name(ds: xr.Dataset) -> str:
         return "a lattice model"
 
 
+def _cross_check(
+    ds: xr.Dataset, flag: str, method: str, title: str, labels: np.ndarray
+) -> list[str]:
+    """Lines reporting one cross-check flag against the Wilson loop.
+
+    Counts of the flag (1 agree, 0 disagree, −1 not comparable) and the first disagreeing points
+    with both answers; ``method`` names the ``nu0_<method>``/``nu_<method>`` variables.
+    """
+    agree = ds[flag].values
+    n_ok, n_bad, n_na = (int((agree == v).sum()) for v in (1, 0, -1))
+    out = [f"{title}: {n_ok} agree, {n_bad} disagree, {n_na} not comparable"]
+    for idx in list(map(tuple, np.argwhere(agree == 0)))[:MAX_LISTED]:
+        nu0 = int(ds[f"nu0_{method}"].values[idx])
+        if f"nu_{method}" in ds:
+            other = f"({nu0};{''.join(str(int(v)) for v in ds[f'nu_{method}'].values[idx])})"
+        else:
+            other = f"(Z2 = {nu0})"
+        where = _where(ds, idx) or "the point"
+        out.append(f"  disagree at {where}: Wilson loop {labels[idx]}, {method} {other}")
+    if n_bad > MAX_LISTED:
+        out.append(f"  … and {n_bad - MAX_LISTED} more")
+    return out
+
+
 def summarise(ds: xr.Dataset, name: str = "result") -> str:
     """Multi-line summary of a sweep or a single point.
 
@@ -128,38 +152,12 @@ def summarise(ds: xr.Dataset, name: str = "result") -> str:
             example = f"   e.g. {_where(ds, where[0])}" if dims else ""
             lines.append(f"  {names.get(r, f'reason {r}'):{rwidth}s}  {len(where):6d}{example}")
     if "parity_agrees" in ds:
-        agrees = ds.parity_agrees.values
-        n_ok, n_bad = int((agrees == 1).sum()), int((agrees == 0).sum())
-        n_na = int((agrees == -1).sum())
         lines.append("")
-        lines.append(
-            f"Fu-Kane parity cross-check: {n_ok} agree, {n_bad} disagree, {n_na} not comparable"
-        )
-        for idx in list(map(tuple, np.argwhere(agrees == 0)))[:MAX_LISTED]:
-            nu0_p = int(ds.nu0_parity.values[idx])
-            if "nu_parity" in ds:
-                par = f"({nu0_p};{''.join(str(int(v)) for v in ds.nu_parity.values[idx])})"
-            else:
-                par = f"(Z2 = {nu0_p})"
-            where = _where(ds, idx) or "the point"
-            lines.append(f"  disagree at {where}: Wilson loop {labels[idx]}, parity {par}")
-        if n_bad > MAX_LISTED:
-            lines.append(f"  … and {n_bad - MAX_LISTED} more")
+        lines += _cross_check(ds, "parity_agrees", "parity", "Fu-Kane parity cross-check", labels)
     if "methods_agree" in ds:
-        agree = ds.methods_agree.values
-        n_ok, n_bad, n_na = (int((agree == v).sum()) for v in (1, 0, -1))
-        lines.append(
-            f"lattice Z2 cross-check (Fukui-Hatsugai): {n_ok} agree, {n_bad} disagree, "
-            f"{n_na} not comparable"
+        lines += _cross_check(
+            ds, "methods_agree", "lattice", "lattice Z2 cross-check (Fukui-Hatsugai)", labels
         )
-        for idx in list(map(tuple, np.argwhere(agree == 0)))[:MAX_LISTED]:
-            nu0_l = int(ds.nu0_lattice.values[idx])
-            if "nu_lattice" in ds:
-                lat = f"({nu0_l};{''.join(str(int(v)) for v in ds.nu_lattice.values[idx])})"
-            else:
-                lat = f"(Z2 = {nu0_l})"
-            where = _where(ds, idx) or "the point"
-            lines.append(f"  disagree at {where}: Wilson loop {labels[idx]}, lattice {lat}")
     gap = np.where(reason == 0, ds.gap_direct.values, np.nan)
     if np.isfinite(gap).any():
         idx = np.unravel_index(int(np.nanargmin(gap)), gap.shape)
