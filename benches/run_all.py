@@ -54,18 +54,7 @@ ENGINE_FIXED = {"gap_starts": 0, "certify": False}
 
 def best_time(f: Callable[[], object], repeats: int, min_seconds: float = 0.2) -> float:
     """Best wall time of one call over `repeats` rounds (each round long enough to time)."""
-    f()  # warm up (thread pools, caches)
-    best = float("inf")
-    for _ in range(repeats):
-        n, t0 = 0, time.perf_counter()
-        while True:
-            f()
-            n += 1
-            dt = time.perf_counter() - t0
-            if dt >= min_seconds or n >= 1000:
-                break
-        best = min(best, dt / n)
-    return best
+    return best_times([f], repeats, min_seconds)[0]
 
 
 def best_times(fs: list[Callable[[], object]], repeats: int, min_seconds: float = 0.2) -> list:
