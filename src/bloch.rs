@@ -226,9 +226,13 @@ impl BlochSource for Bloch {
         false
     }
 
-    /// Along a loop φ_R(s) = φ_R(0) + 2π R_axis s / L, so e^{iφ_R(s)} = e^{iφ_R(0)} ω^{R_axis s}
-    /// with ω = e^{2πi/L}: one table of the L-th roots of unity per line replaces a sin/cos per
-    /// R and κ point (the index R_axis·s mod L keeps it exact, no error accumulates).
+    /// Along a loop κ_axis = s/L, so φ_R(s) = φ_R⁰ + θ_m(s) with φ_R⁰ from the other
+    /// coordinates and θ_m(s) = 2π m s / L, m = R_axis. Writing
+    /// C cos(φ⁰ + θ) + S sin(φ⁰ + θ) = (C cos φ⁰ + S sin φ⁰) cos θ + (S cos φ⁰ − C sin φ⁰) sin θ,
+    /// all R with the same |m| fold, once per line, into one pair of matrices (those with m = 0
+    /// into the constant part). A κ point of the line then costs one real linear combination per
+    /// distinct |m| — one or two for nearest-neighbour models, however many R there are — with
+    /// cos θ, sin θ from a table of the L-th roots of unity (index |m|·s mod L: exact, no drift).
     fn fill_line(
         &self,
         base: &[f64],
@@ -240,36 +244,87 @@ impl BlochSource for Bloch {
         if out.len() < points * nn || axis >= self.dim || points == 0 {
             return Err(invalid!("fill_line: bad axis, point count or buffer size"));
         }
-        let roots: Vec<(f64, f64)> = (0..points)
-            .map(|k| (TAU * k as f64 / points as f64).sin_cos())
-            .collect();
-        let nr = self.rs.len() / self.dim.max(1);
-        let mut start = Vec::with_capacity(nr);
-        let mut steps = Vec::with_capacity(nr);
-        for r in self.rs.chunks_exact(self.dim) {
+        let folded = self.fold_line(base, axis);
+        ROOTS.with(|cell| {
+            let mut roots = cell.borrow_mut();
+            if roots.len() != points {
+                // the same loop length comes back for every line: one table per worker thread
+                *roots = (0..points)
+                    .map(|k| (TAU * k as f64 / points as f64).sin_cos())
+                    .collect();
+            }
+            for (s, o) in out[..points * nn].chunks_exact_mut(nn).enumerate() {
+                o.copy_from_slice(&folded.constant);
+                for (i, &m) in folded.harmonics.iter().enumerate() {
+                    let (sn, cs) = roots[(m * s) % points];
+                    let pair = &folded.pairs[2 * i * nn..(2 * i + 2) * nn];
+                    add_combination(o, &pair[..nn], &pair[nn..], cs, sn);
+                }
+            }
+        });
+        Ok(())
+    }
+}
+
+thread_local! {
+    /// (sin, cos) of 2πk/L, k = 0…L−1, for the loop length L last used on this thread.
+    static ROOTS: std::cell::RefCell<Vec<(f64, f64)>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// H along one loop, folded by harmonic: H(s) = constant + Σ_i A_i cos θ_i(s) + B_i sin θ_i(s)
+/// with θ_i(s) = 2π harmonics[i] s / L; `pairs` holds A_0, B_0, A_1, B_1, ... (norb² each).
+struct FoldedLine {
+    constant: Vec<C64>,
+    harmonics: Vec<usize>,
+    pairs: Vec<C64>,
+}
+
+impl Bloch {
+    fn fold_line(&self, base: &[f64], axis: usize) -> FoldedLine {
+        let nn = self.norb * self.norb;
+        let mut line = FoldedLine {
+            constant: self.onsite.clone(),
+            harmonics: Vec::new(),
+            pairs: Vec::new(),
+        };
+        for ((r, cp), sp) in self
+            .rs
+            .chunks_exact(self.dim)
+            .zip(self.cos_part.chunks_exact(nn))
+            .zip(self.sin_part.chunks_exact(nn))
+        {
             // base[axis] is ignored: the loop coordinate runs over s / points
             let phase: f64 = (0..self.dim)
                 .filter(|&d| d != axis)
                 .map(|d| r[d] * base[d])
                 .sum::<f64>()
                 * TAU;
-            start.push(phase.sin_cos());
-            steps.push((r[axis] as i64).rem_euclid(points as i64) as usize);
-        }
-        for (s, o) in out[..points * nn].chunks_exact_mut(nn).enumerate() {
-            o.copy_from_slice(&self.onsite);
-            for (i, (cp, sp)) in self
-                .cos_part
-                .chunks_exact(nn)
-                .zip(self.sin_part.chunks_exact(nn))
-                .enumerate()
-            {
-                let (s0, c0) = start[i];
-                let (s1, c1) = roots[(steps[i] * s) % points];
-                add_combination(o, cp, sp, c0 * c1 - s0 * s1, s0 * c1 + c0 * s1);
+            let (s0, c0) = phase.sin_cos();
+            let m = r[axis] as i64;
+            if m == 0 {
+                add_combination(&mut line.constant, cp, sp, c0, s0);
+                continue;
             }
+            let i = match line
+                .harmonics
+                .iter()
+                .position(|&h| h == m.unsigned_abs() as usize)
+            {
+                Some(i) => i,
+                None => {
+                    line.harmonics.push(m.unsigned_abs() as usize);
+                    line.pairs
+                        .resize(line.pairs.len() + 2 * nn, C64::new(0.0, 0.0));
+                    line.harmonics.len() - 1
+                }
+            };
+            // sin(−θ) = −sin θ: a negative m flips the sine part
+            let sign = m.signum() as f64;
+            let (a, b) = line.pairs[2 * i * nn..(2 * i + 2) * nn].split_at_mut(nn);
+            add_combination(a, cp, sp, c0, s0);
+            add_combination(b, sp, cp, sign * c0, -sign * s0);
         }
-        Ok(())
+        line
     }
 }
 
