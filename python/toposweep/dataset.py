@@ -16,6 +16,7 @@ import xarray as xr
 from numpy.typing import NDArray
 
 from ._version import __version__
+from .dataset_assembly import assemble
 from .dataset_methods import method_variables
 from .model import Model
 from .sampling import Sampling
@@ -370,4 +371,4 @@ def build_dataset(
         + ("; Fu-Kane parity cross-check" if parity_known else ""),
     }
     attrs.update(extra_attrs or {})
-    return xr.Dataset(data, coords=coord_vars, attrs=attrs)
+    return assemble(data, coord_vars, attrs)

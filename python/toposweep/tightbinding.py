@@ -61,6 +61,7 @@ class TightBinding(Model):
         self._hops: list[tuple[tuple[int, ...], NDArray[np.complex128], str | None]] = []
         self._terms: list[str] = []
         self._core_cache: Any = None
+        self._residual_cache: dict[tuple, tuple[NDArray, NDArray]] = {}
 
     # -- building -------------------------------------------------------------------------------
     def add(self, R: Sequence[int], T: ArrayLike, term: str | None = None) -> TightBinding:
@@ -77,6 +78,7 @@ class TightBinding(Model):
                 self._terms.append(term)
         self._hops.append((r, t, term))
         self._core_cache = None
+        self._residual_cache.clear()
         return self
 
     def _lattice_vector(self, R: Sequence[int]) -> tuple[int, ...]:
@@ -169,6 +171,28 @@ class TightBinding(Model):
         The fixed part and every term are checked once at random κ; a parameter point then
         costs one small linear combination, so sweeps of any size check every point.
         """
+        resid, hp = self._term_residuals(operator, kind)
+        nterm = len(self._terms)
+        coeffs = np.array([[1.0, *(p[t] for t in self._terms)] for p in points]).reshape(
+            -1, nterm + 1
+        )
+        res = np.abs(np.einsum("pt,t...->p...", coeffs, resid)).reshape(len(points), -1).max(axis=1)
+        scale = np.abs(np.einsum("pt,t...->p...", coeffs, hp)).reshape(len(points), -1).max(axis=1)
+        return res / np.maximum(scale, 1e-300)
+
+    def _term_residuals(
+        self, operator: NDArray[np.complex128], kind: str
+    ) -> tuple[NDArray[np.complex128], NDArray[np.complex128]]:
+        """Residual matrices and H(κ) of the fixed part and of each term alone at random κ.
+
+        They depend on the hoppings and the operator only, so they are kept until the next
+        :meth:`add` (a sweep or a loop of :func:`toposweep.invariants` calls checks many
+        points against the same blocks).
+        """
+        key = (kind, operator.shape, operator.tobytes())
+        cached = self._residual_cache.get(key)
+        if cached is not None:
+            return cached
         core = self._core()
         kappa = self._symmetry_kappa()
         both = np.ascontiguousarray(np.concatenate([kappa, -kappa]))
@@ -179,12 +203,10 @@ class TightBinding(Model):
         hp, hm = blocks[:, : len(kappa)], blocks[:, len(kappa) :]
         h = hp.conj() if kind == "time_reversal" else hp
         resid = operator @ h @ operator.conj().T - hm
-        coeffs = np.array([[1.0, *(p[t] for t in self._terms)] for p in points]).reshape(
-            -1, nterm + 1
-        )
-        res = np.abs(np.einsum("pt,t...->p...", coeffs, resid)).reshape(len(points), -1).max(axis=1)
-        scale = np.abs(np.einsum("pt,t...->p...", coeffs, hp)).reshape(len(points), -1).max(axis=1)
-        return res / np.maximum(scale, 1e-300)
+        if len(self._residual_cache) >= 8:  # a few operators per model at most; stay bounded
+            self._residual_cache.clear()
+        self._residual_cache[key] = (resid, hp)
+        return resid, hp
 
     # -- serialisation ----------------------------------------------------------------------------
     def to_dict(self) -> dict[str, Any]:

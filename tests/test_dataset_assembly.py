@@ -1,0 +1,74 @@
+"""The fast Dataset assembly equals xarray's public constructor (reference library check)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import toposweep as ts
+import toposweep.dataset as dataset_module
+import xarray as xr
+from toposweep.dataset_assembly import assemble
+
+
+def _public(monkeypatch, build):
+    """Run ``build`` with assembly through ``xr.Dataset(...)`` only."""
+    monkeypatch.setattr(
+        dataset_module,
+        "assemble",
+        lambda data, coords, attrs: xr.Dataset(data, coords=coords, attrs=attrs),
+    )
+    try:
+        return build()
+    finally:
+        monkeypatch.undo()
+
+
+def _same(fast: xr.Dataset, slow: xr.Dataset) -> None:
+    fast, slow = fast.drop_attrs(deep=False), slow.drop_attrs(deep=False)  # 'created' differs
+    xr.testing.assert_identical(fast, slow)
+    assert list(fast.data_vars) == list(slow.data_vars)
+    assert list(fast.coords) == list(slow.coords)
+    assert set(fast.xindexes) == set(slow.xindexes)
+    for name in fast.variables:
+        assert type(fast.variables[name]) is type(slow.variables[name]), name
+        assert fast[name].dtype == slow[name].dtype, name
+
+
+CASES = [
+    ("wilson_dirac", 2, {"mass": -2.0}, {}),
+    ("kane_mele", 2, {"staggered": 0.3}, {"method": "both"}),
+    ("bhz", 2, {"mass": -1.0}, {}),
+]
+
+
+@pytest.mark.parametrize(("name", "filling", "params", "opts"), CASES)
+def test_single_point_matches_public_constructor(monkeypatch, name, filling, params, opts):
+    model = getattr(ts.models, name)()
+    kw = {"loop_points": 12, "lines": 7, "gap_starts": 0, "certify": False, **opts}
+    fast = ts.invariants(model, filling, params, **kw)
+    slow = _public(monkeypatch, lambda: ts.invariants(model, filling, params, **kw))
+    _same(fast, slow)
+
+
+def test_sweep_matches_public_constructor(monkeypatch):
+    model = ts.models.wilson_dirac()
+    grid = {"mass": np.linspace(-3.5, 3.5, 4), "hopping": [0.5, 1.0]}
+    kw = {"loop_points": 12, "lines": 7, "gap_starts": 0, "certify": False, "progress": False}
+    fast = ts.sweep(model, grid, 2, **kw)
+    slow = _public(monkeypatch, lambda: ts.sweep(model, grid, 2, **kw))
+    _same(fast, slow)
+    assert fast.indexes["mass"].equals(slow.indexes["mass"])
+
+
+def test_inconsistent_sizes_reach_the_public_error():
+    with pytest.raises(ValueError, match="conflicting sizes|size"):
+        assemble({"a": (("x",), np.zeros(2), {}), "b": (("x",), np.zeros(3), {})}, {}, {})
+
+
+def test_unusual_coordinate_layout_follows_the_public_rules():
+    # a coordinate named like a dimension but lying along another one: no default index
+    data = {"a": (("x",), np.zeros(2), {})}
+    coords = {"x": (("y",), np.arange(3.0), {})}
+    got = assemble(data, coords, {})
+    xr.testing.assert_identical(got, xr.Dataset(data, coords=coords))
+    assert "x" not in got.xindexes
