@@ -364,7 +364,7 @@ def build_dataset(
         "source": f"toposweep {__version__}",
         "toposweep_version": __version__,
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-        "model": json.dumps(model.to_dict(), sort_keys=True),
+        "model": model.to_json(),
         "filling": int(filling),
         "sampling": json.dumps(sampling.as_dict(), sort_keys=True),
         "method": _METHOD_TEXT[sampling.method]

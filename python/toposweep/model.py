@@ -7,6 +7,8 @@ defaults, and how to hand itself to the Rust core for a list of parameter points
 
 from __future__ import annotations
 
+import json
+
 import math
 from abc import ABC, abstractmethod
 from collections.abc import Mapping, Sequence
@@ -69,6 +71,7 @@ class Model(ABC):
         self.defaults: dict[str, float] = {}
         #: optional ``{"long_name": ..., "units": ...}`` per parameter, for dataset coordinates
         self.parameter_info: dict[str, dict[str, str]] = {}
+        self._json_cache: tuple[dict[str, Any], str] | None = None
 
     @staticmethod
     def _real_matrix(a: ArrayLike | None, shape: tuple[int, int], what: str) -> NDArray | None:
@@ -186,6 +189,27 @@ class Model(ABC):
         return np.random.default_rng(7).random((4, self.dim))
 
     # -- serialisation --------------------------------------------------------------------------
+    def to_json(self) -> str:
+        """:meth:`to_dict` as JSON text with sorted keys (the ``model`` attribute of results).
+
+        Encoding the floats of a large model's hoppings takes far longer than building the
+        description, so the text is kept and reused while :meth:`to_dict` stays equal.
+
+        Examples
+        --------
+        >>> import json
+        >>> from toposweep import models
+        >>> m = models.bhz()
+        >>> json.loads(m.to_json()) == m.to_dict()
+        True
+        """
+        d = self.to_dict()
+        if self._json_cache is not None and self._json_cache[0] == d:
+            return self._json_cache[1]
+        text = json.dumps(d, sort_keys=True)
+        self._json_cache = (d, text)
+        return text
+
     def _base_dict(self) -> dict[str, Any]:
         return {
             "dim": self.dim,
