@@ -64,10 +64,31 @@ def _variables(
                 raise ValueError(f"dimension {d!r} has sizes {sizes[d]} and {n}")
         if name in coords and var.dims == (name,):
             # a dimension coordinate: default pandas index, stored as its IndexVariable
-            index = PandasIndex(var.values, name)
+            index = _default_index(name, var)
             var = index.create_variables({name: var})[name]
             indexes[name] = index
         variables[name] = var
     if any(d in coords and d not in indexes for d in sizes):
         raise ValueError("a coordinate named like a dimension does not lie along it")
     return variables, indexes, sizes
+
+
+#: indexes of the small fixed dimensions every result has (axis, cut, trim, kappa_axis)
+_INDEX_CACHE: dict[tuple[str, str, bytes], PandasIndex] = {}
+
+
+def _default_index(name: str, var: xr.Variable) -> PandasIndex:
+    """Default index of a dimension coordinate, reused for short recurring ones.
+
+    xarray treats indexes as immutable and shares them between Datasets itself.
+    """
+    values = var.values
+    if values.size > 16:
+        return PandasIndex(values, name)
+    key = (name, values.dtype.str, values.tobytes())
+    index = _INDEX_CACHE.get(key)
+    if index is None:
+        if len(_INDEX_CACHE) >= 256:
+            _INDEX_CACHE.clear()
+        index = _INDEX_CACHE[key] = PandasIndex(values, name)
+    return index

@@ -8,7 +8,6 @@ defaults, and how to hand itself to the Rust core for a list of parameter points
 from __future__ import annotations
 
 import json
-
 import math
 from abc import ABC, abstractmethod
 from collections.abc import Mapping, Sequence

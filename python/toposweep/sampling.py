@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass, fields
+from dataclasses import dataclass, fields
 from numbers import Real
 from typing import Any
 
@@ -160,8 +160,8 @@ class Sampling:
         return cls(**{k: v for k, v in options.items() if v is not None or k == "gap_floor"})
 
     def as_dict(self) -> dict[str, Any]:
-        """Plain dict, for provenance attributes."""
-        return asdict(self)
+        """Plain dict, for provenance attributes (fields are plain scalars: no deep copy)."""
+        return {f.name: getattr(self, f.name) for f in fields(self)}
 
     def core_kwargs(self) -> dict[str, Any]:
         """Keyword arguments for :func:`toposweep._core.evaluate`."""
