@@ -1,6 +1,7 @@
 //! Kernel benchmarks of the Rust core (a small `cargo bench` harness, no extra dependencies):
 //! Hermitian eigensolvers per matrix at n = 4…64 (reference Jacobi, size-specialised Jacobi
-//! cold and warm-started, nalgebra Householder), Bloch sums, one Wilson line and one full
+//! cold and warm-started, the size-specialised Householder + QR that production uses for
+//! n ≤ 8, nalgebra Householder, faer), Bloch sums, one Wilson line and one full
 //! parameter point of the cubic Wilson–Dirac model at fixed sampling (40 × 41 × 6).
 //!
 //! `cargo bench --no-default-features --bench kernels` prints a markdown table; set
@@ -11,7 +12,9 @@
 use std::hint::black_box;
 use std::time::Instant;
 use toposweep::bloch::{BlochSource, Hoppings};
-use toposweep::eigen::{eigh_householder_into, eigh_into, eigh_reference_into, eigh_warm_into};
+use toposweep::eigen::{
+    eigh_householder_into, eigh_into, eigh_jacobi_into, eigh_reference_into, eigh_warm_into,
+};
 use toposweep::engine::{evaluate_point, Method, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
 use toposweep::wilson::{wilson_line_with, Kernels};
@@ -103,8 +106,8 @@ fn main() {
 
     if want("eigen") {
         let (mut e4, mut v4) = (vec![0.0; 4], vec![c(0.0, 0.0); 16]);
-        println!("| n | reference Jacobi (µs) | fixed-size Jacobi (µs) | warm-started (µs) | nalgebra Householder (µs) | faer (µs) |");
-        println!("|---|---|---|---|---|---|");
+        println!("| n | reference Jacobi (µs) | fixed-size Jacobi (µs) | warm-started Jacobi (µs) | fixed-size Householder + QR (µs) | nalgebra Householder (µs) | faer (µs) |");
+        println!("|---|---|---|---|---|---|---|");
         for n in [4usize, 8, 16, 32, 64] {
             let batch = 64;
             let hs: Vec<Vec<C64>> = (0..batch).map(|_| rng.hermitian(n)).collect();
@@ -125,10 +128,10 @@ fn main() {
             let refj = time_ns(reps, k, |i| {
                 eigh_reference_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
             });
-            let (fixed, warm) = if n <= 8 {
+            let (fixed, warm, small) = if n <= 8 {
                 (
                     fmt(time_ns(reps, k, |i| {
-                        eigh_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
+                        eigh_jacobi_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
                     })),
                     fmt(time_ns(reps, k, |i| {
                         eigh_warm_into(
@@ -140,9 +143,12 @@ fn main() {
                         )
                         .unwrap()
                     })),
+                    fmt(time_ns(reps, k, |i| {
+                        eigh_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
+                    })),
                 )
             } else {
-                ("–".into(), "–".into())
+                ("–".into(), "–".into(), "–".into())
             };
             let hh = time_ns(reps, k, |i| {
                 eigh_householder_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
@@ -159,7 +165,10 @@ fn main() {
             }));
             #[cfg(not(feature = "faer"))]
             let fa = "(build with --features faer)";
-            println!("| {n} | {refj} | {fixed} | {warm} | {} | {fa} |", fmt(hh));
+            println!(
+                "| {n} | {refj} | {fixed} | {warm} | {small} | {} | {fa} |",
+                fmt(hh)
+            );
         }
         // Kramers-degenerate 4×4 (Wilson–Dirac H(κ) at random κ): the closed two-level path
         let wdm = wilson_dirac().at(&[-2.0, 1.0]).unwrap();
@@ -186,7 +195,7 @@ fn main() {
             .unwrap()
         });
         println!(
-            "| 4, Kramers-degenerate (Wilson–Dirac H(κ)) | {:.3} | {:.3} (closed two-level form) | – | – | – |",
+            "| 4, Kramers-degenerate (Wilson–Dirac H(κ)) | {:.3} | – | – | {:.3} (closed two-level form) | – | – |",
             slow / 1e3,
             fast / 1e3
         );

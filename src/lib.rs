@@ -6,6 +6,7 @@
 
 pub mod bloch;
 pub mod eigen;
+mod eigen_small;
 pub mod engine;
 pub mod error;
 pub mod flow;
