@@ -299,9 +299,9 @@ def main() -> None:
         "(a) Hermitian eigensolver per matrix",
         eigensolver_table(repeats),
         "Batches of random complex Hermitian matrices; `_core.eigh` includes copying the batch "
-        "in and out of Python. n ≤ 8: size-specialised Jacobi (n = 2, 4: closed form when the "
-        "spectrum is two Kramers-degenerate levels); 8 < n < 24: nalgebra's Householder + QL; "
-        "n ≥ 24: faer.",
+        "in and out of Python. n ≤ 8: size-specialised Householder reduction + implicit QR on "
+        "split real/imaginary arrays (n = 4: closed form when the spectrum is two "
+        "Kramers-degenerate levels); n ≥ 9: faer.",
     )
     if not args.no_cargo:
         section(

@@ -13,15 +13,30 @@ def random_hermitian(rng, m, n):
     return 0.5 * (a + a.conj().transpose(0, 2, 1))
 
 
-@pytest.mark.parametrize("n", [1, 2, 3, 4, 6, 8, 9, 16, 32, 64])
-def test_eigh_matches_numpy(rng, n):
-    h = random_hermitian(rng, 50, n)
+def kramers_degenerate(rng, m, n):
+    """Random Hermitian matrices with every eigenvalue doubly degenerate (n even), in a
+    random basis: the spectra of models with time reversal and inversion."""
+    half = random_hermitian(rng, m, n // 2)
+    block = np.zeros((m, n, n), complex)
+    block[:, 0::2, 0::2] = half
+    block[:, 1::2, 1::2] = half.conj()
+    q, _ = np.linalg.qr(rng.normal(size=(m, n, n)) + 1j * rng.normal(size=(m, n, n)))
+    h = q @ block @ q.conj().transpose(0, 2, 1)
+    return 0.5 * (h + h.conj().transpose(0, 2, 1))
+
+
+@pytest.mark.parametrize("degenerate", [False, True])
+@pytest.mark.parametrize("n", [1, 2, 3, 4, 6, 8, 9, 10, 12, 16, 23, 24, 32, 64])
+def test_eigh_matches_numpy(rng, n, degenerate):
+    if degenerate and n % 2:
+        pytest.skip("Kramers pairs need an even size")
+    h = kramers_degenerate(rng, 50, n) if degenerate else random_hermitian(rng, 50, n)
     e, v = _core.eigh(h)
     np.testing.assert_allclose(e, np.linalg.eigh(h)[0], atol=1e-10 * max(1, n))
-    # H V = V diag(E), V unitary
-    np.testing.assert_allclose(h @ v, v * e[:, None, :], atol=1e-9)
+    # H V = V diag(E) to near machine precision (relative to ‖H‖ ~ 2√n), V unitary
+    np.testing.assert_allclose(h @ v, v * e[:, None, :], atol=1e-13 * max(4, n))
     np.testing.assert_allclose(
-        v.conj().transpose(0, 2, 1) @ v, np.broadcast_to(np.eye(n), h.shape), atol=1e-10
+        v.conj().transpose(0, 2, 1) @ v, np.broadcast_to(np.eye(n), h.shape), atol=1e-13
     )
 
 
