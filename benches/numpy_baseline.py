@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 
 #: same relative gap floor as the engine when none is given (× bandwidth)
-AUTO_FLOOR_REL = 1e-6
+AUTO_FLOOR_REL = 1e-5
 
 # reason codes, as in toposweep.dataset.REASONS
 DEFINED, GAPLESS, DEGENERATE_AT_TRIM, NU0_DISAGREE, NOT_CONVERGED = 0, 1, 2, 3, 4
@@ -246,6 +246,7 @@ def invariants_numpy(
         "gap_direct": stats.direct,
         "gap_indirect": stats.bottom_empty - stats.top_occ,
         "reason": reason,
+        "gap_floor": floor,
     }
 
 
@@ -267,7 +268,8 @@ def compare(
     assert got_nu == ref["nu"], f"nu: toposweep {got_nu} vs numpy {ref['nu']}"
     if "z2_plane" in ds:
         assert np.array(ds.z2_plane.values).tolist() == ref["z2_plane"], "z2_plane differs"
-    for key in ("gap_direct", "gap_indirect"):
+    assert int(ds.undefined_reason) == ref["reason"], "undefined_reason differs"
+    for key in ("gap_direct", "gap_indirect", "gap_floor"):
         diff = abs(float(ds[key]) - ref[key])
         assert diff <= 1e-10 * max(1.0, abs(ref[key])), f"{key}: differs by {diff:.2e}"
     return ref, ds
