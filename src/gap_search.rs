@@ -72,12 +72,14 @@ pub fn gaps_at(
     src.fill(kappa, &mut h)?;
     let energies: CoreResult<Vec<Vec<f64>>> = h
         .par_chunks(nn)
-        .map(|hk| {
-            let mut e = vec![0.0; n];
-            let mut v = vec![C64::new(0.0, 0.0); nn];
-            eigh_into(hk, n, &mut e, &mut v)?;
-            Ok(e)
-        })
+        .map_init(
+            || vec![C64::new(0.0, 0.0); nn], // eigenvector scratch, once per rayon split
+            |v, hk| {
+                let mut e = vec![0.0; n];
+                eigh_into(hk, n, &mut e, v)?;
+                Ok(e)
+            },
+        )
         .collect();
     let energies = energies?;
     for (e, k) in energies.iter().zip(kappa.chunks_exact(dim)) {
