@@ -209,9 +209,11 @@ def core_only_table(repeats: int) -> list[str]:
 
 
 def sweep_table(quick: bool) -> list[str]:
+    cores = os.cpu_count() or 1
     out = [
-        "| sweep (default sampling, all cores) | points | time (s) | points/s |",
-        "|---|---:|---:|---:|",
+        f"| sweep (default sampling) | points | 1 thread (points/s) | {cores} threads (points/s) "
+        "| threads gain |",
+        "|---|---:|---:|---:|---:|",
     ]
     n2, n3 = (20, 6) if quick else (60, 16)
     cases = [
@@ -227,12 +229,17 @@ def sweep_table(quick: bool) -> list[str]:
         ),
     ]
     for label, model, grid in cases:
-        t0 = time.perf_counter()
-        ds = ts.sweep(model, grid, 2, progress=False)
-        dt = time.perf_counter() - t0
+        rate, undefined = [], 0
         n = int(np.prod([len(v) for v in grid.values()]))
-        undefined = int((ds.phase.values < 0).sum())
-        out.append(f"| {label} ({undefined} undefined) | {n} | {dt:.2f} | {n / dt:.0f} |")
+        for threads in (1, cores):
+            t0 = time.perf_counter()
+            ds = ts.sweep(model, grid, 2, progress=False, threads=threads)
+            rate.append(n / (time.perf_counter() - t0))
+            undefined = int((ds.phase.values < 0).sum())
+        out.append(
+            f"| {label} ({undefined} undefined) | {n} | {rate[0]:.0f} | {rate[1]:.0f} | "
+            f"{rate[1] / rate[0]:.2f}× |"
+        )
     return out
 
 
