@@ -8,8 +8,10 @@
 //! - Otherwise `eigen_small`: Householder reduction to a real tridiagonal matrix and implicit QR
 //!   with Wilkinson shifts, in real arithmetic on fixed-size split re/im arrays (see that
 //!   module). Measured per matrix (`cargo bench … -- eigen`, callgrind): a generic 4×4 in
-//!   ~4800 instructions / ~1.0 µs, 8×8 ~29 000 / ~5 µs, against ~5400 / 1.1–1.4 µs and
-//!   ~14.5 µs for the size-specialised Jacobi below.
+//!   ~4200 instructions / ~1.0 µs, 8×8 ~27 000 / ~5 µs, against ~5400 / 1.1–1.4 µs and
+//!   ~8.7–14.5 µs for the size-specialised Jacobi below. The 4×4 is latency-bound (≈18
+//!   serial Givens rotations, each a sqrt → division → update chain): built for AVX2 + FMA
+//!   it needs 3100 instructions but no less time, so the crate stays on baseline x86-64.
 //! - The size-specialised cyclic Jacobi (`jacobi_fixed::<N>`, `[[C64; N]; N]`, one
 //!   instantiation per n, rotations in round-robin order, only the two rotated columns updated
 //!   and mirrored) remains for warm starts and as the fallback when the Householder path
