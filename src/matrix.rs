@@ -1,12 +1,17 @@
 //! Small dense complex matrices stored row-major in flat slices: products, the unitary part of
 //! an overlap matrix, and the eigenphases of a unitary matrix.
 
+use crate::dense::{product, Op, View, DENSE_MIN_N};
 use crate::eigen::{eigh, eigh_into, eigh_reference_into, JACOBI_MAX_N};
 use crate::error::{CoreError, CoreResult};
 use crate::C64;
 
-/// `c = a · b` for an (m×k) `a` and a (k×n) `b`.
+/// `c = a · b` for an (m×k) `a` and a (k×n) `b` (many occupied bands: `dense::product`).
 pub fn matmul(a: &[C64], b: &[C64], c: &mut [C64], m: usize, k: usize, n: usize) {
+    if m.min(k).min(n) >= DENSE_MIN_N {
+        let (a, b) = (View::new(a, m, k, k), View::new(b, k, n, n));
+        return product(c, n, a, Op::Plain, b, Op::Plain);
+    }
     for i in 0..m {
         let row = &mut c[i * n..(i + 1) * n];
         row.iter_mut().for_each(|x| *x = C64::new(0.0, 0.0));
@@ -23,6 +28,10 @@ pub fn matmul(a: &[C64], b: &[C64], c: &mut [C64], m: usize, k: usize, n: usize)
 /// Overlap `m[a][b] = Σ_i conj(u[i][a]) v[i][b]` of the first `cols` columns of two (rows×ld)
 /// column-stacked sets of vectors (eigenvectors are columns, stored row-major with stride `ld`).
 pub fn overlap(u: &[C64], v: &[C64], rows: usize, ld: usize, cols: usize, m: &mut [C64]) {
+    if cols >= DENSE_MIN_N {
+        let (u, v) = (View::new(u, rows, cols, ld), View::new(v, rows, cols, ld));
+        return product(m, cols, u, Op::Adjoint, v, Op::Plain);
+    }
     m[..cols * cols]
         .iter_mut()
         .for_each(|x| *x = C64::new(0.0, 0.0));
@@ -116,6 +125,9 @@ fn polar_with(
     v: &mut [C64],
     w: &mut [C64],
 ) -> CoreResult<f64> {
+    if n >= DENSE_MIN_N {
+        return polar_dense(m, n, mtm, lam, v, w);
+    }
     // m†m = V Λ V†  →  (m†m)^{-1/2} = V Λ^{-1/2} V†
     for a in 0..n {
         for b in 0..n {
@@ -150,6 +162,54 @@ fn polar_with(
             m[i * n + b] = s;
         }
     }
+    Ok(smin)
+}
+
+/// [`polar_with`] for many occupied bands: the same steps with the three products in
+/// `dense::product`.
+fn polar_dense(
+    m: &mut [C64],
+    n: usize,
+    mtm: &mut [C64],
+    lam: &mut [f64],
+    v: &mut [C64],
+    w: &mut [C64],
+) -> CoreResult<f64> {
+    product(
+        mtm,
+        n,
+        View::new(m, n, n, n),
+        Op::Adjoint,
+        View::new(m, n, n, n),
+        Op::Plain,
+    );
+    eigh_into(mtm, n, lam, v)?;
+    let smin = lam[0].max(0.0).sqrt();
+    if smin <= 1e-14 * lam[n - 1].max(1e-300).sqrt() {
+        return Ok(0.0);
+    }
+    // w = V Λ^{-1/2} (columns scaled), then mtm = m w and m = mtm V†
+    for (row_w, row_v) in w.chunks_exact_mut(n).zip(v.chunks_exact(n)) {
+        for ((x, &y), &l) in row_w.iter_mut().zip(row_v).zip(lam.iter()) {
+            *x = y / l.sqrt();
+        }
+    }
+    product(
+        mtm,
+        n,
+        View::new(m, n, n, n),
+        Op::Plain,
+        View::new(w, n, n, n),
+        Op::Plain,
+    );
+    product(
+        m,
+        n,
+        View::new(mtm, n, n, n),
+        Op::Plain,
+        View::new(v, n, n, n),
+        Op::Adjoint,
+    );
     Ok(smin)
 }
 

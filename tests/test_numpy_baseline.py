@@ -50,6 +50,15 @@ def test_dense_random_model_agrees_with_numpy():
     assert (ref["nu0"], ref["nu"]) == expected_indices(2)
 
 
+def test_many_occupied_bands_agree_with_numpy():
+    """Six coupled blocks, 24 dense bands: 12 occupied, so overlaps, polar factors and the loop
+    product take the large-matrix paths (faer's eigensolver and products)."""
+    model = stacked_wilson_dirac(6, seed=4)
+    ref, _ = compare(model, 12, None, loop_points=24, lines=41)
+    assert ref["reason"] == 0
+    assert (ref["nu0"], ref["nu"]) == expected_indices(6)
+
+
 def test_gapless_point_is_undefined_in_both():
     """m = 1: the Wilson–Dirac gap closes at the TRIMs with two κ_i = 1/2; both say undefined."""
     ref, ds = compare(ts.models.wilson_dirac(), 2, {"mass": 1.0}, **SAMPLING)
