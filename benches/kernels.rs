@@ -289,4 +289,124 @@ fn main() {
             r.nu
         );
     }
+
+    if want("dense") {
+        dense_tables(&mut rng, reps, &inner);
+    }
+}
+
+/// A Hermitian eigensolver writing into (evals, vecs).
+type Solver = dyn Fn(&[C64], usize, &mut [f64], &mut [C64]);
+
+/// Products of many occupied bands (`dense::product` against its triple-loop reference) and the
+/// accuracy of the large-n eigensolvers (why faer is used from n = 9).
+fn dense_tables(rng: &mut Rng, reps: usize, inner: &dyn Fn(usize) -> usize) {
+    use toposweep::dense::{product, product_loops, Op, View};
+    println!(
+        "| overlap U†V, occupied of n bands | dense::product (µs) | triple loops (µs) | ratio |"
+    );
+    println!("|---|---|---|---|");
+    for occ in [8usize, 16, 32] {
+        let rows = 2 * occ;
+        let a = rng.hermitian(rows);
+        let b = rng.hermitian(rows);
+        let (va, vb) = (
+            View::new(&a, rows, occ, rows),
+            View::new(&b, rows, occ, rows),
+        );
+        let mut m = vec![c(0.0, 0.0); occ * occ];
+        let k = inner(400_000 / (occ * occ * occ));
+        let fast = time_ns(reps, k, |_| {
+            product(&mut m, occ, black_box(va), Op::Adjoint, vb, Op::Plain)
+        });
+        let slow = time_ns(reps, k, |_| {
+            product_loops(&mut m, occ, black_box(va), Op::Adjoint, vb, Op::Plain)
+        });
+        println!(
+            "| {occ} of {rows} | {:.2} | {:.2} | {:.1}× |",
+            fast / 1e3,
+            slow / 1e3,
+            slow / fast
+        );
+    }
+    println!();
+    // worst ‖Hv − λv‖ and ‖V†V − 1‖ over random and Kramers-degenerate matrices (|h_ij| ≤ 1)
+    let worst = |solve: &Solver, n: usize, rng: &mut Rng| {
+        let (mut e, mut v) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+        let (mut res, mut orth) = (0.0f64, 0.0f64);
+        for trial in 0..100 {
+            let h = if trial % 2 == 0 {
+                rng.hermitian(n)
+            } else {
+                kramers_pairs(rng, n)
+            };
+            solve(&h, n, &mut e, &mut v);
+            for kk in 0..n {
+                for i in 0..n {
+                    let hv: C64 = (0..n).map(|j| h[i * n + j] * v[j * n + kk]).sum();
+                    res = res.max((hv - v[i * n + kk] * e[kk]).norm());
+                }
+                for l in 0..n {
+                    let d: C64 = (0..n).map(|i| v[i * n + kk].conj() * v[i * n + l]).sum();
+                    orth = orth.max((d - if kk == l { 1.0 } else { 0.0 }).norm());
+                }
+            }
+        }
+        format!("{res:.1e} / {orth:.1e}")
+    };
+    println!("| n | nalgebra Householder: residual / orthogonality | faer |");
+    println!("|---|---|---|");
+    for n in [10usize, 12, 16, 24] {
+        let nal = worst(
+            &|h, n, e, v| toposweep::eigen::eigh_householder_into(h, n, e, v).unwrap(),
+            n,
+            rng,
+        );
+        #[cfg(feature = "faer")]
+        let fa = worst(
+            &|h, n, e, v| toposweep::eigen::eigh_faer_into(h, n, e, v).unwrap(),
+            n,
+            rng,
+        );
+        #[cfg(not(feature = "faer"))]
+        let fa = "(build with --features faer)".to_string();
+        println!("| {n} | {nal} | {fa} |");
+    }
+    println!();
+}
+
+/// A random Hermitian matrix whose eigenvalues come in exactly degenerate pairs (the spectrum of
+/// a model with time reversal and inversion): diag(A, A*) in a random unitary basis.
+fn kramers_pairs(rng: &mut Rng, n: usize) -> Vec<C64> {
+    let half = rng.hermitian(n / 2);
+    let mut block = vec![c(0.0, 0.0); n * n];
+    let m = n / 2;
+    for i in 0..m {
+        for j in 0..m {
+            block[(2 * i) * n + 2 * j] = half[i * m + j];
+            block[(2 * i + 1) * n + 2 * j + 1] = half[i * m + j].conj();
+        }
+    }
+    // random unitary: the eigenvectors of a random Hermitian matrix
+    let (_, u) = toposweep::eigen::eigh(&rng.hermitian(n), n).unwrap();
+    let mut out = vec![c(0.0, 0.0); n * n];
+    for i in 0..n {
+        for j in 0..n {
+            let mut s = c(0.0, 0.0);
+            for k in 0..n {
+                for l in 0..n {
+                    s += u[i * n + k] * block[k * n + l] * u[j * n + l].conj();
+                }
+            }
+            out[i * n + j] = s;
+        }
+    }
+    for i in 0..n {
+        for j in i..n {
+            let a = (out[i * n + j] + out[j * n + i].conj()) * 0.5;
+            out[i * n + j] = a;
+            out[j * n + i] = a.conj();
+        }
+    }
+    out
 }
