@@ -627,9 +627,9 @@ fn jacobi(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResul
 
 /// Smallest n sent to faer (when built with the `faer` feature, as the Python build is): every
 /// size above the small-matrix path. Worst of 100 random and Kramers-degenerate matrices at
-/// n = 10…24 (`cargo bench --no-default-features --features faer --bench kernels -- dense`): faer's eigenvector
-/// residuals ‖Hv − λv‖ stay below 1e-14, nalgebra's reach 1e-11 (and 5e-10 in other draws);
-/// faer is as fast from n = 12 and 15 % slower at n = 10 (`-- eigen`).
+/// n = 10…24 (`cargo bench --no-default-features --features faer --bench kernels -- dense`):
+/// faer's eigenvector residuals ‖Hv − λv‖ stay below 1e-14, nalgebra's reach 1e-11 (5e-10 in
+/// other draws); faer is as fast from n = 12 and 15 % slower at n = 10 (`-- eigen`).
 pub const FAER_MIN_N: usize = JACOBI_MAX_N + 1;
 
 #[cfg(feature = "faer")]
