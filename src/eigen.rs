@@ -2,9 +2,10 @@
 //!
 //! Small matrices (n ≤ `JACOBI_MAX_N` = 8) — the 2–8 band models that dominate sweeps — take a
 //! size-specialised, allocation-free path (`eigh_into`):
-//! - n = 4 first tries `two_level`, a closed form for spectra with two levels of equal
-//!   multiplicity (Kramers-degenerate bands, i.e. every model with time reversal and inversion),
-//!   checked numerically (‖A² − r²‖ ≤ 1e-14 r²) and skipped when the structure is absent.
+//! - n = 4 first tries `eigen_small::two_level4`, a closed form for spectra with two levels of
+//!   equal multiplicity (Kramers-degenerate bands, i.e. every model with time reversal and
+//!   inversion), checked numerically (|A² − r²| ≤ 1e-14 r² entrywise) and skipped when the
+//!   structure is absent (a generic matrix is refused after its row norms).
 //! - Otherwise `eigen_small`: Householder reduction to a real tridiagonal matrix and implicit QR
 //!   with Wilkinson shifts, in real arithmetic on fixed-size split re/im arrays (see that
 //!   module). Measured per matrix (`cargo bench … -- eigen`, callgrind): a generic 4×4 in
@@ -17,6 +18,16 @@
 //!   and mirrored) remains for warm starts and as the fallback when the Householder path
 //!   declines (Frobenius norm² outside [1e-200, 1e200], no convergence); `eigh_jacobi_into`
 //!   exposes it for benchmarks.
+//!
+//! `eigh_occupied_into` is the Wilson-line entry: all eigenvalues, but only the lowest `nocc`
+//! vectors, written straight into the n × nocc layout the overlaps use. For a half-filled
+//! Kramers 4×4 it forms one projector's vectors instead of two (~800 instructions per κ point
+//! against ~1700 for the full closed form and ~5400 for Jacobi; Wilson–Dirac, 3 points at
+//! 40 × 41 × 6: 102 M → 66 M instructions in total, callgrind).
+//!
+//! Non-finite input: the fast paths decline on their own (a NaN or infinite entry makes the
+//! norm they test NaN or infinite), so the entrywise finiteness test runs only before the
+//! fallbacks and is not paid per κ point.
 //!
 //! `eigh_warm_into` starts Jacobi from a guess of the eigenvectors — the previous κ point of a
 //! Wilson loop — so A = G†HG is nearly diagonal; measured, it does not pay at 40 κ per loop and
@@ -40,9 +51,21 @@ pub const JACOBI_MAX_N: usize = 8;
 const MAX_SWEEPS: usize = 60;
 
 fn check_buffers(h: &[C64], n: usize, evals: &[f64], vecs: &[C64]) -> CoreResult<()> {
+    check_sizes(h, n, evals, vecs)?;
+    check_finite(h, n)
+}
+
+fn check_sizes(h: &[C64], n: usize, evals: &[f64], vecs: &[C64]) -> CoreResult<()> {
     if h.len() < n * n || evals.len() < n || vecs.len() < n * n {
         return Err(CoreError::Internal("eigh_into: buffer too small".into()));
     }
+    Ok(())
+}
+
+/// The fast paths (`fast_full`, `fast_occupied`) need no separate test: a NaN or infinite entry
+/// makes their norm (r² or ‖H‖²) NaN or infinite, and they decline; this runs before the
+/// fallbacks and gives the error its message.
+fn check_finite(h: &[C64], n: usize) -> CoreResult<()> {
     if h[..n * n]
         .iter()
         .any(|z| !z.re.is_finite() || !z.im.is_finite())
@@ -56,12 +79,88 @@ fn check_buffers(h: &[C64], n: usize, evals: &[f64], vecs: &[C64]) -> CoreResult
 
 /// Eigen-decomposition into caller-provided buffers (`evals`: n, `vecs`: n*n).
 pub fn eigh_into(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResult<()> {
-    check_buffers(h, n, evals, vecs)?;
+    check_sizes(h, n, evals, vecs)?;
+    if n <= JACOBI_MAX_N && fast_full(h, n, evals, vecs) {
+        return Ok(());
+    }
+    check_finite(h, n)?;
     if n <= JACOBI_MAX_N {
         fixed_dispatch(h, n, None, evals, vecs)
     } else {
         large(h, n, evals, vecs)
     }
+}
+
+/// All eigenvalues (ascending, `evals`: n) and only the eigenvectors of the lowest `nocc`
+/// into `occ` (n × nocc, row-major: component i of vector k at `occ[i * nocc + k]`), the
+/// layout a Wilson line consumes. `work` (n × n) is scratch for the paths that form every
+/// vector. Writes directly and skips the unoccupied vectors where that pays: the Kramers closed
+/// form (n = 4, nocc = 2: one projector instead of two) and the Householder + QR path (the
+/// vectors are formed one by one at the end).
+pub fn eigh_occupied_into(
+    h: &[C64],
+    n: usize,
+    nocc: usize,
+    evals: &mut [f64],
+    occ: &mut [C64],
+    work: &mut [C64],
+) -> CoreResult<()> {
+    check_sizes(h, n, evals, work)?;
+    if nocc > n || occ.len() < n * nocc {
+        return Err(CoreError::Internal(
+            "eigh_occupied_into: buffer too small".into(),
+        ));
+    }
+    let done = match n {
+        2 => small_occupied::<2>(h, nocc, evals, occ),
+        3 => small_occupied::<3>(h, nocc, evals, occ),
+        4 => {
+            (nocc == 2 && eigen_small::two_level4::<1, 2>(h, evals, occ))
+                || small_occupied::<4>(h, nocc, evals, occ)
+        }
+        5 => small_occupied::<5>(h, nocc, evals, occ),
+        6 => small_occupied::<6>(h, nocc, evals, occ),
+        7 => small_occupied::<7>(h, nocc, evals, occ),
+        8 => small_occupied::<8>(h, nocc, evals, occ),
+        _ => false,
+    };
+    if done {
+        return Ok(());
+    }
+    check_finite(h, n)?;
+    if n <= JACOBI_MAX_N {
+        fixed_dispatch(h, n, None, evals, work)?;
+    } else {
+        large(h, n, evals, work)?;
+    }
+    for i in 0..n {
+        occ[i * nocc..(i + 1) * nocc].copy_from_slice(&work[i * n..i * n + nocc]);
+    }
+    Ok(())
+}
+
+/// Householder + QR with only the lowest `nocc` vectors formed; false when it declines.
+#[inline(always)]
+fn small_occupied<const N: usize>(
+    h: &[C64],
+    nocc: usize,
+    evals: &mut [f64],
+    occ: &mut [C64],
+) -> bool {
+    let Some(sol) = eigen_small::solve::<N>(h) else {
+        return false;
+    };
+    let order = sol.order();
+    for (k, &o) in order.iter().enumerate() {
+        evals[k] = sol.vals[o];
+    }
+    for (k, &o) in order[..nocc].iter().enumerate() {
+        let (xr, xi) = sol.vector(o);
+        for i in 0..N {
+            occ[i * nocc + k] = C64::new(xr[i], xi[i]);
+        }
+    }
+    true
 }
 
 /// Like [`eigh_into`], starting from `guess` (n×n, columns ≈ eigenvectors, e.g. those of the
@@ -114,17 +213,10 @@ pub fn eigh_jacobi_into(
     vecs: &mut [C64],
 ) -> CoreResult<()> {
     check_buffers(h, n, evals, vecs)?;
-    match n {
-        0 => Ok(()),
-        1 => fixed_dispatch(h, n, None, evals, vecs),
-        2 => jacobi_fixed::<2>(h, None, evals, vecs),
-        3 => jacobi_fixed::<3>(h, None, evals, vecs),
-        4 => jacobi_fixed::<4>(h, None, evals, vecs),
-        5 => jacobi_fixed::<5>(h, None, evals, vecs),
-        6 => jacobi_fixed::<6>(h, None, evals, vecs),
-        7 => jacobi_fixed::<7>(h, None, evals, vecs),
-        8 => jacobi_fixed::<8>(h, None, evals, vecs),
-        _ => large(h, n, evals, vecs),
+    if n <= JACOBI_MAX_N {
+        fixed_dispatch(h, n, None, evals, vecs)
+    } else {
+        large(h, n, evals, vecs)
     }
 }
 
@@ -161,143 +253,46 @@ fn fixed_dispatch(
             vecs[0] = C64::new(1.0, 0.0);
             Ok(())
         }
-        2 => small_or_jacobi::<2>(h, guess, evals, vecs),
-        3 => small_or_jacobi::<3>(h, guess, evals, vecs),
-        4 => {
-            if two_level::<4>(h, evals, vecs) {
-                return Ok(());
-            }
-            small_or_jacobi::<4>(h, guess, evals, vecs)
-        }
-        5 => small_or_jacobi::<5>(h, guess, evals, vecs),
-        6 => small_or_jacobi::<6>(h, guess, evals, vecs),
-        7 => small_or_jacobi::<7>(h, guess, evals, vecs),
-        8 => small_or_jacobi::<8>(h, guess, evals, vecs),
+        2 => jacobi_fixed::<2>(h, guess, evals, vecs),
+        3 => jacobi_fixed::<3>(h, guess, evals, vecs),
+        4 => jacobi_fixed::<4>(h, guess, evals, vecs),
+        5 => jacobi_fixed::<5>(h, guess, evals, vecs),
+        6 => jacobi_fixed::<6>(h, guess, evals, vecs),
+        7 => jacobi_fixed::<7>(h, guess, evals, vecs),
+        8 => jacobi_fixed::<8>(h, guess, evals, vecs),
         _ => Err(CoreError::Internal(format!(
             "fixed Jacobi called with n = {n}"
         ))),
     }
 }
 
-/// Householder + implicit QR (`eigen_small`) for a cold start, Jacobi for a warm start or when
-/// the former declines (norm out of range, no convergence).
-#[inline(always)]
-fn small_or_jacobi<const N: usize>(
-    h: &[C64],
-    guess: Option<&[C64]>,
-    evals: &mut [f64],
-    vecs: &mut [C64],
-) -> CoreResult<()> {
-    if guess.is_none() {
-        if let Some(sol) = eigen_small::solve::<N>(h) {
-            for (k, &o) in sol.order().iter().enumerate() {
-                evals[k] = sol.vals[o];
-                let (xr, xi) = sol.vector(o);
-                for i in 0..N {
-                    vecs[i * N + k] = C64::new(xr[i], xi[i]);
-                }
-            }
-            return Ok(());
-        }
+/// The production paths for 2 ≤ n ≤ 8: the Kramers closed form (n = 4), then Householder +
+/// QR. False when they decline (no two-level structure, norm out of range — also for any NaN
+/// or infinite entry — or no convergence); the caller then runs Jacobi.
+fn fast_full(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> bool {
+    match n {
+        2 => small_full::<2>(h, evals, vecs),
+        3 => small_full::<3>(h, evals, vecs),
+        4 => eigen_small::two_level4::<2, 4>(h, evals, vecs) || small_full::<4>(h, evals, vecs),
+        5 => small_full::<5>(h, evals, vecs),
+        6 => small_full::<6>(h, evals, vecs),
+        7 => small_full::<7>(h, evals, vecs),
+        8 => small_full::<8>(h, evals, vecs),
+        _ => false,
     }
-    jacobi_fixed::<N>(h, guess, evals, vecs)
 }
 
-/// Closed form for a spectrum with two levels of equal multiplicity N/2 (n = 2 always; n = 4
-/// whenever the bands are Kramers-degenerate at every κ, as in every model with both time
-/// reversal and inversion — Wilson–Dirac, Fu–Kane–Mele, BHZ). With d0 = tr H / N and
-/// A = H − d0, such a matrix satisfies A² = r²·1 exactly, so the eigenvalues are d0 ∓ r and
-/// P₋ = (1 − A/r)/2 projects onto the lower level; orthonormal eigenvectors come from
-/// Gram–Schmidt on the columns of P₋ and P₊ = 1 − P₋. The test ‖A² − r²‖ ≤ 1e-14 r² decides; the
-/// eigenvalue and projector errors are then ≤ ~1e-14 relative. Returns false (nothing written)
-/// when the structure is absent, and the caller runs Jacobi.
-// Index loops read like the matrix algebra they implement.
-#[allow(clippy::needless_range_loop)]
+/// Householder + implicit QR (`eigen_small`) with every vector formed.
 #[inline(always)]
-fn two_level<const N: usize>(h: &[C64], evals: &mut [f64], vecs: &mut [C64]) -> bool {
-    let zero = C64::new(0.0, 0.0);
-    let mut a = [[zero; N]; N];
-    let mut d0 = 0.0;
-    for i in 0..N {
-        d0 += h[i * N + i].re;
-    }
-    d0 /= N as f64;
-    for i in 0..N {
-        for j in 0..N {
-            a[i][j] = (h[i * N + j] + h[j * N + i].conj()) * 0.5;
-        }
-        a[i][i] -= d0;
-    }
-    // r² = tr(A²)/N = Σ|a_ij|²/N
-    let r2: f64 = a.iter().flatten().map(|z| z.norm_sqr()).sum::<f64>() / N as f64;
-    // (squares of the A² entries are compared below: keep them far from over- and underflow)
-    if !(1e-150..=1e150).contains(&r2) {
+fn small_full<const N: usize>(h: &[C64], evals: &mut [f64], vecs: &mut [C64]) -> bool {
+    let Some(sol) = eigen_small::solve::<N>(h) else {
         return false;
-    }
-    if N > 2 {
-        // A² − r² must vanish (A² is Hermitian: the upper triangle suffices)
-        let lim = 1e-14 * r2;
+    };
+    for (k, &o) in sol.order().iter().enumerate() {
+        evals[k] = sol.vals[o];
+        let (xr, xi) = sol.vector(o);
         for i in 0..N {
-            for j in i..N {
-                let mut s = zero;
-                for k in 0..N {
-                    s += a[i][k] * a[k][j];
-                }
-                if i == j {
-                    s -= r2;
-                }
-                if s.norm_sqr() > lim * lim {
-                    return false;
-                }
-            }
-        }
-    }
-    let r = r2.sqrt();
-    // Orthonormal columns of the projectors P₋ = (1 − A/r)/2, then P₊ = (1 + A/r)/2, without
-    // forming them: for a projector P and a unit vector u in its range, u†(P e_j) = conj(u_j),
-    // so removing u from column j leaves norm² P_jj − |u_j|². Each next vector is the column
-    // with the largest remaining norm (≥ 1/N of a unit vector: well conditioned).
-    let mut col = 0;
-    for sign in [-1.0f64, 1.0] {
-        let f = 0.5 * sign / r;
-        let column = |j: usize| -> [C64; N] {
-            std::array::from_fn(|i| a[i][j] * f + if i == j { 0.5 } else { 0.0 })
-        };
-        let first = col;
-        let mut found: [[C64; N]; N] = [[zero; N]; N];
-        for m in 0..N / 2 {
-            // remaining norm² of each column after removing the vectors found so far
-            let mut best = (0usize, f64::NEG_INFINITY);
-            for j in 0..N {
-                let mut nj = 0.5 + a[j][j].re * f;
-                for u in &found[..m] {
-                    nj -= u[j].norm_sqr();
-                }
-                if nj > best.1 {
-                    best = (j, nj);
-                }
-            }
-            let (j, nj) = best;
-            if nj <= 1e-3 || nj.is_nan() {
-                return false; // cannot happen for a rank-N/2 projector; be safe
-            }
-            let mut w = column(j);
-            for u in &found[..m] {
-                let c = u[j].conj();
-                for i in 0..N {
-                    w[i] -= u[i] * c;
-                }
-            }
-            let inv = 1.0 / nj.sqrt();
-            for i in 0..N {
-                w[i] *= inv;
-                vecs[i * N + col] = w[i];
-            }
-            found[m] = w;
-            col += 1;
-        }
-        for e in &mut evals[first..col] {
-            *e = d0 + sign * r;
+            vecs[i * N + k] = C64::new(xr[i], xi[i]);
         }
     }
     true
@@ -973,13 +968,30 @@ mod tests {
                 }
             }
             let (mut e1, mut v1) = (vec![0.0; 4], vec![z; 16]);
-            let taken = two_level::<4>(&h, &mut e1, &mut v1);
+            let taken = eigen_small::two_level4::<2, 4>(&h, &mut e1, &mut v1);
             // seed 7: splitting 1e-9 on top of O(1) levels — the rounding of H − d0 hides the
             // structure, so the check must refuse and leave it to Jacobi
             assert_eq!(taken, seed != 7, "seed {seed}");
             let (e0, v0) = eigh_reference(&h, 4);
             if taken {
                 same_decomposition(4, &e0, &v0, &e1, &v1);
+                // V†V = 1 to rounding, also across the two levels
+                for k in 0..4 {
+                    for l in 0..4 {
+                        let d: C64 = (0..4).map(|i| v1[i * 4 + k].conj() * v1[i * 4 + l]).sum();
+                        let want = if k == l { 1.0 } else { 0.0 };
+                        assert!((d - want).norm() < 1e-14, "seed {seed}: V†V {k} {l}");
+                    }
+                }
+                // the occupied-only variant: the same eigenvalues and lower-level vectors
+                let (mut e3, mut occ) = (vec![0.0; 4], vec![z; 8]);
+                assert!(eigen_small::two_level4::<1, 2>(&h, &mut e3, &mut occ));
+                assert_eq!(e1, e3);
+                for i in 0..4 {
+                    for k in 0..2 {
+                        assert_eq!(occ[i * 2 + k], v1[i * 4 + k]);
+                    }
+                }
             }
             let (e2, v2) = eigh(&h, 4).unwrap();
             same_decomposition(4, &e0, &v0, &e2, &v2);
@@ -987,13 +999,58 @@ mod tests {
         }
         // a generic matrix is not taken
         let (mut e, mut v) = (vec![0.0; 4], vec![z; 16]);
-        assert!(!two_level::<4>(&random_hermitian(4, 3), &mut e, &mut v));
-        // 2×2 always is
-        for seed in 0..5 {
-            let h = random_hermitian(2, 70 + seed);
-            assert!(two_level::<2>(&h, &mut e, &mut v));
-            let (e0, v0) = eigh_reference(&h, 2);
-            same_decomposition(2, &e0, &v0, &e, &v);
+        assert!(!eigen_small::two_level4::<2, 4>(
+            &random_hermitian(4, 3),
+            &mut e,
+            &mut v
+        ));
+    }
+
+    /// `eigh_occupied_into` against the full decomposition: the same eigenvalues and the same
+    /// occupied subspace (projector) for every n ≤ 12 and filling, generic and Kramers
+    /// matrices (n = 4: diag(a, a, b, b) in a random basis).
+    #[test]
+    fn occupied_only_matches_full() {
+        let z = C64::new(0.0, 0.0);
+        for n in 1..=12 {
+            for seed in 0..4u64 {
+                let mut h = random_hermitian(n, 3100 + 7 * n as u64 + seed);
+                if n == 4 && seed % 2 == 1 {
+                    let (_, u) = eigh_reference(&h, 4);
+                    let lam = [-0.7, -0.7, 0.4, 0.4];
+                    h = vec![z; 16];
+                    for i in 0..4 {
+                        for j in 0..4 {
+                            for k in 0..4 {
+                                h[i * 4 + j] += u[i * 4 + k] * lam[k] * u[j * 4 + k].conj();
+                            }
+                        }
+                    }
+                }
+                let (e0, v0) = eigh_reference(&h, n);
+                for nocc in 0..=n {
+                    let (mut e, mut occ, mut work) =
+                        (vec![0.0; n], vec![z; n * nocc], vec![z; n * n]);
+                    eigh_occupied_into(&h, n, nocc, &mut e, &mut occ, &mut work).unwrap();
+                    for k in 0..n {
+                        assert!((e[k] - e0[k]).abs() < 1e-13, "n={n} nocc={nocc}");
+                    }
+                    if nocc == 0 || nocc == n || e0[nocc] - e0[nocc - 1] < 1e-8 {
+                        continue;
+                    }
+                    for i in 0..n {
+                        for j in 0..n {
+                            let p: C64 = (0..nocc)
+                                .map(|b| occ[i * nocc + b] * occ[j * nocc + b].conj())
+                                .sum();
+                            let p0: C64 = (0..nocc)
+                                .map(|b| v0[i * n + b] * v0[j * n + b].conj())
+                                .sum();
+                            assert!((p - p0).norm() < 1e-12, "n={n} nocc={nocc} projector");
+                        }
+                    }
+                }
+            }
         }
     }
 
@@ -1053,5 +1110,36 @@ mod tests {
     fn rejects_nan() {
         let h = vec![C64::new(f64::NAN, 0.0); 4];
         assert!(matches!(eigh(&h, 2), Err(CoreError::InvalidInput(_))));
+        // the fast paths have no test of their own (they decline on a non-finite norm): a NaN
+        // or infinity anywhere, real or imaginary part, also in a Kramers-degenerate matrix
+        let z = C64::new(0.0, 0.0);
+        for n in 1..=9 {
+            let mut kramers = vec![z; n * n];
+            for i in 0..n {
+                kramers[i * n + i] = C64::new(if i < n / 2 { -1.0 } else { 1.0 }, 0.0);
+            }
+            for base in [random_hermitian(n, 5), kramers] {
+                for pos in 0..n * n {
+                    for bad in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+                        for part in 0..2 {
+                            let mut h = base.clone();
+                            if part == 0 {
+                                h[pos].re = bad;
+                            } else {
+                                h[pos].im = bad;
+                            }
+                            let (mut e, mut v) = (vec![0.0; n], vec![z; n * n]);
+                            let r = eigh_into(&h, n, &mut e, &mut v);
+                            assert!(matches!(r, Err(CoreError::InvalidInput(_))), "n={n}");
+                            let mut occ = vec![z; n * n];
+                            for nocc in [n / 2, n] {
+                                let r = eigh_occupied_into(&h, n, nocc, &mut e, &mut occ, &mut v);
+                                assert!(matches!(r, Err(CoreError::InvalidInput(_))), "n={n}");
+                            }
+                        }
+                    }
+                }
+            }
+        }
     }
 }

@@ -308,3 +308,154 @@ fn chase<const N: usize, const M: usize>(
     *e = el;
     true
 }
+
+/// Closed form for a 4×4 Hermitian matrix whose spectrum is two doubly degenerate levels —
+/// Kramers-degenerate bands, i.e. every 4-band model with time reversal and inversion
+/// (Wilson–Dirac, Fu–Kane–Mele, BHZ). With d0 = tr H / 4 and A = H − d0, such a matrix
+/// satisfies A² = r²·1 exactly, so the eigenvalues are d0 ∓ r and P∓ = (1 ∓ A/r)/2 project
+/// onto the levels (common practice, no source). The test |(A²)_ij − r² δ_ij| ≤ 1e-14 r² for
+/// every entry decides; the eigenvalues are then within ~1e-14 r of the true ones and the
+/// projectors within ~1e-14. Row norms (the diagonal of A²) are compared first, so a generic
+/// matrix is refused after ~60 instructions.
+///
+/// Eigenvectors come from Gram–Schmidt on two columns of each projector (the column with the
+/// largest diagonal entry P_jj ≥ 1/2, then the one with the largest remainder), normalised by
+/// their computed norms. `LEVELS` = 1 writes only the lower level (two vectors: the occupied
+/// pair of a half-filled Kramers model), 2 writes both; vector k goes to column k of `out`
+/// (row stride `LD`). Returns false (nothing written) when the structure is absent or a buffer
+/// is too short.
+// Index loops read like the matrix algebra they implement.
+#[allow(clippy::needless_range_loop)]
+#[inline(always)]
+pub(crate) fn two_level4<const LEVELS: usize, const LD: usize>(
+    h: &[crate::C64],
+    evals: &mut [f64],
+    out: &mut [crate::C64],
+) -> bool {
+    let (Some(h), Some(evals), Some(out)) =
+        (h.get(..16), evals.get_mut(..4), out.get_mut(..4 * LD))
+    else {
+        return false;
+    };
+    // (0 · Im h_ii is NaN for a NaN or infinite imaginary part, which the rest ignores: then
+    // r² is NaN and the closed form declines)
+    let d0 = 0.25 * (h[0].re + h[5].re + h[10].re + h[15].re)
+        + 0.0 * (h[0].im + h[5].im + h[10].im + h[15].im);
+    let mut ar = [[0.0f64; 4]; 4];
+    let mut ai = [[0.0f64; 4]; 4];
+    for i in 0..4 {
+        ar[i][i] = h[i * 5].re - d0;
+        for j in i + 1..4 {
+            let (x, y) = (h[i * 4 + j], h[j * 4 + i]);
+            let (re, im) = (0.5 * (x.re + y.re), 0.5 * (x.im - y.im));
+            ar[i][j] = re;
+            ai[i][j] = im;
+            ar[j][i] = re;
+            ai[j][i] = -im;
+        }
+    }
+    // diagonal of A²: the squared row norms
+    let mut rn = [0.0f64; 4];
+    for i in 0..4 {
+        for k in 0..4 {
+            rn[i] += ar[i][k] * ar[i][k] + ai[i][k] * ai[i][k];
+        }
+    }
+    let r2 = 0.25 * (rn[0] + rn[1] + rn[2] + rn[3]);
+    // (squares of the A² entries are compared below: keep them far from over- and underflow)
+    if !(1e-150..=1e150).contains(&r2) {
+        return false;
+    }
+    let lim = 1e-14 * r2;
+    if rn.iter().any(|&x| (x - r2).abs() > lim) {
+        return false;
+    }
+    // off-diagonal entries (A²)_ij = (a_ii + a_jj) a_ij + Σ_{k ≠ i, j} a_ik a_kj (a_ii real)
+    for i in 0..3 {
+        for j in i + 1..4 {
+            let t = ar[i][i] + ar[j][j];
+            let (mut sr, mut si) = (t * ar[i][j], t * ai[i][j]);
+            for k in 0..4 {
+                if k != i && k != j {
+                    sr += ar[i][k] * ar[k][j] - ai[i][k] * ai[k][j];
+                    si += ar[i][k] * ai[k][j] + ai[i][k] * ar[k][j];
+                }
+            }
+            if sr * sr + si * si > lim * lim {
+                return false;
+            }
+        }
+    }
+    let r = r2.sqrt();
+    for (lev, sign) in [(0usize, -1.0f64), (1, 1.0)].into_iter().take(LEVELS) {
+        let f = 0.5 * sign / r;
+        // column j of P = δ_ij/2 + f a_ij
+        #[inline(always)]
+        fn column(
+            ar: &[[f64; 4]; 4],
+            ai: &[[f64; 4]; 4],
+            f: f64,
+            j: usize,
+        ) -> ([f64; 4], [f64; 4]) {
+            let (mut cr, mut ci) = ([0.0; 4], [0.0; 4]);
+            for i in 0..4 {
+                cr[i] = f * ar[i][j];
+                ci[i] = f * ai[i][j];
+            }
+            cr[j] += 0.5;
+            (cr, ci)
+        }
+        // first vector: the column with the largest P_jj, i.e. the largest sign·a_jj
+        let mut j1 = 0;
+        for j in 1..4 {
+            if sign * ar[j][j] > sign * ar[j1][j1] {
+                j1 = j;
+            }
+        }
+        let (mut ur, mut ui) = column(&ar, &ai, f, j1);
+        let n1: f64 = (0..4).map(|i| ur[i] * ur[i] + ui[i] * ui[i]).sum();
+        let inv = 1.0 / n1.sqrt();
+        for i in 0..4 {
+            ur[i] *= inv;
+            ui[i] *= inv;
+        }
+        // second: the column with the largest norm left after removing u
+        // (P_jj − |u_j|², exact for a projector)
+        let mut j2 = usize::MAX;
+        let mut best = f64::NEG_INFINITY;
+        for j in 0..4 {
+            let left = 0.5 + f * ar[j][j] - (ur[j] * ur[j] + ui[j] * ui[j]);
+            if j != j1 && left > best {
+                (j2, best) = (j, left);
+            }
+        }
+        if j2 == usize::MAX || best <= 0.1 {
+            return false; // cannot happen for a rank-2 projector (best ≥ 1/3); be safe
+        }
+        let (mut wr, mut wi) = column(&ar, &ai, f, j2);
+        // w ← w − u (u†w), with the computed inner product
+        let (mut cr, mut ci) = (0.0, 0.0);
+        for i in 0..4 {
+            cr += ur[i] * wr[i] + ui[i] * wi[i];
+            ci += ur[i] * wi[i] - ui[i] * wr[i];
+        }
+        for i in 0..4 {
+            wr[i] -= ur[i] * cr - ui[i] * ci;
+            wi[i] -= ur[i] * ci + ui[i] * cr;
+        }
+        let n2: f64 = (0..4).map(|i| wr[i] * wr[i] + wi[i] * wi[i]).sum();
+        let inv = 1.0 / n2.sqrt();
+        let (c0, c1) = (2 * lev, 2 * lev + 1);
+        for i in 0..4 {
+            out[i * LD + c0] = crate::C64::new(ur[i], ui[i]);
+            out[i * LD + c1] = crate::C64::new(wr[i] * inv, wi[i] * inv);
+        }
+        evals[c0] = d0 + sign * r;
+        evals[c1] = d0 + sign * r;
+    }
+    if LEVELS == 1 {
+        evals[2] = d0 + r;
+        evals[3] = d0 + r;
+    }
+    true
+}

@@ -8,7 +8,7 @@
 //! (the Berry phase, so a band on an orbital at τ has x = τ).
 
 use crate::bloch::BlochSource;
-use crate::eigen::{eigh_into, eigh_reference_into};
+use crate::eigen::{eigh_into, eigh_occupied_into, eigh_reference_into};
 use crate::error::{CoreError, CoreResult};
 use crate::matrix::{matmul, overlap, unitarise, unitarise_reference, unitary_phases};
 use crate::C64;
@@ -263,13 +263,16 @@ pub fn wilson_line_with(
             // instructions per 3 parameter points; the G†HG transform outweighs the sweeps
             // saved when neighbouring κ points are 2π/40 apart), so the cold fixed-size
             // solver is the production path.
-            Kernels::Fast => eigh_into(hs, n, &mut e, &mut v)?,
-            Kernels::Reference => eigh_reference_into(hs, n, &mut e, &mut v)?,
+            // only the occupied vectors, written straight into `cur`
+            Kernels::Fast => eigh_occupied_into(hs, n, nocc, &mut e, &mut cur, &mut v)?,
+            Kernels::Reference => {
+                eigh_reference_into(hs, n, &mut e, &mut v)?;
+                for i in 0..n {
+                    cur[i * nocc..(i + 1) * nocc].copy_from_slice(&v[i * n..i * n + nocc]);
+                }
+            }
         }
         stats.add(&e, nocc, &kappa[s * dim..(s + 1) * dim]);
-        for i in 0..n {
-            cur[i * nocc..(i + 1) * nocc].copy_from_slice(&v[i * n..i * n + nocc]);
-        }
         if s == 0 {
             first.copy_from_slice(&cur);
         } else {
