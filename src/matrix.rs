@@ -93,7 +93,8 @@ pub fn unitarise(m: &mut [C64], n: usize) -> CoreResult<f64> {
 /// Closed-form polar factor of a 2×2 matrix. With A = M†M, s = |det M| = σ₁σ₂ and
 /// t = √(tr A + 2s) = σ₁ + σ₂, one has √A = (A + s·1)/t, hence
 /// U = M (√A)⁻¹ = M adj(A + s·1) / (s t).
-fn unitarise_2x2(m: &mut [C64]) -> f64 {
+#[inline]
+pub(crate) fn unitarise_2x2(m: &mut [C64]) -> f64 {
     let (m00, m01, m10, m11) = (m[0], m[1], m[2], m[3]);
     let a00 = m00.norm_sqr() + m10.norm_sqr();
     let a11 = m01.norm_sqr() + m11.norm_sqr();

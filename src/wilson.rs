@@ -10,7 +10,9 @@
 use crate::bloch::BlochSource;
 use crate::eigen::{eigh_into, eigh_occupied_into, eigh_reference_into};
 use crate::error::{CoreError, CoreResult};
-use crate::matrix::{matmul, overlap, unitarise, unitarise_reference, unitary_phases};
+use crate::matrix::{
+    matmul, overlap, unitarise, unitarise_2x2, unitarise_reference, unitary_phases,
+};
 use crate::C64;
 use rayon::prelude::*;
 use std::f64::consts::TAU;
@@ -221,22 +223,7 @@ pub fn wilson_line_with(
     let mut min_singular = f64::INFINITY;
     let mut step = |from: &[C64], to: &[C64], w: &mut Vec<C64>| -> CoreResult<f64> {
         if nocc == 2 && weight.is_none() && kernels == Kernels::Fast {
-            // one Kramers pair: overlap, polar factor and product written out for 2×2
-            let mut o = [C64::new(0.0, 0.0); 4];
-            for (f, t) in from.chunks_exact(2).zip(to.chunks_exact(2)) {
-                let (f0, f1) = (f[0].conj(), f[1].conj());
-                o[0] += f0 * t[0];
-                o[1] += f0 * t[1];
-                o[2] += f1 * t[0];
-                o[3] += f1 * t[1];
-            }
-            let s = unitarise(&mut o, 2)?;
-            let (w0, w1, w2, w3) = (w[0], w[1], w[2], w[3]);
-            w[0] = w0 * o[0] + w1 * o[2];
-            w[1] = w0 * o[1] + w1 * o[3];
-            w[2] = w2 * o[0] + w3 * o[2];
-            w[3] = w2 * o[1] + w3 * o[3];
-            return Ok(s);
+            return Ok(pair_step(from, to, w));
         }
         match weight {
             None => overlap(from, to, n, nocc, nocc, &mut m),
@@ -295,6 +282,41 @@ pub fn wilson_line_with(
         stats,
         min_singular,
     })
+}
+
+/// One step of a line with one occupied pair: W ← W · polar(F†T) for n × 2 row-major F, T
+/// (the previous and current occupied vectors). The overlap is summed in real arithmetic (the
+/// complex type's products cost shuffles on baseline x86-64), the 2×2 polar factor is the
+/// closed form of `matrix`. Returns the smallest singular value of F†T (0: left as is).
+#[inline(always)]
+fn pair_step(from: &[C64], to: &[C64], w: &mut [C64]) -> f64 {
+    let mut o = [0.0f64; 8]; // (re, im) of o00, o01, o10, o11
+    for (f, t) in from.chunks_exact(2).zip(to.chunks_exact(2)) {
+        let (f0r, f0i, f1r, f1i) = (f[0].re, f[0].im, f[1].re, f[1].im);
+        let (t0r, t0i, t1r, t1i) = (t[0].re, t[0].im, t[1].re, t[1].im);
+        // conj(f_a) t_b
+        o[0] += f0r * t0r + f0i * t0i;
+        o[1] += f0r * t0i - f0i * t0r;
+        o[2] += f0r * t1r + f0i * t1i;
+        o[3] += f0r * t1i - f0i * t1r;
+        o[4] += f1r * t0r + f1i * t0i;
+        o[5] += f1r * t0i - f1i * t0r;
+        o[6] += f1r * t1r + f1i * t1i;
+        o[7] += f1r * t1i - f1i * t1r;
+    }
+    let mut m = [
+        C64::new(o[0], o[1]),
+        C64::new(o[2], o[3]),
+        C64::new(o[4], o[5]),
+        C64::new(o[6], o[7]),
+    ];
+    let s = unitarise_2x2(&mut m);
+    let (w0, w1, w2, w3) = (w[0], w[1], w[2], w[3]);
+    w[0] = w0 * m[0] + w1 * m[2];
+    w[1] = w0 * m[1] + w1 * m[3];
+    w[2] = w2 * m[0] + w3 * m[2];
+    w[3] = w2 * m[1] + w3 * m[3];
+    s
 }
 
 /// Band statistics, per-point energies and per-point occupied eigenvectors (n × nocc each).
