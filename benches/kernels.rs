@@ -13,7 +13,8 @@ use std::hint::black_box;
 use std::time::Instant;
 use toposweep::bloch::{BlochSource, Hoppings};
 use toposweep::eigen::{
-    eigh_householder_into, eigh_into, eigh_jacobi_into, eigh_reference_into, eigh_warm_into,
+    eigh_householder_into, eigh_into, eigh_jacobi_into, eigh_occupied_into, eigh_reference_into,
+    eigh_warm_into,
 };
 use toposweep::engine::{evaluate_point, Method, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
@@ -170,35 +171,47 @@ fn main() {
                 fmt(hh)
             );
         }
-        // Kramers-degenerate 4×4 (Wilson–Dirac H(κ) at random κ): the closed two-level path
+        println!();
+        // 4×4 in detail: generic (random Hermitian, as for models without inversion) and
+        // Kramers-degenerate (Wilson–Dirac H(κ) at random κ: the closed two-level form), with
+        // every vector or only the lowest two (what a half-filled Wilson line asks for)
         let wdm = wilson_dirac().at(&[-2.0, 1.0]).unwrap();
         let kap: Vec<f64> = (0..192).map(|_| rng.next() + 0.5).collect();
-        let mut hk = vec![c(0.0, 0.0); 64 * 16];
-        wdm.fill(&kap, &mut hk).unwrap();
+        let mut kramers = vec![c(0.0, 0.0); 64 * 16];
+        wdm.fill(&kap, &mut kramers).unwrap();
+        let generic: Vec<C64> = (0..64).flat_map(|_| rng.hermitian(4)).collect();
+        let mut occ = vec![c(0.0, 0.0); 8];
         let k = inner(20_000);
-        let fast = time_ns(reps, k, |i| {
-            eigh_into(
-                black_box(&hk[(i % 64) * 16..(i % 64 + 1) * 16]),
-                4,
-                &mut e4,
-                &mut v4,
-            )
-            .unwrap()
-        });
-        let slow = time_ns(reps, k, |i| {
-            eigh_reference_into(
-                black_box(&hk[(i % 64) * 16..(i % 64 + 1) * 16]),
-                4,
-                &mut e4,
-                &mut v4,
-            )
-            .unwrap()
-        });
-        println!(
-            "| 4, Kramers-degenerate (Wilson–Dirac H(κ)) | {:.3} | – | – | {:.3} (closed two-level form) | – | – |",
-            slow / 1e3,
-            fast / 1e3
-        );
+        println!("| 4×4 | reference Jacobi (µs) | fixed-size Jacobi (µs) | production, all vectors (µs) | production, lowest two vectors (µs) |");
+        println!("|---|---|---|---|---|");
+        for (name, hk) in [
+            ("generic (random Hermitian)", &generic),
+            (
+                "Kramers-degenerate (Wilson–Dirac H(κ)), closed form",
+                &kramers,
+            ),
+        ] {
+            let m = |i: usize| &hk[(i % 64) * 16..(i % 64 + 1) * 16];
+            let slow = time_ns(reps, k, |i| {
+                eigh_reference_into(black_box(m(i)), 4, &mut e4, &mut v4).unwrap()
+            });
+            let jac = time_ns(reps, k, |i| {
+                eigh_jacobi_into(black_box(m(i)), 4, &mut e4, &mut v4).unwrap()
+            });
+            let full = time_ns(reps, k, |i| {
+                eigh_into(black_box(m(i)), 4, &mut e4, &mut v4).unwrap()
+            });
+            let half = time_ns(reps, k, |i| {
+                eigh_occupied_into(black_box(m(i)), 4, 2, &mut e4, &mut occ, &mut v4).unwrap()
+            });
+            println!(
+                "| {name} | {:.3} | {:.3} | {:.3} | {:.3} |",
+                slow / 1e3,
+                jac / 1e3,
+                full / 1e3,
+                half / 1e3
+            );
+        }
         println!();
     }
 

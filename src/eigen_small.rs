@@ -128,9 +128,9 @@ pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
             continue; // already tridiagonal in this column (τ_k = 0: H_k = 1)
         }
         let (x0r, x0i) = (ar[s][k], ai[s][k]);
-        let ax0 = (x0r * x0r + x0i * x0i).sqrt();
-        let xnorm = (ax0 * ax0 + sigma).sqrt();
-        // phase of x0 (1 when x0 = 0), so v0 = x0 + phase·‖x‖ has no cancellation
+        let a2 = x0r * x0r + x0i * x0i;
+        let (ax0, xnorm) = (a2.sqrt(), (a2 + sigma).sqrt()); // independent: run side by side
+                                                             // phase of x0 (1 when x0 = 0), so v0 = x0 + phase·‖x‖ has no cancellation
         let (pr, pi) = if ax0 > 0.0 {
             (x0r / ax0, x0i / ax0)
         } else {
@@ -226,11 +226,19 @@ pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
         if iterations > 30 * N {
             return None;
         }
-        // Wilkinson shift: the eigenvalue of the trailing 2×2 closer to d[hi]
+        // Wilkinson shift: the eigenvalue m ∓ √(δ² + b²) of the trailing 2×2 closer to d[hi]
+        // (m the mean, δ half the difference of its diagonal). Written without the usual
+        // division: its cancellation costs ε‖T‖ in the shift, which any shift may have (every
+        // step is an exact rotation whatever the shift); it shortens the chain per step.
         let delta = 0.5 * (d[hi - 1] - d[hi]);
         let b = e[hi - 1];
         let root = (delta * delta + b * b).sqrt();
-        let mu = d[hi] - b * b / (delta + if delta >= 0.0 { root } else { -root });
+        let mean = 0.5 * (d[hi - 1] + d[hi]);
+        let mu = if delta >= 0.0 {
+            mean - root
+        } else {
+            mean + root
+        };
         // one sweep on the block lo..=hi, its size a compile-time constant (unrolled, in
         // registers)
         let (db, eb, zb) = (&mut d[lo..=hi], &mut e[lo..=hi], &mut zt[lo..=hi]);
@@ -281,14 +289,20 @@ fn chase<const N: usize, const M: usize>(
         // r > 0 in an unreduced block: the first z is e[lo] ≠ 0; later z = −s·e[k+1] vanishes
         // only with s = 0, and then x = e[k] ≠ 0. (Were it ever 0, the NaNs would end in the
         // caller's Jacobi fallback, not in a result.)
-        let r = (x * x + z * z).sqrt();
-        let inv = 1.0 / r;
+        // c², s² and cs for T come from 1/r² (a division), c and s for Z and the bulge from
+        // 1/r = r·(1/r²): the square root runs beside the division instead of before it, so
+        // the chain to the next rotation (x = e[k]) waits for the division only
+        let (xx, zz) = (x * x, z * z);
+        let r2 = xx + zz;
+        let inv2 = 1.0 / r2;
+        let r = r2.sqrt();
+        let inv = r * inv2;
         let (c, s) = (x * inv, -z * inv);
         if k > 0 {
             el[k - 1] = r;
         }
         let (a, b, dd) = (dl[k], el[k], dl[k + 1]);
-        let (cc, ss, cs) = (c * c, s * s, c * s);
+        let (cc, ss, cs) = (xx * inv2, zz * inv2, -(x * z) * inv2);
         dl[k] = a * cc - 2.0 * b * cs + dd * ss;
         dl[k + 1] = a * ss + 2.0 * b * cs + dd * cc;
         el[k] = (a - dd) * cs + b * (cc - ss);
