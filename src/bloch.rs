@@ -254,11 +254,27 @@ impl BlochSource for Bloch {
                     .collect();
             }
             for (s, o) in out[..points * nn].chunks_exact_mut(nn).enumerate() {
-                o.copy_from_slice(&folded.constant);
-                for (i, &m) in folded.harmonics.iter().enumerate() {
+                let mut pairs = folded
+                    .harmonics
+                    .iter()
+                    .zip(folded.pairs.chunks_exact(2 * nn));
+                // the first harmonic writes constant + its combination in one pass (no copy)
+                match pairs.next() {
+                    Some((&m, pair)) => {
+                        let (sn, cs) = roots[(m * s) % points];
+                        let (a, b) = pair.split_at(nn);
+                        let (k, o) = (&folded.constant[..nn], &mut o[..nn]);
+                        for i in 0..nn {
+                            o[i].re = k[i].re + a[i].re * cs + b[i].re * sn;
+                            o[i].im = k[i].im + a[i].im * cs + b[i].im * sn;
+                        }
+                    }
+                    None => o.copy_from_slice(&folded.constant),
+                }
+                for (&m, pair) in pairs {
                     let (sn, cs) = roots[(m * s) % points];
-                    let pair = &folded.pairs[2 * i * nn..(2 * i + 2) * nn];
-                    add_combination(o, &pair[..nn], &pair[nn..], cs, sn);
+                    let (a, b) = pair.split_at(nn);
+                    add_combination(o, a, b, cs, sn);
                 }
             }
         });
