@@ -8,9 +8,10 @@
 //!   structure is absent (a generic matrix is refused after its row norms).
 //! - Otherwise `eigen_small`: Householder reduction to a real tridiagonal matrix and implicit QR
 //!   with Wilkinson shifts, in real arithmetic on fixed-size split re/im arrays (see that
-//!   module). Measured per matrix (`cargo bench … -- eigen`, callgrind): a generic 4×4 in
-//!   ~4150 instructions / ~0.9 µs, 8×8 ~27 000 / ~5 µs, against ~5400 / 1.0–1.5 µs and
-//!   ~9–15 µs for the size-specialised Jacobi below. The 4×4 is latency-bound (≈18 serial
+//!   module). Measured per matrix (`cargo bench … -- eigen`; callgrind on random matrices): a
+//!   generic 4×4 in ~4100 instructions / ~0.9 µs, 8×8 ~27 000 / ~5 µs, against ~8500 /
+//!   1.0–1.5 µs and ~97 000 / 9–15 µs for the size-specialised Jacobi below (the dynamic
+//!   reference Jacobi: ~16 700 and ~155 000). The 4×4 is latency-bound (≈18 serial
 //!   Givens rotations of ~7 QR steps, each a division → update chain): built for AVX2 + FMA it
 //!   needs 3100 instructions but no less time, so the crate stays on baseline x86-64. The
 //!   issue's 0.5 µs per generic 4×4 is not reached on this machine (2.1 GHz, shared).
@@ -22,9 +23,10 @@
 //!
 //! `eigh_occupied_into` is the Wilson-line entry: all eigenvalues, but only the lowest `nocc`
 //! vectors, written straight into the n × nocc layout the overlaps use. For a half-filled
-//! Kramers 4×4 it forms one projector's vectors instead of two (~800 instructions per κ point
-//! against ~1700 for the full closed form and ~5400 for Jacobi; Wilson–Dirac, 3 points at
-//! 40 × 41 × 6: 102 M → 66 M instructions in total, callgrind).
+//! Kramers 4×4 it forms one projector's vectors instead of two (callgrind per call: ~870
+//! instructions, against ~1300 for the full closed form, ~2000 for the closed form before this
+//! rewrite and ~2900 for the fixed-size Jacobi on the same Dirac-matrix H; ~810 per κ point of
+//! a Wilson–Dirac line; 3 points at 40 × 41 × 6: 102 M → 64 M instructions in total).
 //!
 //! Non-finite input: the fast paths decline on their own (a NaN or infinite entry makes the
 //! norm they test NaN or infinite), so the entrywise finiteness test runs only before the
