@@ -1,7 +1,7 @@
 //! Dense Hermitian eigensolvers.
 //!
-//! Small matrices (n ≤ `JACOBI_MAX_N` = 8) — the 2–8 band models that dominate sweeps — take a
-//! size-specialised, allocation-free path (`eigh_into`):
+//! Small matrices (n ≤ `SMALL_MAX_N` = 16) — the 2–16 band models that dominate sweeps — take
+//! a size-specialised, allocation-free path (`eigh_into`):
 //! - n = 4 first tries `eigen_small::two_level4`, a closed form for spectra with two levels of
 //!   equal multiplicity (Kramers-degenerate bands, i.e. every model with time reversal and
 //!   inversion), checked numerically (|A² − r²| ≤ 1e-14 r² entrywise) and skipped when the
@@ -35,10 +35,11 @@
 //! `eigh_warm_into` starts Jacobi from a guess of the eigenvectors — the previous κ point of a
 //! Wilson loop — so A = G†HG is nearly diagonal; measured, it does not pay at 40 κ per loop and
 //! the Wilson lines do not use it.
-//! The straightforward dynamic-size Jacobi (`eigh_reference_into`) is kept as the reference the
-//! fast paths are tested against. Larger matrices use faer's Hermitian eigensolver when the crate
-//! is built with the `faer` feature (the Python build is; see `FAER_MIN_N` for why from n = 9),
-//! and nalgebra's Householder tridiagonalisation + implicit QL (`SymmetricEigen`) otherwise:
+//! The straightforward dynamic-size Jacobi (`eigh_reference_into`, n ≤ 16) is kept as the
+//! reference the fast paths are tested against. Larger matrices (n > 16, or 9…16 if the
+//! Householder path declines) use faer's Hermitian eigensolver when the crate is built with
+//! the `faer` feature (the Python build is; see `FAER_MIN_N` for why from n = 9), and
+//! nalgebra's Householder tridiagonalisation + implicit QL (`SymmetricEigen`) otherwise:
 //! measured per matrix, faer is 1.7× (n = 32) and 2.3× (n = 64) faster.
 //!
 //! Layout: `h` is row-major n×n; eigenvalues come out ascending and eigenvector k is column k
@@ -51,6 +52,11 @@ use nalgebra::DMatrix;
 
 /// Largest size handled by the Jacobi path.
 pub const JACOBI_MAX_N: usize = 8;
+/// Largest size handled by the fixed-size Householder + QR path (`eigen_small`). From 9 to 16
+/// it replaces the large-matrix solvers: per matrix 14 µs vs 24 µs (nalgebra) at n = 12 and
+/// 29 µs vs 47 µs at n = 16, eigenvector residuals ~5e-15 where nalgebra's reach 1e-10
+/// (random matrices, `--no-default-features`; faer's are below 1e-14, see `FAER_MIN_N`).
+pub const SMALL_MAX_N: usize = 16;
 const MAX_SWEEPS: usize = 60;
 
 fn check_buffers(h: &[C64], n: usize, evals: &[f64], vecs: &[C64]) -> CoreResult<()> {
@@ -83,7 +89,7 @@ fn check_finite(h: &[C64], n: usize) -> CoreResult<()> {
 /// Eigen-decomposition into caller-provided buffers (`evals`: n, `vecs`: n*n).
 pub fn eigh_into(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResult<()> {
     check_sizes(h, n, evals, vecs)?;
-    if n <= JACOBI_MAX_N && fast_full(h, n, evals, vecs) {
+    if fast_full(h, n, evals, vecs) {
         return Ok(());
     }
     check_finite(h, n)?;
@@ -125,6 +131,14 @@ pub fn eigh_occupied_into(
         6 => small_occupied::<6>(h, nocc, evals, occ),
         7 => small_occupied::<7>(h, nocc, evals, occ),
         8 => small_occupied::<8>(h, nocc, evals, occ),
+        9 => small_occupied::<9>(h, nocc, evals, occ),
+        10 => small_occupied::<10>(h, nocc, evals, occ),
+        11 => small_occupied::<11>(h, nocc, evals, occ),
+        12 => small_occupied::<12>(h, nocc, evals, occ),
+        13 => small_occupied::<13>(h, nocc, evals, occ),
+        14 => small_occupied::<14>(h, nocc, evals, occ),
+        15 => small_occupied::<15>(h, nocc, evals, occ),
+        16 => small_occupied::<16>(h, nocc, evals, occ),
         _ => false,
     };
     if done {
@@ -190,8 +204,10 @@ pub fn eigh_warm_into(
     }
 }
 
-/// The straightforward path: dynamic-size cyclic Jacobi for n ≤ `JACOBI_MAX_N`, Householder
-/// above. Reference for tests and benchmarks of the fast paths.
+/// The straightforward path: dynamic-size cyclic Jacobi for n ≤ `SMALL_MAX_N`, nalgebra's
+/// Householder above. Reference for tests and benchmarks of the fast paths (Jacobi up to 16:
+/// nalgebra's eigenvectors are too rough to check the fast path against, residuals up to ~1e-8
+/// seen at n = 14).
 pub fn eigh_reference_into(
     h: &[C64],
     n: usize,
@@ -199,7 +215,7 @@ pub fn eigh_reference_into(
     vecs: &mut [C64],
 ) -> CoreResult<()> {
     check_buffers(h, n, evals, vecs)?;
-    if n <= JACOBI_MAX_N {
+    if n <= SMALL_MAX_N {
         jacobi(h, n, evals, vecs)
     } else {
         householder(h, n, evals, vecs)
@@ -269,9 +285,10 @@ fn fixed_dispatch(
     }
 }
 
-/// The production paths for 2 ≤ n ≤ 8: the Kramers closed form (n = 4), then Householder +
-/// QR. False when they decline (no two-level structure, norm out of range — also for any NaN
-/// or infinite entry — or no convergence); the caller then runs Jacobi.
+/// The production paths for 2 ≤ n ≤ `SMALL_MAX_N`: the Kramers closed form (n = 4), then
+/// Householder + QR. False when they decline (no two-level structure, norm out of range — also
+/// for any NaN or infinite entry — or no convergence) or n is outside; the caller then runs
+/// Jacobi (n ≤ 8) or the large-matrix solver.
 fn fast_full(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> bool {
     match n {
         2 => small_full::<2>(h, evals, vecs),
@@ -281,6 +298,14 @@ fn fast_full(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> bool {
         6 => small_full::<6>(h, evals, vecs),
         7 => small_full::<7>(h, evals, vecs),
         8 => small_full::<8>(h, evals, vecs),
+        9 => small_full::<9>(h, evals, vecs),
+        10 => small_full::<10>(h, evals, vecs),
+        11 => small_full::<11>(h, evals, vecs),
+        12 => small_full::<12>(h, evals, vecs),
+        13 => small_full::<13>(h, evals, vecs),
+        14 => small_full::<14>(h, evals, vecs),
+        15 => small_full::<15>(h, evals, vecs),
+        16 => small_full::<16>(h, evals, vecs),
         _ => false,
     }
 }
@@ -536,7 +561,7 @@ fn jacobi_fixed<const N: usize>(
 /// Cyclic complex Jacobi. Each rotation J = D R (D a diagonal phase, R a real Givens rotation)
 /// annihilates one off-diagonal pair; A ← J†AJ and V ← VJ.
 fn jacobi(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResult<()> {
-    let mut a = [C64::new(0.0, 0.0); JACOBI_MAX_N * JACOBI_MAX_N];
+    let mut a = [C64::new(0.0, 0.0); SMALL_MAX_N * SMALL_MAX_N];
     for i in 0..n {
         for j in 0..n {
             // symmetrise: use the Hermitian part so round-off in the input cannot bias the result
@@ -759,15 +784,15 @@ mod tests {
 
     /// H = U Λ U† with a random unitary U and prescribed spectra: well separated, pairs and
     /// triples split by 1e-6, 1e-10, 1e-14 and exactly degenerate, all equal, and scaled far
-    /// from 1 (1e±120, beyond the Householder path's safe range: Jacobi takes over). Checks
-    /// every fast path (n ≤ 8) to the accuracy the module promises: eigenvalues within
-    /// 1e-14 ‖H‖, residuals ‖Hv − λv‖ ≤ 1e-13 ‖H‖, V†V = 1 within 1e-14, and the projector
-    /// onto every well-separated group of eigenvalues within 1e-12.
+    /// from 1 (1e±120: the Householder path rescales by a power of two). Checks every fast path
+    /// (n ≤ 16) against the prescribed spectrum to the accuracy the module promises: eigenvalues
+    /// within 1e-14 ‖H‖, residuals ‖Hv − λv‖ ≤ 1e-13 ‖H‖, V†V = 1 within 1e-14, and the
+    /// projector onto every well-separated group of eigenvalues within 1e-12.
     #[test]
     #[allow(clippy::needless_range_loop)]
     fn fast_paths_accurate_on_clustered_spectra() {
         let z = C64::new(0.0, 0.0);
-        for n in 1..=JACOBI_MAX_N {
+        for n in 1..=SMALL_MAX_N {
             for (case, &delta) in [f64::NAN, 1e-6, 1e-10, 1e-14, 0.0, -1.0, 1e120, 1e-120]
                 .iter()
                 .enumerate()
@@ -856,7 +881,7 @@ mod tests {
     #[test]
     fn fast_paths_on_reduced_structures() {
         let z = C64::new(0.0, 0.0);
-        for n in 2..=JACOBI_MAX_N {
+        for n in 2..=SMALL_MAX_N {
             for seed in 0..6u64 {
                 let full = random_hermitian(n, 4400 + 17 * n as u64 + seed);
                 // block boundaries from the seed; seed 0: diagonal; seed 5: tridiagonal

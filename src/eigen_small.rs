@@ -1,4 +1,4 @@
-//! Size-specialised Hermitian eigensolver for 3 ≤ n ≤ 8: Householder reduction to a real
+//! Size-specialised Hermitian eigensolver for 2 ≤ n ≤ 16: Householder reduction to a real
 //! symmetric tridiagonal matrix, then implicit QR steps with Wilkinson shifts.
 //!
 //! Everything runs in real arithmetic on split real/imaginary arrays of fixed size (one
@@ -14,7 +14,8 @@
 //!    is set to zero when |e_i| ≤ ε‖T‖ (normwise: it moves an eigenvalue by at most ε‖H‖, the
 //!    accuracy asked for; a relative test per pair of diagonal entries cost ~5 % more
 //!    instructions and is not needed for it). Each sweep runs on a block whose size is a
-//!    compile-time constant (`chase::<N, M>`), so it unrolls and stays in registers.
+//!    compile-time constant up to 8 (`chase::<N, M>`), so it unrolls and stays in registers;
+//!    larger blocks (n = 9…16) take the same loop with a run-time length (`chase_any`).
 //! 4. Eigenvector k is Q_H D Z e_k, formed only on request ([`SmallEigen::vector`]) by
 //!    applying D and the reflections backwards to column k of Z: half the work of carrying the
 //!    complex Q through the rotations, and callers that want only the occupied vectors pay only
@@ -24,8 +25,9 @@
 //! §8.3 — handbook fact): eigenvalues to a few ε‖H‖, residuals ‖Hv − λv‖ of a few ε‖H‖ and
 //! orthonormality to a few ε, also for degenerate and clustered spectra (the eigenvectors are
 //! columns of a product of unitary transforms, never solved for). A matrix whose Frobenius
-//! norm² is outside [1e-200, 1e200] (where squares could under- or overflow) or an iteration
-//! that does not converge in 30 n steps returns `false`, and the caller runs Jacobi.
+//! norm² is outside [1e-200, 1e200] (where squares could under- or overflow) is first scaled
+//! by a power of two (exact); non-finite input or an iteration that does not converge in
+//! 30 n steps returns `None`, and the caller runs Jacobi or the large-matrix solver.
 
 /// Result of [`solve`]: eigenvalues (unsorted) and the factors Q_H, D, Z of the eigenvectors.
 pub(crate) struct SmallEigen<const N: usize> {
@@ -113,9 +115,29 @@ pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
     for k in 0..N {
         out.zt[k][k] = 1.0;
     }
+    // Far from 1 (where squares could under- or overflow) the matrix is scaled by a power of
+    // two — exact — and the eigenvalues scaled back at the end. NaN or ±∞ anywhere: decline.
+    let mut unscale = 1.0;
     if !(1e-200..=1e200).contains(&total) {
-        // the zero matrix has identity eigenvectors; anything else goes to Jacobi
-        return (total == 0.0).then_some(out);
+        let big = ar
+            .iter()
+            .chain(&ai)
+            .flatten()
+            .fold(0.0f64, |m, x| m.max(x.abs()));
+        if total.is_nan() || !big.is_finite() {
+            return None;
+        }
+        if big == 0.0 {
+            return Some(out); // the zero matrix: identity eigenvectors
+        }
+        let e = big.log2().round() as i32;
+        unscale = 2f64.powi(e);
+        let scale = 2f64.powi(-e);
+        for row in ar.iter_mut().chain(ai.iter_mut()) {
+            for x in row.iter_mut() {
+                *x *= scale;
+            }
+        }
     }
     // 1. Householder reflections on columns 0 … N−3
     for k in 0..N.saturating_sub(2) {
@@ -250,7 +272,7 @@ pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
             6 => chase::<N, 6>(db, eb, zb, mu),
             7 => chase::<N, 7>(db, eb, zb, mu),
             8 => chase::<N, 8>(db, eb, zb, mu),
-            _ => false,
+            _ => chase_any(db, eb, zb, mu),
         };
         if !done {
             return None;
@@ -259,7 +281,7 @@ pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
     if d.iter().any(|x| !x.is_finite()) {
         return None;
     }
-    out.vals = d;
+    out.vals = d.map(|x| x * unscale);
     Some(out)
 }
 
@@ -320,6 +342,47 @@ fn chase<const N: usize, const M: usize>(
     }
     *d = dl;
     *e = el;
+    true
+}
+
+/// [`chase`] for blocks of any size (above 8: not unrolled, one instantiation per N only).
+// Index loops read like the matrix algebra they implement.
+#[allow(clippy::needless_range_loop)]
+fn chase_any<const N: usize>(d: &mut [f64], e: &mut [f64], zt: &mut [[f64; N]], mu: f64) -> bool {
+    let m = d.len();
+    if m < 2 || e.len() < m || zt.len() < m {
+        return false;
+    }
+    let mut x = d[0] - mu;
+    let mut z = e[0];
+    for k in 0..m - 1 {
+        let (xx, zz) = (x * x, z * z);
+        let r2 = xx + zz;
+        let inv2 = 1.0 / r2;
+        let r = r2.sqrt();
+        let inv = r * inv2;
+        let (c, s) = (x * inv, -z * inv);
+        if k > 0 {
+            e[k - 1] = r;
+        }
+        let (a, b, dd) = (d[k], e[k], d[k + 1]);
+        let (cc, ss, cs) = (xx * inv2, zz * inv2, -(x * z) * inv2);
+        d[k] = a * cc - 2.0 * b * cs + dd * ss;
+        d[k + 1] = a * ss + 2.0 * b * cs + dd * cc;
+        e[k] = (a - dd) * cs + b * (cc - ss);
+        if k + 2 < m {
+            let f = e[k + 1];
+            z = -s * f;
+            e[k + 1] = c * f;
+            x = e[k];
+        }
+        let (lo, hi) = zt.split_at_mut(k + 1);
+        for (p, q) in lo[k].iter_mut().zip(hi[0].iter_mut()) {
+            let (zk, zk1) = (*p, *q);
+            *p = c * zk - s * zk1;
+            *q = s * zk + c * zk1;
+        }
+    }
     true
 }
 
