@@ -14,6 +14,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
+import numpy as np
 import xarray as xr
 from xarray.indexes import PandasIndex
 
@@ -58,7 +59,11 @@ def _variables(
     indexes: dict[str, PandasIndex] = {}
     sizes: dict[str, int] = {}
     for name, (dims, values, attrs) in [*data.items(), *coords.items()]:
-        var = xr.Variable(dims, values, attrs)
+        values = np.asarray(values)
+        if values.dtype.kind not in "biuf":
+            raise ValueError("only numeric variables take the fast path")
+        # plain numeric ndarrays need none of the conversions the checked constructor tries
+        var = xr.Variable(dims, values, attrs, fastpath=True)
         for d, n in zip(var.dims, var.shape, strict=True):
             if sizes.setdefault(d, n) != n:
                 raise ValueError(f"dimension {d!r} has sizes {sizes[d]} and {n}")
