@@ -72,3 +72,15 @@ def test_unusual_coordinate_layout_follows_the_public_rules():
     got = assemble(data, coords, {})
     xr.testing.assert_identical(got, xr.Dataset(data, coords=coords))
     assert "x" not in got.xindexes
+
+
+def test_results_do_not_share_coordinate_attributes():
+    """Reused indexes must not tie results together: editing one leaves the next untouched."""
+    model = ts.models.wilson_dirac()
+    kw = {"loop_points": 12, "lines": 7, "gap_starts": 0, "certify": False}
+    first = ts.invariants(model, 2, {"mass": -2.0}, **kw)
+    first.axis.attrs["long_name"] = "changed by the user"
+    first.axis.attrs["extra"] = 1
+    second = ts.invariants(model, 2, {"mass": -2.0}, **kw)
+    assert second.axis.attrs["long_name"] == "reciprocal lattice axis"
+    assert "extra" not in second.axis.attrs

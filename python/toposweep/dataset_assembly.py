@@ -69,31 +69,33 @@ def _variables(
                 raise ValueError(f"dimension {d!r} has sizes {sizes[d]} and {n}")
         if name in coords and var.dims == (name,):
             # a dimension coordinate: default pandas index, stored as its IndexVariable
-            index = _default_index(name, var)
-            var = index.create_variables({name: var})[name]
-            indexes[name] = index
+            indexes[name], var = _index_coordinate(name, var)
         variables[name] = var
     if any(d in coords and d not in indexes for d in sizes):
         raise ValueError("a coordinate named like a dimension does not lie along it")
     return variables, indexes, sizes
 
 
-#: indexes of the small fixed dimensions every result has (axis, cut, trim, kappa_axis)
-_INDEX_CACHE: dict[tuple[str, str, bytes], PandasIndex] = {}
+#: index and IndexVariable of the small fixed dimensions every result has (axis, cut, trim, ...)
+_INDEX_CACHE: dict[tuple[str, str, bytes], tuple[PandasIndex, xr.Variable]] = {}
 
 
-def _default_index(name: str, var: xr.Variable) -> PandasIndex:
-    """Default index of a dimension coordinate, reused for short recurring ones.
+def _index_coordinate(name: str, var: xr.Variable) -> tuple[PandasIndex, xr.Variable]:
+    """Default index of a dimension coordinate and the IndexVariable that goes with it.
 
-    xarray treats indexes as immutable and shares them between Datasets itself.
+    Those of short recurring coordinates are built once and reused: xarray treats indexes as
+    immutable and shares them between Datasets itself, and each Dataset gets its own shallow
+    copy of the IndexVariable (own attrs), as ``Dataset.copy()`` does.
     """
     values = var.values
     if values.size > 16:
-        return PandasIndex(values, name)
+        index = PandasIndex(values, name)
+        return index, index.create_variables({name: var})[name]
     key = (name, values.dtype.str, values.tobytes())
-    index = _INDEX_CACHE.get(key)
-    if index is None:
+    hit = _INDEX_CACHE.get(key)
+    if hit is None or hit[1].attrs != var.attrs:
         if len(_INDEX_CACHE) >= 256:
             _INDEX_CACHE.clear()
-        index = _INDEX_CACHE[key] = PandasIndex(values, name)
-    return index
+        index = PandasIndex(values, name)
+        hit = _INDEX_CACHE[key] = (index, index.create_variables({name: var})[name])
+    return hit[0], hit[1].copy(deep=False)
