@@ -28,7 +28,7 @@ TESTS = Path(__file__).resolve().parent
 
 def round_trip(model):
     text = json.dumps(model.to_dict())
-    return ts.model_from_dict(json.loads(text))
+    return ts.model_from_dict(json.loads(text), allow_code=True)
 
 
 def assert_same_model(a, b, rng):
@@ -96,7 +96,7 @@ def test_result_attributes_hold_the_model(rng):
     ds = ts.invariants(model, 2, {"mass": 1.0})
     recorded = [v for v in ds.attrs.values() if isinstance(v, str) and '"hoppings"' in v]
     assert len(recorded) == 1
-    assert_same_model(model, ts.model_from_dict(json.loads(recorded[0])), rng)
+    assert_same_model(model, ts.model_from_dict(json.loads(recorded[0]), allow_code=True), rng)
 
 
 def test_callable_models_round_trip_by_import_path(rng):
@@ -129,7 +129,7 @@ def test_callable_model_rebuilds_in_a_fresh_interpreter(rng):
     script = (
         "import json, sys, numpy as np, toposweep as ts\n"
         "d = json.loads(sys.stdin.readline()); k = np.array(json.loads(sys.stdin.readline()))\n"
-        "h = ts.model_from_dict(d).hamiltonian(k, {'mass': 0.7})\n"
+        "h = ts.model_from_dict(d, allow_code=True).hamiltonian(k, {'mass': 0.7})\n"
         "print(json.dumps([h.real.tolist(), h.imag.tolist()]))\n"
     )
     env = {**os.environ, "PYTHONPATH": str(TESTS)}
@@ -159,7 +159,7 @@ def test_callable_model_rebuilds_in_a_fresh_interpreter(rng):
 def test_unimportable_function_gives_a_clear_error(func):
     d = json.loads(json.dumps(CallableModel(func, 3, 4).to_dict()))
     with pytest.raises(ts.ModelError, match="not importable|cannot import"):
-        ts.model_from_dict(d)
+        ts.model_from_dict(d, allow_code=True)
 
 
 def test_local_function_gives_a_clear_error():
@@ -168,10 +168,10 @@ def test_local_function_gives_a_clear_error():
 
     d = CallableModel(local, 3, 4).to_dict()
     with pytest.raises(ts.ModelError, match="not importable"):
-        ts.model_from_dict(d)
+        ts.model_from_dict(d, allow_code=True)
     d["function"] = "test_callable_model:no_such_function"
     with pytest.raises(ts.ModelError, match="cannot import"):
-        ts.model_from_dict(d)
+        ts.model_from_dict(d, allow_code=True)
 
 
 # -- functions from files loaded by path (e.g. a `toposweep run` model file) ---------------------
@@ -216,20 +216,20 @@ def test_function_from_a_file_loaded_by_path_round_trips(tmp_path, rng):
     assert d["function"] == f"{name}:square_model"
     assert d["function_file"] == str(path.resolve())
     del sys.modules[name]  # as in a later process
-    back = ts.model_from_dict(d)
+    back = ts.model_from_dict(d, allow_code=True)
     assert_same_model(model, back, rng)
     # a file loaded under another name is still found by its path
     other = load_by_path(path, "throwaway_module_name").build()
     d = json.loads(json.dumps(other.to_dict()))
     del sys.modules["throwaway_module_name"]
     np.testing.assert_array_equal(
-        ts.model_from_dict(d).hamiltonian(np.full((1, 2), 0.3)),
+        ts.model_from_dict(d, allow_code=True).hamiltonian(np.full((1, 2), 0.3)),
         other.hamiltonian(np.full((1, 2), 0.3)),
     )
     # ... and in a fresh interpreter that never saw the file
     script = (
         "import json, sys, numpy as np, toposweep as ts\n"
-        "m = ts.model_from_dict(json.loads(sys.stdin.read()))\n"
+        "m = ts.model_from_dict(json.loads(sys.stdin.read()), allow_code=True)\n"
         "print(int(ts.invariants(m, 2, {'mass': 1.0}).nu0), m.name)\n"
     )
     out = subprocess.run(
@@ -278,7 +278,10 @@ def test_flow_plot_of_a_run_with_a_model_file(tmp_path):
         "[grid]\nmass = [-3.0, -1.0, 1.0]\n"
     )
     command = str(Path(sys.executable).parent / "toposweep")
-    for args in (["run", "run.toml"], ["plot", "out.nc", "--flow", "--at", "mass=-1.0"]):
+    for args in (
+        ["run", "run.toml"],
+        ["plot", "out.nc", "--flow", "--at", "mass=-1.0", "--allow-code"],
+    ):
         out = subprocess.run(
             [command, *args], cwd=tmp_path, capture_output=True, text=True, timeout=120
         )
@@ -286,15 +289,41 @@ def test_flow_plot_of_a_run_with_a_model_file(tmp_path):
     assert (tmp_path / "out-flow.png").stat().st_size > 10_000
 
 
+def test_code_in_a_description_is_not_run_unless_allowed(tmp_path):
+    """A result file could name any module: rebuilding imports it, so it needs consent."""
+    marker = tmp_path / "ran.txt"
+    (tmp_path / "planted.py").write_text(
+        f"open({str(marker)!r}, 'w').write('ran')\n\ndef h(kappa):\n    return 0\n"
+    )
+    d = CallableModel(wilson_dirac_numpy, 3, 4).to_dict()
+    d["function"], d["function_file"] = "planted:h", str(tmp_path / "planted.py")
+    with pytest.raises(ts.ModelError, match="names Python code.*allow_code=True"):
+        ts.model_from_dict(d)
+    assert not marker.exists()
+    # tight-binding descriptions are plain data and need no consent
+    assert ts.model_from_dict(ts.models.bhz().to_dict()).norb == 4
+
+
+def test_flow_plot_refuses_model_code_without_allow_code(tmp_path, capsys):
+    from toposweep.cli import main
+
+    ds = ts.invariants(wilson_dirac_callable(), 2, {"mass": -2.0}, loop_points=12, lines=7)
+    ds.to_netcdf(tmp_path / "one.nc", engine="h5netcdf")
+    assert main(["plot", str(tmp_path / "one.nc"), "--flow"]) == 2
+    err = capsys.readouterr().err
+    assert "--allow-code" in err and "Traceback" not in err
+    assert not (tmp_path / "one-flow.png").exists()
+
+
 def test_function_of_a_script_run_as_main_gives_a_clear_error():
     d = CallableModel(wilson_dirac_numpy, 3, 4).to_dict()
     d["function"] = "__main__:a_function_only_the_script_had"
     with pytest.raises(ts.ModelError, match="__main__.*module file"):
-        ts.model_from_dict(d)
+        ts.model_from_dict(d, allow_code=True)
 
 
 def test_incomplete_callable_description_gives_a_model_error():
     d = CallableModel(wilson_dirac_numpy, 3, 4).to_dict()
     del d["dim"]
     with pytest.raises(ts.ModelError, match="not a valid callable model description"):
-        ts.model_from_dict(d)
+        ts.model_from_dict(d, allow_code=True)

@@ -54,8 +54,13 @@ __all__ = [
 ]
 
 
-def model_from_dict(d: dict[str, Any]) -> Model:
+def model_from_dict(d: dict[str, Any], *, allow_code: bool = False) -> Model:
     """Rebuild a model from ``model.to_dict()`` (for example from a result file's attributes).
+
+    A tight-binding description is plain data. A callable model's description names Python
+    code — a ``module:function`` or a file path — and rebuilding it imports and runs that code,
+    so it is refused unless ``allow_code=True``: pass it only for descriptions (result files)
+    you trust, as you would before running a script from the same source.
 
     Examples
     --------
@@ -69,5 +74,14 @@ def model_from_dict(d: dict[str, Any]) -> Model:
     if kind == "tight_binding":
         return TightBinding.from_dict(d)
     if kind == "callable":
+        if not allow_code:
+            where = str(d.get("function", "?"))
+            if d.get("function_file"):
+                where += f" from {d['function_file']}"
+            raise ModelError(
+                f"this model description names Python code ({where}); rebuilding it imports "
+                "and runs that code. Pass allow_code=True (command line: --allow-code) only if "
+                "you trust where the description came from"
+            )
         return CallableModel.from_dict(d)
     raise ModelError(f"unknown model kind {kind!r}; expected 'tight_binding' or 'callable'")

@@ -147,7 +147,11 @@ class CallableModel(Model):
 
     @classmethod
     def from_dict(cls, d: Mapping[str, Any]) -> CallableModel:
-        """Rebuild from :meth:`to_dict` output by importing the recorded function."""
+        """Rebuild from :meth:`to_dict` output by importing the recorded function.
+
+        This imports and runs the module or file the description names: call it only on
+        descriptions you trust (:func:`toposweep.model_from_dict` refuses them by default).
+        """
         ref = str(d.get("function", ""))
         func = _import_function(ref, d.get("function_file"))
         try:

@@ -90,7 +90,7 @@ def _plot(args: argparse.Namespace) -> int:
     with open_result(path, load=True) as ds:
         dims = [str(d) for d in ds.phase.dims]
         if args.flow:
-            fig = flow_figure(ds, at)
+            fig = flow_figure(ds, at, allow_code=args.allow_code)
             default = path.with_name(path.stem + "-flow.png")
         elif not dims:
             raise ParameterError(f"{path} holds a single point; use --flow to draw its HWC flow")
@@ -152,6 +152,12 @@ def _parser() -> _Parser:
     )
     plot.add_argument("--line", action="store_true", help="indices and gap against --x")
     plot.add_argument("--flow", action="store_true", help="HWC flow of the point given by --at")
+    plot.add_argument(
+        "--allow-code",
+        action="store_true",
+        help="--flow on a result of a model defined by Python code: import and run that code "
+        "(only for files you trust)",
+    )
     plot.add_argument("--out", help="PNG file to write (default: next to the result file)")
     plot.add_argument("--dpi", type=int, default=130, help="resolution (default 130)")
     plot.set_defaults(func=_plot)

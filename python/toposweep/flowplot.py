@@ -16,12 +16,18 @@ from .plotting import plot_flow, select
 __all__ = ["flow_figure", "point_of"]
 
 
-def point_of(ds: xr.Dataset, at: Mapping[str, float]) -> tuple[Model, xr.Dataset, dict[str, float]]:
-    """The model of a result, the grid point nearest to ``at`` and its model parameters."""
+def point_of(
+    ds: xr.Dataset, at: Mapping[str, float], *, allow_code: bool = False
+) -> tuple[Model, xr.Dataset, dict[str, float]]:
+    """The model of a result, the grid point nearest to ``at`` and its model parameters.
+
+    ``allow_code`` lets a callable model's recorded code be imported (see
+    :func:`toposweep.model_from_dict`).
+    """
     from . import model_from_dict
 
     try:
-        model = model_from_dict(json.loads(ds.attrs["model"]))
+        model = model_from_dict(json.loads(ds.attrs["model"]), allow_code=allow_code)
     except (KeyError, ValueError) as exc:
         raise StoreError(f"the file's model description cannot be rebuilt: {exc}") from None
     point = select(ds, [], at)
@@ -36,12 +42,13 @@ def point_of(ds: xr.Dataset, at: Mapping[str, float]) -> tuple[Model, xr.Dataset
     return model, point, params
 
 
-def flow_figure(ds: xr.Dataset, at: Mapping[str, float]) -> Figure:
+def flow_figure(ds: xr.Dataset, at: Mapping[str, float], *, allow_code: bool = False) -> Figure:
     """HWC flow on every time-reversal-invariant plane at the grid point nearest to ``at``.
 
-    Grid dims not in ``at`` are taken at their middle value.
+    Grid dims not in ``at`` are taken at their middle value. ``allow_code`` as in
+    :func:`point_of`.
     """
-    model, point, params = point_of(ds, at)
+    model, point, params = point_of(ds, at, allow_code=allow_code)
     filling = int(ds.attrs["filling"])
     loop_points = int(json.loads(ds.attrs["sampling"]).get("loop_points", 32))
     flows, z2 = [], []
