@@ -28,6 +28,7 @@ from .model import Model
 from .sampling import Sampling
 from .store import open_result
 from .sweep import SweepInterrupted, sweep
+from .symmetrise import symmetrise
 from .tightbinding import TightBinding
 
 __all__ = [
@@ -50,6 +51,7 @@ __all__ = [
     "models",
     "open_result",
     "sweep",
+    "symmetrise",
     "wcc_flow",
 ]
 

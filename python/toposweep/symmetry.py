@@ -82,8 +82,9 @@ def symmetry_error(kind: str, residual: float, where: str) -> SymmetryError:
         if residual < NEARLY:
             return SymmetryError(
                 text + "The model is only nearly symmetric (typical of fitted or "
-                "Wannier-derived hoppings): symmetrise it, replacing every hopping T by "
-                "(T + U_T T* U_T†)/2."
+                "Wannier-derived hoppings): symmetrise it — toposweep.symmetrise(model) for a "
+                "tight-binding model (every hopping T becomes (T + U_T T* U_T†)/2), or average "
+                "H(κ) with U_T H(−κ)* U_T† in your own function."
             )
         return SymmetryError(text + "Check U_T, or the parameters that break it.")
     text = (
@@ -92,8 +93,9 @@ def symmetry_error(kind: str, residual: float, where: str) -> SymmetryError:
     )
     if residual < NEARLY:
         return SymmetryError(
-            text + "The model is only nearly symmetric: symmetrise it (the hopping on bond R "
-            "becomes (T_R + P T_{−R} P†)/2, with T_{−R} = T_R† for a bond added once), or "
-            "pass inversion=None (the Wilson loop does not need it)."
+            text + "The model is only nearly symmetric: symmetrise it — "
+            "toposweep.symmetrise(model, inversion=True) for a tight-binding model (the hopping "
+            "on bond R becomes (T_R + P T_{−R} P†)/2) — or pass inversion=None (the Wilson loop "
+            "does not need it)."
         )
     return SymmetryError(text + "Pass inversion=None (the Wilson loop does not need it) or fix P.")
