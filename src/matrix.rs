@@ -99,7 +99,8 @@ pub(crate) fn unitarise_2x2(m: &mut [C64]) -> f64 {
     let a00 = m00.norm_sqr() + m10.norm_sqr();
     let a11 = m01.norm_sqr() + m11.norm_sqr();
     let a01 = m00.conj() * m01 + m10.conj() * m11;
-    let s = (m00 * m11 - m01 * m10).norm();
+    // |det| by sqrt(norm²) rather than libm's overflow-safe hypot: overlap entries are ≤ 1
+    let s = (m00 * m11 - m01 * m10).norm_sqr().sqrt();
     let t2 = a00 + a11 + 2.0 * s;
     let t = t2.sqrt();
     let smax = 0.5 * (t + (t2 - 4.0 * s).max(0.0).sqrt());
