@@ -1,7 +1,7 @@
 //! Small dense complex matrices stored row-major in flat slices: products, the unitary part of
 //! an overlap matrix, and the eigenphases of a unitary matrix.
 
-use crate::dense::{product, Op, View, DENSE_MIN_N};
+use crate::dense::{product, product_loops, Op, View, DENSE_MIN_N};
 use crate::eigen::{eigh, eigh_into, eigh_reference_into, JACOBI_MAX_N};
 use crate::error::{CoreError, CoreResult};
 use crate::C64;
@@ -118,7 +118,9 @@ pub(crate) fn unitarise_2x2(m: &mut [C64]) -> f64 {
     smin
 }
 
-/// Polar factor via the eigen-decomposition of m†m, with caller-provided scratch (n×n each).
+/// Polar factor via the eigen-decomposition of m†m, with caller-provided scratch (n×n each):
+/// m†m = V Λ V†, (m†m)^{-1/2} = V Λ^{-1/2} V†, U = m V Λ^{-1/2} V†. The three products go
+/// through `dense::product` for many occupied bands, plain loops below.
 fn polar_with(
     m: &mut [C64],
     n: usize,
@@ -127,64 +129,15 @@ fn polar_with(
     v: &mut [C64],
     w: &mut [C64],
 ) -> CoreResult<f64> {
-    if n >= DENSE_MIN_N {
-        return polar_dense(m, n, mtm, lam, v, w);
+    let mul = if n >= DENSE_MIN_N {
+        product
+    } else {
+        product_loops
+    };
+    fn view(a: &[C64], n: usize) -> View<'_> {
+        View::new(a, n, n, n)
     }
-    // m†m = V Λ V†  →  (m†m)^{-1/2} = V Λ^{-1/2} V†
-    for a in 0..n {
-        for b in 0..n {
-            let mut s = C64::new(0.0, 0.0);
-            for i in 0..n {
-                s += m[i * n + a].conj() * m[i * n + b];
-            }
-            mtm[a * n + b] = s;
-        }
-    }
-    eigh_into(mtm, n, lam, v)?;
-    let smin = lam[0].max(0.0).sqrt();
-    if smin <= 1e-14 * lam[n - 1].max(1e-300).sqrt() {
-        return Ok(0.0);
-    }
-    // w = m V Λ^{-1/2}; then m ← w V†
-    for i in 0..n {
-        for k in 0..n {
-            let mut s = C64::new(0.0, 0.0);
-            for j in 0..n {
-                s += m[i * n + j] * v[j * n + k];
-            }
-            w[i * n + k] = s / lam[k].sqrt();
-        }
-    }
-    for i in 0..n {
-        for b in 0..n {
-            let mut s = C64::new(0.0, 0.0);
-            for k in 0..n {
-                s += w[i * n + k] * v[b * n + k].conj();
-            }
-            m[i * n + b] = s;
-        }
-    }
-    Ok(smin)
-}
-
-/// [`polar_with`] for many occupied bands: the same steps with the three products in
-/// `dense::product`.
-fn polar_dense(
-    m: &mut [C64],
-    n: usize,
-    mtm: &mut [C64],
-    lam: &mut [f64],
-    v: &mut [C64],
-    w: &mut [C64],
-) -> CoreResult<f64> {
-    product(
-        mtm,
-        n,
-        View::new(m, n, n, n),
-        Op::Adjoint,
-        View::new(m, n, n, n),
-        Op::Plain,
-    );
+    mul(mtm, n, view(m, n), Op::Adjoint, view(m, n), Op::Plain);
     eigh_into(mtm, n, lam, v)?;
     let smin = lam[0].max(0.0).sqrt();
     if smin <= 1e-14 * lam[n - 1].max(1e-300).sqrt() {
@@ -196,22 +149,8 @@ fn polar_dense(
             *x = y / l.sqrt();
         }
     }
-    product(
-        mtm,
-        n,
-        View::new(m, n, n, n),
-        Op::Plain,
-        View::new(w, n, n, n),
-        Op::Plain,
-    );
-    product(
-        m,
-        n,
-        View::new(mtm, n, n, n),
-        Op::Plain,
-        View::new(v, n, n, n),
-        Op::Adjoint,
-    );
+    mul(mtm, n, view(m, n), Op::Plain, view(w, n), Op::Plain);
+    mul(m, n, view(mtm, n), Op::Plain, view(v, n), Op::Adjoint);
     Ok(smin)
 }
 
