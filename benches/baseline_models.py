@@ -76,3 +76,22 @@ def stacked_wilson_dirac(copies: int, seed: int = 1, coupling: float = 0.1) -> t
     model.add((0, 0, 0), np.eye(n), term="shift")
     model.defaults = {"shift": 0.0}
     return model
+
+
+def wilson_dirac_without_inversion(strength: float = 0.3) -> ts.TightBinding:
+    """Wilson–Dirac with an on-site σ_x ⊗ 1 term of the given strength (term ``breaking``).
+
+    σ_x ⊗ 1 is even under time reversal (U_T = 1 ⊗ iσ_y) and odd under inversion (P = σ_z ⊗ 1),
+    so the bands are no longer Kramers-degenerate away from the TRIMs and every κ point takes the
+    generic 4×4 eigensolver. Below the gap closing the indices stay those of the symmetric model
+    (adiabatic continuity, common practice, no source): (1;000) at m = −2, t = 1 for
+    strength 0.3, whose direct gap stays open (checked by ``compare`` against NumPy).
+    """
+    wd = ts.models.wilson_dirac()
+    model = ts.TightBinding(3, 4, time_reversal=wd.time_reversal, name="Wilson-Dirac, no inversion")
+    for r, t, term in wd.hoppings():
+        model.add(r, t, term)
+    sx = np.array([[0.0, 1.0], [1.0, 0.0]])
+    model.add((0, 0, 0), np.kron(sx, np.eye(2)), term="breaking")
+    model.defaults = {**wd.defaults, "breaking": strength}
+    return model

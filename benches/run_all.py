@@ -42,7 +42,11 @@ from toposweep import _core  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
-from baseline_models import expected_indices, stacked_wilson_dirac  # noqa: E402
+from baseline_models import (  # noqa: E402
+    expected_indices,
+    stacked_wilson_dirac,
+    wilson_dirac_without_inversion,
+)
 from numpy_baseline import compare, invariants_numpy  # noqa: E402
 
 #: the fixed sampling of issues 2 and 4
@@ -114,6 +118,15 @@ def point_cases(quick: bool) -> list[tuple[str, object, int, dict | None, dict]]
     cases: list[tuple[str, object, int, dict | None, dict]] = [
         ("Wilson–Dirac, 4 bands (m = −2)", ts.models.wilson_dirac(), 2, {"mass": -2.0}, FIXED),
     ]
+    cases.append(
+        (
+            "Wilson–Dirac without inversion, 4 bands (generic 4×4)",
+            wilson_dirac_without_inversion(0.3),
+            2,
+            {"mass": -2.0},
+            FIXED,
+        )
+    )
     if hasattr(ts.models, "fu_kane_mele"):
         cases.append(("diamond (Fu–Kane–Mele), 4 bands", ts.models.fu_kane_mele(), 2, None, FIXED))
     cases.append(("16 coupled bands, dense", stacked_wilson_dirac(4, seed=2), 8, None, FIXED))

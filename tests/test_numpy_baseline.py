@@ -16,7 +16,11 @@ import pytest
 import toposweep as ts
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benches"))
-from baseline_models import expected_indices, stacked_wilson_dirac  # noqa: E402
+from baseline_models import (  # noqa: E402
+    expected_indices,
+    stacked_wilson_dirac,
+    wilson_dirac_without_inversion,
+)
 from numpy_baseline import BlochTerms, compare  # noqa: E402
 
 SAMPLING = {"loop_points": 24, "lines": 41}
@@ -57,6 +61,15 @@ def test_many_occupied_bands_agree_with_numpy():
     ref, _ = compare(model, 12, None, loop_points=24, lines=41)
     assert ref["reason"] == 0
     assert (ref["nu0"], ref["nu"]) == expected_indices(6)
+
+
+def test_model_without_inversion_agrees_with_numpy():
+    """No Kramers degeneracy away from the TRIMs: every κ point takes the generic 4×4 path.
+    The (1;000) phase survives the small inversion-breaking term (adiabatic continuity)."""
+    ref, ds = compare(wilson_dirac_without_inversion(0.3), 2, {"mass": -2.0}, **SAMPLING)
+    assert ref["reason"] == 0
+    assert (ref["nu0"], ref["nu"]) == (1, [0, 0, 0])
+    assert "nu0_parity" not in ds
 
 
 def test_gapless_point_is_undefined_in_both():
