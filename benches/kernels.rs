@@ -13,8 +13,9 @@ use std::hint::black_box;
 use std::time::Instant;
 use toposweep::bloch::{BlochSource, Hoppings};
 use toposweep::eigen::{
-    eigh_householder_into, eigh_into, eigh_jacobi_into, eigh_occupied_into, eigh_reference_into,
-    eigh_warm_into, JACOBI_MAX_N, SMALL_MAX_N,
+    eigh_householder_into, eigh_into, eigh_jacobi_into, eigh_occupied_into,
+    eigh_occupied_pair_into, eigh_pair_into, eigh_reference_into, eigh_warm_into, JACOBI_MAX_N,
+    SMALL_MAX_N,
 };
 use toposweep::engine::{evaluate_point, Method, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
@@ -77,6 +78,12 @@ fn kron(a: &[C64; 4], b: &[C64; 4]) -> Vec<C64> {
 
 /// Cubic Wilson–Dirac model with terms (mass, hopping), as `toposweep.models.wilson_dirac`.
 fn wilson_dirac() -> Hoppings {
+    wilson_dirac_with(0.0)
+}
+
+/// [`wilson_dirac`] plus a constant on-site `breaking`·σx⊗1 (even under time reversal, odd under
+/// the inversion σz⊗1): H(κ) is a generic 4×4 away from the TRIMs (no two-level closed form).
+fn wilson_dirac_with(breaking: f64) -> Hoppings {
     let z = c(0.0, 0.0);
     let s0 = [c(1.0, 0.0), z, z, c(1.0, 0.0)];
     let sx = [z, c(1.0, 0.0), c(1.0, 0.0), z];
@@ -94,6 +101,11 @@ fn wilson_dirac() -> Hoppings {
         r.extend(rv);
         term.push(1);
     }
+    if breaking != 0.0 {
+        t.extend(kron(&sx, &s0).iter().map(|x| x * breaking));
+        r.extend([0, 0, 0]);
+        term.push(-1);
+    }
     Hoppings::new(3, 4, 2, r, t, term).unwrap()
 }
 
@@ -107,8 +119,8 @@ fn main() {
 
     if want("eigen") {
         let (mut e4, mut v4) = (vec![0.0; 4], vec![c(0.0, 0.0); 16]);
-        println!("| n | reference Jacobi (µs) | fixed-size Jacobi (µs) | warm-started Jacobi (µs) | fixed-size Householder + QR (µs) | nalgebra Householder (µs) | faer (µs) |");
-        println!("|---|---|---|---|---|---|---|");
+        println!("| n | reference Jacobi (µs) | fixed-size Jacobi (µs) | warm-started Jacobi (µs) | fixed-size Householder + QR (µs) | paired Householder + QR (µs/matrix) | nalgebra Householder (µs) | faer (µs) |");
+        println!("|---|---|---|---|---|---|---|---|");
         for n in [4usize, 8, 16, 32, 64] {
             let batch = 64;
             let hs: Vec<Vec<C64>> = (0..batch).map(|_| rng.hermitian(n)).collect();
@@ -160,6 +172,24 @@ fn main() {
             } else {
                 "–".into()
             };
+            // two independent matrices per call (as κ points s, s + 1), time per matrix
+            let (mut e2, mut v2) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+            let paired = if n <= SMALL_MAX_N {
+                fmt(time_ns(reps, k / 2, |i| {
+                    eigh_pair_into(
+                        [
+                            black_box(&hs[(2 * i) % batch]),
+                            black_box(&hs[(2 * i + 1) % batch]),
+                        ],
+                        n,
+                        [&mut e, &mut e2],
+                        [&mut v, &mut v2],
+                    )
+                    .unwrap()
+                }) / 2.0)
+            } else {
+                "–".into()
+            };
             let hh = time_ns(reps, k, |i| {
                 eigh_householder_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
             });
@@ -171,7 +201,7 @@ fn main() {
             #[cfg(not(feature = "faer"))]
             let fa = "(build with --features faer)";
             println!(
-                "| {n} | {refj} | {fixed} | {warm} | {small} | {} | {fa} |",
+                "| {n} | {refj} | {fixed} | {warm} | {small} | {paired} | {} | {fa} |",
                 fmt(hh)
             );
         }
@@ -186,8 +216,10 @@ fn main() {
         let generic: Vec<C64> = (0..64).flat_map(|_| rng.hermitian(4)).collect();
         let mut occ = vec![c(0.0, 0.0); 8];
         let k = inner(20_000);
-        println!("| 4×4 | reference Jacobi (µs) | fixed-size Jacobi (µs) | production, all vectors (µs) | production, lowest two vectors (µs) |");
-        println!("|---|---|---|---|---|");
+        let mut occ2 = vec![c(0.0, 0.0); 8];
+        let mut e4b = vec![0.0; 4];
+        println!("| 4×4 | reference Jacobi (µs) | fixed-size Jacobi (µs) | production, all vectors (µs) | production, lowest two vectors (µs) | paired, lowest two vectors (µs/matrix) |");
+        println!("|---|---|---|---|---|---|");
         for (name, hk) in [
             ("generic (random Hermitian)", &generic),
             (
@@ -208,15 +240,69 @@ fn main() {
             let half = time_ns(reps, k, |i| {
                 eigh_occupied_into(black_box(m(i)), 4, 2, &mut e4, &mut occ, &mut v4).unwrap()
             });
+            let pair = time_ns(reps, k / 2, |i| {
+                eigh_occupied_pair_into(
+                    [black_box(m(2 * i)), black_box(m(2 * i + 1))],
+                    4,
+                    2,
+                    [&mut e4, &mut e4b],
+                    [&mut occ, &mut occ2],
+                    &mut v4,
+                )
+                .unwrap()
+            }) / 2.0;
             println!(
-                "| {name} | {:.3} | {:.3} | {:.3} | {:.3} |",
+                "| {name} | {:.3} | {:.3} | {:.3} | {:.3} | {:.3} |",
                 slow / 1e3,
                 jac / 1e3,
                 full / 1e3,
-                half / 1e3
+                half / 1e3,
+                pair / 1e3
             );
         }
         println!();
+    }
+
+    // Profiling aids (not in the default run): one generic n×n solve at a time, or two together,
+    // over 64 random matrices; `-- solo-4` / `-- pair-4` (also 6, 8) under perf or callgrind
+    // give per-matrix counts (divide by KERNEL_PROFILE_CALLS, default 200 000 matrices).
+    if let Some(o) = only.as_deref() {
+        let calls: usize = std::env::var("KERNEL_PROFILE_CALLS")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(200_000);
+        for n in [4usize, 6, 8] {
+            let (solo, pair) = (format!("solo-{n}"), format!("pair-{n}"));
+            if o != solo && o != pair {
+                continue;
+            }
+            let hs: Vec<Vec<C64>> = (0..64).map(|_| rng.hermitian(n)).collect();
+            let (mut e, mut v) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+            let (mut e2, mut v2) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+            let t = Instant::now();
+            if o == solo {
+                for i in 0..calls {
+                    eigh_into(black_box(&hs[i % 64]), n, &mut e, &mut v).unwrap();
+                }
+            } else {
+                for i in 0..calls / 2 {
+                    eigh_pair_into(
+                        [
+                            black_box(&hs[(2 * i) % 64]),
+                            black_box(&hs[(2 * i + 1) % 64]),
+                        ],
+                        n,
+                        [&mut e, &mut e2],
+                        [&mut v, &mut v2],
+                    )
+                    .unwrap();
+                }
+            }
+            println!(
+                "{o}: {:.3} µs per matrix",
+                t.elapsed().as_secs_f64() * 1e6 / calls as f64
+            );
+        }
     }
 
     if want("polar") {
@@ -240,6 +326,7 @@ fn main() {
     }
 
     let wd = wilson_dirac().at(&[-2.0, 1.0]).unwrap();
+    let wdg = wilson_dirac_with(0.1).at(&[-2.0, 1.0]).unwrap();
     if want("line") {
         let lp = 40;
         let kappa: Vec<f64> = (0..lp)
@@ -258,6 +345,18 @@ fn main() {
         let slow = time_ns(reps, k, |_| {
             wilson_line_with(black_box(&h), &kappa, 3, 4, 2, None, Kernels::Reference).unwrap();
         });
+        // generic 4×4 at every κ point: the paired solves against one κ point at a time
+        let mut hg = vec![c(0.0, 0.0); lp * 16];
+        wdg.fill_line(&[0.0, 0.0, 0.2], 1, lp, &mut hg).unwrap();
+        let (gen_pair, gen_single) = (
+            time_ns(reps, k, |_| {
+                wilson_line_with(black_box(&hg), &kappa, 3, 4, 2, None, Kernels::Fast).unwrap();
+            }),
+            time_ns(reps, k, |_| {
+                wilson_line_with(black_box(&hg), &kappa, 3, 4, 2, None, Kernels::FastSingle)
+                    .unwrap();
+            }),
+        );
         println!("| Wilson–Dirac, one line of 40 κ points | time (µs) | per κ point (ns) |");
         println!("|---|---|---|");
         for (name, t) in [
@@ -271,6 +370,14 @@ fn main() {
             ),
             ("Wilson line, reference kernels", slow),
             ("Wilson line, fast kernels", fast),
+            (
+                "same + 0.1 σx⊗1 (generic 4×4), fast kernels, one κ point at a time",
+                gen_single,
+            ),
+            (
+                "same + 0.1 σx⊗1 (generic 4×4), fast kernels, κ points solved in pairs",
+                gen_pair,
+            ),
         ] {
             println!("| {name} | {:.2} | {:.0} |", t / 1e3, t / lp as f64);
         }
@@ -302,6 +409,18 @@ fn main() {
         println!(
             "Wilson–Dirac point (m = −2), 6 planes × 41 lines × 40 points, one thread: {:.3} ms → ({};{:?})\n",
             t / 1e6,
+            r.nu0,
+            r.nu
+        );
+        let tg = pool.install(|| {
+            time_ns(reps.min(5), inner(20), |_| {
+                black_box(evaluate_point(&wdg, 2, None, None, &s).unwrap());
+            })
+        });
+        let r = evaluate_point(&wdg, 2, None, None, &s).unwrap();
+        println!(
+            "same + 0.1 σx⊗1 (generic 4×4 away from the TRIMs), one thread: {:.3} ms → ({};{:?})\n",
+            tg / 1e6,
             r.nu0,
             r.nu
         );

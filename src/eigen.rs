@@ -156,6 +156,141 @@ pub fn eigh_occupied_into(
     Ok(())
 }
 
+/// [`eigh_into`] for two independent matrices of the same size (`h[p]` → `evals[p]`,
+/// `vecs[p]`): where both take the Householder + QR path (2 ≤ n ≤ `SMALL_MAX_N`, not the
+/// Kramers closed form) the two are solved together (`eigen_small::solve_pair`, interleaved
+/// so one's division chain runs while the other's waits), with the same results as two
+/// single calls. Independent κ points (TRIMs, gap grids) come in such pairs.
+pub fn eigh_pair_into(
+    h: [&[C64]; 2],
+    n: usize,
+    evals: [&mut [f64]; 2],
+    vecs: [&mut [C64]; 2],
+) -> CoreResult<()> {
+    let [e0, e1] = evals;
+    let [v0, v1] = vecs;
+    check_sizes(h[0], n, e0, v0)?;
+    check_sizes(h[1], n, e1, v1)?;
+    let done = match n {
+        2 => pair_full::<2>(h, [&mut *e0, &mut *e1], [&mut *v0, &mut *v1]),
+        3 => pair_full::<3>(h, [&mut *e0, &mut *e1], [&mut *v0, &mut *v1]),
+        4 => {
+            let kramers = [
+                eigen_small::two_level4::<2, 4>(h[0], e0, v0),
+                eigen_small::two_level4::<2, 4>(h[1], e1, v1),
+            ];
+            match kramers {
+                [true, true] => [true, true],
+                [false, true] => [small_full::<4>(h[0], e0, v0), true],
+                [true, false] => [true, small_full::<4>(h[1], e1, v1)],
+                [false, false] => pair_full::<4>(h, [&mut *e0, &mut *e1], [&mut *v0, &mut *v1]),
+            }
+        }
+        5 => pair_full::<5>(h, [&mut *e0, &mut *e1], [&mut *v0, &mut *v1]),
+        6 => pair_full::<6>(h, [&mut *e0, &mut *e1], [&mut *v0, &mut *v1]),
+        7 => pair_full::<7>(h, [&mut *e0, &mut *e1], [&mut *v0, &mut *v1]),
+        8 => pair_full::<8>(h, [&mut *e0, &mut *e1], [&mut *v0, &mut *v1]),
+        _ => [false, false],
+    };
+    for (p, (e, v)) in [(e0, v0), (e1, v1)].into_iter().enumerate() {
+        if !done[p] {
+            eigh_into(h[p], n, e, v)?;
+        }
+    }
+    Ok(())
+}
+
+/// [`eigh_occupied_into`] for two independent matrices of the same size (a Wilson line's κ
+/// points s and s + 1): the Kramers closed form first for each, then the paired
+/// Householder + QR where both need it, the single paths for what is left. `work` (n × n) is
+/// scratch for the fallbacks.
+pub fn eigh_occupied_pair_into(
+    h: [&[C64]; 2],
+    n: usize,
+    nocc: usize,
+    evals: [&mut [f64]; 2],
+    occ: [&mut [C64]; 2],
+    work: &mut [C64],
+) -> CoreResult<()> {
+    let [e0, e1] = evals;
+    let [o0, o1] = occ;
+    check_sizes(h[0], n, e0, work)?;
+    check_sizes(h[1], n, e1, work)?;
+    if nocc > n || o0.len() < n * nocc || o1.len() < n * nocc {
+        return Err(CoreError::Internal(
+            "eigh_occupied_pair_into: buffer too small".into(),
+        ));
+    }
+    let done = match n {
+        2 => pair_occupied::<2>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1]),
+        3 => pair_occupied::<3>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1]),
+        4 => {
+            let kramers = if nocc == 2 {
+                [
+                    eigen_small::two_level4::<1, 2>(h[0], e0, o0),
+                    eigen_small::two_level4::<1, 2>(h[1], e1, o1),
+                ]
+            } else {
+                [false, false]
+            };
+            match kramers {
+                [true, true] => [true, true],
+                [false, true] => [small_occupied::<4>(h[0], nocc, e0, o0), true],
+                [true, false] => [true, small_occupied::<4>(h[1], nocc, e1, o1)],
+                [false, false] => {
+                    pair_occupied::<4>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1])
+                }
+            }
+        }
+        5 => pair_occupied::<5>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1]),
+        6 => pair_occupied::<6>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1]),
+        7 => pair_occupied::<7>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1]),
+        8 => pair_occupied::<8>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1]),
+        _ => [false, false],
+    };
+    for (p, (e, o)) in [(e0, o0), (e1, o1)].into_iter().enumerate() {
+        if !done[p] {
+            eigh_occupied_into(h[p], n, nocc, e, o, work)?;
+        }
+    }
+    Ok(())
+}
+
+/// Paired Householder + QR, every vector formed; `[false, _]` where a solve declined.
+#[inline(always)]
+fn pair_full<const N: usize>(
+    h: [&[C64]; 2],
+    evals: [&mut [f64]; 2],
+    vecs: [&mut [C64]; 2],
+) -> [bool; 2] {
+    let (mut wa, mut wb) = (eigen_small::Work::<N>::new(), eigen_small::Work::<N>::new());
+    let done = eigen_small::solve_pair::<N>(h, [&mut wa, &mut wb]);
+    for (p, (e, v)) in evals.into_iter().zip(vecs).enumerate() {
+        if done[p] {
+            write_full(if p == 0 { &wa.out } else { &wb.out }, e, v);
+        }
+    }
+    done
+}
+
+/// Paired Householder + QR, only the lowest `nocc` vectors formed.
+#[inline(always)]
+fn pair_occupied<const N: usize>(
+    h: [&[C64]; 2],
+    nocc: usize,
+    evals: [&mut [f64]; 2],
+    occ: [&mut [C64]; 2],
+) -> [bool; 2] {
+    let (mut wa, mut wb) = (eigen_small::Work::<N>::new(), eigen_small::Work::<N>::new());
+    let done = eigen_small::solve_pair::<N>(h, [&mut wa, &mut wb]);
+    for (p, (e, o)) in evals.into_iter().zip(occ).enumerate() {
+        if done[p] {
+            write_occupied(if p == 0 { &wa.out } else { &wb.out }, nocc, e, o);
+        }
+    }
+    done
+}
+
 /// Householder + QR with only the lowest `nocc` vectors formed; false when it declines.
 #[inline(always)]
 fn small_occupied<const N: usize>(
@@ -164,9 +299,22 @@ fn small_occupied<const N: usize>(
     evals: &mut [f64],
     occ: &mut [C64],
 ) -> bool {
-    let Some(sol) = eigen_small::solve::<N>(h) else {
+    let mut w = eigen_small::Work::<N>::new();
+    if !w.solve(h) {
         return false;
-    };
+    }
+    write_occupied(&w.out, nocc, evals, occ);
+    true
+}
+
+/// All eigenvalues ascending and the lowest `nocc` vectors (n × nocc) of a solution.
+#[inline(always)]
+fn write_occupied<const N: usize>(
+    sol: &eigen_small::SmallEigen<N>,
+    nocc: usize,
+    evals: &mut [f64],
+    occ: &mut [C64],
+) {
     let order = sol.order();
     for (k, &o) in order.iter().enumerate() {
         evals[k] = sol.vals[o];
@@ -177,7 +325,6 @@ fn small_occupied<const N: usize>(
             occ[i * nocc + k] = C64::new(xr[i], xi[i]);
         }
     }
-    true
 }
 
 /// Like [`eigh_into`], starting from `guess` (n×n, columns ≈ eigenvectors, e.g. those of the
@@ -313,9 +460,21 @@ fn fast_full(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> bool {
 /// Householder + implicit QR (`eigen_small`) with every vector formed.
 #[inline(always)]
 fn small_full<const N: usize>(h: &[C64], evals: &mut [f64], vecs: &mut [C64]) -> bool {
-    let Some(sol) = eigen_small::solve::<N>(h) else {
+    let mut w = eigen_small::Work::<N>::new();
+    if !w.solve(h) {
         return false;
-    };
+    }
+    write_full(&w.out, evals, vecs);
+    true
+}
+
+/// Eigenvalues ascending and every vector (columns of the row-major N × N `vecs`).
+#[inline(always)]
+fn write_full<const N: usize>(
+    sol: &eigen_small::SmallEigen<N>,
+    evals: &mut [f64],
+    vecs: &mut [C64],
+) {
     for (k, &o) in sol.order().iter().enumerate() {
         evals[k] = sol.vals[o];
         let (xr, xi) = sol.vector(o);
@@ -323,7 +482,6 @@ fn small_full<const N: usize>(h: &[C64], evals: &mut [f64], vecs: &mut [C64]) ->
             vecs[i * N + k] = C64::new(xr[i], xi[i]);
         }
     }
-    true
 }
 
 /// One complex Jacobi rotation J = D R that annihilates a[p][q]:
@@ -1157,6 +1315,183 @@ mod tests {
                     }
                 }
             }
+        }
+    }
+
+    /// Test matrices of every kind the paired solve must handle, for one n: random, clustered
+    /// and exactly degenerate spectra (H = U Λ U†), already reduced (diagonal, block-diagonal
+    /// with a permutation), all-equal, the zero matrix, scaled far from 1, and (n = 4)
+    /// Kramers-degenerate ones that take the closed form.
+    fn pairing_cases(n: usize) -> Vec<Vec<C64>> {
+        let z = C64::new(0.0, 0.0);
+        let mut cases = Vec::new();
+        for seed in 0..4u64 {
+            cases.push(random_hermitian(n, 31_000 + 7 * n as u64 + seed));
+        }
+        let (_, u) = eigh_reference(&random_hermitian(n, 32_000 + n as u64), n);
+        let base = random_hermitian(n, 33_000 + n as u64);
+        let spectra: Vec<Vec<f64>> = [1e-6, 1e-12, 0.0]
+            .iter()
+            .map(|&delta| {
+                (0..n)
+                    .map(|k| base[(k - k % 2) * n + (k - k % 2)].re + delta * (k % 2) as f64)
+                    .collect()
+            })
+            .chain([
+                vec![0.3; n],
+                (0..n).map(|k| 1e150 * (k as f64 - 1.5)).collect(),
+            ])
+            .collect();
+        for lam in spectra {
+            let mut h = vec![z; n * n];
+            for i in 0..n {
+                for j in 0..n {
+                    for k in 0..n {
+                        h[i * n + j] += u[i * n + k] * lam[k] * u[j * n + k].conj();
+                    }
+                }
+            }
+            cases.push(h);
+        }
+        // diagonal, and two diagonal blocks with rows/columns permuted
+        let full = random_hermitian(n, 34_000 + n as u64);
+        let diag: Vec<C64> = (0..n * n)
+            .map(|x| if x % (n + 1) == 0 { full[x] } else { z })
+            .collect();
+        cases.push(diag);
+        let perm: Vec<usize> = (0..n).map(|i| (i * 5 + 1) % n).collect();
+        if (0..n).all(|i| perm.contains(&i)) {
+            let mut blocks = vec![z; n * n];
+            for i in 0..n {
+                for j in 0..n {
+                    let (pi, pj) = (perm[i], perm[j]);
+                    if (pi < n / 2) == (pj < n / 2) {
+                        blocks[i * n + j] = full[pi * n + pj];
+                    }
+                }
+            }
+            cases.push(blocks);
+        }
+        cases.push(vec![z; n * n]);
+        if n == 4 {
+            // H = d0 + Σ d_a Γ_a with anticommuting Γ_a (σx⊗σx, σx⊗σy, σx⊗σz, σy⊗1, σz⊗1):
+            // two doubly degenerate levels (closed form)
+            let one = C64::new(1.0, 0.0);
+            let i1 = C64::new(0.0, 1.0);
+            let s = [[z, one, one, z], [z, -i1, i1, z], [one, z, z, -one]];
+            let s0 = [one, z, z, one];
+            let kron = |a: &[C64; 4], b: &[C64; 4]| -> Vec<C64> {
+                let mut k = vec![z; 16];
+                for (i, j, p, q) in (0..16).map(|x| (x >> 3 & 1, x >> 2 & 1, x >> 1 & 1, x & 1)) {
+                    k[(2 * i + p) * 4 + 2 * j + q] = a[2 * i + j] * b[2 * p + q];
+                }
+                k
+            };
+            let mut gammas: Vec<Vec<C64>> = s.iter().map(|b| kron(&s[0], b)).collect();
+            gammas.push(kron(&s[1], &s0));
+            gammas.push(kron(&s[2], &s0));
+            for d in [
+                [0.3, -0.7, 0.2, 0.5, 0.1, -0.4],
+                [-1.1, 0.4, 0.9, -0.2, 0.6, 0.3],
+            ] {
+                let h: Vec<C64> = (0..16)
+                    .map(|x| {
+                        let diag = if x % 5 == 0 { d[0] } else { 0.0 };
+                        gammas
+                            .iter()
+                            .zip(&d[1..])
+                            .map(|(g, &c)| g[x] * c)
+                            .sum::<C64>()
+                            + C64::new(diag, 0.0)
+                    })
+                    .collect();
+                cases.push(h);
+            }
+        }
+        cases
+    }
+
+    /// The paired entries give the same results as the single ones bit for bit (the same
+    /// operations, interleaved), for every pair of cases — both generic (same or different
+    /// convergence), one closed-form and one generic, one trivial (zero matrix) — and every n,
+    /// paired (2…8) or not; and the single results on random matrices agree with the reference
+    /// Jacobi.
+    #[test]
+    fn paired_solves_equal_single_solves() {
+        let z = C64::new(0.0, 0.0);
+        for n in 1..=10 {
+            let cases = pairing_cases(n);
+            if n == 4 {
+                // the last two take the closed form, the first does not
+                let (mut e, mut v) = (vec![0.0; 4], vec![z; 16]);
+                for h in &cases[cases.len() - 2..] {
+                    assert!(eigen_small::two_level4::<2, 4>(h, &mut e, &mut v));
+                }
+                assert!(!eigen_small::two_level4::<2, 4>(&cases[0], &mut e, &mut v));
+            }
+            for (a, ha) in cases.iter().enumerate() {
+                for hb in cases.iter().skip(a) {
+                    let mut single = Vec::new();
+                    for h in [ha, hb] {
+                        let (mut e, mut v) = (vec![0.0; n], vec![z; n * n]);
+                        eigh_into(h, n, &mut e, &mut v).unwrap();
+                        single.push((e, v));
+                    }
+                    let (mut e0, mut v0, mut e1, mut v1) =
+                        (vec![0.0; n], vec![z; n * n], vec![0.0; n], vec![z; n * n]);
+                    eigh_pair_into([ha, hb], n, [&mut e0, &mut e1], [&mut v0, &mut v1]).unwrap();
+                    assert!(
+                        e0 == single[0].0 && v0 == single[0].1,
+                        "n={n} case {a}: first"
+                    );
+                    assert!(
+                        e1 == single[1].0 && v1 == single[1].1,
+                        "n={n} case {a}: second"
+                    );
+                    // occupied only, every filling
+                    for nocc in 1..=n {
+                        let mut work = vec![z; n * n];
+                        let mut one = Vec::new();
+                        for h in [ha, hb] {
+                            let (mut e, mut o) = (vec![0.0; n], vec![z; n * nocc]);
+                            eigh_occupied_into(h, n, nocc, &mut e, &mut o, &mut work).unwrap();
+                            one.push((e, o));
+                        }
+                        let (mut o0, mut o1) = (vec![z; n * nocc], vec![z; n * nocc]);
+                        eigh_occupied_pair_into(
+                            [ha, hb],
+                            n,
+                            nocc,
+                            [&mut e0, &mut e1],
+                            [&mut o0, &mut o1],
+                            &mut work,
+                        )
+                        .unwrap();
+                        assert!(e0 == one[0].0 && o0 == one[0].1, "n={n} nocc={nocc} first");
+                        assert!(e1 == one[1].0 && o1 == one[1].1, "n={n} nocc={nocc} second");
+                    }
+                }
+                // the single path itself against the reference Jacobi on the random cases (the
+                // others: `fast_paths_accurate_on_clustered_spectra`, `…_on_reduced_structures`)
+                if a < 4 {
+                    let (er, vr) = eigh_reference(ha, n);
+                    let (e1, v1) = eigh(ha, n).unwrap();
+                    same_decomposition(n, &er, &vr, &e1, &v1);
+                }
+            }
+            // NaN in either matrix: an error, as for the single call
+            let mut bad = cases[0].clone();
+            bad[0] = C64::new(f64::NAN, 0.0);
+            let (mut e0, mut v0, mut e1, mut v1) =
+                (vec![0.0; n], vec![z; n * n], vec![0.0; n], vec![z; n * n]);
+            assert!(
+                eigh_pair_into([&cases[1], &bad], n, [&mut e0, &mut e1], [&mut v0, &mut v1])
+                    .is_err()
+            );
+            assert!(
+                eigh_pair_into([&bad, &cases[1]], n, [&mut e0, &mut e1], [&mut v0, &mut v1])
+                    .is_err()
+            );
         }
     }
 

@@ -29,7 +29,7 @@
 //! by a power of two (exact); non-finite input or an iteration that does not converge in
 //! 30 n steps returns `None`, and the caller runs Jacobi or the large-matrix solver.
 
-/// Result of [`solve`]: eigenvalues (unsorted) and the factors Q_H, D, Z of the eigenvectors.
+/// Result of [`Work::solve`]: eigenvalues (unsorted) and the factors Q_H, D, Z of the eigenvectors.
 pub(crate) struct SmallEigen<const N: usize> {
     pub vals: [f64; N],
     /// Householder vectors (row k: v_k, nonzero from index k + 1) and factors τ_k
@@ -85,80 +85,166 @@ impl<const N: usize> SmallEigen<N> {
     }
 }
 
-/// Householder + implicit QR for the Hermitian part of the row-major N×N `h`. `None` when the
-/// norm is out of the safe range or the iteration did not converge (the caller runs Jacobi).
-// Index loops read like the matrix algebra they implement.
-#[allow(clippy::needless_range_loop)]
-#[inline(always)]
-pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
-    // Hermitian part on split arrays
-    let mut ar = [[0.0f64; N]; N];
-    let mut ai = [[0.0f64; N]; N];
-    let mut total = 0.0;
-    for i in 0..N {
-        for j in 0..N {
-            let (x, y) = (h[i * N + j], h[j * N + i]);
-            ar[i][j] = 0.5 * (x.re + y.re);
-            ai[i][j] = 0.5 * (x.im - y.im);
-            total += ar[i][j] * ar[i][j] + ai[i][j] * ai[i][j];
+/// Working state of one Householder + QR solve, kept in place (owned by the caller, reused
+/// across calls; nothing large is moved — returning the factors by value cost a memcpy per
+/// solve once two solves were interleaved).
+pub(crate) struct Work<const N: usize> {
+    /// the result once [`Work::solve`] or [`solve_pair`] returned true
+    pub out: SmallEigen<N>,
+    /// Hermitian part on split arrays, reduced in place
+    ar: [[f64; N]; N],
+    ai: [[f64; N]; N],
+    /// the real tridiagonal matrix: diagonal d, off-diagonal e
+    d: [f64; N],
+    e: [f64; N],
+    /// ε‖T‖: the deflation threshold
+    small: f64,
+    /// last row of the block still to converge
+    hi: usize,
+    iterations: usize,
+    /// power of two the eigenvalues are scaled back by
+    unscale: f64,
+}
+
+/// After loading a matrix.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Loaded {
+    /// reduce and iterate
+    Reduce,
+    /// the zero matrix: identity eigenvectors, zero eigenvalues (done)
+    Zero,
+    /// NaN or ±∞ in the input
+    Declined,
+}
+
+/// What the QR iteration does next on one matrix.
+#[derive(Clone, Copy)]
+enum Next {
+    /// a sweep on the unreduced block lo..=hi with shift mu
+    Sweep {
+        lo: usize,
+        mu: f64,
+    },
+    Converged,
+    /// too many iterations
+    Failed,
+}
+
+impl<const N: usize> Work<N> {
+    pub fn new() -> Self {
+        Work {
+            out: SmallEigen {
+                vals: [0.0; N],
+                vr: [[0.0; N]; N],
+                vi: [[0.0; N]; N],
+                tau: [0.0; N],
+                phr: [1.0; N],
+                phi: [0.0; N],
+                zt: [[0.0; N]; N],
+            },
+            ar: [[0.0; N]; N],
+            ai: [[0.0; N]; N],
+            d: [0.0; N],
+            e: [0.0; N],
+            small: 0.0,
+            hi: 0,
+            iterations: 0,
+            unscale: 1.0,
         }
     }
-    let mut out = SmallEigen {
-        vals: [0.0; N],
-        vr: [[0.0; N]; N],
-        vi: [[0.0; N]; N],
-        tau: [0.0; N],
-        phr: [1.0; N],
-        phi: [0.0; N],
-        zt: [[0.0; N]; N],
-    };
-    for k in 0..N {
-        out.zt[k][k] = 1.0;
+
+    /// Householder + implicit QR for the Hermitian part of the row-major N×N `h`; the result
+    /// is in `self.out`. False when the input is not finite or the iteration did not converge
+    /// (the caller runs Jacobi).
+    #[inline(always)]
+    pub fn solve(&mut self, h: &[crate::C64]) -> bool {
+        match self.load(h) {
+            Loaded::Reduce => {}
+            Loaded::Zero => return true,
+            Loaded::Declined => return false,
+        }
+        for k in 0..N.saturating_sub(2) {
+            self.reflect(k);
+        }
+        self.tridiagonal();
+        self.iterate()
     }
-    // Far from 1 (where squares could under- or overflow) the matrix is scaled by a power of
-    // two — exact — and the eigenvalues scaled back at the end. NaN or ±∞ anywhere: decline.
-    let mut unscale = 1.0;
-    if !(1e-200..=1e200).contains(&total) {
-        let big = ar
-            .iter()
-            .chain(&ai)
-            .flatten()
-            .fold(0.0f64, |m, x| m.max(x.abs()));
-        if total.is_nan() || !big.is_finite() {
-            return None;
-        }
-        if big == 0.0 {
-            return Some(out); // the zero matrix: identity eigenvectors
-        }
-        let e = big.log2().round() as i32;
-        unscale = 2f64.powi(e);
-        let scale = 2f64.powi(-e);
-        for row in ar.iter_mut().chain(ai.iter_mut()) {
-            for x in row.iter_mut() {
-                *x *= scale;
+
+    /// Hermitian part on split arrays, factors reset. Far from norm 1 (where squares could
+    /// under- or overflow) the matrix is scaled by a power of two — exact — and the
+    /// eigenvalues scaled back at the end.
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn load(&mut self, h: &[crate::C64]) -> Loaded {
+        let (ar, ai) = (&mut self.ar, &mut self.ai);
+        let mut total = 0.0;
+        for i in 0..N {
+            for j in 0..N {
+                let (x, y) = (h[i * N + j], h[j * N + i]);
+                ar[i][j] = 0.5 * (x.re + y.re);
+                ai[i][j] = 0.5 * (x.im - y.im);
+                total += ar[i][j] * ar[i][j] + ai[i][j] * ai[i][j];
             }
         }
+        let out = &mut self.out;
+        out.vals = [0.0; N];
+        out.tau = [0.0; N];
+        out.phr = [1.0; N];
+        out.phi = [0.0; N];
+        out.zt = [[0.0; N]; N];
+        for k in 0..N {
+            out.zt[k][k] = 1.0;
+        }
+        self.unscale = 1.0;
+        if !(1e-200..=1e200).contains(&total) {
+            let big = ar
+                .iter()
+                .chain(ai.iter())
+                .flatten()
+                .fold(0.0f64, |m, x| m.max(x.abs()));
+            if total.is_nan() || !big.is_finite() {
+                return Loaded::Declined;
+            }
+            if big == 0.0 {
+                return Loaded::Zero;
+            }
+            let e = big.log2().round() as i32;
+            self.unscale = 2f64.powi(e);
+            let scale = 2f64.powi(-e);
+            for row in ar.iter_mut().chain(ai.iter_mut()) {
+                for x in row.iter_mut() {
+                    *x *= scale;
+                }
+            }
+        }
+        Loaded::Reduce
     }
-    // 1. Householder reflections on columns 0 … N−3
-    for k in 0..N.saturating_sub(2) {
+
+    /// Householder reflection k: column k below the sub-diagonal to zero, in place.
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn reflect(&mut self, k: usize) {
+        let (ar, ai) = (&mut self.ar, &mut self.ai);
         let s = k + 1; // first row of the reflected block
         let mut sigma = 0.0;
         for i in s + 1..N {
             sigma += ar[i][k] * ar[i][k] + ai[i][k] * ai[i][k];
         }
         if sigma == 0.0 {
-            continue; // already tridiagonal in this column (τ_k = 0: H_k = 1)
+            return; // already tridiagonal in this column (τ_k = 0: H_k = 1)
         }
         let (x0r, x0i) = (ar[s][k], ai[s][k]);
         let a2 = x0r * x0r + x0i * x0i;
-        let (ax0, xnorm) = (a2.sqrt(), (a2 + sigma).sqrt()); // independent: run side by side
+        let (ax0, xnorm) = (a2.sqrt(), (a2 + sigma).sqrt()); // independent: side by side
                                                              // phase of x0 (1 when x0 = 0), so v0 = x0 + phase·‖x‖ has no cancellation
         let (pr, pi) = if ax0 > 0.0 {
             (x0r / ax0, x0i / ax0)
         } else {
             (1.0, 0.0)
         };
-        let (vr, vi) = (&mut out.vr[k], &mut out.vi[k]);
+        let (vr, vi) = (&mut self.out.vr[k], &mut self.out.vi[k]);
         vr[s] = pr * (ax0 + xnorm);
         vi[s] = pi * (ax0 + xnorm);
         for i in s + 1..N {
@@ -166,7 +252,7 @@ pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
             vi[i] = ai[i][k];
         }
         let tau = 2.0 / ((ax0 + xnorm) * (ax0 + xnorm) + sigma);
-        out.tau[k] = tau;
+        self.out.tau[k] = tau;
         // p = τ B v (B the trailing block, Hermitian)
         let mut p_r = [0.0f64; N];
         let mut p_i = [0.0f64; N];
@@ -202,69 +288,92 @@ pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
         ar[s][k] = -pr * xnorm;
         ai[s][k] = -pi * xnorm;
     }
-    // 2. real tridiagonal: diagonal d, off-diagonal e (≥ 0 until the QR steps), phases D
-    let mut d = [0.0f64; N];
-    let mut e = [0.0f64; N];
-    for k in 0..N {
-        d[k] = ar[k][k];
+
+    /// The real tridiagonal matrix: diagonal d, off-diagonal e (≥ 0 until the QR steps),
+    /// phases D; the deflation threshold; QR starts on the whole matrix.
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn tridiagonal(&mut self) {
+        let (ar, ai, out) = (&self.ar, &self.ai, &mut self.out);
+        let (d, e) = (&mut self.d, &mut self.e);
+        let mut tnorm = 0.0f64;
+        for k in 0..N {
+            d[k] = ar[k][k];
+            tnorm = tnorm.max(d[k].abs());
+        }
+        e[N - 1] = 0.0;
+        for k in 0..N - 1 {
+            let (br, bi) = (ar[k + 1][k], ai[k + 1][k]);
+            let ab = (br * br + bi * bi).sqrt();
+            e[k] = ab;
+            tnorm = tnorm.max(ab);
+            let (mut pr, mut pi) = (out.phr[k], out.phi[k]);
+            if ab > 0.0 {
+                let (ur, ui) = (br / ab, bi / ab);
+                (pr, pi) = (pr * ur - pi * ui, pr * ui + pi * ur);
+            }
+            out.phr[k + 1] = pr;
+            out.phi[k + 1] = pi;
+        }
+        self.small = f64::EPSILON * tnorm;
+        self.hi = N - 1;
+        self.iterations = 0;
     }
-    for k in 0..N - 1 {
-        let (br, bi) = (ar[k + 1][k], ai[k + 1][k]);
-        let ab = (br * br + bi * bi).sqrt();
-        e[k] = ab;
-        let (mut pr, mut pi) = (out.phr[k], out.phi[k]);
-        if ab > 0.0 {
-            let (ur, ui) = (br / ab, bi / ab);
-            (pr, pi) = (pr * ur - pi * ui, pr * ui + pi * ur);
+
+    /// Deflate at the bottom, find the unreduced block ending at `hi` and its Wilkinson shift.
+    #[inline(always)]
+    fn next(&mut self) -> Next {
+        let (d, e, small) = (&self.d, &mut self.e, self.small);
+        while self.hi > 0 {
+            let hi = self.hi;
+            if e[hi - 1].abs() <= small {
+                e[hi - 1] = 0.0;
+                self.hi -= 1;
+                continue;
+            }
+            // start of the unreduced block ending at hi
+            let mut lo = hi - 1;
+            while lo > 0 && e[lo - 1].abs() > small {
+                lo -= 1;
+            }
+            if lo > 0 {
+                e[lo - 1] = 0.0;
+            }
+            self.iterations += 1;
+            if self.iterations > 30 * N {
+                return Next::Failed;
+            }
+            // Wilkinson shift: the eigenvalue m ∓ √(δ² + b²) of the trailing 2×2 closer to
+            // d[hi] (m the mean, δ half the difference of its diagonal). Written without the
+            // usual division: its cancellation costs ε‖T‖ in the shift, which any shift may
+            // have (every step is an exact rotation whatever the shift); it shortens the chain
+            // per step.
+            let delta = 0.5 * (d[hi - 1] - d[hi]);
+            let b = e[hi - 1];
+            let root = (delta * delta + b * b).sqrt();
+            let mean = 0.5 * (d[hi - 1] + d[hi]);
+            let mu = if delta >= 0.0 {
+                mean - root
+            } else {
+                mean + root
+            };
+            return Next::Sweep { lo, mu };
         }
-        out.phr[k + 1] = pr;
-        out.phi[k + 1] = pi;
+        Next::Converged
     }
-    // 3. implicit QR with Wilkinson shifts, rotations accumulated in Z
-    let tnorm = d
-        .iter()
-        .chain(&e[..N - 1])
-        .fold(0.0f64, |m, x| m.max(x.abs()));
-    let small = f64::EPSILON * tnorm;
-    let zt = &mut out.zt;
-    let mut hi = N - 1;
-    let mut iterations = 0;
-    while hi > 0 {
-        // deflate at the bottom
-        if e[hi - 1].abs() <= small {
-            e[hi - 1] = 0.0;
-            hi -= 1;
-            continue;
-        }
-        // start of the unreduced block ending at hi
-        let mut lo = hi - 1;
-        while lo > 0 && e[lo - 1].abs() > small {
-            lo -= 1;
-        }
-        if lo > 0 {
-            e[lo - 1] = 0.0;
-        }
-        iterations += 1;
-        if iterations > 30 * N {
-            return None;
-        }
-        // Wilkinson shift: the eigenvalue m ∓ √(δ² + b²) of the trailing 2×2 closer to d[hi]
-        // (m the mean, δ half the difference of its diagonal). Written without the usual
-        // division: its cancellation costs ε‖T‖ in the shift, which any shift may have (every
-        // step is an exact rotation whatever the shift); it shortens the chain per step.
-        let delta = 0.5 * (d[hi - 1] - d[hi]);
-        let b = e[hi - 1];
-        let root = (delta * delta + b * b).sqrt();
-        let mean = 0.5 * (d[hi - 1] + d[hi]);
-        let mu = if delta >= 0.0 {
-            mean - root
-        } else {
-            mean + root
-        };
-        // one sweep on the block lo..=hi, its size a compile-time constant (unrolled, in
-        // registers)
-        let (db, eb, zb) = (&mut d[lo..=hi], &mut e[lo..=hi], &mut zt[lo..=hi]);
-        let done = match hi - lo + 1 {
+
+    /// One sweep on the block lo..=hi, its size a compile-time constant (unrolled, in
+    /// registers).
+    #[inline(always)]
+    fn sweep(&mut self, lo: usize, mu: f64) -> bool {
+        let end = self.hi + 1;
+        let (db, eb, zb) = (
+            &mut self.d[lo..end],
+            &mut self.e[lo..end],
+            &mut self.out.zt[lo..end],
+        );
+        match end - lo {
             2 => chase::<N, 2>(db, eb, zb, mu),
             3 => chase::<N, 3>(db, eb, zb, mu),
             4 => chase::<N, 4>(db, eb, zb, mu),
@@ -273,16 +382,130 @@ pub(crate) fn solve<const N: usize>(h: &[crate::C64]) -> Option<SmallEigen<N>> {
             7 => chase::<N, 7>(db, eb, zb, mu),
             8 => chase::<N, 8>(db, eb, zb, mu),
             _ => chase_any(db, eb, zb, mu),
-        };
-        if !done {
-            return None;
         }
     }
-    if d.iter().any(|x| !x.is_finite()) {
-        return None;
+
+    /// This sweep and `other`'s (a block of the same size) in one loop body.
+    #[inline(always)]
+    fn sweep_with(&mut self, lo: usize, mu: f64, other: &mut Self, lo_b: usize, mu_b: f64) -> bool {
+        let (end, end_b) = (self.hi + 1, other.hi + 1);
+        let (da, ea, za) = (
+            &mut self.d[lo..end],
+            &mut self.e[lo..end],
+            &mut self.out.zt[lo..end],
+        );
+        let (db, eb, zb) = (
+            &mut other.d[lo_b..end_b],
+            &mut other.e[lo_b..end_b],
+            &mut other.out.zt[lo_b..end_b],
+        );
+        match end - lo {
+            2 => chase_pair::<N, 2>([da, db], [ea, eb], [za, zb], [mu, mu_b]),
+            3 => chase_pair::<N, 3>([da, db], [ea, eb], [za, zb], [mu, mu_b]),
+            4 => chase_pair::<N, 4>([da, db], [ea, eb], [za, zb], [mu, mu_b]),
+            5 => chase_pair::<N, 5>([da, db], [ea, eb], [za, zb], [mu, mu_b]),
+            6 => chase_pair::<N, 6>([da, db], [ea, eb], [za, zb], [mu, mu_b]),
+            7 => chase_pair::<N, 7>([da, db], [ea, eb], [za, zb], [mu, mu_b]),
+            8 => chase_pair::<N, 8>([da, db], [ea, eb], [za, zb], [mu, mu_b]),
+            // above 8 one sweep is long enough to overlap with the other on its own
+            _ => chase_any(da, ea, za, mu) && chase_any(db, eb, zb, mu_b),
+        }
     }
-    out.vals = d.map(|x| x * unscale);
-    Some(out)
+
+    /// The rest of the QR iteration alone, then [`Work::finish`].
+    #[inline(always)]
+    fn iterate(&mut self) -> bool {
+        loop {
+            match self.next() {
+                Next::Sweep { lo, mu } => {
+                    if !self.sweep(lo, mu) {
+                        return false;
+                    }
+                }
+                Next::Converged => return self.finish(),
+                Next::Failed => return false,
+            }
+        }
+    }
+
+    /// Eigenvalues scaled back into `out`; false if any is not finite.
+    #[inline(always)]
+    fn finish(&mut self) -> bool {
+        if self.d.iter().any(|x| !x.is_finite()) {
+            return false;
+        }
+        self.out.vals = self.d.map(|x| x * self.unscale);
+        true
+    }
+}
+
+/// Two independent N×N solves advanced together (results in `work[p].out`, true where solved):
+/// the Householder reflections of both in one loop, then the QR sweeps of both in one loop
+/// body — when both unreduced blocks have the same size, rotation k of each in the same
+/// iteration ([`chase_pair`]). Each keeps its own deflation, shifts and convergence; once one
+/// is done the other goes on alone. The results equal two [`Work::solve`] calls bit for bit
+/// (the same operations on each matrix, only interleaved): while one rotation waits on its
+/// division and square root the other's arithmetic runs.
+#[inline(always)]
+pub(crate) fn solve_pair<const N: usize>(
+    h: [&[crate::C64]; 2],
+    work: [&mut Work<N>; 2],
+) -> [bool; 2] {
+    let [wa, wb] = work;
+    let (la, lb) = (wa.load(h[0]), wb.load(h[1]));
+    if la != Loaded::Reduce || lb != Loaded::Reduce {
+        // one of them is already decided: the other alone
+        let single = |w: &mut Work<N>, l: Loaded| match l {
+            Loaded::Reduce => {
+                for k in 0..N.saturating_sub(2) {
+                    w.reflect(k);
+                }
+                w.tridiagonal();
+                w.iterate()
+            }
+            Loaded::Zero => true,
+            Loaded::Declined => false,
+        };
+        return [single(wa, la), single(wb, lb)];
+    }
+    for k in 0..N.saturating_sub(2) {
+        wa.reflect(k);
+        wb.reflect(k);
+    }
+    wa.tridiagonal();
+    wb.tridiagonal();
+    loop {
+        match (wa.next(), wb.next()) {
+            (Next::Sweep { lo: la, mu: ma }, Next::Sweep { lo: lb, mu: mb }) => {
+                if wa.hi - la == wb.hi - lb {
+                    if !wa.sweep_with(la, ma, wb, lb, mb) {
+                        return [false, false]; // (only on slice sizes: never, as called)
+                    }
+                } else {
+                    // blocks of different sizes: one sweep after the other (still
+                    // independent, the CPU overlaps what its window holds)
+                    let (oa, ob) = (wa.sweep(la, ma), wb.sweep(lb, mb));
+                    if !oa || !ob {
+                        return [oa && wa.iterate(), ob && wb.iterate()];
+                    }
+                }
+            }
+            (Next::Sweep { lo, mu }, rb) => {
+                let b = matches!(rb, Next::Converged) && wb.finish();
+                return [wa.sweep(lo, mu) && wa.iterate(), b];
+            }
+            (ra, Next::Sweep { lo, mu }) => {
+                let a = matches!(ra, Next::Converged) && wa.finish();
+                return [a, wb.sweep(lo, mu) && wb.iterate()];
+            }
+            (ra, rb) => {
+                return [
+                    matches!(ra, Next::Converged) && wa.finish(),
+                    matches!(rb, Next::Converged) && wb.finish(),
+                ];
+            }
+        }
+    }
 }
 
 /// One implicit QR sweep with shift `mu` on an unreduced M×M block (diagonal `d`, off-diagonal
@@ -342,6 +565,78 @@ fn chase<const N: usize, const M: usize>(
     }
     *d = dl;
     *e = el;
+    true
+}
+
+/// [`chase`] on two independent blocks of the same size M, rotation k of both in one loop body
+/// (the same operations on each as [`chase`], so the same results bit for bit): the two
+/// division → update chains run side by side.
+// Index loops read like the matrix algebra they implement.
+#[allow(clippy::needless_range_loop)]
+#[inline(always)]
+fn chase_pair<const N: usize, const M: usize>(
+    d: [&mut [f64]; 2],
+    e: [&mut [f64]; 2],
+    zt: [&mut [[f64; N]]; 2],
+    mu: [f64; 2],
+) -> bool {
+    let [d0, d1] = d;
+    let [e0, e1] = e;
+    let [z0, z1] = zt;
+    let (Ok(d0), Ok(d1), Ok(e0), Ok(e1), Ok(z0), Ok(z1)) = (
+        <&mut [f64; M]>::try_from(d0),
+        <&mut [f64; M]>::try_from(d1),
+        <&mut [f64; M]>::try_from(e0),
+        <&mut [f64; M]>::try_from(e1),
+        <&mut [[f64; N]; M]>::try_from(z0),
+        <&mut [[f64; N]; M]>::try_from(z1),
+    ) else {
+        return false;
+    };
+    let mut dl = [*d0, *d1];
+    let mut el = [*e0, *e1];
+    let zt = [z0, z1];
+    let mut x = [dl[0][0] - mu[0], dl[1][0] - mu[1]];
+    let mut z = [el[0][0], el[1][0]];
+    for k in 0..M - 1 {
+        // (see `chase` for the order of the operations)
+        let mut c = [0.0; 2];
+        let mut s = [0.0; 2];
+        for p in 0..2 {
+            let (xx, zz) = (x[p] * x[p], z[p] * z[p]);
+            let r2 = xx + zz;
+            let inv2 = 1.0 / r2;
+            let r = r2.sqrt();
+            let inv = r * inv2;
+            (c[p], s[p]) = (x[p] * inv, -z[p] * inv);
+            if k > 0 {
+                el[p][k - 1] = r;
+            }
+            let (a, b, dd) = (dl[p][k], el[p][k], dl[p][k + 1]);
+            let (cc, ss, cs) = (xx * inv2, zz * inv2, -(x[p] * z[p]) * inv2);
+            dl[p][k] = a * cc - 2.0 * b * cs + dd * ss;
+            dl[p][k + 1] = a * ss + 2.0 * b * cs + dd * cc;
+            el[p][k] = (a - dd) * cs + b * (cc - ss);
+            if k + 2 < M {
+                let f = el[p][k + 1];
+                z[p] = -s[p] * f;
+                el[p][k + 1] = c[p] * f;
+                x[p] = el[p][k];
+            }
+        }
+        for p in 0..2 {
+            let zp = &mut *zt[p];
+            for m in 0..N {
+                let (zk, zk1) = (zp[k][m], zp[k + 1][m]);
+                zp[k][m] = c[p] * zk - s[p] * zk1;
+                zp[k + 1][m] = s[p] * zk + c[p] * zk1;
+            }
+        }
+    }
+    *d0 = dl[0];
+    *d1 = dl[1];
+    *e0 = el[0];
+    *e1 = el[1];
     true
 }
 
