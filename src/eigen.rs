@@ -15,6 +15,17 @@
 //!   Givens rotations of ~7 QR steps, each a division → update chain): built for AVX2 + FMA it
 //!   needs 3100 instructions but no less time, so the crate stays on baseline x86-64. The
 //!   issue's 0.5 µs per generic 4×4 is not reached on this machine (2.1 GHz, shared).
+//! - Independent matrices in pairs (`eigh_pair_into`, `eigh_occupied_pair_into`; 2 ≤ n ≤ 8):
+//!   `eigen_small::solve_pair` reduces and sweeps two matrices in one loop body so one's
+//!   division chain runs while the other's waits; results equal two single solves bit for
+//!   bit. Wilson lines pair κ points s, s + 1, `wilson::evaluate_points` (TRIMs) and
+//!   `gap_search::gaps_at` (bulk grid) pair neighbouring points. Measured (interleaved A/B,
+//!   `-- solo-4` / `-- pair-4`, shared machine): generic 4×4 ~0.89 → ~0.76 µs per matrix
+//!   (callgrind ~4400 → ~4500 instructions per matrix: more bookkeeping, fewer stalls); 8×8
+//!   ~4.0–4.2 → ~3.2–3.6 µs (~25 900 → ~25 700 instructions), 6×6 ~2.0 → ~1.6 µs. Tried
+//!   and dropped: a branch-free search for the unreduced block (bit mask of the off-diagonals;
+//!   half the mispredicted branches in cachegrind's model, but ~15 % slower single solves:
+//!   the predicted branches let the next sweep start before the deflation test resolves).
 //! - The size-specialised cyclic Jacobi (`jacobi_fixed::<N>`, `[[C64; N]; N]`, one
 //!   instantiation per n, rotations in round-robin order, only the two rotated columns updated
 //!   and mirrored) remains for warm starts and as the fallback when the Householder path

@@ -570,7 +570,10 @@ fn chase<const N: usize, const M: usize>(
 
 /// [`chase`] on two independent blocks of the same size M, rotation k of both in one loop body
 /// (the same operations on each as [`chase`], so the same results bit for bit): the two
-/// division → update chains run side by side.
+/// division → update chains run side by side, stored as lanes `[a, b]` so the compiler can
+/// take both in one packed instruction. The loop body has no branches (it is then unrolled):
+/// the writes that [`chase`] skips at the ends of the block go to the off-diagonal entry
+/// after the block, e[hi] (zero: `hi` is the end of an unreduced block), restored at the end.
 // Index loops read like the matrix algebra they implement.
 #[allow(clippy::needless_range_loop)]
 #[inline(always)]
@@ -593,39 +596,38 @@ fn chase_pair<const N: usize, const M: usize>(
     ) else {
         return false;
     };
-    let mut dl = [*d0, *d1];
-    let mut el = [*e0, *e1];
-    let zt = [z0, z1];
-    let mut x = [dl[0][0] - mu[0], dl[1][0] - mu[1]];
-    let mut z = [el[0][0], el[1][0]];
+    #[inline(always)]
+    fn lanes(f: impl Fn(usize) -> f64) -> [f64; 2] {
+        [f(0), f(1)]
+    }
+    let mut dl: [[f64; 2]; M] = std::array::from_fn(|i| [d0[i], d1[i]]);
+    let mut el: [[f64; 2]; M] = std::array::from_fn(|i| [e0[i], e1[i]]);
+    let tail = el[M - 1];
+    let mut x = lanes(|p| dl[0][p] - mu[p]);
+    let mut z = el[0];
     for k in 0..M - 1 {
         // (see `chase` for the order of the operations)
-        let mut c = [0.0; 2];
-        let mut s = [0.0; 2];
-        for p in 0..2 {
-            let (xx, zz) = (x[p] * x[p], z[p] * z[p]);
-            let r2 = xx + zz;
-            let inv2 = 1.0 / r2;
-            let r = r2.sqrt();
-            let inv = r * inv2;
-            (c[p], s[p]) = (x[p] * inv, -z[p] * inv);
-            if k > 0 {
-                el[p][k - 1] = r;
-            }
-            let (a, b, dd) = (dl[p][k], el[p][k], dl[p][k + 1]);
-            let (cc, ss, cs) = (xx * inv2, zz * inv2, -(x[p] * z[p]) * inv2);
-            dl[p][k] = a * cc - 2.0 * b * cs + dd * ss;
-            dl[p][k + 1] = a * ss + 2.0 * b * cs + dd * cc;
-            el[p][k] = (a - dd) * cs + b * (cc - ss);
-            if k + 2 < M {
-                let f = el[p][k + 1];
-                z[p] = -s[p] * f;
-                el[p][k + 1] = c[p] * f;
-                x[p] = el[p][k];
-            }
-        }
-        for p in 0..2 {
-            let zp = &mut *zt[p];
+        let (xx, zz) = (lanes(|p| x[p] * x[p]), lanes(|p| z[p] * z[p]));
+        let r2 = lanes(|p| xx[p] + zz[p]);
+        let inv2 = lanes(|p| 1.0 / r2[p]);
+        let r = lanes(|p| r2[p].sqrt());
+        let inv = lanes(|p| r[p] * inv2[p]);
+        let c = lanes(|p| x[p] * inv[p]);
+        let s = lanes(|p| -z[p] * inv[p]);
+        el[if k > 0 { k - 1 } else { M - 1 }] = r; // (k = 0: into e[hi], restored below)
+        let (a, b, dd) = (dl[k], el[k], dl[k + 1]);
+        let cc = lanes(|p| xx[p] * inv2[p]);
+        let ss = lanes(|p| zz[p] * inv2[p]);
+        let cs = lanes(|p| -(x[p] * z[p]) * inv2[p]);
+        dl[k] = lanes(|p| a[p] * cc[p] - 2.0 * b[p] * cs[p] + dd[p] * ss[p]);
+        dl[k + 1] = lanes(|p| a[p] * ss[p] + 2.0 * b[p] * cs[p] + dd[p] * cc[p]);
+        el[k] = lanes(|p| (a[p] - dd[p]) * cs[p] + b[p] * (cc[p] - ss[p]));
+        // the bulge; in the last step (k = M − 2) this reads and writes e[hi] only
+        let f = el[k + 1];
+        z = lanes(|p| -s[p] * f[p]);
+        el[k + 1] = lanes(|p| c[p] * f[p]);
+        x = el[k];
+        for (zp, p) in [(&mut *z0, 0), (&mut *z1, 1)] {
             for m in 0..N {
                 let (zk, zk1) = (zp[k][m], zp[k + 1][m]);
                 zp[k][m] = c[p] * zk - s[p] * zk1;
@@ -633,10 +635,11 @@ fn chase_pair<const N: usize, const M: usize>(
             }
         }
     }
-    *d0 = dl[0];
-    *d1 = dl[1];
-    *e0 = el[0];
-    *e1 = el[1];
+    el[M - 1] = tail;
+    for i in 0..M {
+        (d0[i], d1[i]) = (dl[i][0], dl[i][1]);
+        (e0[i], e1[i]) = (el[i][0], el[i][1]);
+    }
     true
 }
 
