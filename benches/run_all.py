@@ -242,13 +242,17 @@ def sweep_table(quick: bool) -> list[str]:
         ),
     ]
     for label, model, grid in cases:
-        rate, undefined = [], 0
         n = int(np.prod([len(v) for v in grid.values()]))
-        for threads in (1, cores):
-            t0 = time.perf_counter()
-            ds = ts.sweep(model, grid, 2, progress=False, threads=threads)
-            rate.append(n / (time.perf_counter() - t0))
-            undefined = int((ds.phase.values < 0).sum())
+        # an untimed small sweep first: the first sweep of a process pays one-off set-up costs
+        ts.sweep(model, {k: v[:2] for k, v in grid.items()}, 2, progress=False)
+        best = {1: float("inf"), cores: float("inf")}
+        for _ in range(2):  # interleaved, best of two: both see the same machine load
+            for threads in best:
+                t0 = time.perf_counter()
+                ds = ts.sweep(model, grid, 2, progress=False, threads=threads)
+                best[threads] = min(best[threads], time.perf_counter() - t0)
+        rate = [n / best[1], n / best[cores]]
+        undefined = int((ds.phase.values < 0).sum())
         out.append(
             f"| {label} ({undefined} undefined) | {n} | {rate[0]:.0f} | {rate[1]:.0f} | "
             f"{rate[1] / rate[0]:.2f}× |"
@@ -319,9 +323,10 @@ def main() -> None:
         "(a) Hermitian eigensolver per matrix",
         eigensolver_table(repeats),
         "Batches of random complex Hermitian matrices; `_core.eigh` includes copying the batch "
-        "in and out of Python. n ≤ 8: size-specialised Householder reduction + implicit QR on "
+        "in and out of Python. n ≤ 16: size-specialised Householder reduction + implicit QR on "
         "split real/imaginary arrays (n = 4: closed form when the spectrum is two "
-        "Kramers-degenerate levels); n ≥ 9: faer.",
+        "Kramers-degenerate levels); n ≥ 17: faer. Matrices are solved one at a time here "
+        "(the engine pairs independent κ points, see the kernel tables).",
     )
     if not args.no_cargo:
         section(

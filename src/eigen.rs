@@ -817,11 +817,11 @@ fn jacobi(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResul
     Ok(())
 }
 
-/// Smallest n sent to faer (when built with the `faer` feature, as the Python build is): every
-/// size above the small-matrix path. Worst of 100 random and Kramers-degenerate matrices at
-/// n = 10…24 (`cargo bench --no-default-features --features faer --bench kernels -- dense`):
-/// faer's eigenvector residuals ‖Hv − λv‖ stay below 1e-14, nalgebra's reach 1e-11 (5e-10 in
-/// other draws); faer is as fast from n = 12 and 15 % slower at n = 10 (`-- eigen`).
+/// Smallest n the large-matrix solvers serve (when built with the `faer` feature, as the Python
+/// build is, that is faer): n > `SMALL_MAX_N`, and 9…16 when the fixed-size path declines. faer
+/// rather than nalgebra: worst of 100 random and Kramers-degenerate matrices at n = 10…24
+/// (`cargo bench --no-default-features --features faer --bench kernels -- dense`), faer's
+/// eigenvector residuals ‖Hv − λv‖ stay below 1e-14 while nalgebra's reach 1e-11 to 4e-8.
 pub const FAER_MIN_N: usize = JACOBI_MAX_N + 1;
 
 #[cfg(feature = "faer")]
