@@ -429,6 +429,56 @@ fn main() {
     if want("dense") {
         dense_tables(&mut rng, reps, &inner);
     }
+
+    #[cfg(feature = "faer")]
+    if want("simd") {
+        simd_state_table(&wd, &mut rng, reps);
+    }
+}
+
+/// A Wilson–Dirac point on one thread: fresh, right after a 64×64 eigensolve by faer itself
+/// (its AVX kernels may leave the upper register halves set), and after
+/// `dense::leave_wide_simd` — the evidence for calling it after every faer call.
+#[cfg(feature = "faer")]
+fn simd_state_table(wd: &toposweep::bloch::Bloch, rng: &mut Rng, reps: usize) {
+    let s = Sampling {
+        loop_points: 40,
+        lines: 41,
+        max_lines: 41,
+        step_limit: 0.08,
+        gap_floor: 0.0,
+        gap_points: 8,
+        gap_starts: 0,
+        method: Method::Wilson,
+        certify: false,
+    };
+    let h = rng.hermitian(64);
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .unwrap();
+    let (fresh, dirty, clean) = pool.install(|| {
+        let point = || {
+            time_ns(reps.min(5), 5, |_| {
+                black_box(evaluate_point(wd, 2, None, None, &s).unwrap());
+            })
+        };
+        let fresh = point();
+        let m = faer::Mat::<C64>::from_fn(64, 64, |i, j| h[i * 64 + j]);
+        black_box(m.self_adjoint_eigen(faer::Side::Lower).unwrap());
+        let dirty = point();
+        toposweep::dense::leave_wide_simd();
+        (fresh, dirty, point())
+    });
+    println!("| Wilson–Dirac point, one thread | time (ms) |");
+    println!("|---|---|");
+    println!("| fresh thread | {:.2} |", fresh / 1e6);
+    println!("| after one 64×64 faer eigensolve | {:.2} |", dirty / 1e6);
+    println!(
+        "| after that and `dense::leave_wide_simd` | {:.2} |",
+        clean / 1e6
+    );
+    println!();
 }
 
 /// A Hermitian eigensolver writing into (evals, vecs).

@@ -129,6 +129,25 @@ fn product_faer(
         C64::new(1.0, 0.0),
         Par::Seq,
     );
+    leave_wide_simd();
+}
+
+/// Clear the upper halves of the vector registers after faer's kernels.
+///
+/// faer picks AVX2/AVX-512 kernels at run time and can return with the upper register halves
+/// still set; the rest of the core is built for baseline x86-64 (SSE2), and on this CPU every
+/// SSE instruction of the thread then pays for merging with those stale upper halves. Measured
+/// (`cargo bench --no-default-features --features faer --bench kernels -- simd`): a
+/// Wilson–Dirac point on a thread that had just run one 64×64 faer eigensolve took about twice
+/// as long, for the rest of the thread's life, until `vzeroupper` ran. So every call into faer
+/// is followed by this.
+#[inline]
+pub fn leave_wide_simd() {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: `_mm256_zeroupper` only needs AVX, which was detected just above.
+        unsafe { std::arch::x86_64::_mm256_zeroupper() }
+    }
 }
 
 #[cfg(test)]
