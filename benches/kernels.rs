@@ -400,30 +400,26 @@ fn main() {
             .num_threads(1)
             .build()
             .unwrap();
-        let t = pool.install(|| {
-            time_ns(reps.min(5), inner(20), |_| {
-                black_box(evaluate_point(&wd, 2, None, None, &s).unwrap());
-            })
-        });
-        let r = evaluate_point(&wd, 2, None, None, &s).unwrap();
-        println!(
-            "Wilson–Dirac point (m = −2), 6 planes × 41 lines × 40 points, one thread: {:.3} ms → ({};{:?})\n",
-            t / 1e6,
-            r.nu0,
-            r.nu
+        // one thread: the time per point, and the indices it gave
+        let run = |model: &toposweep::bloch::Bloch, label: &str| {
+            let t = pool.install(|| {
+                time_ns(reps.min(5), inner(20), |_| {
+                    black_box(evaluate_point(model, 2, None, None, &s).unwrap());
+                })
+            });
+            let r = evaluate_point(model, 2, None, None, &s).unwrap();
+            println!(
+                "{label}, one thread: {:.3} ms → ({};{:?})\n",
+                t / 1e6,
+                r.nu0,
+                r.nu
+            );
+        };
+        run(
+            &wd,
+            "Wilson–Dirac point (m = −2), 6 planes × 41 lines × 40 points",
         );
-        let tg = pool.install(|| {
-            time_ns(reps.min(5), inner(20), |_| {
-                black_box(evaluate_point(&wdg, 2, None, None, &s).unwrap());
-            })
-        });
-        let r = evaluate_point(&wdg, 2, None, None, &s).unwrap();
-        println!(
-            "same + 0.1 σx⊗1 (generic 4×4 away from the TRIMs), one thread: {:.3} ms → ({};{:?})\n",
-            tg / 1e6,
-            r.nu0,
-            r.nu
-        );
+        run(&wdg, "same + 0.1 σx⊗1 (generic 4×4 away from the TRIMs)");
     }
 
     if want("dense") {
