@@ -385,17 +385,7 @@ fn main() {
     }
 
     if want("point") {
-        let s = Sampling {
-            loop_points: 40,
-            lines: 41,
-            max_lines: 41,
-            step_limit: 0.08,
-            gap_floor: 0.0,
-            gap_points: 8,
-            gap_starts: 0,
-            method: Method::Wilson,
-            certify: false,
-        };
+        let s = fixed_sampling();
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(1)
             .build()
@@ -437,17 +427,7 @@ fn main() {
 /// `dense::leave_wide_simd` — the evidence for calling it after every faer call.
 #[cfg(feature = "faer")]
 fn simd_state_table(wd: &toposweep::bloch::Bloch, rng: &mut Rng, reps: usize) {
-    let s = Sampling {
-        loop_points: 40,
-        lines: 41,
-        max_lines: 41,
-        step_limit: 0.08,
-        gap_floor: 0.0,
-        gap_points: 8,
-        gap_starts: 0,
-        method: Method::Wilson,
-        certify: false,
-    };
+    let s = fixed_sampling();
     let h = rng.hermitian(64);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(1)
@@ -475,6 +455,22 @@ fn simd_state_table(wd: &toposweep::bloch::Bloch, rng: &mut Rng, reps: usize) {
         clean / 1e6
     );
     println!();
+}
+
+/// The fixed sampling of the per-point comparison: 6 planes × 41 lines × 40 κ, the 8³
+/// gap grid, no gap search, no certificate.
+fn fixed_sampling() -> Sampling {
+    Sampling {
+        loop_points: 40,
+        lines: 41,
+        max_lines: 41,
+        step_limit: 0.08,
+        gap_floor: 0.0,
+        gap_points: 8,
+        gap_starts: 0,
+        method: Method::Wilson,
+        certify: false,
+    }
 }
 
 /// A Hermitian eigensolver writing into (evals, vecs).
