@@ -1180,11 +1180,9 @@ mod tests {
     /// random orbital basis; the form of a Wilson–Dirac H(κ)) take the two-level closed form;
     /// the reference Jacobi agrees. With a term that breaks the structure they take the
     /// Householder + QR path, which must agree too.
-    #[test]
-    fn two_level_path_matches_reference() {
-        let z = C64::new(0.0, 0.0);
-        let one = C64::new(1.0, 0.0);
-        let i1 = C64::new(0.0, 1.0);
+    /// Five anticommuting 4×4 Dirac matrices: σx⊗σx, σx⊗σy, σx⊗σz, σy⊗1, σz⊗1 (row-major).
+    fn dirac_gammas() -> Vec<Vec<C64>> {
+        let (z, one, i1) = (C64::new(0.0, 0.0), C64::new(1.0, 0.0), C64::new(0.0, 1.0));
         let s = [[z, one, one, z], [z, -i1, i1, z], [one, z, z, -one]];
         let s0 = [one, z, z, one];
         let kron = |a: &[C64; 4], b: &[C64; 4]| -> Vec<C64> {
@@ -1197,6 +1195,13 @@ mod tests {
         let mut gammas: Vec<Vec<C64>> = s.iter().map(|b| kron(&s[0], b)).collect();
         gammas.push(kron(&s[1], &s0));
         gammas.push(kron(&s[2], &s0));
+        gammas
+    }
+
+    #[test]
+    fn two_level_path_matches_reference() {
+        let z = C64::new(0.0, 0.0);
+        let gammas = dirac_gammas();
         for seed in 0..20u64 {
             let q = random_hermitian(4, 500 + seed);
             let (_, u) = eigh_reference(&q, 4);
@@ -1228,7 +1233,7 @@ mod tests {
                         let g01: C64 = (0..4)
                             .map(|k| gammas[0][i * 4 + k] * gammas[1][k * 4 + j])
                             .sum();
-                        h0[i * 4 + j] += i1 * g01 * 0.3;
+                        h0[i * 4 + j] += C64::new(0.0, 0.3) * g01;
                     }
                 }
             }
@@ -1388,20 +1393,7 @@ mod tests {
         if n == 4 {
             // H = d0 + Σ d_a Γ_a with anticommuting Γ_a (σx⊗σx, σx⊗σy, σx⊗σz, σy⊗1, σz⊗1):
             // two doubly degenerate levels (closed form)
-            let one = C64::new(1.0, 0.0);
-            let i1 = C64::new(0.0, 1.0);
-            let s = [[z, one, one, z], [z, -i1, i1, z], [one, z, z, -one]];
-            let s0 = [one, z, z, one];
-            let kron = |a: &[C64; 4], b: &[C64; 4]| -> Vec<C64> {
-                let mut k = vec![z; 16];
-                for (i, j, p, q) in (0..16).map(|x| (x >> 3 & 1, x >> 2 & 1, x >> 1 & 1, x & 1)) {
-                    k[(2 * i + p) * 4 + 2 * j + q] = a[2 * i + j] * b[2 * p + q];
-                }
-                k
-            };
-            let mut gammas: Vec<Vec<C64>> = s.iter().map(|b| kron(&s[0], b)).collect();
-            gammas.push(kron(&s[1], &s0));
-            gammas.push(kron(&s[2], &s0));
+            let gammas = dirac_gammas();
             for d in [
                 [0.3, -0.7, 0.2, 0.5, 0.1, -0.4],
                 [-1.1, 0.4, 0.9, -0.2, 0.6, 0.3],

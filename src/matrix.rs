@@ -456,6 +456,23 @@ mod tests {
         assert!(got.iter().all(|t| t.abs() < 1e-12), "{got:?}");
     }
 
+    /// The eigenphases of the n×n unitary `raw` (row-major (re, im)) against `want`, sorted with
+    /// −π counted as π; `want` are numpy.linalg.eigvals phases of the same matrix, rounded.
+    fn assert_phases(raw: &[(f64, f64)], n: usize, want: &[f64]) {
+        let w: Vec<C64> = raw.iter().map(|&(re, im)| C64::new(re, im)).collect();
+        let got = unitary_phases(&w, n).unwrap();
+        let pi = std::f64::consts::PI;
+        let mut g: Vec<f64> = got
+            .iter()
+            .map(|&t| if t < -3.0 { t + 2.0 * pi } else { t })
+            .collect();
+        g.sort_by(|a, b| a.total_cmp(b));
+        assert_eq!(g.len(), want.len());
+        for (a, b) in g.iter().zip(want) {
+            assert!((a - b).abs() < 1e-5, "{got:?}");
+        }
+    }
+
     #[test]
     fn phases_of_a_loop_that_is_unitary_only_to_1e_8() {
         // A 10×10 Wilson loop of a random 16-orbital model (tests/random_models.py, seed 1,
@@ -564,21 +581,14 @@ mod tests {
             (-6.874800728695618e-10, -6.667588425823823e-10),
             (0.9987705310707126, -6.231498108320854e-11),
         ];
-        let w: Vec<C64> = raw.iter().map(|&(re, im)| C64::new(re, im)).collect();
-        let got = unitary_phases(&w, 10).unwrap();
-        // phases by numpy.linalg.eigvals of the same matrix (rounded); ±π are the same phase
         let pi = std::f64::consts::PI;
-        let mut g: Vec<f64> = got
-            .iter()
-            .map(|&t| if t < -3.0 { t + 2.0 * pi } else { t })
-            .collect();
-        g.sort_by(|a, b| a.total_cmp(b));
-        let want = [
-            -0.04959, -0.04959, 0.0, 0.0, 0.0, 0.0, 0.04959, 0.04959, pi, pi,
-        ];
-        for (a, b) in g.iter().zip(want) {
-            assert!((a - b).abs() < 1e-5, "{got:?}");
-        }
+        assert_phases(
+            &raw,
+            10,
+            &[
+                -0.04959, -0.04959, 0.0, 0.0, 0.0, 0.0, 0.04959, 0.04959, pi, pi,
+            ],
+        );
     }
 
     #[test]
@@ -653,18 +663,11 @@ mod tests {
             (-1.7973733612564047e-11, 1.2670081997456784e-11),
             (0.9783696094020498, -1.1319041732550661e-11),
         ];
-        let w: Vec<C64> = raw.iter().map(|&(re, im)| C64::new(re, im)).collect();
-        let got = unitary_phases(&w, 8).unwrap();
-        // phases by numpy.linalg.eigvals of the same matrix (rounded); ±π are the same phase
         let pi = std::f64::consts::PI;
-        let mut g: Vec<f64> = got
-            .iter()
-            .map(|&t| if t < -3.0 { t + 2.0 * pi } else { t })
-            .collect();
-        g.sort_by(|a, b| a.total_cmp(b));
-        let want = [-0.020979, -0.020979, 0.020979, 0.020979, pi, pi, pi, pi];
-        for (a, b) in g.iter().zip(want) {
-            assert!((a - b).abs() < 1e-5, "{got:?}");
-        }
+        assert_phases(
+            &raw,
+            8,
+            &[-0.020979, -0.020979, 0.020979, 0.020979, pi, pi, pi, pi],
+        );
     }
 }
