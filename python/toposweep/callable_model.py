@@ -16,7 +16,7 @@ from numpy.typing import NDArray
 
 from . import _core
 from .errors import ModelError
-from .model import Model, matrix_from_json
+from .model import Model
 
 __all__ = ["CallableModel", "file_module_name"]
 
@@ -160,12 +160,7 @@ class CallableModel(Model):
                 d["dim"],
                 d["norb"],
                 parameters=d.get("parameters"),
-                lattice=d.get("lattice"),
-                positions=d.get("positions"),
-                time_reversal=matrix_from_json(d.get("time_reversal")),
-                inversion=matrix_from_json(d.get("inversion")),
-                energy_unit=d.get("energy_unit", "1"),
-                name=d.get("name", ""),
+                **cls._base_kwargs(d),
             )
             m.defaults.update({str(k): float(v) for k, v in d.get("defaults", {}).items()})
             m.parameter_info = {str(k): dict(v) for k, v in d.get("parameter_info", {}).items()}

@@ -228,6 +228,18 @@ class Model(ABC):
         }
 
     @staticmethod
+    def _base_kwargs(d: Mapping[str, Any]) -> dict[str, Any]:
+        """Constructor keywords shared by every model kind, from a :meth:`to_dict` description."""
+        return {
+            "lattice": d.get("lattice"),
+            "positions": d.get("positions"),
+            "time_reversal": matrix_from_json(d.get("time_reversal")),
+            "inversion": matrix_from_json(d.get("inversion")),
+            "energy_unit": d.get("energy_unit", "1"),
+            "name": d.get("name", ""),
+        }
+
+    @staticmethod
     def _default_value(name: Any, value: Any) -> float:
         try:
             if isinstance(value, bool | np.bool_ | str):

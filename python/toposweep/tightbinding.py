@@ -231,16 +231,7 @@ class TightBinding(Model):
     def from_dict(cls, d: Mapping[str, Any]) -> TightBinding:
         """Rebuild from :meth:`to_dict` output."""
         try:
-            m = cls(
-                d["dim"],
-                d["norb"],
-                lattice=d.get("lattice"),
-                positions=d.get("positions"),
-                time_reversal=matrix_from_json(d.get("time_reversal")),
-                inversion=matrix_from_json(d.get("inversion")),
-                energy_unit=d.get("energy_unit", "1"),
-                name=d.get("name", ""),
-            )
+            m = cls(d["dim"], d["norb"], **cls._base_kwargs(d))
             for term in d.get("terms", []):
                 m._terms.append(term)
             for h in d["hoppings"]:
