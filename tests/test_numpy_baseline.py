@@ -65,7 +65,8 @@ def test_many_occupied_bands_agree_with_numpy():
 
 def test_model_without_inversion_agrees_with_numpy():
     """No Kramers degeneracy away from the TRIMs: every κ point takes the generic 4×4 path.
-    The (1;000) phase survives the small inversion-breaking term (adiabatic continuity)."""
+    The (1;000) phase survives the small inversion-breaking term (adiabatic continuity, common
+    practice, no source; the gap stays open, checked by compare)."""
     ref, ds = compare(wilson_dirac_without_inversion(0.3), 2, {"mass": -2.0}, **SAMPLING)
     assert ref["reason"] == 0
     assert (ref["nu0"], ref["nu"]) == (1, [0, 0, 0])
