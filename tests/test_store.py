@@ -40,13 +40,9 @@ def same(a: xr.Dataset, b: xr.Dataset) -> None:
     xr.testing.assert_identical(a.assign_attrs(created=""), b.assign_attrs(created=""))
 
 
-def test_sigkill_half_way_then_resume_equals_uninterrupted_run(tmp_path: Path) -> None:
+def test_sigkill_half_way_then_resume_equals_uninterrupted_run(tmp_path: Path, monkeypatch) -> None:
     model = ts.models.bhz()
-    # CPU time of this process (all core threads): the work done, unlike wall-clock time
-    # hardly disturbed by other jobs on a shared machine
-    t0 = time.process_time()
     full = ts.sweep(model, KILL_GRID, 2, out=tmp_path / "full.nc", **KILL_OPTIONS)
-    full_seconds = time.process_time() - t0
 
     out = tmp_path / "killed.nc"
     journal = journal_path(out)
@@ -68,16 +64,25 @@ def test_sigkill_half_way_then_resume_equals_uninterrupted_run(tmp_path: Path) -
     kept = len(list(journal.glob("chunk-*.npz")))
     assert 9 <= kept < 20
 
-    t0 = time.process_time()
+    # count the points the resumed run evaluates: exactly those of the chunks the journal lacks
+    # (a count, not a CPU time: the fixed cost of writing the file is a large and varying
+    # share of a run this size, so a time ratio said little and failed on a loaded machine)
+    evaluated: list[int] = []
+    run_points = sweep_module.run_points
+
+    def counting(request, points):  # type: ignore[no-untyped-def]
+        evaluated.append(len(points))
+        return run_points(request, points)
+
+    monkeypatch.setattr(sweep_module, "run_points", counting)
     resumed = ts.sweep(model, KILL_GRID, 2, out=out, resume=True, **KILL_OPTIONS)
-    resume_seconds = time.process_time() - t0
+    monkeypatch.undo()
+    assert sum(evaluated) == 4000 - 200 * kept
+    assert all(n == 200 for n in evaluated)
     same(resumed, full)
     with xr.open_dataset(out) as a, xr.open_dataset(tmp_path / "full.nc") as b:
         same(a, b)
     assert not journal.exists()
-    # about half the work was left: resuming must be clearly cheaper than a full run
-    print(f"resume {resume_seconds:.2f} s CPU, full run {full_seconds:.2f} s CPU")
-    assert resume_seconds < 0.8 * full_seconds, (resume_seconds, full_seconds)
     full.close()
     resumed.close()
 
