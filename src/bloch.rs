@@ -29,7 +29,7 @@ pub trait BlochSource: Sync {
     }
 
     /// H at the `points` κ points base + (s/points) e_axis, s = 0…points−1 (a Wilson loop),
-    /// serially on the calling thread. The default builds the κ list and calls `fill`.
+    /// serially on the calling thread; `base[axis]` is ignored.
     fn fill_line(
         &self,
         base: &[f64],
@@ -37,12 +37,25 @@ pub trait BlochSource: Sync {
         points: usize,
         out: &mut [C64],
     ) -> CoreResult<()> {
+        self.fill_line_shifted(base, axis, points, 0.0, out)
+    }
+
+    /// [`fill_line`](Self::fill_line) at κ_axis = (s + shift)/points (the bulk gap grid takes
+    /// shift = ½: its points avoid the TRIMs). The default builds the κ list and calls `fill`.
+    fn fill_line_shifted(
+        &self,
+        base: &[f64],
+        axis: usize,
+        points: usize,
+        shift: f64,
+        out: &mut [C64],
+    ) -> CoreResult<()> {
         let dim = self.dim();
         let mut kappa = Vec::with_capacity(points * dim);
         for s in 0..points {
             let mut k = [0.0; 3];
             k[..dim].copy_from_slice(&base[..dim]);
-            k[axis] = s as f64 / points as f64;
+            k[axis] = (s as f64 + shift) / points as f64;
             kappa.extend_from_slice(&k[..dim]);
         }
         self.fill(&kappa, out)
@@ -233,18 +246,24 @@ impl BlochSource for Bloch {
     /// into the constant part). A κ point of the line then costs one real linear combination per
     /// distinct |m| — one or two for nearest-neighbour models, however many R there are — with
     /// cos θ, sin θ from a table of the L-th roots of unity (index |m|·s mod L: exact, no drift).
-    fn fill_line(
+    ///
+    /// A shift moves every point by shift/L along the axis: a phase 2π m·shift/L that folds into
+    /// φ⁰ like the other coordinates.
+    fn fill_line_shifted(
         &self,
         base: &[f64],
         axis: usize,
         points: usize,
+        shift: f64,
         out: &mut [C64],
     ) -> CoreResult<()> {
         let nn = self.norb * self.norb;
-        if out.len() < points * nn || axis >= self.dim || points == 0 {
-            return Err(invalid!("fill_line: bad axis, point count or buffer size"));
+        if out.len() < points * nn || axis >= self.dim || points == 0 || !shift.is_finite() {
+            return Err(invalid!(
+                "fill_line: bad axis, point count, shift or buffer size"
+            ));
         }
-        let folded = self.fold_line(base, axis);
+        let folded = self.fold_line(base, axis, shift / points as f64);
         ROOTS.with(|cell| {
             let mut roots = cell.borrow_mut();
             if roots.len() != points {
@@ -296,7 +315,8 @@ struct FoldedLine {
 }
 
 impl Bloch {
-    fn fold_line(&self, base: &[f64], axis: usize) -> FoldedLine {
+    /// `offset`: κ_axis of the line's first point (0 for a Wilson loop).
+    fn fold_line(&self, base: &[f64], axis: usize, offset: f64) -> FoldedLine {
         let nn = self.norb * self.norb;
         let mut line = FoldedLine {
             constant: self.onsite.clone(),
@@ -309,12 +329,15 @@ impl Bloch {
             .zip(self.cos_part.chunks_exact(nn))
             .zip(self.sin_part.chunks_exact(nn))
         {
-            // base[axis] is ignored: the loop coordinate runs over s / points
-            let phase: f64 = (0..self.dim)
+            // base[axis] is ignored: the loop coordinate runs over offset + s / points
+            let mut phase: f64 = (0..self.dim)
                 .filter(|&d| d != axis)
                 .map(|d| r[d] * base[d])
-                .sum::<f64>()
-                * TAU;
+                .sum::<f64>();
+            if offset != 0.0 {
+                phase += r[axis] * offset;
+            }
+            let phase = phase * TAU;
             let (s0, c0) = phase.sin_cos();
             let m = r[axis] as i64;
             if m == 0 {
@@ -402,14 +425,25 @@ mod tests {
             .unwrap()
             .at(&[0.7])
             .unwrap();
-        for (axis, lp) in [(0, 7), (1, 40), (2, 13)] {
+        for (axis, lp, shift) in [
+            (0, 7, 0.0),
+            (1, 40, 0.0),
+            (2, 13, 0.0),
+            (2, 8, 0.5),
+            (0, 5, -1.3),
+        ] {
             let base = [0.31, 0.5, 0.07];
             let mut line = vec![C64::new(0.0, 0.0); lp * n * n];
-            b.fill_line(&base, axis, lp, &mut line).unwrap();
+            if shift == 0.0 {
+                b.fill_line(&base, axis, lp, &mut line).unwrap();
+            } else {
+                b.fill_line_shifted(&base, axis, lp, shift, &mut line)
+                    .unwrap();
+            }
             let mut one = vec![C64::new(0.0, 0.0); n * n];
             for s in 0..lp {
                 let mut k = base;
-                k[axis] = s as f64 / lp as f64;
+                k[axis] = (s as f64 + shift) / lp as f64;
                 b.at_point(&k, &mut one);
                 for (x, y) in one.iter().zip(&line[s * n * n..(s + 1) * n * n]) {
                     assert!((x - y).norm() < 1e-13, "axis {axis} s {s}: {x} vs {y}");

@@ -136,6 +136,7 @@ pub fn eigh_occupied_into(
         3 => small_occupied::<3>(h, nocc, evals, occ),
         4 => {
             (nocc == 2 && eigen_small::two_level4::<1, 2>(h, evals, occ))
+                || (nocc == 0 && eigen_small::two_level4::<0, 0>(h, evals, occ))
                 || small_occupied::<4>(h, nocc, evals, occ)
         }
         5 => small_occupied::<5>(h, nocc, evals, occ),
@@ -236,13 +237,16 @@ pub fn eigh_occupied_pair_into(
         2 => pair_occupied::<2>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1]),
         3 => pair_occupied::<3>(h, nocc, [&mut *e0, &mut *e1], [&mut *o0, &mut *o1]),
         4 => {
-            let kramers = if nocc == 2 {
-                [
+            let kramers = match nocc {
+                2 => [
                     eigen_small::two_level4::<1, 2>(h[0], e0, o0),
                     eigen_small::two_level4::<1, 2>(h[1], e1, o1),
-                ]
-            } else {
-                [false, false]
+                ],
+                0 => [
+                    eigen_small::two_level4::<0, 0>(h[0], e0, o0),
+                    eigen_small::two_level4::<0, 0>(h[1], e1, o1),
+                ],
+                _ => [false, false],
             };
             match kramers {
                 [true, true] => [true, true],
@@ -265,6 +269,18 @@ pub fn eigh_occupied_pair_into(
         }
     }
     Ok(())
+}
+
+/// The eigenvalues (ascending) of two independent matrices of the same size: the Kramers
+/// closed form or the paired Householder + QR without writing vectors (the direct gaps of the
+/// bulk grid). `work` (n × n) is scratch for the fallbacks.
+pub fn eigvalsh_pair_into(
+    h: [&[C64]; 2],
+    n: usize,
+    evals: [&mut [f64]; 2],
+    work: &mut [C64],
+) -> CoreResult<()> {
+    eigh_occupied_pair_into(h, n, 0, evals, [&mut [], &mut []], work)
 }
 
 /// Paired Householder + QR, every vector formed; `[false, _]` where a solve declined.
@@ -891,7 +907,7 @@ fn sort_pairs(n: usize, evals: &mut [f64], v: &mut [C64]) {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
 
     fn random_hermitian(n: usize, seed: u64) -> Vec<C64> {
@@ -1181,7 +1197,7 @@ mod tests {
     /// the reference Jacobi agrees. With a term that breaks the structure they take the
     /// Householder + QR path, which must agree too.
     /// Five anticommuting 4×4 Dirac matrices: σx⊗σx, σx⊗σy, σx⊗σz, σy⊗1, σz⊗1 (row-major).
-    fn dirac_gammas() -> Vec<Vec<C64>> {
+    pub(crate) fn dirac_gammas() -> Vec<Vec<C64>> {
         let (z, one, i1) = (C64::new(0.0, 0.0), C64::new(1.0, 0.0), C64::new(0.0, 1.0));
         let s = [[z, one, one, z], [z, -i1, i1, z], [one, z, z, -one]];
         let s0 = [one, z, z, one];
@@ -1474,6 +1490,13 @@ mod tests {
                         assert!(e0 == one[0].0 && o0 == one[0].1, "n={n} nocc={nocc} first");
                         assert!(e1 == one[1].0 && o1 == one[1].1, "n={n} nocc={nocc} second");
                     }
+                    // eigenvalues only (the bulk gap grid): the same values
+                    let mut work = vec![z; n * n];
+                    eigvalsh_pair_into([ha, hb], n, [&mut e0, &mut e1], &mut work).unwrap();
+                    assert!(
+                        e0 == single[0].0 && e1 == single[1].0,
+                        "n={n} case {a}: eigenvalues only"
+                    );
                 }
                 // the single path itself against the reference Jacobi on the random cases (the
                 // others: `fast_paths_accurate_on_clustered_spectra`, `…_on_reduced_structures`)

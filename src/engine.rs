@@ -9,7 +9,7 @@
 
 use crate::bloch::BlochSource;
 use crate::error::{invalid, CoreError, CoreResult};
-use crate::gap_search::{gaps_at, minimise, pick_starts, SearchSettings};
+use crate::gap_search::{gaps_on_grid, minimise, pick_starts, SearchSettings};
 use crate::indices::{combine, Indices};
 use crate::lattice_z2::{lattice_planes_initial, lattice_planes_refine};
 use crate::parity::{parity_indices, reason, trims, ParityResult};
@@ -184,10 +184,32 @@ pub fn evaluate_point(
             ))
         }
     };
-    // TRIMs first (gaps, parity), then a uniform bulk grid (3D), the initial pump lines and
-    // the base lattice mesh; every sampled κ point is a candidate start for the gap search.
+    // TRIMs (gaps, parity), a uniform bulk grid (3D) and the initial pump lines: independent,
+    // so one parallel phase — rayon::join lets a worker that runs out of one steal from the
+    // others, where three phases in a row would each end with a worker waiting. Every sampled
+    // κ point is a candidate start for the gap search.
     let trim_k: Vec<f64> = trims(dim).iter().flat_map(|k| k[..dim].to_vec()).collect();
-    let (trim_stats, trim_e, trim_v) = evaluate_points(src, &trim_k, filling, true)?;
+    let bulk_k = bulk_grid(dim, s.gap_points);
+    let pl = planes(dim);
+    let (trim_res, (bulk_res, lines_res)) = rayon::join(
+        || evaluate_points(src, &trim_k, filling, true),
+        || {
+            rayon::join(
+                || {
+                    let mut st = BandStats::default();
+                    gaps_on_grid(src, &bulk_k, s.gap_points, filling, &mut st).map(|g| (g, st))
+                },
+                || {
+                    if want_wilson {
+                        initial_lines(src, &pl, filling, s, s.loop_points)
+                    } else {
+                        Ok(Vec::new())
+                    }
+                },
+            )
+        },
+    );
+    let (trim_stats, trim_e, trim_v) = trim_res?;
     let mut stats = trim_stats;
     let trim_gap: Vec<f64> = trim_e.iter().map(|e| e[filling] - e[filling - 1]).collect();
     let mut cand: Vec<(f64, [f64; 3])> = trims(dim)
@@ -195,17 +217,16 @@ pub fn evaluate_point(
         .zip(&trim_gap)
         .map(|(k, &g)| (g, k))
         .collect();
-    let bulk_k = bulk_grid(dim, s.gap_points);
-    let bulk_gap = gaps_at(src, &bulk_k, filling, &mut stats)?;
+    // (merged in the order the points were sampled: the same statistics as adding them in turn)
+    let (bulk_gap, bulk_stats) = bulk_res?;
+    stats.merge(&bulk_stats);
     for (g, k) in bulk_gap.iter().zip(bulk_k.chunks_exact(dim)) {
         let mut at = [0.0; 3];
         at[..dim].copy_from_slice(k);
         cand.push((*g, at));
     }
-    let pl = planes(dim);
-    let mut lines = Vec::new();
+    let mut lines = lines_res?;
     if want_wilson {
-        lines = initial_lines(src, &pl, filling, s, s.loop_points)?;
         line_stats(&lines, &mut stats, &mut cand);
     }
     let mut lat = match u_t {
