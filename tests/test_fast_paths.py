@@ -58,3 +58,41 @@ def test_per_line_fill_equals_batched_callable(mass):
         np.testing.assert_array_equal(a[k].values, b[k].values, err_msg=k)
     for k in GAPS:
         assert abs(float(a[k]) - float(b[k])) <= 1e-10
+
+
+def test_calls_from_many_python_threads_and_from_inside_a_callback():
+    """``threads=n`` runs on a pool in which the calling thread is one of the workers (one pool
+    per calling thread): concurrent callers, short-lived threads and a call made from inside a
+    Python callback of a running evaluation (the caller is then a worker of another pool, and
+    the shared pool of that size takes over) all give the single-thread answers."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    model = ts.models.wilson_dirac()
+    points = [model.resolve({"mass": m}) for m in (-2.0, 0.6)]
+    want = run_points(prepare_request(model, 2, inversion=None, sampling=FIXED, threads=1), points)
+
+    def call(threads: int) -> dict:
+        req = prepare_request(model, 2, inversion=None, sampling=FIXED, threads=threads)
+        return run_points(req, points)
+
+    for _ in range(2):  # fresh executors: their threads build pools, finish and exit
+        with ThreadPoolExecutor(max_workers=4) as ex:
+            for got in ex.map(call, [1, 2, 1, 2, 3, 1]):
+                same(want, got)
+
+    inner: list[dict] = []
+
+    def h(kappa, mass, hopping):
+        if not inner:  # once, from a worker thread of the outer evaluation
+            inner.append(call(1))
+            inner.append(call(2))
+        return model.hamiltonian(kappa, {"mass": mass, "hopping": hopping})
+
+    cm = ts.CallableModel(h, 3, 4, time_reversal=model.time_reversal)
+    cm.defaults = {"mass": -2.0, "hopping": 1.0}
+    outer = run_points(
+        prepare_request(cm, 2, inversion=None, sampling=FIXED, threads=2), [cm.resolve({})]
+    )
+    for got in inner:
+        same(want, got)
+    assert outer["nu0"].tolist() == [want["nu0"][0]]
