@@ -50,6 +50,24 @@ def test_single_point_matches_public_constructor(monkeypatch, name, filling, par
     _same(fast, slow)
 
 
+@pytest.mark.parametrize("slots_only", [True, False])
+def test_variables_filled_slot_by_slot_equal_constructed_ones(monkeypatch, slots_only):
+    """Both ways of making a Variable (slots filled directly where this xarray allows it, the
+    constructor otherwise) give Datasets identical to the public constructor's."""
+    import toposweep.dataset_assembly as assembly
+
+    if slots_only:
+        assert assembly._SLOTS_ONLY  # the xarray we test with takes the direct path
+    monkeypatch.setattr(assembly, "_SLOTS_ONLY", slots_only)
+    model = ts.models.wilson_dirac()
+    kw = {"loop_points": 12, "lines": 7, "gap_starts": 0, "certify": False}
+    fast = ts.invariants(model, 2, {"mass": -2.0}, **kw)
+    slow = _public(monkeypatch, lambda: ts.invariants(model, 2, {"mass": -2.0}, **kw))
+    _same(fast, slow)
+    fast.axis.attrs["extra"] = 1  # own attrs, also on the reused index coordinates
+    assert "extra" not in ts.invariants(model, 2, {"mass": -2.0}, **kw).axis.attrs
+
+
 def test_sweep_matches_public_constructor(monkeypatch):
     model = ts.models.wilson_dirac()
     grid = {"mass": np.linspace(-3.5, 3.5, 4), "hopping": [0.5, 1.0]}
