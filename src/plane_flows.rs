@@ -12,6 +12,7 @@ use crate::error::CoreResult;
 use crate::flow::{inspect, z2_of_flow};
 use crate::lattice_z2::LatticePlane;
 use crate::wilson::{evaluate_lines, BandStats, LineResult, LineSpec};
+use rayon::prelude::*;
 
 /// Pump intervals narrower than this are never split further.
 const MIN_INTERVAL: f64 = 1e-7;
@@ -129,6 +130,9 @@ pub fn refine_lines(
         for (p, pl) in all.iter().enumerate() {
             let (ts, ls) = (&pl.pump, &pl.lines);
             let budget = s.max_lines.saturating_sub(ts.len());
+            if budget == 0 {
+                continue; // (no line may be added: skip inspecting the flow for it)
+            }
             let mut new: Vec<(f64, f64)> = (0..ts.len() - 1)
                 .filter(|&m| ts[m + 1] - ts[m] > MIN_INTERVAL)
                 .filter_map(|m| {
@@ -155,7 +159,8 @@ pub fn refine_lines(
 
 /// Z2 and flow diagnostics of each plane from its lines.
 pub fn summarise(all: Vec<PlaneLines>, s: &Sampling) -> Vec<PlaneResult> {
-    all.into_iter()
+    // one rayon task per plane: otherwise the one serial stretch between the parallel phases
+    all.into_par_iter()
         .map(
             |PlaneLines {
                  pump: ts,
