@@ -176,8 +176,9 @@ class TightBinding(Model):
         coeffs = np.array([[1.0, *(p[t] for t in self._terms)] for p in points]).reshape(
             -1, nterm + 1
         )
-        res = np.abs(np.einsum("pt,t...->p...", coeffs, resid)).reshape(len(points), -1).max(axis=1)
-        scale = np.abs(np.einsum("pt,t...->p...", coeffs, hp)).reshape(len(points), -1).max(axis=1)
+        # (one matrix product per quantity: points × terms times terms × every residual entry)
+        res = np.abs(coeffs @ resid.reshape(nterm + 1, -1)).max(axis=1)
+        scale = np.abs(coeffs @ hp.reshape(nterm + 1, -1)).max(axis=1)
         return res / np.maximum(scale, 1e-300)
 
     def _term_residuals(
