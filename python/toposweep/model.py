@@ -33,10 +33,22 @@ def matrix_to_json(m: NDArray[np.complex128] | None) -> dict[str, list[list[floa
 
 
 def matrix_from_json(d: Mapping[str, Any] | None) -> NDArray[np.complex128] | None:
-    """Inverse of :func:`matrix_to_json`."""
+    """Inverse of :func:`matrix_to_json`.
+
+    The parts are set, not combined as re + 1j·im: 1j·inf would turn an infinite imaginary part
+    into NaN + inf·i (0·inf), and the error raised for the matrix would name the wrong value.
+
+    Examples
+    --------
+    >>> matrix_from_json({"re": [[1.0, float("inf")]], "im": [[float("inf"), 0.0]]})
+    array([[ 1.+infj, inf +0.j]])
+    """
     if d is None:
         return None
-    return np.asarray(d["re"], dtype=float) + 1j * np.asarray(d["im"], dtype=float)
+    re, im = np.asarray(d["re"], dtype=float), np.asarray(d["im"], dtype=float)
+    out = np.empty(np.broadcast_shapes(re.shape, im.shape), dtype=complex)
+    out.real, out.imag = re, im
+    return out
 
 
 class Model(ABC):
