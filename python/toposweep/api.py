@@ -61,7 +61,9 @@ def invariants(
     loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts, method, certify
         Sampling options, see :class:`toposweep.Sampling`.
     threads : int, optional
-        Worker threads (default: all cores, or ``RAYON_NUM_THREADS``).
+        Worker threads, the calling thread one of them (``threads=1``: the call runs on the
+        calling thread alone). Default: a pool shared by all callers, one worker per core (or
+        ``RAYON_NUM_THREADS``).
 
     Returns
     -------
@@ -142,7 +144,7 @@ def wcc_flow(
     pump_points : int
         Evenly spaced pump lines from 0 to 1/2.
     threads : int, optional
-        Worker threads.
+        Worker threads, as for :func:`invariants`.
 
     Returns
     -------

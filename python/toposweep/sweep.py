@@ -265,7 +265,8 @@ def sweep(
     progress : bool
         Draw a progress bar on stderr (only when stderr is a terminal).
     threads : int, optional
-        Worker threads of the core (default: all cores).
+        Worker threads of the core, the calling thread one of them (default: a pool shared by
+        all callers, one worker per core). Give ``threads=1`` to each process of a process pool.
     chunk_size : int, optional
         Points per core call (default: adapted so a chunk takes about a second).
     **sampling
