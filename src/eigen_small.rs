@@ -696,9 +696,9 @@ fn chase_any<const N: usize>(d: &mut [f64], e: &mut [f64], zt: &mut [[f64; N]], 
 /// Eigenvectors come from Gram–Schmidt on two columns of each projector (the column with the
 /// largest diagonal entry P_jj ≥ 1/2, then the one with the largest remainder), normalised by
 /// their computed norms. `LEVELS` = 1 writes only the lower level (two vectors: the occupied
-/// pair of a half-filled Kramers model), 2 writes both, 0 none (eigenvalues only); vector k goes to column k of `out`
-/// (row stride `LD`). Returns false (nothing written) when the structure is absent or a buffer
-/// is too short.
+/// pair of a half-filled Kramers model), 2 writes both, 0 none (eigenvalues only); vector k
+/// goes to column k of `out` (row stride `LD`). Returns false (nothing written) when the
+/// structure is absent or a buffer is too short.
 // Index loops read like the matrix algebra they implement.
 #[allow(clippy::needless_range_loop)]
 #[inline(always)]
