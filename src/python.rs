@@ -50,45 +50,56 @@ fn pool(threads: usize) -> CoreResult<Arc<rayon::ThreadPool>> {
 }
 
 thread_local! {
-    /// `threads = n`: pools in which the calling thread itself is one of the n workers (built
-    /// on first use, one per calling thread and size), so the caller works instead of waiting:
-    /// no hand-off to sleeping workers and back (about a fifth of a 4-band point on this
-    /// machine), and for `threads = 1` no extra thread at all — what callers that parallelise
-    /// themselves (a process pool, Dask workers) want.
-    static OWN_POOLS: std::cell::RefCell<HashMap<usize, std::rc::Rc<rayon::ThreadPool>>> =
-        std::cell::RefCell::new(HashMap::new());
+    /// `threads = 1`: a pool whose one worker is the calling thread itself (built on its first
+    /// such call), so the work runs inline — no hand-off to a sleeping worker and no wait for
+    /// it (about a fifth of a 4-band point on this machine), and no extra thread at all: what
+    /// callers that parallelise themselves (a process pool, Dask workers) want. A thread can be
+    /// a worker of one pool only, so larger `threads` use the shared pools.
+    static INLINE_POOL: std::cell::RefCell<Option<std::rc::Rc<rayon::ThreadPool>>> =
+        const { std::cell::RefCell::new(None) };
 }
 
-/// Run `f` on a pool of `threads` workers, the calling thread one of them; where such a pool
-/// cannot be built (the caller is itself a worker of another pool, e.g. inside a Python
-/// callback of a running evaluation), on a shared pool of that size.
-fn on_own_pool<T, F>(threads: usize, f: F) -> CoreResult<T>
+/// Run `f` on the calling thread (its one-worker pool); where that pool cannot be built (the
+/// caller is already a worker of another pool, e.g. inside a Python callback of a running
+/// evaluation), on the shared one-thread pool.
+fn on_calling_thread<T, F>(f: F) -> CoreResult<T>
 where
     T: Send,
     F: FnOnce() -> CoreResult<T> + Send,
 {
-    // (the map is not borrowed while `f` runs: `f` may call back into Python and here again)
-    let own = OWN_POOLS.with(|cell| {
-        let found = cell.borrow().get(&threads).cloned();
+    // (not borrowed while `f` runs: `f` may call back into Python and here again)
+    let own = INLINE_POOL.with(|cell| {
+        let found = cell.borrow().clone();
         found.or_else(|| {
             let built = rayon::ThreadPoolBuilder::new()
-                .num_threads(threads)
+                .num_threads(1)
                 .use_current_thread()
                 .build()
                 .ok()?;
             let p = std::rc::Rc::new(built);
-            cell.borrow_mut().insert(threads, p.clone());
+            *cell.borrow_mut() = Some(p.clone());
             Some(p)
         })
     });
     match own {
         Some(p) => p.install(f),
-        None => pool(threads)?.install(f),
+        None => pool(1)?.install(f),
     }
 }
 
-/// Release the GIL, run `f` on a pool of `threads` workers (None: rayon's global pool, sized by
-/// RAYON_NUM_THREADS or the core count), and turn errors and panics into Python exceptions.
+/// Workers when the caller does not say: RAYON_NUM_THREADS, else the cores this process may
+/// use (CPU affinity and cgroup quota included).
+fn default_threads() -> usize {
+    std::env::var("RAYON_NUM_THREADS")
+        .ok()
+        .and_then(|v| v.trim().parse::<usize>().ok())
+        .filter(|&n| n > 0)
+        .or_else(|| std::thread::available_parallelism().ok().map(|n| n.get()))
+        .unwrap_or(1)
+}
+
+/// Release the GIL, run `f` on a pool of `threads` workers (1: the calling thread; None: a
+/// shared pool of [`default_threads`]), and turn errors and panics into Python exceptions.
 fn detached<T, F>(py: Python<'_>, threads: Option<usize>, f: F) -> PyResult<T>
 where
     T: Send,
@@ -97,8 +108,11 @@ where
     let out = py.allow_threads(|| {
         catch_unwind(AssertUnwindSafe(|| match threads {
             Some(0) => Err(CoreError::InvalidInput("threads must be positive".into())),
-            Some(n) => on_own_pool(n, f),
-            None => f(),
+            Some(1) => on_calling_thread(f),
+            Some(n) => pool(n)?.install(f),
+            // (explicitly, not rayon's implicit global pool: a thread that is the worker of its
+            // `threads = 1` pool would otherwise run every later call on that one worker)
+            None => pool(default_threads())?.install(f),
         }))
     });
     match out {

@@ -9,6 +9,10 @@ Bloch fill of tight-binding models vs the batched fill of callable models.
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
+
 import numpy as np
 import pytest
 import toposweep as ts
@@ -61,10 +65,10 @@ def test_per_line_fill_equals_batched_callable(mass):
 
 
 def test_calls_from_many_python_threads_and_from_inside_a_callback():
-    """``threads=n`` runs on a pool in which the calling thread is one of the workers (one pool
-    per calling thread): concurrent callers, short-lived threads and a call made from inside a
-    Python callback of a running evaluation (the caller is then a worker of another pool, and
-    the shared pool of that size takes over) all give the single-thread answers."""
+    """``threads=1`` runs on the calling thread (its own one-worker pool), larger counts on
+    shared pools: concurrent callers, short-lived threads and calls made from inside a Python
+    callback of a running evaluation (the caller is then a worker of another pool, and the
+    shared one-thread pool takes over) all give the single-thread answers."""
     from concurrent.futures import ThreadPoolExecutor
 
     model = ts.models.wilson_dirac()
@@ -96,3 +100,36 @@ def test_calls_from_many_python_threads_and_from_inside_a_callback():
     for got in inner:
         same(want, got)
     assert outer["nu0"].tolist() == [want["nu0"][0]]
+
+
+THREAD_COUNT_SCRIPT = """
+import os, toposweep as ts
+from toposweep import _core
+from toposweep.sampling import Sampling
+count = lambda: len(os.listdir("/proc/self/task"))
+wd = ts.models.wilson_dirac()
+core, coeffs = wd.prepare([wd.resolve({"mass": -2.0})])
+kw = Sampling(loop_points=16, lines=9, max_lines=9).core_kwargs()
+seen = [count()]
+for threads in (1, 1, None, 3, 1):
+    _core.evaluate(core, coeffs, 2, threads=threads, **kw)
+    seen.append(count())
+print(*seen)
+"""
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self/task"), reason="counts threads through /proc")
+def test_threads_one_starts_no_thread_and_leaves_the_default_parallel():
+    """``threads=1`` runs on the calling thread (no new OS thread); a later default call still
+    gets its pool of one worker per core (the calling thread, now the worker of its one-thread
+    pool, must not capture it), ``threads=3`` a pool of three."""
+    env = {**os.environ, "RAYON_NUM_THREADS": "2"}
+    out = subprocess.run(
+        [sys.executable, "-c", THREAD_COUNT_SCRIPT], env=env, capture_output=True, text=True
+    )
+    assert out.returncode == 0, out.stderr
+    start, one, one_again, default, three, one_last = map(int, out.stdout.split())
+    assert one == start and one_again == start
+    assert default == start + 2
+    assert three == default + 3
+    assert one_last == three

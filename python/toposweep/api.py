@@ -61,9 +61,9 @@ def invariants(
     loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts, method, certify
         Sampling options, see :class:`toposweep.Sampling`.
     threads : int, optional
-        Worker threads, the calling thread one of them (``threads=1``: the call runs on the
-        calling thread alone). Default: a pool shared by all callers, one worker per core (or
-        ``RAYON_NUM_THREADS``).
+        Worker threads. ``threads=1`` runs the call on the calling thread (no other thread);
+        larger values use a pool of that many workers shared by the calls that ask for it.
+        Default: a shared pool of one worker per core (or ``RAYON_NUM_THREADS``).
 
     Returns
     -------

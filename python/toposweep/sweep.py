@@ -265,8 +265,8 @@ def sweep(
     progress : bool
         Draw a progress bar on stderr (only when stderr is a terminal).
     threads : int, optional
-        Worker threads of the core, the calling thread one of them (default: a pool shared by
-        all callers, one worker per core). Give ``threads=1`` to each process of a process pool.
+        Worker threads of the core, as for :func:`toposweep.invariants` (default: one per
+        core). ``threads=1`` runs on the calling thread: give it to each process of a pool.
     chunk_size : int, optional
         Points per core call (default: adapted so a chunk takes about a second).
     **sampling
