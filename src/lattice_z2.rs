@@ -16,7 +16,7 @@
 //! eigensolver, which is why it serves as an independent cross-check.
 
 use crate::bloch::BlochSource;
-use crate::eigen::eigh_into;
+use crate::eigen::{eigh_into, eigh_occupied_into, eigh_occupied_pair_into};
 use crate::error::{invalid, CoreError, CoreResult};
 use crate::wilson::BandStats;
 use crate::C64;
@@ -196,20 +196,11 @@ pub fn lattice_z2(
             kappa.extend_from_slice(&k[..dim]);
         }
     }
-    let nn = n * n;
-    let mut h = vec![C64::new(0.0, 0.0); npts * nn];
-    src.fill(&kappa, &mut h)?;
-    let solved: CoreResult<Vec<(Vec<f64>, Vec<C64>)>> = h
-        .par_chunks(nn)
-        .map(|hk| {
-            let mut e = vec![0.0; n];
-            let mut v = vec![C64::new(0.0, 0.0); nn];
-            eigh_into(hk, n, &mut e, &mut v)?;
-            let occ: Vec<C64> = (0..n).flat_map(|r| v[r * n..r * n + m].to_vec()).collect();
-            Ok((e, occ))
-        })
-        .collect();
-    let solved = solved?;
+    let solved = if src.prefers_batches() {
+        mesh_in_one_batch(src, &kappa, n, m)?
+    } else {
+        mesh_by_rows(src, plane, n, m, n1, n2)?
+    };
     let mut psi: Vec<Vec<C64>> = Vec::with_capacity(npts);
     for i in 0..rows {
         let mut row = BandStats::default();
@@ -222,6 +213,84 @@ pub fn lattice_z2(
     }
     psi.extend(solved.into_iter().map(|(_, v)| v));
     z2_of_frames(psi, u_t, n, m, n1, n2)
+}
+
+/// Energies and occupied frame (n × m, row-major) of one mesh point.
+type MeshPoint = (Vec<f64>, Vec<C64>);
+
+/// Energies and occupied frames (n × m) of every mesh point, H for all of them in one batch
+/// (sources that prefer batches: Python callbacks).
+fn mesh_in_one_batch(
+    src: &dyn BlochSource,
+    kappa: &[f64],
+    n: usize,
+    m: usize,
+) -> CoreResult<Vec<MeshPoint>> {
+    let nn = n * n;
+    let mut h = vec![C64::new(0.0, 0.0); kappa.len() / src.dim() * nn];
+    src.fill(kappa, &mut h)?;
+    h.par_chunks(nn)
+        .map(|hk| {
+            let mut e = vec![0.0; n];
+            let mut v = vec![C64::new(0.0, 0.0); nn];
+            eigh_into(hk, n, &mut e, &mut v)?;
+            let occ: Vec<C64> = (0..n).flat_map(|r| v[r * n..r * n + m].to_vec()).collect();
+            Ok((e, occ))
+        })
+        .collect()
+}
+
+/// [`mesh_in_one_batch`] row by row: a mesh row is a loop along the loop axis, so each rayon
+/// task builds it with the per-line Bloch sums (`fill_line`) and solves its κ points two at a
+/// time for the occupied vectors only, as the Wilson lines do.
+fn mesh_by_rows(
+    src: &dyn BlochSource,
+    plane: &LatticePlane,
+    n: usize,
+    m: usize,
+    n1: usize,
+    n2: usize,
+) -> CoreResult<Vec<MeshPoint>> {
+    let (dim, nn) = (src.dim(), n * n);
+    let rows: CoreResult<Vec<Vec<MeshPoint>>> = (0..=n2)
+        .into_par_iter()
+        .map_init(
+            || {
+                (
+                    vec![C64::new(0.0, 0.0); n1 * nn],
+                    vec![C64::new(0.0, 0.0); nn],
+                )
+            },
+            |(h, work), i| {
+                let mut base = plane.base;
+                base[plane.pump_axis] = 0.5 * i as f64 / n2 as f64;
+                src.fill_line(&base[..dim], plane.loop_axis, n1, h)?;
+                let mut row = Vec::with_capacity(n1);
+                for hs in h.chunks(2 * nn) {
+                    let (mut e0, mut o0) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * m]);
+                    if hs.len() == 2 * nn {
+                        let (mut e1, mut o1) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * m]);
+                        let (h0, h1) = hs.split_at(nn);
+                        eigh_occupied_pair_into(
+                            [h0, h1],
+                            n,
+                            m,
+                            [&mut e0, &mut e1],
+                            [&mut o0, &mut o1],
+                            work,
+                        )?;
+                        row.push((e0, o0));
+                        row.push((e1, o1));
+                    } else {
+                        eigh_occupied_into(hs, n, m, &mut e0, &mut o0, work)?;
+                        row.push((e0, o0));
+                    }
+                }
+                Ok(row)
+            },
+        )
+        .collect();
+    Ok(rows?.into_iter().flatten().collect())
 }
 
 /// The lattice Z2 from the occupied frames (n × m each, row-major) of an `n1` × (`n2` + 1)
@@ -457,6 +526,48 @@ mod tests {
                     lattice_z2(&src, &plane(), 2, &u_t, 24, 12, &mut st, &mut Vec::new()).unwrap();
                 assert!(r.admissible(), "m = {m}: {r:?}");
                 assert_eq!(r.z2, want, "m = {m}, rashba = {rashba}");
+            }
+        }
+    }
+
+    /// The same source seen as a batch source (as a Python callback is): `fill` only.
+    struct Batched<'a>(&'a dyn BlochSource);
+
+    impl BlochSource for Batched<'_> {
+        fn dim(&self) -> usize {
+            self.0.dim()
+        }
+        fn norb(&self) -> usize {
+            self.0.norb()
+        }
+        fn fill(&self, kappa: &[f64], out: &mut [C64]) -> CoreResult<()> {
+            self.0.fill(kappa, out)
+        }
+    }
+
+    /// Mesh rows built per line and solved two κ points at a time for the occupied vectors give
+    /// the outcome and band statistics of one batch of full solves (generic spectra with
+    /// Rashba mixing, Kramers-degenerate without; two mesh sizes).
+    #[test]
+    fn mesh_by_rows_matches_one_batch() {
+        for (rashba, n1) in [(0.0, 24), (0.3, 24), (0.3, 10)] {
+            let (model, u_t) = bhz(rashba, 0.0);
+            for m in [-1.0, 1.4] {
+                let src = model.at(&[m]).unwrap();
+                let (mut sa, mut sb) = (BandStats::default(), BandStats::default());
+                let (mut ca, mut cb) = (Vec::new(), Vec::new());
+                let rows = lattice_z2(&src, &plane(), 2, &u_t, n1, 11, &mut sa, &mut ca).unwrap();
+                let batch = lattice_z2(&Batched(&src), &plane(), 2, &u_t, n1, 11, &mut sb, &mut cb)
+                    .unwrap();
+                assert_eq!((rows.z2, rows.mesh), (batch.z2, batch.mesh), "m = {m}");
+                assert!((rows.max_field - batch.max_field).abs() < 1e-10);
+                assert!((rows.min_link - batch.min_link).abs() < 1e-10);
+                assert!((sa.min_direct - sb.min_direct).abs() < 1e-12);
+                assert!((sa.bandwidth() - sb.bandwidth()).abs() < 1e-12);
+                assert_eq!(ca.len(), cb.len());
+                for (x, y) in ca.iter().zip(&cb) {
+                    assert!((x.0 - y.0).abs() < 1e-12);
+                }
             }
         }
     }
