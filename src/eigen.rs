@@ -271,16 +271,52 @@ pub fn eigh_occupied_pair_into(
     Ok(())
 }
 
-/// The eigenvalues (ascending) of two independent matrices of the same size: the Kramers
-/// closed form or the paired Householder + QR without writing vectors (the direct gaps of the
-/// bulk grid). `work` (n × n) is scratch for the fallbacks.
-pub fn eigvalsh_pair_into(
-    h: [&[C64]; 2],
+/// [`eigh_occupied_into`] for k consecutive matrices of a line (`h`: k × n × n; `evals`: k × n;
+/// `occ`: k × n × nocc, empty for nocc = 0 — eigenvalues only), taken two at a time with
+/// [`eigh_occupied_pair_into`], an odd last one alone: the bulk gap grid and the lattice mesh
+/// rows. `work` (n × n) is scratch for the fallbacks.
+pub fn eigh_occupied_many_into(
+    h: &[C64],
     n: usize,
-    evals: [&mut [f64]; 2],
+    nocc: usize,
+    evals: &mut [f64],
+    occ: &mut [C64],
     work: &mut [C64],
 ) -> CoreResult<()> {
-    eigh_occupied_pair_into(h, n, 0, evals, [&mut [], &mut []], work)
+    let (nn, no) = (n * n, n * nocc);
+    let k = h.len() / nn.max(1);
+    if evals.len() < k * n || occ.len() < k * no {
+        return Err(CoreError::Internal(
+            "eigh_occupied_many_into: buffer too small".into(),
+        ));
+    }
+    for p in (0..k).step_by(2) {
+        let (e, o) = (&mut evals[p * n..], &mut occ[p * no..]);
+        if p + 1 < k {
+            let (e0, e1) = e.split_at_mut(n);
+            let (o0, o1) = o.split_at_mut(no);
+            let hp = &h[p * nn..(p + 2) * nn];
+            let (h0, h1) = hp.split_at(nn);
+            eigh_occupied_pair_into(
+                [h0, h1],
+                n,
+                nocc,
+                [e0, &mut e1[..n]],
+                [o0, &mut o1[..no]],
+                work,
+            )?;
+        } else {
+            eigh_occupied_into(
+                &h[p * nn..(p + 1) * nn],
+                n,
+                nocc,
+                &mut e[..n],
+                &mut o[..no],
+                work,
+            )?;
+        }
+    }
+    Ok(())
 }
 
 /// Paired Householder + QR, every vector formed; `[false, _]` where a solve declined.
@@ -1492,7 +1528,10 @@ pub(crate) mod tests {
                     }
                     // eigenvalues only (the bulk gap grid): the same values
                     let mut work = vec![z; n * n];
-                    eigvalsh_pair_into([ha, hb], n, [&mut e0, &mut e1], &mut work).unwrap();
+                    let both = [ha.as_slice(), hb.as_slice()].concat();
+                    let mut e01 = vec![0.0; 2 * n];
+                    eigh_occupied_many_into(&both, n, 0, &mut e01, &mut [], &mut work).unwrap();
+                    (e0, e1) = (e01[..n].to_vec(), e01[n..].to_vec());
                     assert!(
                         e0 == single[0].0 && e1 == single[1].0,
                         "n={n} case {a}: eigenvalues only"

@@ -12,7 +12,7 @@
 //! step towards the apex, so a closing is followed down until the gap is below the floor.
 
 use crate::bloch::BlochSource;
-use crate::eigen::{eigh_into, eigh_occupied_into, eigh_pair_into, eigvalsh_pair_into};
+use crate::eigen::{eigh_into, eigh_occupied_many_into, eigh_pair_into};
 use crate::error::CoreResult;
 use crate::wilson::BandStats;
 use crate::C64;
@@ -132,15 +132,7 @@ pub fn gaps_on_grid(
                 let base = [(a as f64 + 0.5) * step, (b as f64 + 0.5) * step, 0.0];
                 src.fill_line_shifted(&base, 2, m, 0.5, h)?;
                 let mut e = vec![0.0; m * n];
-                for (hs, es) in h.chunks(2 * nn).zip(e.chunks_mut(2 * n)) {
-                    if es.len() == 2 * n {
-                        let (e0, e1) = es.split_at_mut(n);
-                        let (h0, h1) = hs.split_at(nn);
-                        eigvalsh_pair_into([h0, h1], n, [e0, e1], work)?;
-                    } else {
-                        eigh_occupied_into(hs, n, 0, es, &mut [], work)?;
-                    }
-                }
+                eigh_occupied_many_into(h, n, 0, &mut e, &mut [], work)?;
                 Ok(e)
             },
         )

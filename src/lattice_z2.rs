@@ -16,7 +16,7 @@
 //! eigensolver, which is why it serves as an independent cross-check.
 
 use crate::bloch::BlochSource;
-use crate::eigen::{eigh_into, eigh_occupied_into, eigh_occupied_pair_into};
+use crate::eigen::{eigh_into, eigh_occupied_many_into};
 use crate::error::{invalid, CoreError, CoreResult};
 use crate::wilson::BandStats;
 use crate::C64;
@@ -265,27 +265,13 @@ fn mesh_by_rows(
                 let mut base = plane.base;
                 base[plane.pump_axis] = 0.5 * i as f64 / n2 as f64;
                 src.fill_line(&base[..dim], plane.loop_axis, n1, h)?;
-                let mut row = Vec::with_capacity(n1);
-                for hs in h.chunks(2 * nn) {
-                    let (mut e0, mut o0) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * m]);
-                    if hs.len() == 2 * nn {
-                        let (mut e1, mut o1) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * m]);
-                        let (h0, h1) = hs.split_at(nn);
-                        eigh_occupied_pair_into(
-                            [h0, h1],
-                            n,
-                            m,
-                            [&mut e0, &mut e1],
-                            [&mut o0, &mut o1],
-                            work,
-                        )?;
-                        row.push((e0, o0));
-                        row.push((e1, o1));
-                    } else {
-                        eigh_occupied_into(hs, n, m, &mut e0, &mut o0, work)?;
-                        row.push((e0, o0));
-                    }
-                }
+                let (mut e, mut o) = (vec![0.0; n1 * n], vec![C64::new(0.0, 0.0); n1 * n * m]);
+                eigh_occupied_many_into(h, n, m, &mut e, &mut o, work)?;
+                let row: Vec<MeshPoint> = e
+                    .chunks_exact(n)
+                    .zip(o.chunks_exact(n * m))
+                    .map(|(e, o)| (e.to_vec(), o.to_vec()))
+                    .collect();
                 Ok(row)
             },
         )
