@@ -423,7 +423,9 @@ fn main() {
             &wd,
             "Wilson–Dirac point (m = −2), 6 planes × 41 lines × 40 points",
         );
-        run(&wdg, "same + 0.1 σx⊗1 (generic 4×4 away from the TRIMs)");
+        if std::env::var_os("KERNEL_BENCH_SKIP_GENERIC").is_none() {
+            run(&wdg, "same + 0.1 σx⊗1 (generic 4×4 away from the TRIMs)");
+        }
     }
 
     if want("dense") {

@@ -571,6 +571,22 @@ fn flow<'py>(
     Ok(arr.into_pyarray(py))
 }
 
+/// The instruction-set level the kernels were compiled for (`RUSTFLAGS` of the build; the
+/// Makefile picks x86-64-v3 where the building machine has it).
+fn instruction_set() -> &'static str {
+    if cfg!(all(
+        target_arch = "x86_64",
+        target_feature = "avx2",
+        target_feature = "fma"
+    )) {
+        "x86-64-v3 (AVX2, FMA)"
+    } else if cfg!(target_arch = "x86_64") {
+        "x86-64 baseline (SSE2)"
+    } else {
+        std::env::consts::ARCH
+    }
+}
+
 #[pymodule]
 fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<CoreModel>()?;
@@ -579,5 +595,6 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(eigh, m)?)?;
     m.add_function(wrap_pyfunction!(flow, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
+    m.add("INSTRUCTION_SET", instruction_set())?;
     Ok(())
 }

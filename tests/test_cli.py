@@ -240,3 +240,16 @@ def test_ctrl_c_keeps_finished_chunks_and_resume_finishes(tmp_path: Path) -> Non
     assert resumed.returncode == 0, resumed.stderr
     assert "= 4000 points" in resumed.stdout
     assert not journal.exists()
+
+
+def test_version_names_the_instruction_set_of_the_kernels(tmp_path: Path) -> None:
+    import platform
+
+    import toposweep as ts
+    from toposweep import _core
+
+    out = toposweep("--version", cwd=tmp_path)
+    assert out.returncode == 0
+    assert out.stdout.strip() == f"toposweep {ts.__version__} (kernels: {_core.INSTRUCTION_SET})"
+    if platform.machine() == "x86_64":
+        assert _core.INSTRUCTION_SET in ("x86-64-v3 (AVX2, FMA)", "x86-64 baseline (SSE2)")

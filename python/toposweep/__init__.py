@@ -10,11 +10,15 @@ from __future__ import annotations
 
 from typing import Any
 
-from . import models
-from ._version import __version__
-from .api import invariants, wcc_flow
-from .callable_model import CallableModel
-from .errors import (
+from ._cpu_check import check_cpu
+
+check_cpu()  # before the extension is loaded: a clear error instead of "illegal instruction"
+
+from . import models  # noqa: E402
+from ._version import __version__  # noqa: E402
+from .api import invariants, wcc_flow  # noqa: E402
+from .callable_model import CallableModel  # noqa: E402
+from .errors import (  # noqa: E402
     ConfigError,
     FillingError,
     ModelError,
@@ -24,12 +28,12 @@ from .errors import (
     SymmetryError,
     ToposweepError,
 )
-from .model import Model
-from .sampling import Sampling
-from .store import open_result
-from .sweep import SweepInterrupted, sweep
-from .symmetrise import symmetrise
-from .tightbinding import TightBinding
+from .model import Model  # noqa: E402
+from .sampling import Sampling  # noqa: E402
+from .store import open_result  # noqa: E402
+from .sweep import SweepInterrupted, sweep  # noqa: E402
+from .symmetrise import symmetrise  # noqa: E402
+from .tightbinding import TightBinding  # noqa: E402
 
 __all__ = [
     "__version__",

@@ -10,6 +10,8 @@ import numpy as np
 from numpy.typing import NDArray
 
 __version__: str
+#: instruction-set level the kernels were compiled for, e.g. "x86-64-v3 (AVX2, FMA)"
+INSTRUCTION_SET: str
 
 class CoreModel:
     """A model as the core sees it: a hopping list or a Python callable."""

@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import NoReturn
 
+from . import _core
 from ._version import __version__
 from .errors import ConfigError, ParameterError, ToposweepError
 from .store import journal_path, open_result
@@ -123,7 +124,11 @@ def _parser() -> _Parser:
         prog="toposweep",
         description="Z2 topological indices of lattice models over parameter grids.",
     )
-    p.add_argument("--version", action="version", version=f"toposweep {__version__}")
+    p.add_argument(
+        "--version",
+        action="version",
+        version=f"toposweep {__version__} (kernels: {_core.INSTRUCTION_SET})",
+    )
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
 
     run = sub.add_parser("run", help="run the sweep described by a TOML configuration")
