@@ -327,3 +327,26 @@ def test_incomplete_callable_description_gives_a_model_error():
     del d["dim"]
     with pytest.raises(ts.ModelError, match="not a valid callable model description"):
         ts.model_from_dict(d, allow_code=True)
+
+
+def test_cached_json_text_follows_every_change_of_the_model() -> None:
+    """``to_json`` reuses its text while the model is unchanged (a tight-binding model checks
+    its hopping list by the number of add() calls); any change must show in the next text."""
+    m = ts.models.wilson_dirac()
+    first = m.to_json()
+    assert m.to_json() is first  # reused
+    m.add([1, 1, 0], 0.1 * np.eye(4), "hopping")  # an existing term: only the list grows
+    text = m.to_json()
+    assert json.loads(text)["hoppings"][-1]["R"] == [1, 1, 0]
+    for change in (lambda: setattr(m, "name", "renamed"), lambda: m.defaults.update(mass=0.25)):
+        change()
+        assert m.to_json() != text
+        text = m.to_json()
+        assert text == json.dumps(m.to_dict(), sort_keys=True)
+
+
+def test_stored_hopping_matrices_cannot_change_behind_the_caches() -> None:
+    m = ts.models.bhz()
+    r, t, _ = next(m.hoppings())
+    with pytest.raises(ValueError, match="read-only"):
+        t[0, 0] = 5.0

@@ -54,7 +54,15 @@ _METHOD_TEXT = {
     "lattice Z2 (Fukui-Hatsugai) cross-check",
 }
 
-INDEX_FLAGS = {"flag_values": np.array([-1, 0, 1], np.int8), "flag_meanings": "undefined even odd"}
+def _read_only(a: NDArray) -> NDArray:
+    a.setflags(write=False)  # shared by every result's attrs: no in-place change may leak
+    return a
+
+
+INDEX_FLAGS = {
+    "flag_values": _read_only(np.array([-1, 0, 1], np.int8)),
+    "flag_meanings": "undefined even odd",
+}
 
 
 def classify_phase(nu0: NDArray, nu: NDArray | None) -> NDArray[np.int8]:
@@ -80,9 +88,14 @@ def classify_phase(nu0: NDArray, nu: NDArray | None) -> NDArray[np.int8]:
 
 def _flags(codes: Mapping[int, str], dtype: Any = np.int8) -> dict[str, Any]:
     return {
-        "flag_values": np.array(list(codes), dtype=dtype),
+        "flag_values": _read_only(np.array(list(codes), dtype=dtype)),
         "flag_meanings": " ".join(codes.values()),
     }
+
+
+# (built once: every result carries them)
+_PHASE_FLAGS = _flags(PHASES)
+_REASON_FLAGS = _flags(REASONS)
 
 
 def build_dataset(
@@ -153,7 +166,7 @@ def build_dataset(
     data["phase"] = (
         dims,
         phase,
-        {"long_name": "topological phase", "units": "1", **_flags(PHASES)},
+        {"long_name": "topological phase", "units": "1", **_PHASE_FLAGS},
     )
     data["undefined_reason"] = (
         dims,
@@ -161,7 +174,7 @@ def build_dataset(
         {
             "long_name": "why the indices are undefined",
             "units": "1",
-            **_flags(REASONS),
+            **_REASON_FLAGS,
         },
     )
     data["gap_direct"] = (
@@ -250,7 +263,7 @@ def build_dataset(
             three_d=three_d,
             method=sampling.method,
             index_flags=INDEX_FLAGS,
-            reason_flags=_flags(REASONS),
+            reason_flags=_REASON_FLAGS,
         )
     )
     if parity_known:
@@ -295,7 +308,7 @@ def build_dataset(
             {
                 "long_name": "why the parity indices are undefined",
                 "units": "1",
-                **_flags(REASONS),
+                **_REASON_FLAGS,
             },
         )
         ntrim = 2**model.dim

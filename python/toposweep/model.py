@@ -82,7 +82,7 @@ class Model(ABC):
         self.defaults: dict[str, float] = {}
         #: optional ``{"long_name": ..., "units": ...}`` per parameter, for dataset coordinates
         self.parameter_info: dict[str, dict[str, str]] = {}
-        self._json_cache: tuple[dict[str, Any], str] | None = None
+        self._json_cache: tuple[Any, str] | None = None
 
     @staticmethod
     def _real_matrix(a: ArrayLike | None, shape: tuple[int, int], what: str) -> NDArray | None:
@@ -214,12 +214,20 @@ class Model(ABC):
         >>> json.loads(m.to_json()) == m.to_dict()
         True
         """
-        d = self.to_dict()
-        if self._json_cache is not None and self._json_cache[0] == d:
+        key = self._json_key()
+        if self._json_cache is not None and self._json_cache[0] == key:
             return self._json_cache[1]
-        text = json.dumps(d, sort_keys=True)
-        self._json_cache = (d, text)
+        text = json.dumps(self.to_dict(), sort_keys=True)
+        self._json_cache = (key, text)
         return text
+
+    def _json_key(self) -> Any:
+        """What :meth:`to_json`'s cached text depends on.
+
+        :meth:`to_dict` itself here; kinds whose description has a large part that changes only
+        through their own methods return something cheaper to build and compare.
+        """
+        return self.to_dict()
 
     def _base_dict(self) -> dict[str, Any]:
         return {

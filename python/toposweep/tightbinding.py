@@ -62,6 +62,9 @@ class TightBinding(Model):
         self._terms: list[str] = []
         self._core_cache: Any = None
         self._residual_cache: dict[tuple, tuple[NDArray, NDArray]] = {}
+        #: hoppings added so far: the caches above and the JSON text depend on the hopping list
+        #: only through it (the stored matrices are read-only copies, changed by add() alone)
+        self._hop_count = 0
 
     # -- building -------------------------------------------------------------------------------
     def add(self, R: Sequence[int], T: ArrayLike, term: str | None = None) -> TightBinding:
@@ -77,6 +80,7 @@ class TightBinding(Model):
             if term not in self._terms:
                 self._terms.append(term)
         self._hops.append((r, t, term))
+        self._hop_count += 1
         self._core_cache = None
         self._residual_cache.clear()
         return self
@@ -123,7 +127,11 @@ class TightBinding(Model):
                     "Put a non-Hermitian intra-cell coupling on one side only, e.g. T = "
                     "[[0, v], [0, 0]] at R = 0 is wrong; use [[0, v], [conj(v), 0]]."
                 )
-        return t.copy()
+        t = t.copy()
+        # read-only: the core model, the JSON text and the residual blocks are cached until the
+        # next add(); a matrix changed in place through hoppings() would silently leave them stale
+        t.setflags(write=False)
+        return t
 
     # -- model interface --------------------------------------------------------------------------
     @property
@@ -227,6 +235,10 @@ class TightBinding(Model):
             {"R": list(r), "term": term, "T": matrix_to_json(t)} for r, t, term in self._hops
         ]
         return d
+
+    def _json_key(self) -> Any:
+        # the hopping list changes only through add(): its count stands for it
+        return (self._base_dict(), tuple(self._terms), self._hop_count)
 
     @classmethod
     def from_dict(cls, d: Mapping[str, Any]) -> TightBinding:
