@@ -54,6 +54,7 @@ _METHOD_TEXT = {
     "lattice Z2 (Fukui-Hatsugai) cross-check",
 }
 
+
 def _read_only(a: NDArray) -> NDArray:
     a.setflags(write=False)  # shared by every result's attrs: no in-place change may leak
     return a
