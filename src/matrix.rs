@@ -90,31 +90,32 @@ pub fn unitarise(m: &mut [C64], n: usize) -> CoreResult<f64> {
     }
 }
 
-/// Closed-form polar factor of a 2×2 matrix. With A = M†M, s = |det M| = σ₁σ₂ and
-/// t = √(tr A + 2s) = σ₁ + σ₂, one has √A = (A + s·1)/t, hence
-/// U = M (√A)⁻¹ = M adj(A + s·1) / (s t).
+/// Closed-form polar factor of a 2×2 matrix. With s = |det M| = σ₁σ₂ and
+/// t = √(‖M‖²_F + 2s) = σ₁ + σ₂: U = (M + (det M / s) adj(M)†) / t — for M = U S,
+/// s (M†)⁻¹ = U s S⁻¹ and S + det(S) S⁻¹ = tr(S)·1 (Cayley–Hamilton for 2×2; common practice,
+/// no source). Returns the smallest singular value s/σ₁ (0, M left as is, when M is singular
+/// to 1e-14 relative).
 #[inline]
 pub(crate) fn unitarise_2x2(m: &mut [C64]) -> f64 {
     let (m00, m01, m10, m11) = (m[0], m[1], m[2], m[3]);
-    let a00 = m00.norm_sqr() + m10.norm_sqr();
-    let a11 = m01.norm_sqr() + m11.norm_sqr();
-    let a01 = m00.conj() * m01 + m10.conj() * m11;
+    let n2 = (m00.norm_sqr() + m11.norm_sqr()) + (m01.norm_sqr() + m10.norm_sqr());
+    let det = m00 * m11 - m01 * m10;
     // |det| by sqrt(norm²) rather than libm's overflow-safe hypot: overlap entries are ≤ 1
-    let s = (m00 * m11 - m01 * m10).norm_sqr().sqrt();
-    let t2 = a00 + a11 + 2.0 * s;
+    let s = det.norm_sqr().sqrt();
+    let t2 = n2 + 2.0 * s;
     let t = t2.sqrt();
     let smax = 0.5 * (t + (t2 - 4.0 * s).max(0.0).sqrt());
     let smin = if smax > 0.0 { s / smax } else { 0.0 };
     if smin <= 1e-14 * smax.max(1e-300) {
         return 0.0;
     }
-    // adj(A + s) = [[a11 + s, −a01], [−conj(a01), a00 + s]]
+    // one division: f = 1/(s t), then 1/t = s f
     let f = 1.0 / (s * t);
-    let (b00, b01, b10, b11) = (a11 + s, -a01, -a01.conj(), a00 + s);
-    m[0] = (m00 * b00 + m01 * b10) * f;
-    m[1] = (m00 * b01 + m01 * b11) * f;
-    m[2] = (m10 * b00 + m11 * b10) * f;
-    m[3] = (m10 * b01 + m11 * b11) * f;
+    let (q, g) = (det * f, s * f);
+    m[0] = m00 * g + q * m11.conj();
+    m[1] = m01 * g - q * m10.conj();
+    m[2] = m10 * g - q * m01.conj();
+    m[3] = m11 * g + q * m00.conj();
     smin
 }
 

@@ -135,12 +135,25 @@ pub fn evaluate_lines(
         return lines
             .par_iter()
             .map_init(
-                || (Vec::new(), vec![C64::new(0.0, 0.0); loop_points * nn]),
-                |(kappa, h), l| {
+                || {
+                    let h = vec![C64::new(0.0, 0.0); loop_points * nn];
+                    (Vec::new(), h, LineScratch::default())
+                },
+                |(kappa, h, scratch), l| {
                     kappa.clear();
                     line_kappa(l, kappa);
                     src.fill_line(&l.base[..dim], l.axis, loop_points, h)?;
-                    wilson_line(h, kappa, dim, n, filling, weight_of(l).as_deref())
+                    let w = weight_of(l);
+                    wilson_line_in(
+                        scratch,
+                        h,
+                        kappa,
+                        dim,
+                        n,
+                        filling,
+                        w.as_deref(),
+                        Kernels::Fast,
+                    )
                 },
             )
             .collect();
@@ -160,10 +173,20 @@ pub fn evaluate_lines(
         let res: CoreResult<Vec<LineResult>> = group
             .par_iter()
             .enumerate()
-            .map(|(i, l)| {
+            .map_init(LineScratch::default, |scratch, (i, l)| {
                 let hl = &h[i * loop_points * nn..(i + 1) * loop_points * nn];
                 let kl = &kappa[i * loop_points * dim..(i + 1) * loop_points * dim];
-                wilson_line(hl, kl, dim, n, filling, weight_of(l).as_deref())
+                let w = weight_of(l);
+                wilson_line_in(
+                    scratch,
+                    hl,
+                    kl,
+                    dim,
+                    n,
+                    filling,
+                    w.as_deref(),
+                    Kernels::Fast,
+                )
             })
             .collect();
         out.extend(res?);
@@ -185,19 +208,8 @@ pub enum Kernels {
     Reference,
 }
 
-/// Wilson loop of one line from its L Hamiltonians (`h`: L×n×n) at κ points `kappa` (L×dim).
-pub fn wilson_line(
-    h: &[C64],
-    kappa: &[f64],
-    dim: usize,
-    n: usize,
-    nocc: usize,
-    weight: Option<&[C64]>,
-) -> CoreResult<LineResult> {
-    wilson_line_with(h, kappa, dim, n, nocc, weight, Kernels::Fast)
-}
-
-/// [`wilson_line`] with an explicit choice of kernels.
+/// Wilson loop of one line from its L Hamiltonians (`h`: L×n×n) at κ points `kappa` (L×dim),
+/// with the given kernels (fresh buffers; the engine reuses a worker's, [`wilson_line_in`]).
 #[allow(clippy::too_many_arguments)]
 pub fn wilson_line_with(
     h: &[C64],
@@ -208,19 +220,73 @@ pub fn wilson_line_with(
     weight: Option<&[C64]>,
     kernels: Kernels,
 ) -> CoreResult<LineResult> {
+    let mut scratch = LineScratch::default();
+    wilson_line_in(&mut scratch, h, kappa, dim, n, nocc, weight, kernels)
+}
+
+/// The buffers of one Wilson line, kept by a worker from one line to the next: allocating
+/// them per line was ~5 % of a 4-band point's instructions (malloc/free of a dozen small
+/// vectors, 246 lines per point) once the kernels had become fast.
+#[derive(Default)]
+pub struct LineScratch {
+    e: Vec<f64>,
+    e2: Vec<f64>,
+    v: Vec<C64>,
+    first: Vec<C64>,
+    prev: Vec<C64>,
+    cur: Vec<C64>,
+    next: Vec<C64>,
+    scaled: Vec<C64>,
+    w: Vec<C64>,
+    m: Vec<C64>,
+    tmp: Vec<C64>,
+}
+
+/// `buf` as `len` zeros (the state a freshly allocated buffer would have), keeping its memory.
+fn zeroed<T: Copy + Default>(buf: &mut Vec<T>, len: usize) -> &mut Vec<T> {
+    buf.clear();
+    buf.resize(len, T::default());
+    buf
+}
+
+/// [`wilson_line_with`] on a worker's reused buffers.
+#[allow(clippy::too_many_arguments)]
+pub fn wilson_line_in(
+    scratch: &mut LineScratch,
+    h: &[C64],
+    kappa: &[f64],
+    dim: usize,
+    n: usize,
+    nocc: usize,
+    weight: Option<&[C64]>,
+    kernels: Kernels,
+) -> CoreResult<LineResult> {
     let nn = n * n;
     let l = h.len() / nn;
-    let zero = C64::new(0.0, 0.0);
-    // every buffer is allocated once per line, none inside the loop over κ
-    let mut e = vec![0.0; n];
-    let mut v = vec![zero; nn];
-    let mut first = vec![zero; n * nocc];
-    let mut prev = vec![zero; n * nocc];
-    let mut cur = vec![zero; n * nocc];
-    let mut scaled = vec![zero; if weight.is_some() { n * nocc } else { 0 }];
-    let mut w = vec![zero; nocc * nocc];
-    let mut m = vec![zero; nocc * nocc];
-    let mut tmp = vec![zero; nocc * nocc];
+    // no buffer is allocated inside the loop over κ; each starts zeroed, as if new
+    let LineScratch {
+        e,
+        e2,
+        v,
+        first,
+        prev,
+        cur,
+        next,
+        scaled,
+        w,
+        m,
+        tmp,
+    } = scratch;
+    let (e, e2) = (zeroed(e, n), zeroed(e2, n));
+    let v = zeroed(v, nn);
+    let (first, mut prev) = (zeroed(first, n * nocc), zeroed(prev, n * nocc));
+    let (mut cur, mut next) = (zeroed(cur, n * nocc), zeroed(next, n * nocc));
+    let scaled = zeroed(scaled, if weight.is_some() { n * nocc } else { 0 });
+    let (w, m, tmp) = (
+        zeroed(w, nocc * nocc),
+        zeroed(m, nocc * nocc),
+        zeroed(tmp, nocc * nocc),
+    );
     for a in 0..nocc {
         w[a * nocc + a] = C64::new(1.0, 0.0);
     }
@@ -231,24 +297,22 @@ pub fn wilson_line_with(
             return Ok(pair_step(from, to, w));
         }
         match weight {
-            None => overlap(from, to, n, nocc, nocc, &mut m),
+            None => overlap(from, to, n, nocc, nocc, m),
             Some(wt) => {
                 for (idx, x) in scaled.iter_mut().enumerate() {
                     *x = to[idx] * wt[idx / nocc];
                 }
-                overlap(from, &scaled, n, nocc, nocc, &mut m);
+                overlap(from, scaled, n, nocc, nocc, m);
             }
         }
         let s = match kernels {
-            Kernels::Fast | Kernels::FastSingle => unitarise(&mut m, nocc)?,
-            Kernels::Reference => unitarise_reference(&mut m, nocc)?,
+            Kernels::Fast | Kernels::FastSingle => unitarise(m, nocc)?,
+            Kernels::Reference => unitarise_reference(m, nocc)?,
         };
         tmp.copy_from_slice(w);
-        matmul(&tmp, &m, w, nocc, nocc, nocc);
+        matmul(tmp, m, w, nocc, nocc, nocc);
         Ok(s)
     };
-    let mut e2 = vec![0.0; n];
-    let mut next = vec![zero; n * nocc];
     let mut s = 0;
     while s < l {
         let hs = &h[s * nn..(s + 1) * nn];
@@ -260,9 +324,9 @@ pub fn wilson_line_with(
                 [hs, &h[(s + 1) * nn..(s + 2) * nn]],
                 n,
                 nocc,
-                [&mut e, &mut e2],
-                [&mut cur, &mut next],
-                &mut v,
+                [e, e2],
+                [cur, next],
+                v,
             )?,
             // A warm start from the previous κ point (`eigh_warm_into`) was measured to cost
             // more than it saves at 40 points per loop (Wilson–Dirac: 198 vs 160 M
@@ -270,34 +334,32 @@ pub fn wilson_line_with(
             // saved when neighbouring κ points are 2π/40 apart), so the cold fixed-size
             // solver is the production path.
             // only the occupied vectors, written straight into `cur`
-            Kernels::Fast | Kernels::FastSingle => {
-                eigh_occupied_into(hs, n, nocc, &mut e, &mut cur, &mut v)?
-            }
+            Kernels::Fast | Kernels::FastSingle => eigh_occupied_into(hs, n, nocc, e, cur, v)?,
             Kernels::Reference => {
-                eigh_reference_into(hs, n, &mut e, &mut v)?;
+                eigh_reference_into(hs, n, e, v)?;
                 for i in 0..n {
                     cur[i * nocc..(i + 1) * nocc].copy_from_slice(&v[i * n..i * n + nocc]);
                 }
             }
         }
-        stats.add(&e, nocc, &kappa[s * dim..(s + 1) * dim]);
+        stats.add(e, nocc, &kappa[s * dim..(s + 1) * dim]);
         if s == 0 {
-            first.copy_from_slice(&cur);
+            first.copy_from_slice(cur);
         } else {
-            min_singular = min_singular.min(step(&prev, &cur, &mut w)?);
+            min_singular = min_singular.min(step(prev, cur, w)?);
         }
         std::mem::swap(&mut prev, &mut cur);
         s += 1;
         if paired {
-            stats.add(&e2, nocc, &kappa[s * dim..(s + 1) * dim]);
-            min_singular = min_singular.min(step(&prev, &next, &mut w)?);
+            stats.add(e2, nocc, &kappa[s * dim..(s + 1) * dim]);
+            min_singular = min_singular.min(step(prev, next, w)?);
             std::mem::swap(&mut prev, &mut next);
             s += 1;
         }
     }
-    min_singular = min_singular.min(step(&prev, &first, &mut w)?);
+    min_singular = min_singular.min(step(prev, first, w)?);
     let mut centres: Vec<f64> = if min_singular > 0.0 {
-        unitary_phases(&w, nocc)?
+        unitary_phases(w, nocc)?
             .iter()
             .map(|t| (-t / TAU).rem_euclid(1.0))
             .collect()
@@ -484,6 +546,39 @@ mod tests {
                 }
                 assert!((fast.min_singular - slow.min_singular).abs() < 1e-10);
             }
+        }
+    }
+
+    /// One worker's buffers reused across lines of different sizes, weighted and not, give
+    /// what fresh buffers give, bit for bit (stale contents of a longer earlier line must not
+    /// leak into a later one).
+    #[test]
+    fn reused_line_buffers_equal_fresh_ones() {
+        let mut scratch = LineScratch::default();
+        let lp = 12;
+        for (n, nocc, weighted) in [(8, 4, false), (4, 2, false), (6, 2, true), (4, 1, false)] {
+            let model = random_model(n, 5 * n as u64 + nocc as u64).at(&[]).unwrap();
+            let kappa: Vec<f64> = (0..lp)
+                .flat_map(|s| [0.2, s as f64 / lp as f64, 0.4])
+                .collect();
+            let mut h = vec![C64::new(0.0, 0.0); lp * n * n];
+            model.fill(&kappa, &mut h).unwrap();
+            let weight: Option<Vec<C64>> = weighted.then(|| {
+                (0..n)
+                    .map(|i| C64::from_polar(1.0, 0.3 * i as f64))
+                    .collect()
+            });
+            let w = weight.as_deref();
+            let fresh = wilson_line_with(&h, &kappa, 3, n, nocc, w, Kernels::Fast).unwrap();
+            let reused =
+                wilson_line_in(&mut scratch, &h, &kappa, 3, n, nocc, w, Kernels::Fast).unwrap();
+            let bits = |r: &LineResult| {
+                let mut v: Vec<u64> = r.centres.iter().map(|x| x.to_bits()).collect();
+                v.extend([r.min_singular.to_bits(), r.stats.min_direct.to_bits()]);
+                v.extend([r.stats.top_occ.to_bits(), r.stats.e_max.to_bits()]);
+                v
+            };
+            assert_eq!(bits(&fresh), bits(&reused), "n={n}, nocc={nocc}");
         }
     }
 
