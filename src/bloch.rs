@@ -6,7 +6,7 @@
 //! few complex multiply-adds per matrix element.
 
 use crate::error::{invalid, CoreResult};
-use crate::C64;
+use crate::{fmadd, C64};
 use rayon::prelude::*;
 use std::collections::BTreeMap;
 use std::f64::consts::TAU;
@@ -209,8 +209,8 @@ impl Bloch {
 #[inline(always)]
 fn add_combination(out: &mut [C64], cp: &[C64], sp: &[C64], c: f64, s: f64) {
     for ((o, a), b) in out.iter_mut().zip(cp).zip(sp) {
-        o.re += a.re * c + b.re * s;
-        o.im += a.im * c + b.im * s;
+        o.re = fmadd(a.re, c, fmadd(b.re, s, o.re));
+        o.im = fmadd(a.im, c, fmadd(b.im, s, o.im));
     }
 }
 
@@ -284,8 +284,8 @@ impl BlochSource for Bloch {
                         let (a, b) = pair.split_at(nn);
                         let (k, o) = (&folded.constant[..nn], &mut o[..nn]);
                         for i in 0..nn {
-                            o[i].re = k[i].re + a[i].re * cs + b[i].re * sn;
-                            o[i].im = k[i].im + a[i].im * cs + b[i].im * sn;
+                            o[i].re = fmadd(a[i].re, cs, fmadd(b[i].re, sn, k[i].re));
+                            o[i].im = fmadd(a[i].im, cs, fmadd(b[i].im, sn, k[i].im));
                         }
                     }
                     None => o.copy_from_slice(&folded.constant),

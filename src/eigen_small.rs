@@ -29,6 +29,8 @@
 //! by a power of two (exact); non-finite input or an iteration that does not converge in
 //! 30 n steps returns `None`, and the caller runs Jacobi or the large-matrix solver.
 
+use crate::fmadd;
+
 /// Result of [`Work::solve`]: eigenvalues (unsorted) and the factors Q_H, D, Z of the eigenvectors.
 pub(crate) struct SmallEigen<const N: usize> {
     pub vals: [f64; N],
@@ -733,7 +735,7 @@ pub(crate) fn two_level4<const LEVELS: usize, const LD: usize>(
     let mut rn = [0.0f64; 4];
     for i in 0..4 {
         for k in 0..4 {
-            rn[i] += ar[i][k] * ar[i][k] + ai[i][k] * ai[i][k];
+            rn[i] = fmadd(ar[i][k], ar[i][k], fmadd(ai[i][k], ai[i][k], rn[i]));
         }
     }
     let r2 = 0.25 * (rn[0] + rn[1] + rn[2] + rn[3]);
@@ -752,11 +754,11 @@ pub(crate) fn two_level4<const LEVELS: usize, const LD: usize>(
             let (mut sr, mut si) = (t * ar[i][j], t * ai[i][j]);
             for k in 0..4 {
                 if k != i && k != j {
-                    sr += ar[i][k] * ar[k][j] - ai[i][k] * ai[k][j];
-                    si += ar[i][k] * ai[k][j] + ai[i][k] * ar[k][j];
+                    sr = fmadd(ar[i][k], ar[k][j], fmadd(-ai[i][k], ai[k][j], sr));
+                    si = fmadd(ar[i][k], ai[k][j], fmadd(ai[i][k], ar[k][j], si));
                 }
             }
-            if sr * sr + si * si > lim * lim {
+            if fmadd(sr, sr, si * si) > lim * lim {
                 return false;
             }
         }
@@ -788,7 +790,7 @@ pub(crate) fn two_level4<const LEVELS: usize, const LD: usize>(
             }
         }
         let (mut ur, mut ui) = column(&ar, &ai, f, j1);
-        let n1: f64 = (0..4).map(|i| ur[i] * ur[i] + ui[i] * ui[i]).sum();
+        let n1: f64 = (0..4).map(|i| fmadd(ur[i], ur[i], ui[i] * ui[i])).sum();
         let inv = 1.0 / n1.sqrt();
         for i in 0..4 {
             ur[i] *= inv;
@@ -799,7 +801,7 @@ pub(crate) fn two_level4<const LEVELS: usize, const LD: usize>(
         let mut j2 = usize::MAX;
         let mut best = f64::NEG_INFINITY;
         for j in 0..4 {
-            let left = 0.5 + f * ar[j][j] - (ur[j] * ur[j] + ui[j] * ui[j]);
+            let left = fmadd(f, ar[j][j], 0.5) - fmadd(ur[j], ur[j], ui[j] * ui[j]);
             if j != j1 && left > best {
                 (j2, best) = (j, left);
             }
@@ -811,14 +813,14 @@ pub(crate) fn two_level4<const LEVELS: usize, const LD: usize>(
         // w ← w − u (u†w), with the computed inner product
         let (mut cr, mut ci) = (0.0, 0.0);
         for i in 0..4 {
-            cr += ur[i] * wr[i] + ui[i] * wi[i];
-            ci += ur[i] * wi[i] - ui[i] * wr[i];
+            cr = fmadd(ur[i], wr[i], fmadd(ui[i], wi[i], cr));
+            ci = fmadd(ur[i], wi[i], fmadd(-ui[i], wr[i], ci));
         }
         for i in 0..4 {
-            wr[i] -= ur[i] * cr - ui[i] * ci;
-            wi[i] -= ur[i] * ci + ui[i] * cr;
+            wr[i] = fmadd(-ur[i], cr, fmadd(ui[i], ci, wr[i]));
+            wi[i] = fmadd(-ur[i], ci, fmadd(-ui[i], cr, wi[i]));
         }
-        let n2: f64 = (0..4).map(|i| wr[i] * wr[i] + wi[i] * wi[i]).sum();
+        let n2: f64 = (0..4).map(|i| fmadd(wr[i], wr[i], wi[i] * wi[i])).sum();
         let inv = 1.0 / n2.sqrt();
         let (c0, c1) = (2 * lev, 2 * lev + 1);
         for i in 0..4 {

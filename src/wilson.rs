@@ -15,7 +15,7 @@ use crate::error::{CoreError, CoreResult};
 use crate::matrix::{
     matmul, overlap, unitarise, unitarise_2x2, unitarise_reference, unitary_phases,
 };
-use crate::C64;
+use crate::{fmadd, C64};
 use rayon::prelude::*;
 use std::f64::consts::TAU;
 
@@ -385,14 +385,14 @@ fn pair_step(from: &[C64], to: &[C64], w: &mut [C64]) -> f64 {
         let (f0r, f0i, f1r, f1i) = (f[0].re, f[0].im, f[1].re, f[1].im);
         let (t0r, t0i, t1r, t1i) = (t[0].re, t[0].im, t[1].re, t[1].im);
         // conj(f_a) t_b
-        o[0] += f0r * t0r + f0i * t0i;
-        o[1] += f0r * t0i - f0i * t0r;
-        o[2] += f0r * t1r + f0i * t1i;
-        o[3] += f0r * t1i - f0i * t1r;
-        o[4] += f1r * t0r + f1i * t0i;
-        o[5] += f1r * t0i - f1i * t0r;
-        o[6] += f1r * t1r + f1i * t1i;
-        o[7] += f1r * t1i - f1i * t1r;
+        o[0] = fmadd(f0r, t0r, fmadd(f0i, t0i, o[0]));
+        o[1] = fmadd(f0r, t0i, fmadd(-f0i, t0r, o[1]));
+        o[2] = fmadd(f0r, t1r, fmadd(f0i, t1i, o[2]));
+        o[3] = fmadd(f0r, t1i, fmadd(-f0i, t1r, o[3]));
+        o[4] = fmadd(f1r, t0r, fmadd(f1i, t0i, o[4]));
+        o[5] = fmadd(f1r, t0i, fmadd(-f1i, t0r, o[5]));
+        o[6] = fmadd(f1r, t1r, fmadd(f1i, t1i, o[6]));
+        o[7] = fmadd(f1r, t1i, fmadd(-f1i, t1r, o[7]));
     }
     let mut m = [
         C64::new(o[0], o[1]),
