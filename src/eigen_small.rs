@@ -550,9 +550,9 @@ fn chase<const N: usize, const M: usize>(
         }
         let (a, b, dd) = (dl[k], el[k], dl[k + 1]);
         let (cc, ss, cs) = (xx * inv2, zz * inv2, -(x * z) * inv2);
-        dl[k] = a * cc - 2.0 * b * cs + dd * ss;
-        dl[k + 1] = a * ss + 2.0 * b * cs + dd * cc;
-        el[k] = (a - dd) * cs + b * (cc - ss);
+        dl[k] = fmadd(a, cc, fmadd(-2.0 * b, cs, dd * ss));
+        dl[k + 1] = fmadd(a, ss, fmadd(2.0 * b, cs, dd * cc));
+        el[k] = fmadd(a - dd, cs, b * (cc - ss));
         if k + 2 < M {
             let f = el[k + 1];
             z = -s * f;
@@ -561,8 +561,8 @@ fn chase<const N: usize, const M: usize>(
         }
         for m in 0..N {
             let (zk, zk1) = (zt[k][m], zt[k + 1][m]);
-            zt[k][m] = c * zk - s * zk1;
-            zt[k + 1][m] = s * zk + c * zk1;
+            zt[k][m] = fmadd(c, zk, -s * zk1);
+            zt[k + 1][m] = fmadd(s, zk, c * zk1);
         }
     }
     *d = dl;
@@ -621,9 +621,9 @@ fn chase_pair<const N: usize, const M: usize>(
         let cc = lanes(|p| xx[p] * inv2[p]);
         let ss = lanes(|p| zz[p] * inv2[p]);
         let cs = lanes(|p| -(x[p] * z[p]) * inv2[p]);
-        dl[k] = lanes(|p| a[p] * cc[p] - 2.0 * b[p] * cs[p] + dd[p] * ss[p]);
-        dl[k + 1] = lanes(|p| a[p] * ss[p] + 2.0 * b[p] * cs[p] + dd[p] * cc[p]);
-        el[k] = lanes(|p| (a[p] - dd[p]) * cs[p] + b[p] * (cc[p] - ss[p]));
+        dl[k] = lanes(|p| fmadd(a[p], cc[p], fmadd(-2.0 * b[p], cs[p], dd[p] * ss[p])));
+        dl[k + 1] = lanes(|p| fmadd(a[p], ss[p], fmadd(2.0 * b[p], cs[p], dd[p] * cc[p])));
+        el[k] = lanes(|p| fmadd(a[p] - dd[p], cs[p], b[p] * (cc[p] - ss[p])));
         // the bulge; in the last step (k = M − 2) this reads and writes e[hi] only
         let f = el[k + 1];
         z = lanes(|p| -s[p] * f[p]);
@@ -632,8 +632,8 @@ fn chase_pair<const N: usize, const M: usize>(
         for (zp, p) in [(&mut *z0, 0), (&mut *z1, 1)] {
             for m in 0..N {
                 let (zk, zk1) = (zp[k][m], zp[k + 1][m]);
-                zp[k][m] = c[p] * zk - s[p] * zk1;
-                zp[k + 1][m] = s[p] * zk + c[p] * zk1;
+                zp[k][m] = fmadd(c[p], zk, -s[p] * zk1);
+                zp[k + 1][m] = fmadd(s[p], zk, c[p] * zk1);
             }
         }
     }
@@ -667,9 +667,9 @@ fn chase_any<const N: usize>(d: &mut [f64], e: &mut [f64], zt: &mut [[f64; N]], 
         }
         let (a, b, dd) = (d[k], e[k], d[k + 1]);
         let (cc, ss, cs) = (xx * inv2, zz * inv2, -(x * z) * inv2);
-        d[k] = a * cc - 2.0 * b * cs + dd * ss;
-        d[k + 1] = a * ss + 2.0 * b * cs + dd * cc;
-        e[k] = (a - dd) * cs + b * (cc - ss);
+        d[k] = fmadd(a, cc, fmadd(-2.0 * b, cs, dd * ss));
+        d[k + 1] = fmadd(a, ss, fmadd(2.0 * b, cs, dd * cc));
+        e[k] = fmadd(a - dd, cs, b * (cc - ss));
         if k + 2 < m {
             let f = e[k + 1];
             z = -s * f;
@@ -679,8 +679,8 @@ fn chase_any<const N: usize>(d: &mut [f64], e: &mut [f64], zt: &mut [[f64; N]], 
         let (lo, hi) = zt.split_at_mut(k + 1);
         for (p, q) in lo[k].iter_mut().zip(hi[0].iter_mut()) {
             let (zk, zk1) = (*p, *q);
-            *p = c * zk - s * zk1;
-            *q = s * zk + c * zk1;
+            *p = fmadd(c, zk, -s * zk1);
+            *q = fmadd(s, zk, c * zk1);
         }
     }
     true
