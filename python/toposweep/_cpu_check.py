@@ -48,8 +48,10 @@ def check_cpu(
     """Raise ImportError when the extension was built for features this CPU lacks."""
     try:
         build_flags = flags_file.read_text()
+        if "x86-64-v3" not in build_flags:
+            return  # a portable build runs anywhere
         info = cpuinfo.read_text()
-    except OSError:  # no record of the build (pip install, portable) or no /proc: nothing to check
+    except OSError:  # no record of the build (pip install) or no /proc: nothing to check
         return
     missing = missing_features(build_flags, info)
     if missing:

@@ -62,8 +62,8 @@ class TightBinding(Model):
         self._terms: list[str] = []
         self._core_cache: Any = None
         self._residual_cache: dict[tuple, tuple[NDArray, NDArray]] = {}
-        #: hoppings added so far: the caches above and the JSON text depend on the hopping list
-        #: only through it (the stored matrices are read-only copies, changed by add() alone)
+        #: hoppings added so far: stands for the hopping list in the key of the cached JSON text
+        #: (add() is the only way to change the list; the stored matrices are read-only copies)
         self._hop_count = 0
 
     # -- building -------------------------------------------------------------------------------
