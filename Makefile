@@ -11,6 +11,7 @@ PY_DEPS := maturin numpy xarray h5netcdf h5py matplotlib pytest hypothesis ruff 
 # that level, as told by rustc itself: the kernels run about a fifth faster than at the baseline
 # x86-64 level (DEVELOPERS.md, "Instruction set"), and the build then runs only on such CPUs.
 # RUSTFLAGS set by the caller wins: `RUSTFLAGS= make build` gives a portable build.
+# (rustc's names; python/toposweep/_cpu_check.py lists the same features by /proc/cpuinfo's names)
 V3_FEATURES := avx avx2 bmi1 bmi2 f16c fma lzcnt movbe
 ifeq ($(origin RUSTFLAGS),undefined)
   HOST_FEATURES := $(shell rustc --print cfg -C target-cpu=native 2>/dev/null \
