@@ -88,14 +88,18 @@ where
 }
 
 /// Workers when the caller does not say: RAYON_NUM_THREADS, else the cores this process may
-/// use (CPU affinity and cgroup quota included).
+/// use (CPU affinity and cgroup quota included). Read once per process: asking the system
+/// reads cgroup files, ~15 µs that every default call paid (as much as a small model's point).
 fn default_threads() -> usize {
-    std::env::var("RAYON_NUM_THREADS")
-        .ok()
-        .and_then(|v| v.trim().parse::<usize>().ok())
-        .filter(|&n| n > 0)
-        .or_else(|| std::thread::available_parallelism().ok().map(|n| n.get()))
-        .unwrap_or(1)
+    static THREADS: OnceLock<usize> = OnceLock::new();
+    *THREADS.get_or_init(|| {
+        std::env::var("RAYON_NUM_THREADS")
+            .ok()
+            .and_then(|v| v.trim().parse::<usize>().ok())
+            .filter(|&n| n > 0)
+            .or_else(|| std::thread::available_parallelism().ok().map(|n| n.get()))
+            .unwrap_or(1)
+    })
 }
 
 /// Release the GIL, run `f` on a pool of `threads` workers (1: the calling thread; None: a
@@ -309,11 +313,14 @@ fn matrix(a: &PyReadonlyArray2<C64>, n: usize, what: &str) -> PyResult<Vec<C64>>
 }
 
 /// Indices, gaps and diagnostics at every row of `coeffs` (npoints, nterms). Returns a dict
-/// of arrays whose first axis is the point.
+/// of arrays whose first axis is the point. `alongside`: a Python callable (no arguments) run
+/// while the points are evaluated when there is more than one worker — Python work that does
+/// not need the results (symmetry checks, the result's layout) then costs no extra time —
+/// and before them otherwise; its exception is raised, whatever the points gave.
 #[pyfunction]
 #[pyo3(signature = (model, coeffs, filling, *, inversion=None, time_reversal=None, loop_points,
                     lines, max_lines, step_limit, gap_floor, gap_points, gap_starts=3,
-                    method="wilson", certify=true, threads=None))]
+                    method="wilson", certify=true, threads=None, alongside=None))]
 #[allow(clippy::too_many_arguments)]
 fn evaluate<'py>(
     py: Python<'py>,
@@ -332,6 +339,7 @@ fn evaluate<'py>(
     method: &str,
     certify: bool,
     threads: Option<usize>,
+    alongside: Option<Py<PyAny>>,
 ) -> PyResult<Bound<'py, PyDict>> {
     let rows = coeff_rows(model, &coeffs)?;
     let inv = inversion
@@ -354,7 +362,7 @@ fn evaluate<'py>(
     };
     s.validate().map_err(to_py)?;
     let error = Arc::new(Mutex::new(None));
-    let run = detached(py, threads, || {
+    let points = || {
         rows.par_iter()
             .enumerate()
             .map(|(i, c)| {
@@ -363,7 +371,29 @@ fn evaluate<'py>(
                 })
             })
             .collect::<CoreResult<Vec<PointResult>>>()
-    });
+    };
+    let run = match alongside {
+        None => detached(py, threads, points),
+        // one worker: the Python job first, on this thread, then the points
+        Some(f) if threads.unwrap_or_else(default_threads) == 1 => {
+            f.call0(py)?;
+            detached(py, threads, points)
+        }
+        // The Python job on the worker that takes the run (with the GIL this thread has
+        // released) while the other worker takes the points from it, and then joins them
+        // when the job is done. The job's exception wins over the core's: it says why the
+        // run was not valid in the first place.
+        Some(f) => {
+            let (side, run) = detached(py, threads, || {
+                Ok(rayon::join(
+                    || Python::with_gil(|py| f.call0(py).map(drop)),
+                    points,
+                ))
+            })?;
+            side?;
+            run.map_err(to_py)
+        }
+    };
     let res = finish(py, run, &error)?;
     pack(py, &res, model.dim)
 }

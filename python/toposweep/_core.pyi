@@ -53,6 +53,7 @@ def evaluate(
     method: str = "wilson",
     certify: bool = True,
     threads: int | None = None,
+    alongside: Callable[[], object] | None = None,
 ) -> dict[str, NDArray[Any]]: ...
 def hamiltonian(
     model: CoreModel, coeff: NDArray[np.float64], kappa: NDArray[np.float64]

@@ -9,7 +9,7 @@ import xarray as xr
 from numpy.typing import ArrayLike
 
 from . import _core
-from .dataset import build_dataset
+from .dataset import ResultLayout, plan_dataset
 from .errors import ModelError, SamplingError
 from .evaluation import check_filling, check_threads, prepare_request, run_points
 from .model import Model, Params
@@ -100,17 +100,23 @@ def invariants(
         raise ModelError(f"expected a toposweep model, got {type(model).__name__}")
     point = model.resolve(params)
     req = prepare_request(model, filling, inversion=inversion, sampling=sampling, threads=threads)
-    raw = run_points(req, [point])
-    return build_dataset(
-        model,
-        raw,
-        dims=(),
-        coords={},
-        fixed=point,
-        filling=req.filling,
-        sampling=sampling,
-        parity_known=req.inversion is not None,
-    )
+    layout: list[ResultLayout] = []
+
+    def plan() -> None:  # (while the core computes: needs none of its results)
+        layout.append(
+            plan_dataset(
+                model,
+                dims=(),
+                coords={},
+                fixed=point,
+                filling=req.filling,
+                sampling=sampling,
+                parity_known=req.inversion is not None,
+            )
+        )
+
+    raw = run_points(req, [point], alongside=plan)
+    return layout[0].fill(raw)
 
 
 def wcc_flow(

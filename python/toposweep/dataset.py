@@ -1,14 +1,19 @@
 """Assembly of result arrays into CF-annotated xarray Datasets.
 
-One function, :func:`build_dataset`, turns the flat per-point arrays returned by the Rust core
-into a Dataset over the grid dimensions, so a single point and a sweep share one schema.
+:func:`build_dataset` turns the flat per-point arrays returned by the Rust core into a Dataset
+over the grid dimensions, so a single point and a sweep share one schema. It works in two
+steps that :func:`toposweep.invariants` also takes apart: :func:`plan_dataset` builds the whole
+Dataset — coordinates, attributes and empty arrays of the right shapes and types — from what
+is known before the core runs, and :meth:`ResultLayout.fill` writes the results into those
+arrays. The plan is then made while the core computes (``_core.evaluate(alongside=...)``).
 """
 
 from __future__ import annotations
 
 import json
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from datetime import datetime, timezone
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -17,11 +22,18 @@ from numpy.typing import NDArray
 
 from ._version import __version__
 from .dataset_assembly import assemble
-from .dataset_methods import method_variables
+from .dataset_methods import AGREE_FLAGS, Field, Raw, method_fields
 from .model import Model
 from .sampling import Sampling
 
-__all__ = ["build_dataset", "classify_phase", "PHASES", "REASONS"]
+__all__ = [
+    "build_dataset",
+    "classify_phase",
+    "plan_dataset",
+    "ResultLayout",
+    "PHASES",
+    "REASONS",
+]
 
 #: phase codes → CF flag meanings
 PHASES: dict[int, str] = {
@@ -97,11 +109,383 @@ def _flags(codes: Mapping[int, str], dtype: Any = np.int8) -> dict[str, Any]:
 # (built once: every result carries them)
 _PHASE_FLAGS = _flags(PHASES)
 _REASON_FLAGS = _flags(REASONS)
+_YES_NO_FLAGS = {"flag_values": _read_only(np.array([0, 1], np.int8)), "flag_meanings": "no yes"}
+
+
+def _parity_agrees(raw: Raw, *, three_d: bool) -> NDArray[np.int8]:
+    """``parity_agrees`` per point: 1 equal, 0 different, -1 where one side is undefined."""
+    nu0p, nu0 = raw["nu0_parity"].astype(np.int8), raw["nu0"].astype(np.int8)
+    agree = np.where(nu0p == nu0, 1, 0)
+    if three_d:
+        agree = np.where(np.all(raw["nu_parity"].astype(np.int8) == raw["nu"], axis=-1), agree, 0)
+    both = (nu0p >= 0) & (nu0 >= 0)
+    return np.where(both, agree, -1).astype(np.int8)
+
+
+@lru_cache(maxsize=64)
+def _fields(dim: int, unit: str, parity_known: bool, method: str) -> tuple[Field, ...]:
+    """The data variables of a result, in the order the Dataset lists them."""
+    three_d = dim == 3
+    index = {"units": "1", **INDEX_FLAGS}
+    fields = [
+        Field(
+            "nu0",
+            (),
+            np.int8,
+            {"long_name": "strong Z2 index nu0" if three_d else "Z2 index", **index},
+            "nu0",
+        )
+    ]
+    if three_d:
+        fields += [
+            Field(
+                "nu",
+                (("axis", 3),),
+                np.int8,
+                {"long_name": "weak Z2 indices nu1 nu2 nu3", **index},
+                "nu",
+            ),
+            Field(
+                "z2_plane",
+                (("axis", 3), ("cut", 2)),
+                np.int8,
+                {
+                    "long_name": "Z2 index of the time-reversal-invariant plane kappa_axis = cut",
+                    **index,
+                },
+                "z2_plane",
+            ),
+            Field(
+                "nu0_by_axis",
+                (("axis", 3),),
+                np.int8,
+                {"long_name": "nu0 estimated from the two planes normal to axis", **index},
+                "nu0_by_axis",
+            ),
+        ]
+    fields += [
+        Field(
+            "phase",
+            (),
+            np.int8,
+            {"long_name": "topological phase", "units": "1", **_PHASE_FLAGS},
+            lambda raw: classify_phase(raw["nu0"], raw["nu"] if three_d else None),
+        ),
+        Field(
+            "undefined_reason",
+            (),
+            np.int8,
+            {"long_name": "why the indices are undefined", "units": "1", **_REASON_FLAGS},
+            "reason",
+        ),
+        Field(
+            "gap_direct",
+            (),
+            np.float64,
+            {
+                "long_name": "smallest direct band gap at the filling (minimised over kappa)",
+                "units": unit,
+            },
+            "gap_direct",
+        ),
+        Field(
+            "gap_indirect",
+            (),
+            np.float64,
+            {
+                "long_name": "lowest empty minus highest occupied energy over sampled kappa "
+                "(negative: band overlap)",
+                "units": unit,
+            },
+            "gap_indirect",
+        ),
+        Field(
+            "gap_kappa",
+            (("kappa_axis", dim),),
+            np.float64,
+            {"long_name": "reduced coordinates of the smallest direct gap", "units": "1"},
+            "gap_kappa",
+        ),
+        Field(
+            "bandwidth",
+            (),
+            np.float64,
+            {"long_name": "spread of all band energies over sampled kappa", "units": unit},
+            "bandwidth",
+        ),
+        Field(
+            "gap_floor",
+            (),
+            np.float64,
+            {"long_name": "direct gap below which the point counts as gapless", "units": unit},
+            "gap_floor",
+        ),
+        Field(
+            "converged",
+            (),
+            np.int8,
+            {
+                "long_name": "indices converged: flow resolved within max_lines and, where it "
+                "was tight, unchanged with doubled loop_points (lattice-only runs: mesh fine "
+                "enough)",
+                "units": "1",
+                **_YES_NO_FLAGS,
+            },
+            "converged",
+        ),
+        Field(
+            "lines_used",
+            (),
+            np.int32,
+            {"long_name": "largest number of pump lines used in one half plane", "units": "1"},
+            "lines_used",
+        ),
+        Field(
+            "max_step",
+            (),
+            np.float64,
+            {
+                "long_name": "largest hybrid Wannier centre motion between neighbouring pump "
+                "lines in the runs that decided (NaN: no Wilson loops)",
+                "units": "1",
+            },
+            "max_step",
+        ),
+        Field(
+            "min_clearance",
+            (),
+            np.float64,
+            {
+                "long_name": "smallest distance between a largest-gap midpoint and a centre of "
+                "the neighbouring line in the runs that decided (NaN: no Wilson loops)",
+                "units": "1",
+            },
+            "min_clearance",
+        ),
+    ]
+    fields += method_fields(
+        three_d=three_d, method=method, index_flags=INDEX_FLAGS, reason_flags=_REASON_FLAGS
+    )
+    if parity_known:
+        fields += _parity_fields(dim, three_d)
+    return tuple(fields)
+
+
+def _parity_fields(dim: int, three_d: bool) -> list[Field]:
+    """The Fu–Kane parity variables (when an inversion matrix is known)."""
+    index = {"units": "1", **INDEX_FLAGS}
+    fields = [
+        Field(
+            "nu0_parity",
+            (),
+            np.int8,
+            {
+                "long_name": ("strong Z2 index nu0" if three_d else "Z2 index")
+                + " from Fu-Kane parity",
+                **index,
+            },
+            "nu0_parity",
+        )
+    ]
+    if three_d:
+        fields.append(
+            Field(
+                "nu_parity",
+                (("axis", 3),),
+                np.int8,
+                {"long_name": "weak Z2 indices from Fu-Kane parity", **index},
+                "nu_parity",
+            )
+        )
+    return fields + [
+        Field(
+            "parity_agrees",
+            (),
+            np.int8,
+            {
+                "long_name": "Fu-Kane parity indices equal the Wilson-loop indices",
+                "units": "1",
+                **AGREE_FLAGS,
+            },
+            lambda raw: _parity_agrees(raw, three_d=three_d),
+        ),
+        Field(
+            "parity_undefined_reason",
+            (),
+            np.int8,
+            {"long_name": "why the parity indices are undefined", "units": "1", **_REASON_FLAGS},
+            "parity_reason",
+        ),
+        Field(
+            "odd_parity_states",
+            (("trim", 2**dim),),
+            np.int16,
+            {
+                "long_name": "occupied states of odd parity at each TRIM (-1: undefined)",
+                "units": "1",
+            },
+            "odd_count",
+        ),
+    ]
+
+
+def _coordinates(
+    model: Model,
+    dims: tuple[str, ...],
+    coords: Mapping[str, NDArray],
+    fixed: Mapping[str, float],
+    parity_known: bool,
+) -> dict[str, tuple]:
+    """Grid coordinates, fixed parameters as scalar coordinates, and the small index axes."""
+    coord_vars: dict[str, Any] = {}
+    for d in dims:
+        coord_vars[d] = (d, np.asarray(coords[d]), model.describe(d))
+    for name, value in fixed.items():
+        coord_vars[name] = ((), float(value), model.describe(name))
+    if model.dim == 3:
+        coord_vars["axis"] = (
+            "axis",
+            np.array([1, 2, 3], np.int8),
+            {"long_name": "reciprocal lattice axis", "units": "1"},
+        )
+        coord_vars["cut"] = (
+            "cut",
+            np.array([0.0, 0.5]),
+            {"long_name": "reduced coordinate of the time-reversal-invariant plane", "units": "1"},
+        )
+    if parity_known:
+        # TRIM g has kappa_i = 1/2 where bit i of g is set (the core's order)
+        bits = (np.arange(2**model.dim)[:, None] >> np.arange(model.dim)[None, :]) & 1
+        coord_vars["trim"] = (
+            "trim",
+            np.arange(2**model.dim, dtype=np.int8),
+            {"long_name": "time-reversal-invariant momentum index", "units": "1"},
+        )
+        coord_vars["trim_kappa"] = (
+            ("trim", "kappa_axis"),
+            0.5 * bits,
+            {"long_name": "reduced coordinates of the TRIM", "units": "1"},
+        )
+    coord_vars["kappa_axis"] = (
+        "kappa_axis",
+        np.arange(1, model.dim + 1, dtype=np.int8),
+        {"long_name": "reduced coordinate index", "units": "1"},
+    )
+    return coord_vars
+
+
+class ResultLayout:
+    """A result Dataset built ahead of the values: :meth:`fill` writes them in, once.
+
+    Made by :func:`plan_dataset`. The Dataset already holds every coordinate and attribute and
+    one empty array per data variable; :meth:`fill` copies the core's flat per-point arrays
+    into those arrays (cast as ``astype`` would) and returns the Dataset.
+    """
+
+    def __init__(
+        self,
+        data: dict[str, tuple],
+        coords: dict[str, tuple],
+        attrs: dict[str, Any],
+        sources: list[tuple[NDArray, str | Callable[[Raw], NDArray]]],
+    ) -> None:
+        self._data, self._coords, self._attrs, self._sources = data, coords, attrs, sources
+        self._dataset: xr.Dataset | None = _assembled_in_place(data, coords, attrs)
+        self._filled = False
+
+    def fill(self, raw: Raw) -> xr.Dataset:
+        """The Dataset with the values of ``raw`` (the dict of :func:`_core.evaluate`)."""
+        if self._filled:
+            raise RuntimeError("a ResultLayout is filled once; plan a new one for new values")
+        self._filled = True
+        for target, source in self._sources:
+            values = raw[source] if isinstance(source, str) else source(raw)
+            target[...] = np.asarray(values).reshape(target.shape)
+        if self._dataset is not None:
+            return self._dataset
+        return assemble(self._data, self._coords, self._attrs)
+
+
+#: whether a Dataset assembled around arrays keeps those very arrays (checked on first use)
+_KEEPS_ARRAYS: bool | None = None
+
+
+def _assembled_in_place(
+    data: dict[str, tuple], coords: dict[str, tuple], attrs: dict[str, Any]
+) -> xr.Dataset | None:
+    """The Dataset around the layout's arrays, or None where filling them would not show.
+
+    xarray keeps a numeric ndarray as the Variable's data without copying; that is checked
+    once per process (on the first result), and where it fails the Dataset is assembled only
+    after the fill.
+    """
+    global _KEEPS_ARRAYS
+    if _KEEPS_ARRAYS is False:
+        return None
+    ds = assemble(data, coords, attrs)
+    if _KEEPS_ARRAYS is None:
+        _KEEPS_ARRAYS = all(ds.variables[k].values is v[1] for k, v in data.items())
+        if not _KEEPS_ARRAYS:
+            return None
+    return ds
+
+
+def plan_dataset(
+    model: Model,
+    *,
+    dims: Sequence[str],
+    coords: Mapping[str, NDArray],
+    fixed: Mapping[str, float],
+    filling: int,
+    sampling: Sampling,
+    parity_known: bool,
+    extra_attrs: Mapping[str, Any] | None = None,
+) -> ResultLayout:
+    """The result Dataset of a run, everything but the values (see :class:`ResultLayout`).
+
+    Arguments as for :func:`build_dataset`, without the results.
+
+    Examples
+    --------
+    >>> import toposweep as ts
+    >>> from toposweep.evaluation import prepare_request, run_points
+    >>> m = ts.models.bhz()
+    >>> req = prepare_request(m, 2, inversion=None, sampling=Sampling())
+    >>> point = m.resolve({"mass": -1.0})
+    >>> layout = plan_dataset(m, dims=(), coords={}, fixed=point, filling=2,
+    ...                       sampling=req.sampling, parity_known=False)
+    >>> ds = layout.fill(run_points(req, [point]))
+    >>> int(ds.nu0), str(ds.gap_direct.attrs["units"])
+    (1, '1')
+    """
+    dims = tuple(dims)
+    shape = tuple(len(coords[d]) for d in dims)
+    data: dict[str, tuple] = {}
+    sources: list[tuple[NDArray, Any]] = []
+    for f in _fields(model.dim, model.energy_unit, parity_known, sampling.method):
+        target = np.empty(shape + tuple(n for _, n in f.extra), f.dtype)
+        data[f.name] = (dims + tuple(d for d, _ in f.extra), target, f.attrs)
+        sources.append((target, f.source))
+    attrs: dict[str, Any] = {
+        "title": f"Z2 indices of {model.name or 'a lattice model'}",
+        "Conventions": "CF-1.8",
+        "source": f"toposweep {__version__}",
+        "toposweep_version": __version__,
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "model": model.to_json(),
+        "filling": int(filling),
+        "sampling": json.dumps(sampling.as_dict(), sort_keys=True),
+        "method": _METHOD_TEXT[sampling.method]
+        + ("; Fu-Kane parity cross-check" if parity_known else ""),
+    }
+    attrs.update(extra_attrs or {})
+    coord_vars = _coordinates(model, dims, coords, fixed, parity_known)
+    return ResultLayout(data, coord_vars, attrs, sources)
 
 
 def build_dataset(
     model: Model,
-    raw: Mapping[str, NDArray],
+    raw: Raw,
     *,
     dims: Sequence[str],
     coords: Mapping[str, NDArray],
@@ -116,273 +500,14 @@ def build_dataset(
     ``coords`` holds one 1-D array per dim (C order of the flat arrays); ``fixed`` holds the
     parameters that are not swept (stored as scalar coordinates).
     """
-    dims = tuple(dims)
-    shape = tuple(len(coords[d]) for d in dims)
-    three_d = model.dim == 3
-    unit = model.energy_unit
-
-    def grid(a: NDArray, extra: tuple[int, ...] = ()) -> NDArray:
-        return np.asarray(a).reshape(shape + extra)
-
-    data: dict[str, tuple] = {}
-    nu_raw = grid(raw["nu"], (3,)) if three_d else None
-    data["nu0"] = (
-        dims,
-        grid(raw["nu0"]).astype(np.int8),
-        {
-            "long_name": "strong Z2 index nu0" if three_d else "Z2 index",
-            "units": "1",
-            **INDEX_FLAGS,
-        },
+    layout = plan_dataset(
+        model,
+        dims=dims,
+        coords=coords,
+        fixed=fixed,
+        filling=filling,
+        sampling=sampling,
+        parity_known=parity_known,
+        extra_attrs=extra_attrs,
     )
-    if three_d:
-        data["nu"] = (
-            dims + ("axis",),
-            nu_raw.astype(np.int8),
-            {
-                "long_name": "weak Z2 indices nu1 nu2 nu3",
-                "units": "1",
-                **INDEX_FLAGS,
-            },
-        )
-        data["z2_plane"] = (
-            dims + ("axis", "cut"),
-            grid(raw["z2_plane"], (3, 2)).astype(np.int8),
-            {
-                "long_name": "Z2 index of the time-reversal-invariant plane kappa_axis = cut",
-                "units": "1",
-                **INDEX_FLAGS,
-            },
-        )
-        data["nu0_by_axis"] = (
-            dims + ("axis",),
-            grid(raw["nu0_by_axis"], (3,)).astype(np.int8),
-            {
-                "long_name": "nu0 estimated from the two planes normal to axis",
-                "units": "1",
-                **INDEX_FLAGS,
-            },
-        )
-    phase = classify_phase(data["nu0"][1], nu_raw)
-    data["phase"] = (
-        dims,
-        phase,
-        {"long_name": "topological phase", "units": "1", **_PHASE_FLAGS},
-    )
-    data["undefined_reason"] = (
-        dims,
-        grid(raw["reason"]).astype(np.int8),
-        {
-            "long_name": "why the indices are undefined",
-            "units": "1",
-            **_REASON_FLAGS,
-        },
-    )
-    data["gap_direct"] = (
-        dims,
-        grid(raw["gap_direct"]),
-        {
-            "long_name": "smallest direct band gap at the filling (minimised over kappa)",
-            "units": unit,
-        },
-    )
-    data["gap_indirect"] = (
-        dims,
-        grid(raw["gap_indirect"]),
-        {
-            "long_name": "lowest empty minus highest occupied energy over sampled kappa "
-            "(negative: band overlap)",
-            "units": unit,
-        },
-    )
-    data["gap_kappa"] = (
-        dims + ("kappa_axis",),
-        grid(raw["gap_kappa"], (model.dim,)),
-        {
-            "long_name": "reduced coordinates of the smallest direct gap",
-            "units": "1",
-        },
-    )
-    data["bandwidth"] = (
-        dims,
-        grid(raw["bandwidth"]),
-        {
-            "long_name": "spread of all band energies over sampled kappa",
-            "units": unit,
-        },
-    )
-    data["gap_floor"] = (
-        dims,
-        grid(raw["gap_floor"]),
-        {
-            "long_name": "direct gap below which the point counts as gapless",
-            "units": unit,
-        },
-    )
-    data["converged"] = (
-        dims,
-        grid(raw["converged"]).astype(np.int8),
-        {
-            "long_name": "indices converged: flow resolved within max_lines and, where it was "
-            "tight, unchanged with doubled loop_points (lattice-only runs: mesh fine enough)",
-            "units": "1",
-            "flag_values": np.array([0, 1], np.int8),
-            "flag_meanings": "no yes",
-        },
-    )
-    data["lines_used"] = (
-        dims,
-        grid(raw["lines_used"]).astype(np.int32),
-        {
-            "long_name": "largest number of pump lines used in one half plane",
-            "units": "1",
-        },
-    )
-    data["max_step"] = (
-        dims,
-        grid(raw["max_step"]),
-        {
-            "long_name": "largest hybrid Wannier centre motion between neighbouring pump lines "
-            "in the runs that decided (NaN: no Wilson loops)",
-            "units": "1",
-        },
-    )
-    data["min_clearance"] = (
-        dims,
-        grid(raw["min_clearance"]),
-        {
-            "long_name": "smallest distance between a largest-gap midpoint and a centre of the "
-            "neighbouring line in the runs that decided (NaN: no Wilson loops)",
-            "units": "1",
-        },
-    )
-    data.update(
-        method_variables(
-            raw,
-            grid,
-            dims,
-            three_d=three_d,
-            method=sampling.method,
-            index_flags=INDEX_FLAGS,
-            reason_flags=_REASON_FLAGS,
-        )
-    )
-    if parity_known:
-        nu0p = grid(raw["nu0_parity"]).astype(np.int8)
-        data["nu0_parity"] = (
-            dims,
-            nu0p,
-            {
-                "long_name": ("strong Z2 index nu0" if three_d else "Z2 index")
-                + " from Fu-Kane parity",
-                "units": "1",
-                **INDEX_FLAGS,
-            },
-        )
-        agree = np.where(nu0p == data["nu0"][1], 1, 0)
-        if three_d:
-            nup = grid(raw["nu_parity"], (3,)).astype(np.int8)
-            data["nu_parity"] = (
-                dims + ("axis",),
-                nup,
-                {
-                    "long_name": "weak Z2 indices from Fu-Kane parity",
-                    "units": "1",
-                    **INDEX_FLAGS,
-                },
-            )
-            agree = np.where(np.all(nup == nu_raw, axis=-1), agree, 0)
-        both = (nu0p >= 0) & (data["nu0"][1] >= 0)
-        data["parity_agrees"] = (
-            dims,
-            np.where(both, agree, -1).astype(np.int8),
-            {
-                "long_name": "Fu-Kane parity indices equal the Wilson-loop indices",
-                "units": "1",
-                "flag_values": np.array([-1, 0, 1], np.int8),
-                "flag_meanings": "not_comparable disagree agree",
-            },
-        )
-        data["parity_undefined_reason"] = (
-            dims,
-            grid(raw["parity_reason"]).astype(np.int8),
-            {
-                "long_name": "why the parity indices are undefined",
-                "units": "1",
-                **_REASON_FLAGS,
-            },
-        )
-        ntrim = 2**model.dim
-        data["odd_parity_states"] = (
-            dims + ("trim",),
-            grid(raw["odd_count"], (ntrim,)).astype(np.int16),
-            {
-                "long_name": "occupied states of odd parity at each TRIM (-1: undefined)",
-                "units": "1",
-            },
-        )
-
-    coord_vars: dict[str, Any] = {}
-    for d in dims:
-        coord_vars[d] = (d, np.asarray(coords[d]), model.describe(d))
-    for name, value in fixed.items():
-        coord_vars[name] = ((), float(value), model.describe(name))
-    if three_d:
-        coord_vars["axis"] = (
-            "axis",
-            np.array([1, 2, 3], np.int8),
-            {
-                "long_name": "reciprocal lattice axis",
-                "units": "1",
-            },
-        )
-        coord_vars["cut"] = (
-            "cut",
-            np.array([0.0, 0.5]),
-            {
-                "long_name": "reduced coordinate of the time-reversal-invariant plane",
-                "units": "1",
-            },
-        )
-    if parity_known:
-        # TRIM g has kappa_i = 1/2 where bit i of g is set (the core's order)
-        bits = (np.arange(2**model.dim)[:, None] >> np.arange(model.dim)[None, :]) & 1
-        coord_vars["trim"] = (
-            "trim",
-            np.arange(2**model.dim, dtype=np.int8),
-            {
-                "long_name": "time-reversal-invariant momentum index",
-                "units": "1",
-            },
-        )
-        coord_vars["trim_kappa"] = (
-            ("trim", "kappa_axis"),
-            0.5 * bits,
-            {
-                "long_name": "reduced coordinates of the TRIM",
-                "units": "1",
-            },
-        )
-    coord_vars["kappa_axis"] = (
-        "kappa_axis",
-        np.arange(1, model.dim + 1, dtype=np.int8),
-        {
-            "long_name": "reduced coordinate index",
-            "units": "1",
-        },
-    )
-
-    attrs: dict[str, Any] = {
-        "title": f"Z2 indices of {model.name or 'a lattice model'}",
-        "Conventions": "CF-1.8",
-        "source": f"toposweep {__version__}",
-        "toposweep_version": __version__,
-        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-        "model": model.to_json(),
-        "filling": int(filling),
-        "sampling": json.dumps(sampling.as_dict(), sort_keys=True),
-        "method": _METHOD_TEXT[sampling.method]
-        + ("; Fu-Kane parity cross-check" if parity_known else ""),
-    }
-    attrs.update(extra_attrs or {})
-    return assemble(data, coord_vars, attrs)
+    return layout.fill(raw)

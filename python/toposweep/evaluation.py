@@ -6,7 +6,7 @@ validates filling, symmetry operators and parameters once, then calls the core i
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -142,13 +142,15 @@ def _mark(raw: dict[str, NDArray], mask: NDArray[np.bool_], reason: int, *, pari
             raw["lattice_reason"][mask] = reason
 
 
-def run_points(req: Request, points: Sequence[dict[str, float]]) -> dict[str, NDArray]:
-    """Evaluate resolved parameter dicts in one core call; returns flat per-point arrays.
+def _symmetry_breaks(
+    req: Request, points: Sequence[dict[str, float]]
+) -> tuple[NDArray[np.bool_], NDArray[np.bool_]]:
+    """Points where time reversal and where inversion fail; raises where the run is invalid.
 
-    Symmetries are checked at every point first. Time reversal broken at a point makes its
-    indices undefined (reason 8); broken everywhere is an error. Inversion declared by the
-    model but broken at a point leaves only the parity result undefined there (reason 7);
-    an inversion matrix passed to the call must hold at every point.
+    Time reversal broken at a point makes its indices undefined (reason 8); broken everywhere
+    is an error. Inversion declared by the model but broken at a point leaves only the parity
+    result undefined there (reason 7); an inversion matrix passed to the call must hold at
+    every point.
     """
     model = req.model
     u_t = model.time_reversal
@@ -165,6 +167,34 @@ def run_points(req: Request, points: Sequence[dict[str, float]]) -> dict[str, ND
         if req.inversion_from_call and p_broken.any():
             i = int(np.argmax(p_res))
             raise symmetry_error("inversion", float(p_res[i]), f"at parameters {points[i]}")
+    return tr_broken, p_broken
+
+
+def run_points(
+    req: Request,
+    points: Sequence[dict[str, float]],
+    *,
+    alongside: Callable[[], object] | None = None,
+) -> dict[str, NDArray]:
+    """Evaluate resolved parameter dicts in one core call; returns flat per-point arrays.
+
+    Symmetries are checked at every point (see :func:`_symmetry_breaks`): first, so a run
+    that is not valid stops before it starts. With ``alongside`` (Python work of the caller
+    that does not need the results, such as :func:`toposweep.dataset.plan_dataset`), the
+    checks and ``alongside()`` run instead while the core computes, on one of its workers —
+    where there are two or more, that work then costs no extra time; their errors are raised
+    all the same.
+    """
+    breaks: list[tuple[NDArray[np.bool_], NDArray[np.bool_]]] = []
+
+    def python_side() -> None:
+        breaks.append(_symmetry_breaks(req, points))
+        if alongside is not None:
+            alongside()
+
+    if alongside is None:
+        python_side()
+    model = req.model
     core, coeffs = model.prepare(points)
     inv = None if req.inversion is None else np.ascontiguousarray(req.inversion)
     raw = _core.evaluate(
@@ -172,10 +202,12 @@ def run_points(req: Request, points: Sequence[dict[str, float]]) -> dict[str, ND
         np.ascontiguousarray(coeffs, dtype=float),
         req.filling,
         inversion=inv,
-        time_reversal=np.ascontiguousarray(u_t, dtype=complex),
+        time_reversal=np.ascontiguousarray(model.time_reversal, dtype=complex),
         threads=req.threads,
+        alongside=None if alongside is None else python_side,
         **req.sampling.core_kwargs(),
     )
+    tr_broken, p_broken = breaks[0]
     if tr_broken.any():
         _mark(raw, tr_broken, REASON_TIME_REVERSAL_BROKEN, parity=False)
     if req.inversion is not None:

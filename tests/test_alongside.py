@@ -1,0 +1,147 @@
+"""Python work run beside the core (``_core.evaluate(alongside=...)``) and the result layout.
+
+``invariants()`` checks the symmetries and builds its Dataset (empty, :func:`plan_dataset`)
+while the core computes, on a second worker when there is one. Nothing about the answer may
+depend on that: errors raised by that work still reach the caller, the callable runs exactly
+once whatever the number of threads, and the Dataset equals the one built after the fact.
+"""
+
+from __future__ import annotations
+
+import threading
+
+import numpy as np
+import pytest
+import toposweep as ts
+from toposweep import _core
+from toposweep.dataset import build_dataset, plan_dataset
+from toposweep.errors import SymmetryError
+from toposweep.evaluation import prepare_request, run_points
+from toposweep.sampling import Sampling
+
+LIGHT = Sampling(loop_points=16, lines=9, max_lines=41, gap_starts=0, certify=False)
+KW = LIGHT.core_kwargs()
+SMALL = {"loop_points": 16, "lines": 9}
+
+
+@pytest.fixture(scope="module")
+def wd_core():
+    wd = ts.models.wilson_dirac()
+    return wd.prepare([wd.resolve({"mass": m}) for m in (-2.0, 4.0)])
+
+
+@pytest.mark.parametrize("threads", [1, 2, None])
+def test_callable_runs_once_and_results_do_not_change(wd_core, threads):
+    core, coeffs = wd_core
+    calls: list[str] = []
+    plain = _core.evaluate(core, coeffs, 2, threads=threads, **KW)
+    beside = _core.evaluate(
+        core,
+        coeffs,
+        2,
+        threads=threads,
+        alongside=lambda: calls.append(threading.current_thread().name),
+        **KW,
+    )
+    assert len(calls) == 1
+    assert plain.keys() == beside.keys()
+    for k in plain:
+        np.testing.assert_array_equal(plain[k], beside[k], err_msg=k)
+    # the cubic Wilson-Dirac model's phases (Fu & Kane, Phys. Rev. B 76, 045302 (2007), as
+    # in test_physics_wilson_dirac.py): (1;000) at m = -2, (0;000) at m = 4
+    assert beside["nu0"].tolist() == [1, 0]
+    assert beside["nu"].tolist() == [[0, 0, 0], [0, 0, 0]]
+
+
+def test_two_workers_run_the_callable_on_a_worker(wd_core):
+    core, coeffs = wd_core
+    where: list[bool] = []
+    _core.evaluate(
+        core,
+        coeffs,
+        2,
+        threads=2,
+        alongside=lambda: where.append(threading.current_thread() is threading.main_thread()),
+        **KW,
+    )
+    # (with one worker it runs on the calling thread, before the points)
+    _core.evaluate(
+        core,
+        coeffs,
+        2,
+        threads=1,
+        alongside=lambda: where.append(threading.current_thread() is threading.main_thread()),
+        **KW,
+    )
+    assert where == [False, True]
+
+
+class Marker(Exception):
+    pass
+
+
+def _raise() -> None:
+    raise Marker("from the Python side")
+
+
+@pytest.mark.parametrize("threads", [1, 2])
+def test_callable_errors_reach_the_caller(wd_core, threads):
+    core, coeffs = wd_core
+    with pytest.raises(Marker, match="Python side"):
+        _core.evaluate(core, coeffs, 2, threads=threads, alongside=_raise, **KW)
+
+
+@pytest.mark.parametrize("threads", [1, 2])
+def test_callable_error_wins_over_the_core_error(wd_core, threads):
+    """A run the Python side rejects reports why, not what the core made of it."""
+    core, coeffs = wd_core
+    bad = np.array([[np.nan, 1.0]])
+    with pytest.raises(ValueError):  # the core alone: non-finite coefficients
+        _core.evaluate(core, bad, 2, threads=threads, **KW)
+    with pytest.raises(Marker):
+        _core.evaluate(core, bad, 2, threads=threads, alongside=_raise, **KW)
+
+
+@pytest.mark.parametrize("threads", [1, 2])
+def test_symmetry_errors_of_one_point_still_raise(threads):
+    """invariants() checks time reversal beside the core; a point without it is refused."""
+    m = ts.models.wilson_dirac()
+    m.add((1, 0, 0), 1j * np.eye(4), term="b")  # i·1 hopping: odd under Θ = iσ_y K
+    m.defaults["b"] = 0.0
+    assert int(ts.invariants(m, 2, {"b": 0.0}, threads=threads, **SMALL).nu0) == 1
+    with pytest.raises(SymmetryError, match="time.reversal"):
+        ts.invariants(m, 2, {"b": 0.3}, threads=threads, **SMALL)
+
+
+def test_layout_equals_the_dataset_built_afterwards():
+    model = ts.models.fu_kane_mele()
+    s = Sampling(loop_points=16, lines=9, method="both")
+    req = prepare_request(model, 2, inversion=None, sampling=s)
+    points = [model.resolve({})] * 2
+    raw = run_points(req, points)
+    kw = dict(
+        dims=("point",),
+        coords={"point": np.arange(2)},
+        fixed=points[0],
+        filling=2,
+        sampling=s,
+        parity_known=req.inversion is not None,
+    )
+    layout = plan_dataset(model, **kw)
+    filled = layout.fill(raw)
+    after = build_dataset(model, raw, **kw)
+    filled.attrs.pop("created"), after.attrs.pop("created")
+    assert filled.identical(after)
+    assert list(filled.variables) == list(after.variables)
+    assert int(filled.nu0[0]) == 1  # the diamond model's strong phase (tested in its own file)
+    with pytest.raises(RuntimeError, match="filled once"):
+        layout.fill(raw)
+
+
+def test_invariants_same_on_one_and_two_threads():
+    model = ts.models.wilson_dirac()
+    one = ts.invariants(model, 2, {"mass": -2.0}, threads=1, **SMALL)
+    two = ts.invariants(model, 2, {"mass": -2.0}, threads=2, **SMALL)
+    one.attrs.pop("created"), two.attrs.pop("created")
+    assert one.identical(two)
+    assert int(one.nu0) == 1 and int(one.nu0_parity) == 1
