@@ -83,7 +83,7 @@ def check_loop_resolution(model: Model, sampling: Sampling) -> None:
     """
     if not isinstance(model, TightBinding) or sampling.method == "lattice":
         return
-    reach = max((abs(int(x)) for r, _, _ in model.hoppings() for x in r), default=0)
+    reach = model.reach
     if sampling.loop_points <= 2 * reach:
         raise SamplingError(
             f"loop_points = {sampling.loop_points} cannot resolve hoppings that reach {reach} "
@@ -210,7 +210,7 @@ def run_points(
     tr_broken, p_broken = breaks[0]
     if tr_broken.any():
         _mark(raw, tr_broken, REASON_TIME_REVERSAL_BROKEN, parity=False)
-    if req.inversion is not None:
+    if req.inversion is not None and (tr_broken.any() or p_broken.any()):
         _mark(raw, p_broken | tr_broken, REASON_INVERSION_BROKEN, parity=True)
         raw["parity_reason"][tr_broken] = REASON_TIME_REVERSAL_BROKEN
     return raw

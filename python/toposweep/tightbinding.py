@@ -65,6 +65,7 @@ class TightBinding(Model):
         #: hoppings added so far: stands for the hopping list in the key of the cached JSON text
         #: (add() is the only way to change the list; the stored matrices are read-only copies)
         self._hop_count = 0
+        self._reach: int | None = None
 
     # -- building -------------------------------------------------------------------------------
     def add(self, R: Sequence[int], T: ArrayLike, term: str | None = None) -> TightBinding:
@@ -81,6 +82,7 @@ class TightBinding(Model):
                 self._terms.append(term)
         self._hops.append((r, t, term))
         self._hop_count += 1
+        self._reach = None
         self._core_cache = None
         self._residual_cache.clear()
         return self
@@ -147,6 +149,20 @@ class TightBinding(Model):
     def hoppings(self) -> Iterator[tuple[tuple[int, ...], NDArray[np.complex128], str | None]]:
         """Iterate over ``(R, T, term)`` as added."""
         yield from self._hops
+
+    @property
+    def reach(self) -> int:
+        """Largest |R_i| of any hopping, in cells along one primitive vector (0: on-site only).
+
+        Examples
+        --------
+        >>> from toposweep import models
+        >>> models.bhz().reach
+        1
+        """
+        if self._reach is None:  # (kept until the next add())
+            self._reach = max((abs(int(x)) for r, _, _ in self._hops for x in r), default=0)
+        return self._reach
 
     def _core(self) -> Any:
         if self._core_cache is None:
