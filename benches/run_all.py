@@ -184,6 +184,7 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
 
 def core_only_table(repeats: int) -> list[str]:
     """The Rust call alone (no symmetry checks, no Dataset assembly) for the Wilson–Dirac point."""
+    from toposweep.dataset import build_dataset
     from toposweep.evaluation import prepare_request, run_points
     from toposweep.sampling import Sampling
 
@@ -209,7 +210,20 @@ def core_only_table(repeats: int) -> list[str]:
             ),
         ),
         (
-            "`invariants()` (+ Dataset)",
+            "the same + Dataset, one step after the other",
+            lambda th: build_dataset(
+                wd,
+                run_points(prepare_request(wd, 2, inversion=None, sampling=s, threads=th), point),
+                dims=(),
+                coords={},
+                fixed=point[0],
+                filling=2,
+                sampling=s,
+                parity_known=True,
+            ),
+        ),
+        (
+            "`invariants()`: checks and Dataset layout beside the core",
             lambda th: ts.invariants(
                 wd, 2, {"mass": -2.0}, threads=th, max_lines=41, **ENGINE_FIXED, **FIXED
             ),
@@ -366,8 +380,10 @@ def main() -> None:
     section(
         "Where the time of one point goes",
         core_only_table(repeats),
-        "The Rust core alone, then with the Python-side symmetry checks, then the full public "
-        "call with the xarray Dataset. The last row is the most a second core gives on this "
+        "The Rust core alone; with the Python-side symmetry checks first; with those, then "
+        "the xarray Dataset after the core (one step after the other); and the public call, "
+        "which makes the checks and the Dataset's layout while the core computes (on a second "
+        "worker when there is one). The last row is the most a second core gives on this "
         "machine: the same one-thread core loop in two processes at once, against one alone.",
     )
     section(

@@ -315,8 +315,9 @@ fn matrix(a: &PyReadonlyArray2<C64>, n: usize, what: &str) -> PyResult<Vec<C64>>
 /// Indices, gaps and diagnostics at every row of `coeffs` (npoints, nterms). Returns a dict
 /// of arrays whose first axis is the point. `alongside`: a Python callable (no arguments) run
 /// while the points are evaluated when there is more than one worker — Python work that does
-/// not need the results (symmetry checks, the result's layout) then costs no extra time —
-/// and before them otherwise; its exception is raised, whatever the points gave.
+/// not need the results (symmetry checks, the result's layout) then shares the cores with the
+/// points instead of adding to their time — and before them otherwise; its exception is
+/// raised, whatever the points gave.
 #[pyfunction]
 #[pyo3(signature = (model, coeffs, filling, *, inversion=None, time_reversal=None, loop_points,
                     lines, max_lines, step_limit, gap_floor, gap_points, gap_starts=3,

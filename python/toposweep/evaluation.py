@@ -182,8 +182,8 @@ def run_points(
     that is not valid stops before it starts. With ``alongside`` (Python work of the caller
     that does not need the results, such as :func:`toposweep.dataset.plan_dataset`), the
     checks and ``alongside()`` run instead while the core computes, on one of its workers —
-    where there are two or more, that work then costs no extra time; their errors are raised
-    all the same.
+    where there are two or more, that work shares the cores with the points instead of adding
+    to their time; their errors are raised all the same.
     """
     breaks: list[tuple[NDArray[np.bool_], NDArray[np.bool_]]] = []
 
