@@ -56,6 +56,7 @@
 //! Layout: `h` is row-major n×n; eigenvalues come out ascending and eigenvector k is column k
 //! of the row-major `vecs` (component i at `vecs[i * n + k]`).
 
+use crate::eigen_quad;
 use crate::eigen_small;
 use crate::error::{CoreError, CoreResult};
 use crate::C64;
@@ -271,10 +272,183 @@ pub fn eigh_occupied_pair_into(
     Ok(())
 }
 
+/// [`eigh_into`] for four independent matrices of the same size (`h[p]` → `evals[p]`,
+/// `vecs[p]`). n = 4: the Kramers closed form where it applies, then the others together in
+/// the lanes of `eigen_quad` when three or four are left (a zero matrix fills the free
+/// lane), as a pair or alone otherwise. Other n: two [`eigh_pair_into`]. The results may
+/// differ from single solves in the last bits (another order of the same operations).
+pub fn eigh_quad_into(
+    h: [&[C64]; 4],
+    n: usize,
+    evals: [&mut [f64]; 4],
+    vecs: [&mut [C64]; 4],
+) -> CoreResult<()> {
+    let [e0, e1, e2, e3] = evals;
+    let [v0, v1, v2, v3] = vecs;
+    if n != 4 {
+        eigh_pair_into([h[0], h[1]], n, [e0, e1], [v0, v1])?;
+        return eigh_pair_into([h[2], h[3]], n, [e2, e3], [v2, v3]);
+    }
+    let (mut evals, mut vecs) = ([e0, e1, e2, e3], [v0, v1, v2, v3]);
+    for p in 0..4 {
+        check_sizes(h[p], n, evals[p], vecs[p])?;
+    }
+    let mut done = [false; 4];
+    for p in 0..4 {
+        done[p] = eigen_small::two_level4::<2, 4>(h[p], evals[p], vecs[p]);
+    }
+    group4(h, &mut done, 4, 4, &mut evals, &mut vecs);
+    let left: Vec<usize> = (0..4).filter(|&p| !done[p]).collect();
+    if let [a, b] = left[..] {
+        let (lo_e, hi_e) = evals.split_at_mut(b);
+        let (lo_v, hi_v) = vecs.split_at_mut(b);
+        return eigh_pair_into(
+            [h[a], h[b]],
+            4,
+            [&mut *lo_e[a], &mut *hi_e[0]],
+            [&mut *lo_v[a], &mut *hi_v[0]],
+        );
+    }
+    for p in left {
+        eigh_into(h[p], 4, evals[p], vecs[p])?;
+    }
+    Ok(())
+}
+
+/// [`eigh_occupied_into`] for four independent matrices of the same size (a Wilson line's κ
+/// points s … s + 3): as [`eigh_quad_into`], with the occupied-only closed form and only
+/// the lowest `nocc` vectors formed. `work` (n × n) is scratch for the fallbacks.
+pub fn eigh_occupied_quad_into(
+    h: [&[C64]; 4],
+    n: usize,
+    nocc: usize,
+    evals: [&mut [f64]; 4],
+    occ: [&mut [C64]; 4],
+    work: &mut [C64],
+) -> CoreResult<()> {
+    let [e0, e1, e2, e3] = evals;
+    let [o0, o1, o2, o3] = occ;
+    if n != 4 {
+        eigh_occupied_pair_into([h[0], h[1]], n, nocc, [e0, e1], [o0, o1], work)?;
+        return eigh_occupied_pair_into([h[2], h[3]], n, nocc, [e2, e3], [o2, o3], work);
+    }
+    let (mut evals, mut occ) = ([e0, e1, e2, e3], [o0, o1, o2, o3]);
+    for p in 0..4 {
+        check_sizes(h[p], n, evals[p], work)?;
+        if nocc > n || occ[p].len() < n * nocc {
+            return Err(CoreError::Internal(
+                "eigh_occupied_quad_into: buffer too small".into(),
+            ));
+        }
+    }
+    let mut done = [false; 4];
+    for p in 0..4 {
+        done[p] = match nocc {
+            2 => eigen_small::two_level4::<1, 2>(h[p], evals[p], occ[p]),
+            0 => eigen_small::two_level4::<0, 0>(h[p], evals[p], occ[p]),
+            _ => false,
+        };
+    }
+    group4(h, &mut done, nocc, nocc, &mut evals, &mut occ);
+    let left: Vec<usize> = (0..4).filter(|&p| !done[p]).collect();
+    if let [a, b] = left[..] {
+        let (lo_e, hi_e) = evals.split_at_mut(b);
+        let (lo_o, hi_o) = occ.split_at_mut(b);
+        return eigh_occupied_pair_into(
+            [h[a], h[b]],
+            4,
+            nocc,
+            [&mut *lo_e[a], &mut *hi_e[0]],
+            [&mut *lo_o[a], &mut *hi_o[0]],
+            work,
+        );
+    }
+    for p in left {
+        eigh_occupied_into(h[p], 4, nocc, evals[p], occ[p], work)?;
+    }
+    Ok(())
+}
+
+/// The 4-lane solve of the 4×4 matrices not yet `done` when three or four are left (the
+/// others' lanes run the zero matrix, which converges at once): eigenvalues and the lowest
+/// `count` vectors (row stride `ld`) written for the solved lanes, which are marked done.
+/// Lanes that decline stay not done (the caller's single paths then decide).
+fn group4(
+    h: [&[C64]; 4],
+    done: &mut [bool; 4],
+    count: usize,
+    ld: usize,
+    evals: &mut [&mut [f64]; 4],
+    out: &mut [&mut [C64]; 4],
+) {
+    if done.iter().filter(|&&d| !d).count() < 3 {
+        return;
+    }
+    let zero = [C64::new(0.0, 0.0); 16];
+    let lanes: [&[C64]; 4] = std::array::from_fn(|p| if done[p] { &zero[..] } else { h[p] });
+    let mut quad = eigen_quad::Quad::<4>::new();
+    let solved = quad.solve(lanes);
+    let which: [bool; 4] = std::array::from_fn(|p| !done[p] && solved[p]);
+    quad.write(which, count, ld, evals, out);
+    for p in 0..4 {
+        done[p] |= which[p];
+    }
+}
+
+/// [`eigh_into`] for k consecutive matrices (`h`: k × n × n; `evals`: k × n; `vecs`:
+/// k × n × n), four at a time with [`eigh_quad_into`], the rest in a pair and alone:
+/// isolated κ points (TRIMs, gap grids of batch sources).
+pub fn eigh_many_into(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResult<()> {
+    let nn = n * n;
+    let k = h.len() / nn.max(1);
+    if evals.len() < k * n || vecs.len() < k * nn {
+        return Err(CoreError::Internal(
+            "eigh_many_into: buffer too small".into(),
+        ));
+    }
+    let mut p = 0;
+    while p < k {
+        let g = (k - p).min(4);
+        let hs = &h[p * nn..(p + g) * nn];
+        let (es, vs) = (
+            &mut evals[p * n..(p + g) * n],
+            &mut vecs[p * nn..(p + g) * nn],
+        );
+        if g == 4 {
+            let hq: [&[C64]; 4] = std::array::from_fn(|j| &hs[j * nn..(j + 1) * nn]);
+            let (ea, eb) = es.split_at_mut(2 * n);
+            let ([e0, e1], [e2, e3]) = (split2(ea, n), split2(eb, n));
+            let (va, vb) = vs.split_at_mut(2 * nn);
+            let ([v0, v1], [v2, v3]) = (split2(va, nn), split2(vb, nn));
+            eigh_quad_into(hq, n, [e0, e1, e2, e3], [v0, v1, v2, v3])?;
+        } else if g >= 2 {
+            let ([e0, e1], [v0, v1]) = (split2(&mut es[..2 * n], n), split2(&mut vs[..2 * nn], nn));
+            eigh_pair_into([&hs[..nn], &hs[nn..2 * nn]], n, [e0, e1], [v0, v1])?;
+        }
+        if g % 2 == 1 {
+            let (j0, j1) = (g - 1, g);
+            eigh_into(
+                &hs[j0 * nn..j1 * nn],
+                n,
+                &mut es[j0 * n..j1 * n],
+                &mut vs[j0 * nn..j1 * nn],
+            )?;
+        }
+        p += g;
+    }
+    Ok(())
+}
+
+/// The first two blocks of `len` entries of `buf`.
+fn split2<T>(buf: &mut [T], len: usize) -> [&mut [T]; 2] {
+    let (a, b) = buf.split_at_mut(len);
+    [a, &mut b[..len]]
+}
+
 /// [`eigh_occupied_into`] for k consecutive matrices of a line (`h`: k × n × n; `evals`: k × n;
-/// `occ`: k × n × nocc, empty for nocc = 0 — eigenvalues only), taken two at a time with
-/// [`eigh_occupied_pair_into`], an odd last one alone: the bulk gap grid and the lattice mesh
-/// rows. `work` (n × n) is scratch for the fallbacks.
+/// `occ`: k × n × nocc, empty for nocc = 0 — eigenvalues only), four at a time with
+/// [`eigh_occupied_quad_into`], the rest in a pair and alone: the κ points of a Wilson line,
+/// the bulk gap grid and the lattice mesh rows. `work` (n × n) is scratch for the fallbacks.
 pub fn eigh_occupied_many_into(
     h: &[C64],
     n: usize,
@@ -290,31 +464,44 @@ pub fn eigh_occupied_many_into(
             "eigh_occupied_many_into: buffer too small".into(),
         ));
     }
-    for p in (0..k).step_by(2) {
-        let (e, o) = (&mut evals[p * n..], &mut occ[p * no..]);
-        if p + 1 < k {
-            let (e0, e1) = e.split_at_mut(n);
-            let (o0, o1) = o.split_at_mut(no);
-            let hp = &h[p * nn..(p + 2) * nn];
-            let (h0, h1) = hp.split_at(nn);
+    let mut p = 0;
+    while p < k {
+        let g = (k - p).min(4);
+        let hs = &h[p * nn..(p + g) * nn];
+        let (es, os) = (
+            &mut evals[p * n..(p + g) * n],
+            &mut occ[p * no..(p + g) * no],
+        );
+        if g == 4 {
+            let hq: [&[C64]; 4] = std::array::from_fn(|j| &hs[j * nn..(j + 1) * nn]);
+            let (ea, eb) = es.split_at_mut(2 * n);
+            let ([e0, e1], [e2, e3]) = (split2(ea, n), split2(eb, n));
+            let (oa, ob) = os.split_at_mut(2 * no);
+            let ([o0, o1], [o2, o3]) = (split2(oa, no), split2(ob, no));
+            eigh_occupied_quad_into(hq, n, nocc, [e0, e1, e2, e3], [o0, o1, o2, o3], work)?;
+        } else if g >= 2 {
+            let ([e0, e1], [o0, o1]) = (split2(&mut es[..2 * n], n), split2(&mut os[..2 * no], no));
             eigh_occupied_pair_into(
-                [h0, h1],
+                [&hs[..nn], &hs[nn..2 * nn]],
                 n,
                 nocc,
-                [e0, &mut e1[..n]],
-                [o0, &mut o1[..no]],
-                work,
-            )?;
-        } else {
-            eigh_occupied_into(
-                &h[p * nn..(p + 1) * nn],
-                n,
-                nocc,
-                &mut e[..n],
-                &mut o[..no],
+                [e0, e1],
+                [o0, o1],
                 work,
             )?;
         }
+        if g % 2 == 1 {
+            let (j0, j1) = (g - 1, g);
+            eigh_occupied_into(
+                &hs[j0 * nn..j1 * nn],
+                n,
+                nocc,
+                &mut es[j0 * n..j1 * n],
+                &mut os[j0 * no..j1 * no],
+                work,
+            )?;
+        }
+        p += g;
     }
     Ok(())
 }
@@ -946,7 +1133,7 @@ fn sort_pairs(n: usize, evals: &mut [f64], v: &mut [C64]) {
 pub(crate) mod tests {
     use super::*;
 
-    fn random_hermitian(n: usize, seed: u64) -> Vec<C64> {
+    pub(crate) fn random_hermitian(n: usize, seed: u64) -> Vec<C64> {
         let mut s = seed;
         let mut next = || {
             s = s
@@ -1391,7 +1578,7 @@ pub(crate) mod tests {
     /// and exactly degenerate spectra (H = U Λ U†), already reduced (diagonal, block-diagonal
     /// with a permutation), all-equal, the zero matrix, scaled far from 1, and (n = 4)
     /// Kramers-degenerate ones that take the closed form.
-    fn pairing_cases(n: usize) -> Vec<Vec<C64>> {
+    pub(crate) fn pairing_cases(n: usize) -> Vec<Vec<C64>> {
         let z = C64::new(0.0, 0.0);
         let mut cases = Vec::new();
         for seed in 0..4u64 {
@@ -1561,7 +1748,7 @@ pub(crate) mod tests {
         }
     }
 
-    fn eigh_reference(h: &[C64], n: usize) -> (Vec<f64>, Vec<C64>) {
+    pub(crate) fn eigh_reference(h: &[C64], n: usize) -> (Vec<f64>, Vec<C64>) {
         let (mut e, mut v) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * n]);
         eigh_reference_into(h, n, &mut e, &mut v).unwrap();
         (e, v)

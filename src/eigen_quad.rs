@@ -1,0 +1,757 @@
+//! Four independent Hermitian N×N eigendecompositions advanced together, one matrix per lane
+//! of `[f64; 4]` arrays (one AVX2 register each in an x86-64-v3 build, two SSE2 registers in
+//! a baseline build): the method of `eigen_small` — Householder reduction to a real
+//! tridiagonal, implicit QR with Wilkinson shifts, eigenvectors Q_H D Z e_k formed on request
+//! — written without a branch that depends on one lane's data.
+//!
+//! Why: a generic 4×4 is a serial chain of ~18 Givens rotations (a division and a square root
+//! each, then updates that wait on them); one matrix at a time leaves the core mostly idle,
+//! and two at a time (`eigen_small::solve_pair`) fill only part of the gap. Four chains side
+//! by side share each packed division and square root, and the compiler keeps every step in
+//! vector registers.
+//!
+//! How the lanes stay independent without branches:
+//! - Householder: a column whose part below the sub-diagonal has norm² ≤ 1e-290 (zero, or
+//!   negligible: every lane is scaled to Frobenius norm² ≥ 1e-200) gets τ = 0, the identity
+//!   reflection, chosen by a select; the other lanes reflect as usual.
+//! - QR: at every step each off-diagonal e_k with |e_k| ≤ ε‖T‖ (that lane's ‖T‖) is set to
+//!   zero, exactly as `eigen_small` deflates. A rotation k (plane k, k+1) is *active* in a
+//!   lane when e_k ≠ 0 and k lies in the lane's bottom unreduced block [lo, hi]; the sweep
+//!   runs every rotation k = 0…N−2 in every lane, and an inactive one is fed (x, z) = (1, 0),
+//!   so c = 1, s = 0: it leaves d, e and Z unchanged bit for bit — no 0/0 for a converged
+//!   block. The bulge starts at the first active k (x = d_lo − μ, z = e_lo) and μ is the
+//!   Wilkinson shift of the block's trailing 2×2, both picked by selects. The steps repeat
+//!   until no lane has an active rotation; each lane thus takes exactly the shifts and
+//!   rotations a one-matrix solve on its block would (only the order of the sweeps over
+//!   already-split blocks differs).
+//! - Sorting and eigenvectors: a compare-exchange network sorts the eigenvalues of each lane
+//!   and swaps the columns of Z with them; vector k is formed in all lanes at once.
+//!
+//! The method is normwise backward stable as in `eigen_small` (Golub & Van Loan, *Matrix
+//! Computations*, 4th ed., §8.3); identity rotations add no error. A lane whose input is not
+//! finite, whose iteration does not converge in 30 N steps or whose result is not finite is
+//! reported as declined (its caller runs the one-matrix paths, which give the error or the
+//! Jacobi fallback); the other lanes are unaffected. The zero matrix converges at once
+//! (identity eigenvectors), which also makes it the filler for unused lanes.
+
+use crate::{fmadd, C64};
+
+/// Matrices per group.
+pub(crate) const LANES: usize = 4;
+
+/// One value per lane.
+type L = [f64; LANES];
+/// One flag per lane: all bits set (true) or none; selects on these are bit operations,
+/// which the compiler turns into packed and/andnot/or (or blends).
+type Mask = [u64; LANES];
+
+#[inline(always)]
+fn lanes(f: impl Fn(usize) -> f64) -> L {
+    [f(0), f(1), f(2), f(3)]
+}
+
+#[inline(always)]
+fn splat(x: f64) -> L {
+    [x; LANES]
+}
+
+#[inline(always)]
+fn masks(f: impl Fn(usize) -> bool) -> Mask {
+    let m = |p| if f(p) { u64::MAX } else { 0 };
+    [m(0), m(1), m(2), m(3)]
+}
+
+/// `a` where `m` is set, `b` elsewhere.
+#[inline(always)]
+fn select(m: Mask, a: L, b: L) -> L {
+    lanes(|p| f64::from_bits((a[p].to_bits() & m[p]) | (b[p].to_bits() & !m[p])))
+}
+
+#[inline(always)]
+fn and(a: Mask, b: Mask) -> Mask {
+    [a[0] & b[0], a[1] & b[1], a[2] & b[2], a[3] & b[3]]
+}
+
+#[inline(always)]
+fn and_not(a: Mask, b: Mask) -> Mask {
+    [a[0] & !b[0], a[1] & !b[1], a[2] & !b[2], a[3] & !b[3]]
+}
+
+#[inline(always)]
+fn or(a: Mask, b: Mask) -> Mask {
+    [a[0] | b[0], a[1] | b[1], a[2] | b[2], a[3] | b[3]]
+}
+
+#[inline(always)]
+fn any(m: Mask) -> bool {
+    (m[0] | m[1] | m[2] | m[3]) != 0
+}
+
+/// Working state and result of four N×N solves ([`Quad::solve`]).
+pub(crate) struct Quad<const N: usize> {
+    /// eigenvalues, ascending in each lane once solved: `vals[k][p]`
+    pub vals: [L; N],
+    /// Householder vectors (row k: v_k, nonzero from index k + 1) and factors τ_k
+    vr: [[L; N]; N],
+    vi: [[L; N]; N],
+    tau: [L; N],
+    /// the diagonal phase D
+    phr: [L; N],
+    phi: [L; N],
+    /// Zᵀ: row k is column k of the real orthogonal Z (sorted with `vals`)
+    zt: [[L; N]; N],
+    /// Hermitian part on split arrays, reduced in place
+    ar: [[L; N]; N],
+    ai: [[L; N]; N],
+    /// the real tridiagonal matrix
+    d: L1<N>,
+    e: L1<N>,
+    /// power of two the eigenvalues are scaled back by
+    unscale: L,
+}
+
+/// N values per lane.
+type L1<const N: usize> = [L; N];
+
+impl<const N: usize> Quad<N> {
+    pub fn new() -> Self {
+        Quad {
+            vals: [splat(0.0); N],
+            vr: [[splat(0.0); N]; N],
+            vi: [[splat(0.0); N]; N],
+            tau: [splat(0.0); N],
+            phr: [splat(1.0); N],
+            phi: [splat(0.0); N],
+            zt: [[splat(0.0); N]; N],
+            ar: [[splat(0.0); N]; N],
+            ai: [[splat(0.0); N]; N],
+            d: [splat(0.0); N],
+            e: [splat(0.0); N],
+            unscale: splat(1.0),
+        }
+    }
+
+    /// Householder + implicit QR for the Hermitian parts of the row-major N×N `h[p]`, one per
+    /// lane. True where lane p is solved (eigenvalues in `vals`, vectors via [`Quad::vector`]);
+    /// false where its input is not finite or its iteration did not converge (and everywhere
+    /// if a slice is shorter than N², never as called).
+    pub fn solve(&mut self, h: [&[C64]; LANES]) -> [bool; LANES] {
+        let Some(mut good) = self.load(h) else {
+            return [false; LANES];
+        };
+        for k in 0..N.saturating_sub(2) {
+            self.reflect(k);
+        }
+        let small = self.tridiagonal();
+        good = and_not(good, self.iterate(small));
+        self.finish(good)
+    }
+
+    /// Hermitian parts on split arrays, factors reset; lanes far from norm 1 scaled by a power
+    /// of two (exact) as in `eigen_small`. Lanes with a NaN or infinite entry are zeroed (they
+    /// then run as the zero matrix) and cleared in the returned mask.
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn load(&mut self, h: [&[C64]; LANES]) -> Option<Mask> {
+        let hs = [
+            h[0].get(..N * N)?,
+            h[1].get(..N * N)?,
+            h[2].get(..N * N)?,
+            h[3].get(..N * N)?,
+        ];
+        self.tau = [splat(0.0); N];
+        self.phr = [splat(1.0); N];
+        self.phi = [splat(0.0); N];
+        self.zt = [[splat(0.0); N]; N];
+        for k in 0..N {
+            self.zt[k][k] = splat(1.0);
+        }
+        self.unscale = splat(1.0);
+        let (ar, ai, unscale) = (&mut self.ar, &mut self.ai, &mut self.unscale);
+        let mut diag = splat(0.0);
+        let mut off = splat(0.0);
+        for i in 0..N {
+            // (0 · Im h_ii: NaN for a NaN or infinite imaginary part, which then declines)
+            let re = lanes(|p| hs[p][i * N + i].re + 0.0 * hs[p][i * N + i].im);
+            ar[i][i] = re;
+            ai[i][i] = splat(0.0);
+            diag = lanes(|p| fmadd(re[p], re[p], diag[p]));
+            for j in i + 1..N {
+                let (x, y) = (|p: usize| hs[p][i * N + j], |p: usize| hs[p][j * N + i]);
+                let re = lanes(|p| 0.5 * (x(p).re + y(p).re));
+                let im = lanes(|p| 0.5 * (x(p).im - y(p).im));
+                ar[i][j] = re;
+                ai[i][j] = im;
+                ar[j][i] = re;
+                ai[j][i] = lanes(|p| -im[p]);
+                off = lanes(|p| fmadd(re[p], re[p], fmadd(im[p], im[p], off[p])));
+            }
+        }
+        let total = lanes(|p| fmadd(2.0, off[p], diag[p]));
+        let mut good = [u64::MAX; LANES];
+        if total.iter().all(|t| (1e-200..=1e200).contains(t)) {
+            return Some(good);
+        }
+        // rare: some lane is zero, tiny, huge or not finite — lane by lane
+        for p in 0..LANES {
+            if (1e-200..=1e200).contains(&total[p]) {
+                continue;
+            }
+            let big = (0..N * N).fold(0.0f64, |m, x| {
+                m.max(ar[x / N][x % N][p].abs())
+                    .max(ai[x / N][x % N][p].abs())
+            });
+            let scale = if total[p].is_nan() || !big.is_finite() {
+                good[p] = 0;
+                0.0
+            } else if big == 0.0 {
+                1.0
+            } else {
+                let e = big.log2().round() as i32;
+                unscale[p] = 2f64.powi(e);
+                2f64.powi(-e)
+            };
+            for x in 0..N * N {
+                ar[x / N][x % N][p] *= scale;
+                ai[x / N][x % N][p] *= scale;
+            }
+            if scale == 0.0 {
+                // (0 · NaN is NaN: set, not scaled)
+                for x in 0..N * N {
+                    ar[x / N][x % N][p] = 0.0;
+                    ai[x / N][x % N][p] = 0.0;
+                }
+            }
+        }
+        Some(good)
+    }
+
+    /// Householder reflection k in every lane (see `eigen_small::Work::reflect`); τ_k = 0 where
+    /// the column below the sub-diagonal is already (negligibly) zero.
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn reflect(&mut self, k: usize) {
+        let (ar, ai) = (&mut self.ar, &mut self.ai);
+        let s = k + 1;
+        let mut sigma = splat(0.0);
+        for i in s + 1..N {
+            sigma = lanes(|p| {
+                fmadd(
+                    ar[i][k][p],
+                    ar[i][k][p],
+                    fmadd(ai[i][k][p], ai[i][k][p], sigma[p]),
+                )
+            });
+        }
+        // 1e-290, not 0: below it τ = 2/den could overflow; entries that small are ≤ 1e-145 of
+        // a matrix of norm ≥ 1e-100, so leaving them out of T is a negligible backward error
+        let apply = masks(|p| sigma[p] > 1e-290);
+        let (x0r, x0i) = (ar[s][k], ai[s][k]);
+        let a2 = lanes(|p| fmadd(x0r[p], x0r[p], x0i[p] * x0i[p]));
+        let ax0 = lanes(|p| a2[p].sqrt());
+        let xnorm = lanes(|p| (a2[p] + sigma[p]).sqrt());
+        // phase of x0 (1 where x0 = 0), so v0 = x0 + phase·‖x‖ has no cancellation
+        let nonzero = masks(|p| ax0[p] > 0.0);
+        let pr = select(nonzero, lanes(|p| x0r[p] / ax0[p]), splat(1.0));
+        let pi = select(nonzero, lanes(|p| x0i[p] / ax0[p]), splat(0.0));
+        let top = lanes(|p| ax0[p] + xnorm[p]);
+        let (vr, vi) = (&mut self.vr[k], &mut self.vi[k]);
+        vr[s] = lanes(|p| pr[p] * top[p]);
+        vi[s] = lanes(|p| pi[p] * top[p]);
+        for i in s + 1..N {
+            vr[i] = ar[i][k];
+            vi[i] = ai[i][k];
+        }
+        let tau = select(
+            apply,
+            lanes(|p| 2.0 / fmadd(top[p], top[p], sigma[p])),
+            splat(0.0),
+        );
+        self.tau[k] = tau;
+        // p = τ B v (B the trailing block, Hermitian)
+        let mut p_r = [splat(0.0); N];
+        let mut p_i = [splat(0.0); N];
+        for i in s..N {
+            let (mut sr, mut si) = (splat(0.0), splat(0.0));
+            for j in s..N {
+                let (a, b, x, y) = (ar[i][j], ai[i][j], vr[j], vi[j]);
+                sr = lanes(|p| fmadd(a[p], x[p], fmadd(-b[p], y[p], sr[p])));
+                si = lanes(|p| fmadd(a[p], y[p], fmadd(b[p], x[p], si[p])));
+            }
+            p_r[i] = lanes(|p| tau[p] * sr[p]);
+            p_i[i] = lanes(|p| tau[p] * si[p]);
+        }
+        // K = (τ/2) v†p is real; w = p − K v
+        let mut kk = splat(0.0);
+        for i in s..N {
+            kk = lanes(|p| fmadd(vr[i][p], p_r[i][p], fmadd(vi[i][p], p_i[i][p], kk[p])));
+        }
+        kk = lanes(|p| kk[p] * 0.5 * tau[p]);
+        let mut wr = [splat(0.0); N];
+        let mut wi = [splat(0.0); N];
+        for i in s..N {
+            wr[i] = lanes(|p| fmadd(-kk[p], vr[i][p], p_r[i][p]));
+            wi[i] = lanes(|p| fmadd(-kk[p], vi[i][p], p_i[i][p]));
+        }
+        // B ← H B H = B − v w† − w v†
+        for i in s..N {
+            for j in s..N {
+                let (a, b) = (ar[i][j], ai[i][j]);
+                ar[i][j] = lanes(|p| {
+                    let t = fmadd(vr[i][p], wr[j][p], vi[i][p] * wi[j][p]);
+                    a[p] - fmadd(wr[i][p], vr[j][p], fmadd(wi[i][p], vi[j][p], t))
+                });
+                ai[i][j] = lanes(|p| {
+                    let t = fmadd(vi[i][p], wr[j][p], -(vr[i][p] * wi[j][p]));
+                    b[p] - fmadd(wi[i][p], vr[j][p], fmadd(-wr[i][p], vi[j][p], t))
+                });
+            }
+        }
+        // the sub-diagonal entry of column k becomes α = −phase·‖x‖ (unchanged where τ = 0)
+        ar[s][k] = select(apply, lanes(|p| -pr[p] * xnorm[p]), x0r);
+        ai[s][k] = select(apply, lanes(|p| -pi[p] * xnorm[p]), x0i);
+    }
+
+    /// The real tridiagonal matrix (diagonal d, off-diagonal e ≥ 0, e_{N−1} = 0), the phases
+    /// D; returns the deflation threshold ε‖T‖ per lane.
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn tridiagonal(&mut self) -> L {
+        let (ar, ai) = (&self.ar, &self.ai);
+        let mut tnorm = splat(0.0);
+        for k in 0..N {
+            self.d[k] = ar[k][k];
+            tnorm = lanes(|p| tnorm[p].max(ar[k][k][p].abs()));
+        }
+        self.e[N - 1] = splat(0.0);
+        for k in 0..N - 1 {
+            let (br, bi) = (ar[k + 1][k], ai[k + 1][k]);
+            let ab = lanes(|p| fmadd(br[p], br[p], bi[p] * bi[p]).sqrt());
+            self.e[k] = ab;
+            tnorm = lanes(|p| tnorm[p].max(ab[p]));
+            let (pr, pi) = (self.phr[k], self.phi[k]);
+            let (ur, ui) = (lanes(|p| br[p] / ab[p]), lanes(|p| bi[p] / ab[p]));
+            let nonzero = masks(|p| ab[p] > 0.0);
+            self.phr[k + 1] = select(
+                nonzero,
+                lanes(|p| fmadd(pr[p], ur[p], -(pi[p] * ui[p]))),
+                pr,
+            );
+            self.phi[k + 1] = select(nonzero, lanes(|p| fmadd(pr[p], ui[p], pi[p] * ur[p])), pi);
+        }
+        lanes(|p| f64::EPSILON * tnorm[p])
+    }
+
+    /// Implicit QR steps until no lane has an unreduced block left; returns the lanes still
+    /// unreduced after 30 N steps (not converged).
+    #[inline(always)]
+    fn iterate(&mut self, small: L) -> Mask {
+        let (mut d, mut e) = (self.d, self.e);
+        let mut failed = [0; LANES];
+        for step in 0..=30 * N {
+            // deflation: negligible off-diagonals to exact zeros (NaN counts as negligible:
+            // the lane then ends with non-finite values and is declined in `finish`)
+            let mut nonzero = [[0u64; LANES]; N];
+            for k in 0..N - 1 {
+                nonzero[k] = masks(|p| e[k][p].abs() > small[p]);
+                e[k] = select(nonzero[k], e[k], splat(0.0));
+            }
+            // active rotations: the nonzero e_k of the lowest unreduced block, scanning up
+            // from the bottom (`closed` once a zero follows a nonzero)
+            let mut active = [[0u64; LANES]; N];
+            let (mut found, mut closed) = ([0u64; LANES], [0u64; LANES]);
+            let mut left = [0u64; LANES];
+            for k in (0..N - 1).rev() {
+                active[k] = and_not(nonzero[k], closed);
+                closed = or(closed, and_not(found, nonzero[k]));
+                found = or(found, nonzero[k]);
+                left = or(left, active[k]);
+            }
+            if !any(left) {
+                break;
+            }
+            if step == 30 * N {
+                failed = left;
+                break;
+            }
+            // Wilkinson shift of the block's trailing 2×2 (the highest active rotation's
+            // plane), written as in `eigen_small`
+            let (mut dm, mut dh, mut b) = (splat(0.0), splat(0.0), splat(0.0));
+            for k in 0..N - 1 {
+                dm = select(active[k], d[k], dm);
+                dh = select(active[k], d[k + 1], dh);
+                b = select(active[k], e[k], b);
+            }
+            let delta = lanes(|p| 0.5 * (dm[p] - dh[p]));
+            let root = lanes(|p| fmadd(delta[p], delta[p], b[p] * b[p]).sqrt());
+            let mean = lanes(|p| 0.5 * (dm[p] + dh[p]));
+            let mu = select(
+                masks(|p| delta[p] >= 0.0),
+                lanes(|p| mean[p] - root[p]),
+                lanes(|p| mean[p] + root[p]),
+            );
+            self.chase(&mut d, &mut e, &active, mu);
+        }
+        (self.d, self.e) = (d, e);
+        failed
+    }
+
+    /// One implicit QR sweep per lane over rotations k = 0…N−2, the inactive ones the
+    /// identity (see the module notes; the arithmetic per rotation is `eigen_small::chase`'s).
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn chase(&mut self, d: &mut L1<N>, e: &mut L1<N>, active: &[Mask; N], mu: L) {
+        let zt = &mut self.zt;
+        let (mut x, mut z) = (splat(1.0), splat(0.0));
+        for k in 0..N - 1 {
+            let act = active[k];
+            // the bulge starts at the block's first rotation
+            let start = if k == 0 {
+                act
+            } else {
+                and_not(act, active[k - 1])
+            };
+            x = select(start, lanes(|p| d[k][p] - mu[p]), x);
+            z = select(start, e[k], z);
+            // inactive: (1, 0), so c = 1, s = 0 and nothing changes (never 0/0)
+            x = select(act, x, splat(1.0));
+            z = select(act, z, splat(0.0));
+            let (xx, zz) = (lanes(|p| x[p] * x[p]), lanes(|p| z[p] * z[p]));
+            let r2 = lanes(|p| xx[p] + zz[p]);
+            let inv2 = lanes(|p| 1.0 / r2[p]);
+            let r = lanes(|p| r2[p].sqrt());
+            let inv = lanes(|p| r[p] * inv2[p]);
+            let c = lanes(|p| x[p] * inv[p]);
+            let s = lanes(|p| -z[p] * inv[p]);
+            if k > 0 {
+                // the previous rotation's bulge is gone: e_{k−1} = r inside the block
+                e[k - 1] = select(and(act, active[k - 1]), r, e[k - 1]);
+            }
+            let (a, b, dd) = (d[k], e[k], d[k + 1]);
+            let cc = lanes(|p| xx[p] * inv2[p]);
+            let ss = lanes(|p| zz[p] * inv2[p]);
+            let cs = lanes(|p| -(x[p] * z[p]) * inv2[p]);
+            d[k] = lanes(|p| fmadd(a[p], cc[p], fmadd(-2.0 * b[p], cs[p], dd[p] * ss[p])));
+            d[k + 1] = lanes(|p| fmadd(a[p], ss[p], fmadd(2.0 * b[p], cs[p], dd[p] * cc[p])));
+            e[k] = lanes(|p| fmadd(a[p] - dd[p], cs[p], b[p] * (cc[p] - ss[p])));
+            // the new bulge (e_{N−1} = 0, and e_hi = 0 at the end of a block: no bulge)
+            let f = e[k + 1];
+            z = lanes(|p| -s[p] * f[p]);
+            e[k + 1] = lanes(|p| c[p] * f[p]);
+            x = e[k];
+            for m in 0..N {
+                let (zk, zk1) = (zt[k][m], zt[k + 1][m]);
+                zt[k][m] = lanes(|p| fmadd(c[p], zk[p], -s[p] * zk1[p]));
+                zt[k + 1][m] = lanes(|p| fmadd(s[p], zk[p], c[p] * zk1[p]));
+            }
+        }
+    }
+
+    /// Eigenvalues scaled back and sorted ascending per lane, the columns of Z with them;
+    /// a lane is solved where `good` and every eigenvalue and entry of Z is finite.
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn finish(&mut self, good: Mask) -> [bool; LANES] {
+        let mut solved = [false; LANES];
+        for p in 0..LANES {
+            solved[p] = good[p] != 0
+                && self.d.iter().all(|x| x[p].is_finite())
+                && self.zt.iter().flatten().all(|x| x[p].is_finite());
+        }
+        let (vals, zt, d, unscale) = (&mut self.vals, &mut self.zt, &self.d, self.unscale);
+        for k in 0..N {
+            vals[k] = lanes(|p| d[k][p] * unscale[p]);
+        }
+        // compare-exchange network (insertion order: every adjacent pair, N(N−1)/2 of them)
+        for i in 1..N {
+            for j in (1..=i).rev() {
+                let swap = masks(|p| vals[j - 1][p] > vals[j][p]);
+                let (lo, hi) = (vals[j - 1], vals[j]);
+                vals[j - 1] = select(swap, hi, lo);
+                vals[j] = select(swap, lo, hi);
+                for m in 0..N {
+                    let (lo, hi) = (zt[j - 1][m], zt[j][m]);
+                    zt[j - 1][m] = select(swap, hi, lo);
+                    zt[j][m] = select(swap, lo, hi);
+                }
+            }
+        }
+        solved
+    }
+
+    /// Unit eigenvector of `vals[k]` in every lane (real and imaginary parts, component i in
+    /// `[i][p]`): Q_H D Z e_k, the reflections applied last first.
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    pub fn vector(&self, k: usize) -> (L1<N>, L1<N>) {
+        let z = &self.zt[k];
+        let mut xr: L1<N> = std::array::from_fn(|i| lanes(|p| self.phr[i][p] * z[i][p]));
+        let mut xi: L1<N> = std::array::from_fn(|i| lanes(|p| self.phi[i][p] * z[i][p]));
+        for j in (0..N.saturating_sub(2)).rev() {
+            let (v_r, v_i, tau) = (&self.vr[j], &self.vi[j], self.tau[j]);
+            let (mut sr, mut si) = (splat(0.0), splat(0.0));
+            for i in j + 1..N {
+                sr = lanes(|p| fmadd(v_r[i][p], xr[i][p], fmadd(v_i[i][p], xi[i][p], sr[p])));
+                si = lanes(|p| fmadd(v_r[i][p], xi[i][p], fmadd(-v_i[i][p], xr[i][p], si[p])));
+            }
+            sr = lanes(|p| sr[p] * tau[p]);
+            si = lanes(|p| si[p] * tau[p]);
+            for i in j + 1..N {
+                xr[i] = lanes(|p| xr[i][p] - fmadd(v_r[i][p], sr[p], -(v_i[i][p] * si[p])));
+                xi[i] = lanes(|p| xi[i][p] - fmadd(v_r[i][p], si[p], v_i[i][p] * sr[p]));
+            }
+        }
+        (xr, xi)
+    }
+
+    /// Lane p's eigenvalues into `evals[p]` and its lowest `count` vectors as the first
+    /// columns of `out[p]` (row stride `ld`), for the lanes with `which[p]`. The caller has
+    /// checked the lengths (N values, N·ld entries; `count` ≤ `ld`, ≤ N).
+    // Index loops read like the matrix algebra they implement.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    pub fn write(
+        &self,
+        which: [bool; LANES],
+        count: usize,
+        ld: usize,
+        evals: &mut [&mut [f64]; LANES],
+        out: &mut [&mut [C64]; LANES],
+    ) {
+        for p in 0..LANES {
+            if which[p] {
+                for k in 0..N {
+                    evals[p][k] = self.vals[k][p];
+                }
+            }
+        }
+        for k in 0..count {
+            let (xr, xi) = self.vector(k);
+            for p in 0..LANES {
+                if which[p] {
+                    for i in 0..N {
+                        out[p][i * ld + k] = C64::new(xr[i][p], xi[i][p]);
+                    }
+                }
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::eigen::tests::{eigh_reference, pairing_cases, random_hermitian};
+    use crate::eigen::{eigh_occupied_quad_into, eigh_quad_into};
+    use crate::CoreError;
+
+    const Z: C64 = C64::new(0.0, 0.0);
+
+    /// A decomposition of `h` (eigenvalues `e`, the first `m` vectors as columns of `v`,
+    /// stride `ld`) against the reference Jacobi, to the accuracy of a backward-stable solver
+    /// (`scale` = ‖H‖₂ = max |λ|): eigenvalues within 1e-14 ‖H‖, residuals ‖Hv − λv‖ ≤
+    /// 1e-13 ‖H‖, V†V = 1 within 1e-14, and the projector onto the lowest j vectors within
+    /// 1e-14 ‖H‖/gap + 1e-14 of the reference's wherever the gap λ_j − λ_{j−1} > 1e-8 ‖H‖
+    /// (the Davis–Kahan bound for perturbations of size ε‖H‖).
+    fn check_against_reference(h: &[C64], e: &[f64], v: &[C64], m: usize, ld: usize, what: &str) {
+        let n = 4;
+        let (er, vr) = eigh_reference(h, n);
+        let scale = er[0].abs().max(er[n - 1].abs());
+        for k in 0..n {
+            let off = (e[k] - er[k]).abs();
+            assert!(
+                off <= 1e-14 * scale,
+                "{what}: eigenvalue {k} off by {off:e}"
+            );
+        }
+        for k in 0..m {
+            let res: f64 = (0..n)
+                .map(|i| {
+                    let hv: C64 = (0..n).map(|j| h[i * n + j] * v[j * ld + k]).sum();
+                    (hv - v[i * ld + k] * e[k]).norm_sqr()
+                })
+                .sum();
+            assert!(res.sqrt() <= 1e-13 * scale, "{what}: residual {k} {res:e}");
+            for l in 0..m {
+                let d: C64 = (0..n).map(|i| v[i * ld + k].conj() * v[i * ld + l]).sum();
+                let want = if k == l { 1.0 } else { 0.0 };
+                assert!((d - want).norm() <= 1e-14, "{what}: V†V {k} {l}");
+            }
+        }
+        for j in 1..=m.min(n - 1) {
+            let gap = er[j] - er[j - 1];
+            if gap <= 1e-8 * scale {
+                continue;
+            }
+            let tol = 1e-14 * scale / gap + 1e-14;
+            for a in 0..n {
+                for b in 0..n {
+                    let p: C64 = (0..j).map(|k| v[a * ld + k] * v[b * ld + k].conj()).sum();
+                    let p0: C64 = (0..j).map(|k| vr[a * n + k] * vr[b * n + k].conj()).sum();
+                    assert!((p - p0).norm() <= tol, "{what}: projector {j}");
+                }
+            }
+        }
+    }
+
+    /// Every multiset of four of the pairing cases (random, clustered and exactly degenerate
+    /// spectra, already reduced, all-equal, zero, scaled to 1e150, Kramers-degenerate) in the
+    /// four lanes, through the full and the occupied-only entries (every filling), against
+    /// the reference Jacobi.
+    #[test]
+    fn quads_match_reference_on_pairing_cases() {
+        let cases = pairing_cases(4);
+        let c = cases.len();
+        let mut groups = 0;
+        for a in 0..c {
+            for b in a..c {
+                for d in b..c {
+                    for f in d..c {
+                        let idx = [a, b, d, f];
+                        let hs: [&[C64]; 4] = std::array::from_fn(|p| &cases[idx[p]][..]);
+                        let mut e = [[0.0; 4]; 4];
+                        let mut v = [[Z; 16]; 4];
+                        let [e0, e1, e2, e3] = &mut e;
+                        let [v0, v1, v2, v3] = &mut v;
+                        eigh_quad_into(hs, 4, [e0, e1, e2, e3], [v0, v1, v2, v3]).unwrap();
+                        for p in 0..4 {
+                            let what = format!("cases {idx:?} lane {p}");
+                            check_against_reference(hs[p], &e[p], &v[p], 4, 4, &what);
+                        }
+                        if (a + b + d + f) % 5 == 0 {
+                            for nocc in 0..=4 {
+                                let mut o = [[Z; 16]; 4];
+                                let [o0, o1, o2, o3] = &mut o;
+                                let [e0, e1, e2, e3] = &mut e;
+                                let mut work = [Z; 16];
+                                eigh_occupied_quad_into(
+                                    hs,
+                                    4,
+                                    nocc,
+                                    [e0, e1, e2, e3],
+                                    [&mut o0[..4 * nocc], &mut o1[..], o2, o3],
+                                    &mut work,
+                                )
+                                .unwrap();
+                                for p in 0..4 {
+                                    let what = format!("cases {idx:?} lane {p} nocc {nocc}");
+                                    check_against_reference(hs[p], &e[p], &o[p], nocc, nocc, &what);
+                                }
+                            }
+                        }
+                        groups += 1;
+                    }
+                }
+            }
+        }
+        assert!(groups > 1000);
+    }
+
+    /// H = U Λ U† with Λ from the clustered-spectrum test of `eigen` (pairs or triples split
+    /// by 1e-6, 1e-10, 1e-14, exactly degenerate, all equal, scaled by 1e±120), four random
+    /// U in the four lanes.
+    #[test]
+    fn quads_accurate_on_clustered_spectra() {
+        for delta in [1e-6, 1e-10, 1e-14, 0.0, -1.0, 1e120, 1e-120] {
+            let hs: Vec<Vec<C64>> = (0..4u64)
+                .map(|seed| {
+                    let (_, u) = eigh_reference(&random_hermitian(4, 9100 + 31 * seed), 4);
+                    let base = random_hermitian(4, 7100 + 13 * seed);
+                    let mut lam: Vec<f64> = (0..4).map(|k| 2.0 * base[k * 5].re).collect();
+                    if (0.0..=1e-6).contains(&delta) {
+                        for k in 1..4 {
+                            let lead = if seed < 2 { k - k % 2 } else { k - k % 3 };
+                            lam[k] = lam[lead] + delta * (k - lead) as f64;
+                        }
+                    } else if delta == -1.0 {
+                        lam = vec![0.3; 4];
+                    } else {
+                        lam.iter_mut().for_each(|x| *x *= delta);
+                    }
+                    let mut h = vec![Z; 16];
+                    for i in 0..4 {
+                        for j in 0..4 {
+                            for k in 0..4 {
+                                h[i * 4 + j] += u[i * 4 + k] * lam[k] * u[j * 4 + k].conj();
+                            }
+                        }
+                    }
+                    h
+                })
+                .collect();
+            let mut quad = Quad::<4>::new();
+            let solved = quad.solve(std::array::from_fn(|p| &hs[p][..]));
+            assert_eq!(solved, [true; 4], "delta {delta}");
+            let mut e = [[0.0; 4]; 4];
+            let mut v = [[Z; 16]; 4];
+            let [e0, e1, e2, e3] = &mut e;
+            let [v0, v1, v2, v3] = &mut v;
+            let (mut ev, mut vv) = ([&mut e0[..], e1, e2, e3], [&mut v0[..], v1, v2, v3]);
+            quad.write([true; 4], 4, 4, &mut ev, &mut vv);
+            for p in 0..4 {
+                check_against_reference(&hs[p], &e[p], &v[p], 4, 4, &format!("delta {delta}"));
+            }
+        }
+    }
+
+    /// Lanes are independent: a matrix gives the same bits in any lane, next to any other
+    /// matrices (converged lanes only see identity rotations, which change nothing), and a
+    /// NaN or infinite entry declines its own lane only.
+    #[test]
+    fn lanes_are_independent() {
+        let cases = pairing_cases(4);
+        let solve = |hs: [&[C64]; 4]| {
+            let mut quad = Quad::<4>::new();
+            let solved = quad.solve(hs);
+            let mut e = [[0.0; 4]; 4];
+            let mut v = [[Z; 16]; 4];
+            let [e0, e1, e2, e3] = &mut e;
+            let [v0, v1, v2, v3] = &mut v;
+            let (mut ev, mut vv) = ([&mut e0[..], e1, e2, e3], [&mut v0[..], v1, v2, v3]);
+            quad.write(solved, 4, 4, &mut ev, &mut vv);
+            (solved, e, v)
+        };
+        let zero = vec![Z; 16];
+        let mut bad = cases[1].clone();
+        for (x, c) in cases.iter().enumerate() {
+            for p in 0..4 {
+                let mut alone: [&[C64]; 4] = [&zero, &zero, &zero, &zero];
+                alone[p] = c;
+                let (s0, e0, v0) = solve(alone);
+                assert!(s0[p]);
+                // among random matrices that need more steps, a NaN and an infinity
+                for (q, pos) in [(0usize, 3usize), (1, 9), (2, 0)] {
+                    let mut mixed: [&[C64]; 4] = std::array::from_fn(|r| &cases[(x + r) % 4][..]);
+                    bad[pos] = if q == 1 {
+                        C64::new(0.1, f64::INFINITY)
+                    } else {
+                        C64::new(f64::NAN, 0.0)
+                    };
+                    let b = (p + 1 + q) % 4;
+                    mixed[b] = &bad;
+                    mixed[p] = c;
+                    let (s1, e1, v1) = solve(mixed);
+                    assert!(!s1[b], "case {x}: bad lane {b} solved");
+                    assert!(s1[p], "case {x} lane {p}");
+                    assert_eq!(e0[p].map(f64::to_bits), e1[p].map(f64::to_bits), "case {x}");
+                    assert_eq!(v0[p], v1[p], "case {x} lane {p}");
+                    bad[pos] = cases[1][pos];
+                }
+            }
+        }
+        // through the entries: an error, as for the single and paired calls
+        bad[5] = C64::new(f64::NAN, 0.0);
+        let (mut e, mut v) = ([[0.0; 4]; 4], [[Z; 16]; 4]);
+        let [e0, e1, e2, e3] = &mut e;
+        let [v0, v1, v2, v3] = &mut v;
+        let hs: [&[C64]; 4] = [&cases[0], &cases[1], &bad, &cases[2]];
+        let r = eigh_quad_into(hs, 4, [e0, e1, e2, e3], [v0, v1, v2, v3]);
+        assert!(matches!(r, Err(CoreError::InvalidInput(_))));
+    }
+}
