@@ -87,6 +87,24 @@ fn any(m: Mask) -> bool {
     (m[0] | m[1] | m[2] | m[3]) != 0
 }
 
+/// `$body` for `$k` = 0, 1, … below `$n` (at most 7: `Quad` is for N ≤ 8) as straight-line
+/// code. Left to itself LLVM keeps the QR sweep and the reflections rolled at N = 4 (their
+/// bodies are long); a rolled sweep kept d and e on the stack, a store and a reload on the
+/// chain of every rotation.
+macro_rules! unrolled {
+    ($n:expr, $k:ident => $body:expr) => {{
+        unrolled!(@ $n, $k, $body, 0, 1, 2, 3, 4, 5, 6)
+    }};
+    (@ $n:expr, $k:ident, $body:expr, $($i:literal),*) => {{
+        $(
+            if $i < $n {
+                let $k: usize = $i;
+                $body;
+            }
+        )*
+    }};
+}
+
 /// Working state and result of four N×N solves ([`Quad::solve`]).
 pub(crate) struct Quad<const N: usize> {
     /// eigenvalues, ascending in each lane once solved: `vals[k][p]`
@@ -136,12 +154,11 @@ impl<const N: usize> Quad<N> {
     /// false where its input is not finite or its iteration did not converge (and everywhere
     /// if a slice is shorter than N², never as called).
     pub fn solve(&mut self, h: [&[C64]; LANES]) -> [bool; LANES] {
+        const { assert!(2 <= N && N <= 8, "Quad is written for 2 ≤ N ≤ 8") };
         let Some(mut good) = self.load(h) else {
             return [false; LANES];
         };
-        for k in 0..N.saturating_sub(2) {
-            self.reflect(k);
-        }
+        unrolled!(N - 2, k => self.reflect(k));
         let small = self.tridiagonal();
         good = and_not(good, self.iterate(small));
         self.finish(good)
@@ -406,49 +423,8 @@ impl<const N: usize> Quad<N> {
     #[inline(always)]
     fn chase(&mut self, d: &mut L1<N>, e: &mut L1<N>, active: &[Mask; N], mu: L) {
         let zt = &mut self.zt;
-        let (mut x, mut z) = (splat(1.0), splat(0.0));
-        for k in 0..N - 1 {
-            let act = active[k];
-            // the bulge starts at the block's first rotation
-            let start = if k == 0 {
-                act
-            } else {
-                and_not(act, active[k - 1])
-            };
-            x = select(start, lanes(|p| d[k][p] - mu[p]), x);
-            z = select(start, e[k], z);
-            // inactive: (1, 0), so c = 1, s = 0 and nothing changes (never 0/0)
-            x = select(act, x, splat(1.0));
-            z = select(act, z, splat(0.0));
-            let (xx, zz) = (lanes(|p| x[p] * x[p]), lanes(|p| z[p] * z[p]));
-            let r2 = lanes(|p| xx[p] + zz[p]);
-            let inv2 = lanes(|p| 1.0 / r2[p]);
-            let r = lanes(|p| r2[p].sqrt());
-            let inv = lanes(|p| r[p] * inv2[p]);
-            let c = lanes(|p| x[p] * inv[p]);
-            let s = lanes(|p| -z[p] * inv[p]);
-            if k > 0 {
-                // the previous rotation's bulge is gone: e_{k−1} = r inside the block
-                e[k - 1] = select(and(act, active[k - 1]), r, e[k - 1]);
-            }
-            let (a, b, dd) = (d[k], e[k], d[k + 1]);
-            let cc = lanes(|p| xx[p] * inv2[p]);
-            let ss = lanes(|p| zz[p] * inv2[p]);
-            let cs = lanes(|p| -(x[p] * z[p]) * inv2[p]);
-            d[k] = lanes(|p| fmadd(a[p], cc[p], fmadd(-2.0 * b[p], cs[p], dd[p] * ss[p])));
-            d[k + 1] = lanes(|p| fmadd(a[p], ss[p], fmadd(2.0 * b[p], cs[p], dd[p] * cc[p])));
-            e[k] = lanes(|p| fmadd(a[p] - dd[p], cs[p], b[p] * (cc[p] - ss[p])));
-            // the new bulge (e_{N−1} = 0, and e_hi = 0 at the end of a block: no bulge)
-            let f = e[k + 1];
-            z = lanes(|p| -s[p] * f[p]);
-            e[k + 1] = lanes(|p| c[p] * f[p]);
-            x = e[k];
-            for m in 0..N {
-                let (zk, zk1) = (zt[k][m], zt[k + 1][m]);
-                zt[k][m] = lanes(|p| fmadd(c[p], zk[p], -s[p] * zk1[p]));
-                zt[k + 1][m] = lanes(|p| fmadd(s[p], zk[p], c[p] * zk1[p]));
-            }
-        }
+        let mut bulge = (splat(1.0), splat(0.0));
+        unrolled!(N - 1, k => rotation(k, d, e, zt, active, mu, &mut bulge));
     }
 
     /// Eigenvalues scaled back and sorted ascending per lane, the columns of Z with them;
@@ -491,8 +467,11 @@ impl<const N: usize> Quad<N> {
     #[inline(always)]
     pub fn vector(&self, k: usize) -> (L1<N>, L1<N>) {
         let z = &self.zt[k];
-        let mut xr: L1<N> = std::array::from_fn(|i| lanes(|p| self.phr[i][p] * z[i][p]));
-        let mut xi: L1<N> = std::array::from_fn(|i| lanes(|p| self.phi[i][p] * z[i][p]));
+        let (mut xr, mut xi) = ([splat(0.0); N], [splat(0.0); N]);
+        for i in 0..N {
+            xr[i] = lanes(|p| self.phr[i][p] * z[i][p]);
+            xi[i] = lanes(|p| self.phi[i][p] * z[i][p]);
+        }
         for j in (0..N.saturating_sub(2)).rev() {
             let (v_r, v_i, tau) = (&self.vr[j], &self.vi[j], self.tau[j]);
             let (mut sr, mut si) = (splat(0.0), splat(0.0));
@@ -531,17 +510,81 @@ impl<const N: usize> Quad<N> {
                 }
             }
         }
-        for k in 0..count {
-            let (xr, xi) = self.vector(k);
-            for p in 0..LANES {
-                if which[p] {
+        // every vector first (packed arithmetic, stored whole), then scattered lane by lane:
+        // with the scattering stores in the same loop the compiler had done the vector
+        // arithmetic one lane at a time (~600 instructions per group and vector)
+        let (mut xr, mut xi) = ([[splat(0.0); N]; N], [[splat(0.0); N]; N]);
+        for k in 0..count.min(N) {
+            (xr[k], xi[k]) = self.vector(k);
+        }
+        for p in 0..LANES {
+            if which[p] {
+                for k in 0..count.min(N) {
                     for i in 0..N {
-                        out[p][i * ld + k] = C64::new(xr[i][p], xi[i][p]);
+                        out[p][i * ld + k] = C64::new(xr[k][i][p], xi[k][i][p]);
                     }
                 }
             }
         }
     }
+}
+
+/// Rotation k of [`Quad::chase`] in every lane (plane k, k + 1; `bulge` = (x, z) carried from
+/// rotation k − 1).
+// Index loops read like the matrix algebra they implement.
+#[allow(clippy::needless_range_loop)]
+#[inline(always)]
+fn rotation<const N: usize>(
+    k: usize,
+    d: &mut L1<N>,
+    e: &mut L1<N>,
+    zt: &mut [L1<N>; N],
+    active: &[Mask; N],
+    mu: L,
+    bulge: &mut (L, L),
+) {
+    let (mut x, mut z) = *bulge;
+    let act = active[k];
+    // the bulge starts at the block's first rotation
+    let start = if k == 0 {
+        act
+    } else {
+        and_not(act, active[k - 1])
+    };
+    x = select(start, lanes(|p| d[k][p] - mu[p]), x);
+    z = select(start, e[k], z);
+    // inactive: (1, 0), so c = 1, s = 0 and nothing changes (never 0/0)
+    x = select(act, x, splat(1.0));
+    z = select(act, z, splat(0.0));
+    let (xx, zz) = (lanes(|p| x[p] * x[p]), lanes(|p| z[p] * z[p]));
+    let r2 = lanes(|p| xx[p] + zz[p]);
+    let inv2 = lanes(|p| 1.0 / r2[p]);
+    let r = lanes(|p| r2[p].sqrt());
+    let inv = lanes(|p| r[p] * inv2[p]);
+    let c = lanes(|p| x[p] * inv[p]);
+    let s = lanes(|p| -z[p] * inv[p]);
+    if k > 0 {
+        // the previous rotation's bulge is gone: e_{k−1} = r inside the block
+        e[k - 1] = select(and(act, active[k - 1]), r, e[k - 1]);
+    }
+    let (a, b, dd) = (d[k], e[k], d[k + 1]);
+    let cc = lanes(|p| xx[p] * inv2[p]);
+    let ss = lanes(|p| zz[p] * inv2[p]);
+    let cs = lanes(|p| -(x[p] * z[p]) * inv2[p]);
+    d[k] = lanes(|p| fmadd(a[p], cc[p], fmadd(-2.0 * b[p], cs[p], dd[p] * ss[p])));
+    d[k + 1] = lanes(|p| fmadd(a[p], ss[p], fmadd(2.0 * b[p], cs[p], dd[p] * cc[p])));
+    e[k] = lanes(|p| fmadd(a[p] - dd[p], cs[p], b[p] * (cc[p] - ss[p])));
+    // the new bulge (e_{N−1} = 0, and e_hi = 0 at the end of a block: no bulge)
+    let f = e[k + 1];
+    z = lanes(|p| -s[p] * f[p]);
+    e[k + 1] = lanes(|p| c[p] * f[p]);
+    x = e[k];
+    for m in 0..N {
+        let (zk, zk1) = (zt[k][m], zt[k + 1][m]);
+        zt[k][m] = lanes(|p| fmadd(c[p], zk[p], -s[p] * zk1[p]));
+        zt[k + 1][m] = lanes(|p| fmadd(s[p], zk[p], c[p] * zk1[p]));
+    }
+    *bulge = (x, z);
 }
 
 #[cfg(test)]
