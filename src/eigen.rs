@@ -293,9 +293,13 @@ pub fn eigh_quad_into(
     for p in 0..4 {
         check_sizes(h[p], n, evals[p], vecs[p])?;
     }
+    // the closed form until it first declines (see `group4`)
     let mut done = [false; 4];
     for p in 0..4 {
         done[p] = eigen_small::two_level4::<2, 4>(h[p], evals[p], vecs[p]);
+        if !done[p] {
+            break;
+        }
     }
     group4(h, &mut done, 4, 4, &mut evals, &mut vecs);
     let left: Vec<usize> = (0..4).filter(|&p| !done[p]).collect();
@@ -341,6 +345,7 @@ pub fn eigh_occupied_quad_into(
             ));
         }
     }
+    // the closed form until it first declines (see `group4`)
     let mut done = [false; 4];
     for p in 0..4 {
         done[p] = match nocc {
@@ -348,6 +353,9 @@ pub fn eigh_occupied_quad_into(
             0 => eigen_small::two_level4::<0, 0>(h[p], evals[p], occ[p]),
             _ => false,
         };
+        if !done[p] {
+            break;
+        }
     }
     group4(h, &mut done, nocc, nocc, &mut evals, &mut occ);
     let left: Vec<usize> = (0..4).filter(|&p| !done[p]).collect();
@@ -373,6 +381,12 @@ pub fn eigh_occupied_quad_into(
 /// others' lanes run the zero matrix, which converges at once): eigenvalues and the lowest
 /// `count` vectors (row stride `ld`) written for the solved lanes, which are marked done.
 /// Lanes that decline stay not done (the caller's single paths then decide).
+///
+/// The callers try the Kramers closed form only until it first declines: its refusal costs
+/// ~200 instructions per matrix (it builds A = H − d0 before it can test A² = r²), as much
+/// as a third of a lane's share of the solve, and a line of a model without inversion is
+/// generic except at its TRIMs; a Kramers-degenerate matrix in a lane is solved as
+/// accurately, only without the shortcut.
 fn group4(
     h: [&[C64]; 4],
     done: &mut [bool; 4],

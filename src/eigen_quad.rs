@@ -42,7 +42,8 @@ pub(crate) const LANES: usize = 4;
 /// One value per lane.
 type L = [f64; LANES];
 /// One flag per lane: all bits set (true) or none; selects on these are bit operations,
-/// which the compiler turns into packed and/andnot/or (or blends).
+/// which the compiler turns into packed and/andnot/or or blends. (`[bool; 4]` masks gave
+/// the same speed, but code that valgrind 3.19 cannot run: a register form of vmovq.)
 type Mask = [u64; LANES];
 
 #[inline(always)]
@@ -367,7 +368,7 @@ impl<const N: usize> Quad<N> {
     #[inline(always)]
     fn iterate(&mut self, small: L) -> Mask {
         let (mut d, mut e) = (self.d, self.e);
-        let mut failed = [0; LANES];
+        let mut failed = [0u64; LANES];
         for step in 0..=30 * N {
             // deflation: negligible off-diagonals to exact zeros (NaN counts as negligible:
             // the lane then ends with non-finite values and is declined in `finish`)
@@ -433,30 +434,33 @@ impl<const N: usize> Quad<N> {
     #[allow(clippy::needless_range_loop)]
     #[inline(always)]
     fn finish(&mut self, good: Mask) -> [bool; LANES] {
-        let mut solved = [false; LANES];
-        for p in 0..LANES {
-            solved[p] = good[p] != 0
-                && self.d.iter().all(|x| x[p].is_finite())
-                && self.zt.iter().flatten().all(|x| x[p].is_finite());
+        // Σ 0·x over the eigenvalues and Z: 0 where all are finite, NaN otherwise
+        let mut probe = splat(0.0);
+        for x in self.d.iter().chain(self.zt.iter().flatten()) {
+            probe = lanes(|p| fmadd(x[p], 0.0, probe[p]));
         }
+        let solved = [0, 1, 2, 3].map(|p| good[p] != 0 && probe[p] == 0.0);
         let (vals, zt, d, unscale) = (&mut self.vals, &mut self.zt, &self.d, self.unscale);
         for k in 0..N {
             vals[k] = lanes(|p| d[k][p] * unscale[p]);
         }
-        // compare-exchange network (insertion order: every adjacent pair, N(N−1)/2 of them)
-        for i in 1..N {
-            for j in (1..=i).rev() {
-                let swap = masks(|p| vals[j - 1][p] > vals[j][p]);
-                let (lo, hi) = (vals[j - 1], vals[j]);
-                vals[j - 1] = select(swap, hi, lo);
-                vals[j] = select(swap, lo, hi);
-                for m in 0..N {
-                    let (lo, hi) = (zt[j - 1][m], zt[j][m]);
-                    zt[j - 1][m] = select(swap, hi, lo);
-                    zt[j][m] = select(swap, lo, hi);
-                }
+        // compare-exchange network, straight-line (insertion order: for i = 1…N−1 the pairs
+        // (i−1, i), (i−2, i−1), …, (0, 1); N(N−1)/2 of them)
+        unrolled!(N - 1, a => unrolled!(a + 1, b => {
+            let j = a + 1 - b;
+            // (selects on a float compare: as bit operations on `Mask`s the compiler swapped
+            // these rows through integer registers, lane by lane)
+            let swap = [0, 1, 2, 3].map(|p| vals[j - 1][p] > vals[j][p]);
+            let pick = |m: [bool; LANES], a: L, b: L| lanes(|p| if m[p] { a[p] } else { b[p] });
+            let (lo, hi) = (vals[j - 1], vals[j]);
+            vals[j - 1] = pick(swap, hi, lo);
+            vals[j] = pick(swap, lo, hi);
+            for m in 0..N {
+                let (lo, hi) = (zt[j - 1][m], zt[j][m]);
+                zt[j - 1][m] = pick(swap, hi, lo);
+                zt[j][m] = pick(swap, lo, hi);
             }
-        }
+        }));
         solved
     }
 
@@ -517,11 +521,12 @@ impl<const N: usize> Quad<N> {
         for k in 0..count.min(N) {
             (xr[k], xi[k]) = self.vector(k);
         }
+        let count = count.min(N).min(ld);
         for p in 0..LANES {
             if which[p] {
-                for k in 0..count.min(N) {
-                    for i in 0..N {
-                        out[p][i * ld + k] = C64::new(xr[k][i][p], xi[k][i][p]);
+                for (i, row) in out[p].chunks_exact_mut(ld.max(1)).take(N).enumerate() {
+                    for (k, x) in row[..count].iter_mut().enumerate() {
+                        *x = C64::new(xr[k][i][p], xi[k][i][p]);
                     }
                 }
             }
