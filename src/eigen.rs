@@ -461,7 +461,8 @@ fn split2<T>(buf: &mut [T], len: usize) -> [&mut [T]; 2] {
 
 /// [`eigh_occupied_into`] for k consecutive matrices of a line (`h`: k × n × n; `evals`: k × n;
 /// `occ`: k × n × nocc, empty for nocc = 0 — eigenvalues only), four at a time with
-/// [`eigh_occupied_quad_into`], the rest in a pair and alone: the κ points of a Wilson line,
+/// [`eigh_occupied_quad_into`] (three 4×4s left over too, a zero matrix filling the fourth
+/// lane), the rest in a pair and alone: the κ points of a Wilson line,
 /// the bulk gap grid and the lattice mesh rows. `work` (n × n) is scratch for the fallbacks.
 pub fn eigh_occupied_many_into(
     h: &[C64],
@@ -493,27 +494,48 @@ pub fn eigh_occupied_many_into(
             let (oa, ob) = os.split_at_mut(2 * no);
             let ([o0, o1], [o2, o3]) = (split2(oa, no), split2(ob, no));
             eigh_occupied_quad_into(hq, n, nocc, [e0, e1, e2, e3], [o0, o1, o2, o3], work)?;
-        } else if g >= 2 {
-            let ([e0, e1], [o0, o1]) = (split2(&mut es[..2 * n], n), split2(&mut os[..2 * no], no));
-            eigh_occupied_pair_into(
-                [&hs[..nn], &hs[nn..2 * nn]],
+        } else if g == 3 && n == 4 && nocc <= 4 {
+            // three 4×4s: the lanes with a zero matrix in the fourth (cheaper than a pair
+            // and a single solve)
+            let (zero, mut e_fill, mut o_fill) =
+                ([C64::new(0.0, 0.0); 16], [0.0; 4], [C64::new(0.0, 0.0); 16]);
+            let hq = [&hs[..nn], &hs[nn..2 * nn], &hs[2 * nn..3 * nn], &zero[..]];
+            let (ea, e2) = es.split_at_mut(2 * n);
+            let [e0, e1] = split2(ea, n);
+            let (oa, o2) = os.split_at_mut(2 * no);
+            let [o0, o1] = split2(oa, no);
+            eigh_occupied_quad_into(
+                hq,
                 n,
                 nocc,
-                [e0, e1],
-                [o0, o1],
+                [e0, e1, e2, &mut e_fill],
+                [o0, o1, o2, &mut o_fill[..no]],
                 work,
             )?;
-        }
-        if g % 2 == 1 {
-            let (j0, j1) = (g - 1, g);
-            eigh_occupied_into(
-                &hs[j0 * nn..j1 * nn],
-                n,
-                nocc,
-                &mut es[j0 * n..j1 * n],
-                &mut os[j0 * no..j1 * no],
-                work,
-            )?;
+        } else {
+            if g >= 2 {
+                let ([e0, e1], [o0, o1]) =
+                    (split2(&mut es[..2 * n], n), split2(&mut os[..2 * no], no));
+                eigh_occupied_pair_into(
+                    [&hs[..nn], &hs[nn..2 * nn]],
+                    n,
+                    nocc,
+                    [e0, e1],
+                    [o0, o1],
+                    work,
+                )?;
+            }
+            if g % 2 == 1 {
+                let (j0, j1) = (g - 1, g);
+                eigh_occupied_into(
+                    &hs[j0 * nn..j1 * nn],
+                    n,
+                    nocc,
+                    &mut es[j0 * n..j1 * n],
+                    &mut os[j0 * no..j1 * no],
+                    work,
+                )?;
+            }
         }
         p += g;
     }

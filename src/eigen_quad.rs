@@ -802,4 +802,33 @@ mod tests {
         let r = eigh_quad_into(hs, 4, [e0, e1, e2, e3], [v0, v1, v2, v3]);
         assert!(matches!(r, Err(CoreError::InvalidInput(_))));
     }
+
+    /// The line entries over k = 1…9 consecutive 4×4s (every remainder after the groups of
+    /// four: a pair, a single, three in the lanes with a zero filler), random matrices with
+    /// a Kramers-degenerate one among them, every filling, against the reference Jacobi.
+    #[test]
+    fn many_entries_cover_every_remainder() {
+        let mut pool: Vec<Vec<C64>> = (0..9).map(|s| random_hermitian(4, 5200 + s)).collect();
+        pool[5] = pairing_cases(4).pop().unwrap(); // closed form (Dirac matrices)
+        for k in 1..=9 {
+            let h: Vec<C64> = pool[..k].concat();
+            let (mut e, mut v) = (vec![0.0; 4 * k], vec![Z; 16 * k]);
+            crate::eigen::eigh_many_into(&h, 4, &mut e, &mut v).unwrap();
+            for j in 0..k {
+                let what = format!("k={k} matrix {j}");
+                let (ej, vj) = (&e[4 * j..4 * j + 4], &v[16 * j..16 * j + 16]);
+                check_against_reference(&pool[j], ej, vj, 4, 4, &what);
+            }
+            for nocc in 0..=4 {
+                let (mut e, mut o, mut work) = (vec![0.0; 4 * k], vec![Z; 4 * nocc * k], [Z; 16]);
+                crate::eigen::eigh_occupied_many_into(&h, 4, nocc, &mut e, &mut o, &mut work)
+                    .unwrap();
+                for j in 0..k {
+                    let what = format!("k={k} nocc={nocc} matrix {j}");
+                    let (ej, oj) = (&e[4 * j..4 * j + 4], &o[4 * nocc * j..4 * nocc * (j + 1)]);
+                    check_against_reference(&pool[j], ej, oj, nocc, nocc, &what);
+                }
+            }
+        }
+    }
 }
