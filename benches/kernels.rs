@@ -1,7 +1,7 @@
 //! Kernel benchmarks of the Rust core (a small `cargo bench` harness, no extra dependencies):
 //! Hermitian eigensolvers per matrix at n = 4…64 (reference Jacobi, size-specialised Jacobi
 //! cold and warm-started, the size-specialised Householder + QR that production uses for
-//! n ≤ 16 — one matrix at a time, two together and, for 4×4, four in the lanes of
+//! n ≤ 16 — one matrix at a time, two together and, for n ≤ 8, four in the lanes of
 //! `eigen_quad` — nalgebra Householder, faer), Bloch sums, one Wilson line and one full
 //! parameter point of the cubic Wilson–Dirac model at fixed sampling (40 × 41 × 6).
 //!
@@ -16,7 +16,7 @@ use toposweep::bloch::{BlochSource, Hoppings};
 use toposweep::eigen::{
     eigh_householder_into, eigh_into, eigh_jacobi_into, eigh_occupied_into,
     eigh_occupied_pair_into, eigh_occupied_quad_into, eigh_pair_into, eigh_quad_into,
-    eigh_reference_into, eigh_warm_into, JACOBI_MAX_N, SMALL_MAX_N,
+    eigh_reference_into, eigh_warm_into, JACOBI_MAX_N, QUAD_MAX_N, SMALL_MAX_N,
 };
 use toposweep::engine::{evaluate_point, Method, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
@@ -191,8 +191,8 @@ fn main() {
             } else {
                 "–".into()
             };
-            // four per call (n = 4 only: other n take two pairs)
-            let quad = if n == 4 {
+            // four per call (n ≤ QUAD_MAX_N; above, two pairs)
+            let quad = if n <= QUAD_MAX_N {
                 let (mut e3, mut v3) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
                 let (mut e4, mut v4) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
                 fmt(time_ns(reps, k / 4, |i| {
@@ -312,21 +312,21 @@ fn main() {
     }
 
     // Profiling aids (not in the default run): one generic n×n solve at a time, two together,
-    // or (n = 4) four in lanes, over 64 random matrices; `-- solo-4` / `-- pair-4` / `-- quad-4`
-    // (solo and pair also 6, 8) under perf or callgrind give per-matrix counts (divide by
+    // or four in lanes, over 64 random matrices; `-- solo-4` / `-- pair-4` / `-- quad-4`
+    // (n = 2…8) under perf or callgrind give per-matrix counts (divide by
     // KERNEL_PROFILE_CALLS, default 200 000 matrices).
     if let Some(o) = only.as_deref() {
         let calls: usize = std::env::var("KERNEL_PROFILE_CALLS")
             .ok()
             .and_then(|v| v.parse().ok())
             .unwrap_or(200_000);
-        for n in [4usize, 6, 8] {
+        for n in 2usize..=8 {
             let (solo, pair, quad) = (
                 format!("solo-{n}"),
                 format!("pair-{n}"),
                 format!("quad-{n}"),
             );
-            if o != solo && o != pair && (o != quad || n != 4) {
+            if o != solo && o != pair && o != quad {
                 continue;
             }
             let hs: Vec<Vec<C64>> = (0..64).map(|_| rng.hermitian(n)).collect();

@@ -70,6 +70,8 @@ pub const JACOBI_MAX_N: usize = 8;
 /// (random matrices, `--no-default-features`; faer's are below 1e-14, see `FAER_MIN_N`).
 pub const SMALL_MAX_N: usize = 16;
 const MAX_SWEEPS: usize = 60;
+/// Largest size solved four at a time in lanes (`eigen_quad`; above it, pairs).
+pub const QUAD_MAX_N: usize = 8;
 
 fn check_buffers(h: &[C64], n: usize, evals: &[f64], vecs: &[C64]) -> CoreResult<()> {
     check_sizes(h, n, evals, vecs)?;
@@ -273,10 +275,11 @@ pub fn eigh_occupied_pair_into(
 }
 
 /// [`eigh_into`] for four independent matrices of the same size (`h[p]` → `evals[p]`,
-/// `vecs[p]`). n = 4: the Kramers closed form where it applies, then the others together in
-/// the lanes of `eigen_quad` when three or four are left (a zero matrix fills the free
-/// lane), as a pair or alone otherwise. Other n: two [`eigh_pair_into`]. The results may
-/// differ from single solves in the last bits (another order of the same operations).
+/// `vecs[p]`). 2 ≤ n ≤ `QUAD_MAX_N`: the Kramers closed form where it applies (n = 4), then
+/// the others together in the lanes of `eigen_quad` when three or four are left (a zero
+/// matrix fills a free lane), as a pair or alone otherwise. Other n: two
+/// [`eigh_pair_into`]. The results may differ from single solves in the last bits (another
+/// order of the same operations).
 pub fn eigh_quad_into(
     h: [&[C64]; 4],
     n: usize,
@@ -285,7 +288,7 @@ pub fn eigh_quad_into(
 ) -> CoreResult<()> {
     let [e0, e1, e2, e3] = evals;
     let [v0, v1, v2, v3] = vecs;
-    if n != 4 {
+    if !(2..=QUAD_MAX_N).contains(&n) {
         eigh_pair_into([h[0], h[1]], n, [e0, e1], [v0, v1])?;
         return eigh_pair_into([h[2], h[3]], n, [e2, e3], [v2, v3]);
     }
@@ -293,16 +296,19 @@ pub fn eigh_quad_into(
     for p in 0..4 {
         check_sizes(h[p], n, evals[p], vecs[p])?;
     }
-    // the closed form until it first declines (see `group4`)
+    // the closed form until it first declines (see `lanes`)
     let mut done = [false; 4];
     for p in 0..4 {
+        if n != 4 {
+            break;
+        }
         done[p] = eigen_small::two_level4::<2, 4>(h[p], evals[p], vecs[p]);
         if !done[p] {
             break;
         }
     }
     if done.iter().filter(|&&d| !d).count() >= 3 {
-        group4(h, &mut done, 4, 4, &mut evals, &mut vecs);
+        lanes(h, n, &mut done, n, n, &mut evals, &mut vecs);
     }
     let (left, count) = not_done(&done);
     if let [a, b] = left[..count] {
@@ -310,13 +316,13 @@ pub fn eigh_quad_into(
         let (lo_v, hi_v) = vecs.split_at_mut(b);
         return eigh_pair_into(
             [h[a], h[b]],
-            4,
+            n,
             [&mut *lo_e[a], &mut *hi_e[0]],
             [&mut *lo_v[a], &mut *hi_v[0]],
         );
     }
     for &p in &left[..count] {
-        eigh_into(h[p], 4, evals[p], vecs[p])?;
+        eigh_into(h[p], n, evals[p], vecs[p])?;
     }
     Ok(())
 }
@@ -334,7 +340,7 @@ pub fn eigh_occupied_quad_into(
 ) -> CoreResult<()> {
     let [e0, e1, e2, e3] = evals;
     let [o0, o1, o2, o3] = occ;
-    if n != 4 {
+    if !(2..=QUAD_MAX_N).contains(&n) {
         eigh_occupied_pair_into([h[0], h[1]], n, nocc, [e0, e1], [o0, o1], work)?;
         return eigh_occupied_pair_into([h[2], h[3]], n, nocc, [e2, e3], [o2, o3], work);
     }
@@ -347,9 +353,12 @@ pub fn eigh_occupied_quad_into(
             ));
         }
     }
-    // the closed form until it first declines (see `group4`)
+    // the closed form until it first declines (see `lanes`)
     let mut done = [false; 4];
     for p in 0..4 {
+        if n != 4 {
+            break;
+        }
         done[p] = match nocc {
             2 => eigen_small::two_level4::<1, 2>(h[p], evals[p], occ[p]),
             0 => eigen_small::two_level4::<0, 0>(h[p], evals[p], occ[p]),
@@ -360,7 +369,7 @@ pub fn eigh_occupied_quad_into(
         }
     }
     if done.iter().filter(|&&d| !d).count() >= 3 {
-        group4(h, &mut done, nocc, nocc, &mut evals, &mut occ);
+        lanes(h, n, &mut done, nocc, nocc, &mut evals, &mut occ);
     }
     let (left, count) = not_done(&done);
     if let [a, b] = left[..count] {
@@ -368,7 +377,7 @@ pub fn eigh_occupied_quad_into(
         let (lo_o, hi_o) = occ.split_at_mut(b);
         return eigh_occupied_pair_into(
             [h[a], h[b]],
-            4,
+            n,
             nocc,
             [&mut *lo_e[a], &mut *hi_e[0]],
             [&mut *lo_o[a], &mut *hi_o[0]],
@@ -376,7 +385,7 @@ pub fn eigh_occupied_quad_into(
         );
     }
     for &p in &left[..count] {
-        eigh_occupied_into(h[p], 4, nocc, evals[p], occ[p], work)?;
+        eigh_occupied_into(h[p], n, nocc, evals[p], occ[p], work)?;
     }
     Ok(())
 }
@@ -391,7 +400,7 @@ fn not_done(done: &[bool; 4]) -> ([usize; 4], usize) {
     (left, count)
 }
 
-/// The 4-lane solve of the 4×4 matrices not yet `done` (called when three or four are left;
+/// The 4-lane solve of the n×n matrices not yet `done` (called when three or four are left;
 /// the others' lanes run the zero matrix, which converges at once): eigenvalues and the lowest
 /// `count` vectors (row stride `ld`) written for the solved lanes, which are marked done.
 /// Lanes that decline stay not done (the caller's single paths then decide).
@@ -401,7 +410,30 @@ fn not_done(done: &[bool; 4]) -> ([usize; 4], usize) {
 /// as a third of a lane's share of the solve, and a line of a model without inversion is
 /// generic except at its TRIMs; a Kramers-degenerate matrix in a lane is solved as
 /// accurately, only without the shortcut.
-fn group4(
+#[allow(clippy::too_many_arguments)]
+fn lanes(
+    h: [&[C64]; 4],
+    n: usize,
+    done: &mut [bool; 4],
+    count: usize,
+    ld: usize,
+    evals: &mut [&mut [f64]; 4],
+    out: &mut [&mut [C64]; 4],
+) {
+    match n {
+        2 => lanes_of::<2>(h, done, count, ld, evals, out),
+        3 => lanes_of::<3>(h, done, count, ld, evals, out),
+        4 => lanes_of::<4>(h, done, count, ld, evals, out),
+        5 => lanes_of::<5>(h, done, count, ld, evals, out),
+        6 => lanes_of::<6>(h, done, count, ld, evals, out),
+        7 => lanes_of::<7>(h, done, count, ld, evals, out),
+        8 => lanes_of::<8>(h, done, count, ld, evals, out),
+        _ => {} // (not called: the pairs and single solves take the rest)
+    }
+}
+
+/// [`lanes`] for one size.
+fn lanes_of<const N: usize>(
     h: [&[C64]; 4],
     done: &mut [bool; 4],
     count: usize,
@@ -409,9 +441,9 @@ fn group4(
     evals: &mut [&mut [f64]; 4],
     out: &mut [&mut [C64]; 4],
 ) {
-    let zero = [C64::new(0.0, 0.0); 16];
+    let zero = [C64::new(0.0, 0.0); QUAD_MAX_N * QUAD_MAX_N];
     let lanes: [&[C64]; 4] = std::array::from_fn(|p| if done[p] { &zero[..] } else { h[p] });
-    let mut quad = eigen_quad::Quad::<4>::new();
+    let mut quad = eigen_quad::Quad::<N>::new();
     let solved = quad.solve(lanes);
     let which: [bool; 4] = std::array::from_fn(|p| !done[p] && solved[p]);
     quad.write(which, count, ld, evals, out);
@@ -504,12 +536,16 @@ pub fn eigh_occupied_many_into(
         eigh_occupied_quad_into(hq, n, nocc, eq, oq, work)?;
     }
     let (hs, es, os, g) = (h_rest, e_rest, o_rest, k - full);
-    if g == 3 && n == 4 && nocc <= 4 {
-        // three 4×4s: the lanes with a zero matrix in the fourth (cheaper than a pair
-        // and a single solve)
-        let (zero, mut e_fill, mut o_fill) =
-            ([C64::new(0.0, 0.0); 16], [0.0; 4], [C64::new(0.0, 0.0); 16]);
-        let hq = [&hs[..nn], &hs[nn..2 * nn], &hs[2 * nn..3 * nn], &zero[..]];
+    if g == 3 && (2..=QUAD_MAX_N).contains(&n) && nocc <= n {
+        // three left: the lanes with a zero matrix in the fourth (cheaper than a pair and a
+        // single solve)
+        const M: usize = QUAD_MAX_N * QUAD_MAX_N;
+        let (zero, mut e_fill, mut o_fill) = (
+            [C64::new(0.0, 0.0); M],
+            [0.0; QUAD_MAX_N],
+            [C64::new(0.0, 0.0); M],
+        );
+        let hq = [&hs[..nn], &hs[nn..2 * nn], &hs[2 * nn..3 * nn], &zero[..nn]];
         let (ea, e2) = es.split_at_mut(2 * n);
         let [e0, e1] = split2(ea, n);
         let (oa, o2) = os.split_at_mut(2 * no);
@@ -518,7 +554,7 @@ pub fn eigh_occupied_many_into(
             hq,
             n,
             nocc,
-            [e0, e1, e2, &mut e_fill],
+            [e0, e1, e2, &mut e_fill[..n]],
             [o0, o1, o2, &mut o_fill[..no]],
             work,
         )?;
