@@ -12,20 +12,40 @@
 //!   generic 4×4 in ~4100 instructions / ~0.9 µs, 8×8 ~27 000 / ~5 µs, against ~8500 /
 //!   1.0–1.5 µs and ~97 000 / 9–15 µs for the size-specialised Jacobi below (the dynamic
 //!   reference Jacobi: ~16 700 and ~155 000). The 4×4 is latency-bound (≈18 serial
-//!   Givens rotations of ~7 QR steps, each a division → update chain): built for AVX2 + FMA it
-//!   needs 3100 instructions but no less time, so the crate stays on baseline x86-64. The
-//!   issue's 0.5 µs per generic 4×4 is not reached on this machine (2.1 GHz, shared).
+//!   Givens rotations of ~7 QR steps, each a division → update chain): built for x86-64-v3
+//!   (AVX2 + FMA, the Makefile's default) it needs ~3400 instructions and still ~0.6–0.7 µs
+//!   one at a time.
 //! - Independent matrices in pairs (`eigh_pair_into`, `eigh_occupied_pair_into`; 2 ≤ n ≤ 8):
 //!   `eigen_small::solve_pair` reduces and sweeps two matrices in one loop body so one's
 //!   division chain runs while the other's waits; results equal two single solves bit for
-//!   bit. Wilson lines pair κ points s, s + 1, `wilson::evaluate_points` (TRIMs) and
-//!   `gap_search::gaps_at` (bulk grid) pair neighbouring points. Measured (interleaved A/B,
-//!   `-- solo-4` / `-- pair-4`, shared machine): generic 4×4 ~0.89 → ~0.76 µs per matrix
-//!   (callgrind ~4400 → ~4500 instructions per matrix: more bookkeeping, fewer stalls); 8×8
-//!   ~4.0–4.2 → ~3.2–3.6 µs (~25 900 → ~25 700 instructions), 6×6 ~2.0 → ~1.6 µs. Tried
-//!   and dropped: a branch-free search for the unreduced block (bit mask of the off-diagonals;
-//!   half the mispredicted branches in cachegrind's model, but ~15 % slower single solves:
-//!   the predicted branches let the next sweep start before the deflation test resolves).
+//!   bit. Measured (interleaved A/B, `-- solo-4` / `-- pair-4`, shared machine): generic 4×4
+//!   ~0.89 → ~0.76 µs per matrix (callgrind ~4400 → ~4500 instructions per matrix: more
+//!   bookkeeping, fewer stalls); 8×8 ~4.0–4.2 → ~3.2–3.6 µs (~25 900 → ~25 700
+//!   instructions), 6×6 ~2.0 → ~1.6 µs. Since the four-lane solve below they serve what is
+//!   left over of a group of four and n = 9…16. Tried and dropped: a branch-free search for
+//!   the unreduced block (bit mask of the off-diagonals; half the mispredicted branches in
+//!   cachegrind's model, but ~15 % slower single solves: the predicted branches let the next
+//!   sweep start before the deflation test resolves).
+//! - Independent matrices four at a time (`eigh_quad_into`, `eigh_occupied_quad_into`;
+//!   2 ≤ n ≤ `QUAD_MAX_N` = 8): `eigen_quad` runs the same Householder + implicit QR with one
+//!   matrix per lane of `[f64; 4]` arrays (an AVX2 register in the v3 build), branch-free —
+//!   each lane its own unreduced block, shift and deflation, chosen by selects; rotations
+//!   outside a lane's block are exact identities. Results are not bit-identical to the single
+//!   solve (another order of the same rounding steps) but as accurate (tests against the
+//!   reference Jacobi below and in `eigen_quad`). The line and batch entries
+//!   (`eigh_occupied_many_into`, `eigh_many_into`) take their matrices four at a time, three
+//!   left over too (with a zero filler), the rest in a pair or alone: a Wilson line solves
+//!   all its κ points in one call, so do the bulk gap grid lines, the lattice mesh rows,
+//!   `wilson::evaluate_points` (TRIMs) and `gap_search::gaps_at` (eigenvalues only).
+//!   Measured on random matrices, v3 build (interleaved, `-- solo-4` / `-- pair-4` /
+//!   `-- quad-4`, best / median of 8 rounds on the shared 2.1 GHz machine): generic 4×4
+//!   0.61 / 0.64 µs one at a time, 0.46 / 0.49 µs in pairs, **0.27 / 0.28 µs** four at a
+//!   time; callgrind per matrix 3420 / 3710 / 1590 instructions. Other n (callgrind, pairs →
+//!   lanes): 3: 1706 → 978, 5: 6329 → 4282, 6: 10 848 → 6833, 7: 16 142 → 10 793,
+//!   8: 20 652 → 14 472. In a baseline (SSE2) build the lanes take two registers and no FMA:
+//!   4×4 4610 → 3810 instructions per matrix, 0.46 → 0.38 µs (best; medians ~0.57 both on a
+//!   busy machine) — not slower than the pairs there either. With a Kramers-degenerate
+//!   group the closed form is tried first, until it first declines (see `lanes`).
 //! - The size-specialised cyclic Jacobi (`jacobi_fixed::<N>`, `[[C64; N]; N]`, one
 //!   instantiation per n, rotations in round-robin order, only the two rotated columns updated
 //!   and mirrored) remains for warm starts and as the fallback when the Householder path

@@ -27,6 +27,17 @@
 //! - Sorting and eigenvectors: a compare-exchange network sorts the eigenvalues of each lane
 //!   and swaps the columns of Z with them; vector k is formed in all lanes at once.
 //!
+//! Keeping it packed: the lanes are plain `[f64; 4]` arrays and closures over the lane index
+//! (no `unsafe`, no intrinsics); LLVM's vectoriser turns them into packed instructions only
+//! where nothing gets in its way, and three things did (callgrind, generic 4×4, instructions
+//! per matrix 2340 → 1590 in all): the sweep and the reflections stay rolled loops at N = 4
+//! (long bodies), which kept d and e on the stack, a store and a reload on the chain of every
+//! rotation — they are written out by [`unrolled!`]; eigenvectors scattered to the callers'
+//! buffers in the loop that forms them were formed one lane at a time — they are formed
+//! first, then scattered; and the sort network's selects on integer masks were done in
+//! integer registers lane by lane — it selects on float compares. Measured numbers are in
+//! the notes of `eigen`.
+//!
 //! The method is normwise backward stable as in `eigen_small` (Golub & Van Loan, *Matrix
 //! Computations*, 4th ed., §8.3); identity rotations add no error. A lane whose input is not
 //! finite, whose iteration does not converge in 30 N steps or whose result is not finite is
