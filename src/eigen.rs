@@ -426,11 +426,10 @@ fn not_done(done: &[bool; 4]) -> ([usize; 4], usize) {
 /// Lanes that decline stay not done (the caller's single paths then decide).
 ///
 /// The callers try the Kramers closed form only until it first declines: its refusal costs
-/// ~200 instructions per matrix (it builds A = H − d0 before it can test A² = r²), as much
-/// as a third of a lane's share of the solve, and a line of a model without inversion is
-/// generic except at its TRIMs; a Kramers-degenerate matrix in a lane is solved as
-/// accurately, only without the shortcut.
-#[allow(clippy::too_many_arguments)]
+/// ~180 instructions per matrix (it builds A = H − d0 before it can test A² = r²), more
+/// than a tenth of a lane's share of the solve (~1600 at n = 4), and a line of a model
+/// without inversion is generic except at its TRIMs; a Kramers-degenerate matrix in a lane
+/// is solved as accurately, only without the shortcut.
 fn lanes(
     h: [&[C64]; 4],
     n: usize,

@@ -21,9 +21,9 @@
 //!   so c = 1, s = 0: it leaves d, e and Z unchanged bit for bit — no 0/0 for a converged
 //!   block. The bulge starts at the first active k (x = d_lo − μ, z = e_lo) and μ is the
 //!   Wilkinson shift of the block's trailing 2×2, both picked by selects. The steps repeat
-//!   until no lane has an active rotation; each lane thus takes exactly the shifts and
-//!   rotations a one-matrix solve on its block would (only the order of the sweeps over
-//!   already-split blocks differs).
+//!   until no lane has an active rotation; each lane thus goes through the blocks, shifts
+//!   and rotations of a one-matrix solve (up to rounding: a few more products are fused
+//!   here, so results differ from `eigen_small`'s in the last bits).
 //! - Sorting and eigenvectors: a compare-exchange network sorts the eigenvalues of each lane
 //!   and swaps the columns of Z with them; vector k is formed in all lanes at once.
 //!
@@ -274,8 +274,9 @@ impl<const N: usize> Quad<N> {
                 )
             });
         }
-        // 1e-290, not 0: below it τ = 2/den could overflow; entries that small are ≤ 1e-145 of
-        // a matrix of norm ≥ 1e-100, so leaving them out of T is a negligible backward error
+        // 1e-290, not 0: below it τ = 2/den could overflow. Such entries are ≤ 1e-145 in a lane
+        // of norm ≥ 1e-100 (after `load`), so leaving them out of T is a backward error of at
+        // most 1e-45 relative
         let apply = masks(|p| sigma[p] > 1e-290);
         let (x0r, x0i) = (ar[s][k], ai[s][k]);
         let a2 = lanes(|p| fmadd(x0r[p], x0r[p], x0i[p] * x0i[p]));
@@ -621,7 +622,6 @@ mod tests {
     /// ‖Hv − λv‖ ≤ 1e-13 ‖H‖, V†V = 1 within 1e-14, and the projector onto the lowest j
     /// vectors within 1e-14 ‖H‖/gap + 1e-14 of the reference's wherever the gap
     /// λ_j − λ_{j−1} > 1e-8 ‖H‖ (the Davis–Kahan bound for perturbations of size ε‖H‖).
-    #[allow(clippy::too_many_arguments)]
     fn check_against_reference(
         h: &[C64],
         n: usize,
