@@ -39,12 +39,12 @@
 //!   `wilson::evaluate_points` (TRIMs) and `gap_search::gaps_at` (eigenvalues only).
 //!   Measured on random matrices, v3 build (interleaved, `-- solo-4` / `-- pair-4` /
 //!   `-- quad-4`, best / median of 8 rounds on the shared 2.1 GHz machine): generic 4×4
-//!   0.61 / 0.64 µs one at a time, 0.46 / 0.49 µs in pairs, **0.27 / 0.28 µs** four at a
+//!   0.64 / 0.65 µs one at a time, 0.45 / 0.49 µs in pairs, **0.27 / 0.29 µs** four at a
 //!   time; callgrind per matrix 3420 / 3710 / 1590 instructions. Other n (callgrind, pairs →
 //!   lanes): 3: 1706 → 978, 5: 6329 → 4282, 6: 10 848 → 6833, 7: 16 142 → 10 793,
 //!   8: 20 652 → 14 472. In a baseline (SSE2) build the lanes take two registers and no FMA:
-//!   4×4 4610 → 3810 instructions per matrix, 0.46 → 0.38 µs (best; medians ~0.57 both on a
-//!   busy machine) — not slower than the pairs there either. With a Kramers-degenerate
+//!   4×4 pairs → lanes 4610 → 3810 instructions per matrix, 0.46 / 0.49 → 0.40 / 0.44 µs
+//!   (best / median, same rounds) — still ahead of the pairs, by less. With a Kramers-degenerate
 //!   group the closed form is tried first, until it first declines (see `lanes`).
 //! - The size-specialised cyclic Jacobi (`jacobi_fixed::<N>`, `[[C64; N]; N]`, one
 //!   instantiation per n, rotations in round-robin order, only the two rotated columns updated
