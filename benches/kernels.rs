@@ -1,7 +1,8 @@
 //! Kernel benchmarks of the Rust core (a small `cargo bench` harness, no extra dependencies):
 //! Hermitian eigensolvers per matrix at n = 4…64 (reference Jacobi, size-specialised Jacobi
 //! cold and warm-started, the size-specialised Householder + QR that production uses for
-//! n ≤ 16, nalgebra Householder, faer), Bloch sums, one Wilson line and one full
+//! n ≤ 16 — one matrix at a time, two together and, for n ≤ 8, four in the lanes of
+//! `eigen_quad` — nalgebra Householder, faer), Bloch sums, one Wilson line and one full
 //! parameter point of the cubic Wilson–Dirac model at fixed sampling (40 × 41 × 6).
 //!
 //! `cargo bench --no-default-features --bench kernels` prints a markdown table; set
@@ -14,8 +15,8 @@ use std::time::Instant;
 use toposweep::bloch::{BlochSource, Hoppings};
 use toposweep::eigen::{
     eigh_householder_into, eigh_into, eigh_jacobi_into, eigh_occupied_into,
-    eigh_occupied_pair_into, eigh_pair_into, eigh_reference_into, eigh_warm_into, JACOBI_MAX_N,
-    SMALL_MAX_N,
+    eigh_occupied_pair_into, eigh_occupied_quad_into, eigh_pair_into, eigh_quad_into,
+    eigh_reference_into, eigh_warm_into, JACOBI_MAX_N, QUAD_MAX_N, SMALL_MAX_N,
 };
 use toposweep::engine::{evaluate_point, Method, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
@@ -119,8 +120,8 @@ fn main() {
 
     if want("eigen") {
         let (mut e4, mut v4) = (vec![0.0; 4], vec![c(0.0, 0.0); 16]);
-        println!("| n | reference Jacobi (µs) | fixed-size Jacobi (µs) | warm-started Jacobi (µs) | fixed-size Householder + QR (µs) | paired Householder + QR (µs/matrix) | nalgebra Householder (µs) | faer (µs) |");
-        println!("|---|---|---|---|---|---|---|---|");
+        println!("| n | reference Jacobi (µs) | fixed-size Jacobi (µs) | warm-started Jacobi (µs) | fixed-size Householder + QR (µs) | paired Householder + QR (µs/matrix) | four-lane Householder + QR (µs/matrix) | nalgebra Householder (µs) | faer (µs) |");
+        println!("|---|---|---|---|---|---|---|---|---|");
         for n in [4usize, 8, 16, 32, 64] {
             let batch = 64;
             let hs: Vec<Vec<C64>> = (0..batch).map(|_| rng.hermitian(n)).collect();
@@ -190,6 +191,22 @@ fn main() {
             } else {
                 "–".into()
             };
+            // four per call (n ≤ QUAD_MAX_N; above, two pairs)
+            let quad = if n <= QUAD_MAX_N {
+                let (mut e3, mut v3) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+                let (mut e4, mut v4) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+                fmt(time_ns(reps, k / 4, |i| {
+                    eigh_quad_into(
+                        std::array::from_fn(|j| black_box(&hs[(4 * i + j) % batch][..])),
+                        n,
+                        [&mut e, &mut e2, &mut e3, &mut e4],
+                        [&mut v, &mut v2, &mut v3, &mut v4],
+                    )
+                    .unwrap()
+                }) / 4.0)
+            } else {
+                "–".into()
+            };
             let hh = time_ns(reps, k, |i| {
                 eigh_householder_into(black_box(&hs[i % batch]), n, &mut e, &mut v).unwrap()
             });
@@ -201,7 +218,7 @@ fn main() {
             #[cfg(not(feature = "faer"))]
             let fa = "(build with --features faer)";
             println!(
-                "| {n} | {refj} | {fixed} | {warm} | {small} | {paired} | {} | {fa} |",
+                "| {n} | {refj} | {fixed} | {warm} | {small} | {paired} | {quad} | {} | {fa} |",
                 fmt(hh)
             );
         }
@@ -218,8 +235,16 @@ fn main() {
         let k = inner(20_000);
         let mut occ2 = vec![c(0.0, 0.0); 8];
         let mut e4b = vec![0.0; 4];
-        println!("| 4×4 | reference Jacobi (µs) | fixed-size Jacobi (µs) | production, all vectors (µs) | production, lowest two vectors (µs) | paired, lowest two vectors (µs/matrix) |");
-        println!("|---|---|---|---|---|---|");
+        let (mut e4c, mut e4d) = (vec![0.0; 4], vec![0.0; 4]);
+        let (mut occ3, mut occ4) = (vec![c(0.0, 0.0); 8], vec![c(0.0, 0.0); 8]);
+        let mut v4s = [
+            vec![c(0.0, 0.0); 16],
+            vec![c(0.0, 0.0); 16],
+            vec![c(0.0, 0.0); 16],
+            vec![c(0.0, 0.0); 16],
+        ];
+        println!("| 4×4 | reference Jacobi (µs) | fixed-size Jacobi (µs) | production, all vectors (µs) | production, lowest two vectors (µs) | paired, lowest two vectors (µs/matrix) | four together, lowest two vectors (µs/matrix) | four together, all vectors (µs/matrix) |");
+        println!("|---|---|---|---|---|---|---|---|");
         for (name, hk) in [
             ("generic (random Hermitian)", &generic),
             (
@@ -251,36 +276,76 @@ fn main() {
                 )
                 .unwrap()
             }) / 2.0;
+            let quad = time_ns(reps, k / 4, |i| {
+                eigh_occupied_quad_into(
+                    std::array::from_fn(|j| black_box(m(4 * i + j))),
+                    4,
+                    2,
+                    [&mut e4, &mut e4b, &mut e4c, &mut e4d],
+                    [&mut occ, &mut occ2, &mut occ3, &mut occ4],
+                    &mut v4,
+                )
+                .unwrap()
+            }) / 4.0;
+            let quad_full = time_ns(reps, k / 4, |i| {
+                let [a, b, cc, d] = &mut v4s;
+                eigh_quad_into(
+                    std::array::from_fn(|j| black_box(m(4 * i + j))),
+                    4,
+                    [&mut e4, &mut e4b, &mut e4c, &mut e4d],
+                    [a, b, cc, d],
+                )
+                .unwrap()
+            }) / 4.0;
             println!(
-                "| {name} | {:.3} | {:.3} | {:.3} | {:.3} | {:.3} |",
+                "| {name} | {:.3} | {:.3} | {:.3} | {:.3} | {:.3} | {:.3} | {:.3} |",
                 slow / 1e3,
                 jac / 1e3,
                 full / 1e3,
                 half / 1e3,
-                pair / 1e3
+                pair / 1e3,
+                quad / 1e3,
+                quad_full / 1e3
             );
         }
         println!();
     }
 
-    // Profiling aids (not in the default run): one generic n×n solve at a time, or two together,
-    // over 64 random matrices; `-- solo-4` / `-- pair-4` (also 6, 8) under perf or callgrind
-    // give per-matrix counts (divide by KERNEL_PROFILE_CALLS, default 200 000 matrices).
+    // Profiling aids (not in the default run): one generic n×n solve at a time, two together,
+    // or four in lanes, over 64 random matrices; `-- solo-4` / `-- pair-4` / `-- quad-4`
+    // (n = 2…8) under perf or callgrind give per-matrix counts (divide by
+    // KERNEL_PROFILE_CALLS, default 200 000 matrices).
     if let Some(o) = only.as_deref() {
         let calls: usize = std::env::var("KERNEL_PROFILE_CALLS")
             .ok()
             .and_then(|v| v.parse().ok())
             .unwrap_or(200_000);
-        for n in [4usize, 6, 8] {
-            let (solo, pair) = (format!("solo-{n}"), format!("pair-{n}"));
-            if o != solo && o != pair {
+        for n in 2usize..=8 {
+            let (solo, pair, quad) = (
+                format!("solo-{n}"),
+                format!("pair-{n}"),
+                format!("quad-{n}"),
+            );
+            if o != solo && o != pair && o != quad {
                 continue;
             }
             let hs: Vec<Vec<C64>> = (0..64).map(|_| rng.hermitian(n)).collect();
             let (mut e, mut v) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
             let (mut e2, mut v2) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+            let (mut e3, mut v3) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
+            let (mut e4, mut v4) = (vec![0.0; n], vec![c(0.0, 0.0); n * n]);
             let t = Instant::now();
-            if o == solo {
+            if o == quad {
+                for i in 0..calls / 4 {
+                    eigh_quad_into(
+                        std::array::from_fn(|j| black_box(&hs[(4 * i + j) % 64][..])),
+                        n,
+                        [&mut e, &mut e2, &mut e3, &mut e4],
+                        [&mut v, &mut v2, &mut v3, &mut v4],
+                    )
+                    .unwrap();
+                }
+            } else if o == solo {
                 for i in 0..calls {
                     eigh_into(black_box(&hs[i % 64]), n, &mut e, &mut v).unwrap();
                 }
@@ -345,18 +410,17 @@ fn main() {
         let slow = time_ns(reps, k, |_| {
             wilson_line_with(black_box(&h), &kappa, 3, 4, 2, None, Kernels::Reference).unwrap();
         });
-        // generic 4×4 at every κ point: the paired solves against one κ point at a time
+        // generic 4×4 at every κ point: four κ points at a time (production), two, one
         let mut hg = vec![c(0.0, 0.0); lp * 16];
         wdg.fill_line(&[0.0, 0.0, 0.2], 1, lp, &mut hg).unwrap();
-        let (gen_pair, gen_single) = (
+        let generic_line = |kernels| {
             time_ns(reps, k, |_| {
-                wilson_line_with(black_box(&hg), &kappa, 3, 4, 2, None, Kernels::Fast).unwrap();
-            }),
-            time_ns(reps, k, |_| {
-                wilson_line_with(black_box(&hg), &kappa, 3, 4, 2, None, Kernels::FastSingle)
-                    .unwrap();
-            }),
-        );
+                wilson_line_with(black_box(&hg), &kappa, 3, 4, 2, None, kernels).unwrap();
+            })
+        };
+        let gen_single = generic_line(Kernels::FastSingle);
+        let gen_pair = generic_line(Kernels::FastPairs);
+        let gen_quad = generic_line(Kernels::Fast);
         println!("| Wilson–Dirac, one line of 40 κ points | time (µs) | per κ point (ns) |");
         println!("|---|---|---|");
         for (name, t) in [
@@ -377,6 +441,10 @@ fn main() {
             (
                 "same + 0.1 σx⊗1 (generic 4×4), fast kernels, κ points solved in pairs",
                 gen_pair,
+            ),
+            (
+                "same + 0.1 σx⊗1 (generic 4×4), fast kernels, four κ points in lanes (production)",
+                gen_quad,
             ),
         ] {
             println!("| {name} | {:.2} | {:.0} |", t / 1e3, t / lp as f64);

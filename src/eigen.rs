@@ -12,20 +12,40 @@
 //!   generic 4×4 in ~4100 instructions / ~0.9 µs, 8×8 ~27 000 / ~5 µs, against ~8500 /
 //!   1.0–1.5 µs and ~97 000 / 9–15 µs for the size-specialised Jacobi below (the dynamic
 //!   reference Jacobi: ~16 700 and ~155 000). The 4×4 is latency-bound (≈18 serial
-//!   Givens rotations of ~7 QR steps, each a division → update chain): built for AVX2 + FMA it
-//!   needs 3100 instructions but no less time, so the crate stays on baseline x86-64. The
-//!   issue's 0.5 µs per generic 4×4 is not reached on this machine (2.1 GHz, shared).
+//!   Givens rotations of ~7 QR steps, each a division → update chain): built for x86-64-v3
+//!   (AVX2 + FMA, the Makefile's default) it needs ~3400 instructions and still ~0.6–0.7 µs
+//!   one at a time.
 //! - Independent matrices in pairs (`eigh_pair_into`, `eigh_occupied_pair_into`; 2 ≤ n ≤ 8):
 //!   `eigen_small::solve_pair` reduces and sweeps two matrices in one loop body so one's
 //!   division chain runs while the other's waits; results equal two single solves bit for
-//!   bit. Wilson lines pair κ points s, s + 1, `wilson::evaluate_points` (TRIMs) and
-//!   `gap_search::gaps_at` (bulk grid) pair neighbouring points. Measured (interleaved A/B,
-//!   `-- solo-4` / `-- pair-4`, shared machine): generic 4×4 ~0.89 → ~0.76 µs per matrix
-//!   (callgrind ~4400 → ~4500 instructions per matrix: more bookkeeping, fewer stalls); 8×8
-//!   ~4.0–4.2 → ~3.2–3.6 µs (~25 900 → ~25 700 instructions), 6×6 ~2.0 → ~1.6 µs. Tried
-//!   and dropped: a branch-free search for the unreduced block (bit mask of the off-diagonals;
-//!   half the mispredicted branches in cachegrind's model, but ~15 % slower single solves:
-//!   the predicted branches let the next sweep start before the deflation test resolves).
+//!   bit. Measured (interleaved A/B, `-- solo-4` / `-- pair-4`, shared machine): generic 4×4
+//!   ~0.89 → ~0.76 µs per matrix (callgrind ~4400 → ~4500 instructions per matrix: more
+//!   bookkeeping, fewer stalls); 8×8 ~4.0–4.2 → ~3.2–3.6 µs (~25 900 → ~25 700
+//!   instructions), 6×6 ~2.0 → ~1.6 µs. Since the four-lane solve below they serve what is
+//!   left over of a group of four and n = 9…16. Tried and dropped: a branch-free search for
+//!   the unreduced block (bit mask of the off-diagonals; half the mispredicted branches in
+//!   cachegrind's model, but ~15 % slower single solves: the predicted branches let the next
+//!   sweep start before the deflation test resolves).
+//! - Independent matrices four at a time (`eigh_quad_into`, `eigh_occupied_quad_into`;
+//!   2 ≤ n ≤ `QUAD_MAX_N` = 8): `eigen_quad` runs the same Householder + implicit QR with one
+//!   matrix per lane of `[f64; 4]` arrays (an AVX2 register in the v3 build), branch-free —
+//!   each lane its own unreduced block, shift and deflation, chosen by selects; rotations
+//!   outside a lane's block are exact identities. Results are not bit-identical to the single
+//!   solve (another order of the same rounding steps) but as accurate (tests against the
+//!   reference Jacobi below and in `eigen_quad`). The line and batch entries
+//!   (`eigh_occupied_many_into`, `eigh_many_into`) take their matrices four at a time, three
+//!   left over too (with a zero filler), the rest in a pair or alone: a Wilson line solves
+//!   all its κ points in one call, so do the bulk gap grid lines, the lattice mesh rows,
+//!   `wilson::evaluate_points` (TRIMs) and `gap_search::gaps_at` (eigenvalues only).
+//!   Measured on random matrices, v3 build (interleaved, `-- solo-4` / `-- pair-4` /
+//!   `-- quad-4`, best / median of 8 rounds on the shared 2.1 GHz machine): generic 4×4
+//!   0.64 / 0.65 µs one at a time, 0.45 / 0.49 µs in pairs, **0.27 / 0.29 µs** four at a
+//!   time; callgrind per matrix 3420 / 3710 / 1590 instructions. Other n (callgrind, pairs →
+//!   lanes): 3: 1706 → 978, 5: 6329 → 4282, 6: 10 848 → 6833, 7: 16 142 → 10 793,
+//!   8: 20 652 → 14 472. In a baseline (SSE2) build the lanes take two registers and no FMA:
+//!   4×4 pairs → lanes 4610 → 3810 instructions per matrix, 0.46 / 0.49 → 0.40 / 0.44 µs
+//!   (best / median, same rounds) — still ahead of the pairs, by less. With a Kramers-degenerate
+//!   group the closed form is tried first, until it first declines (see `lanes`).
 //! - The size-specialised cyclic Jacobi (`jacobi_fixed::<N>`, `[[C64; N]; N]`, one
 //!   instantiation per n, rotations in round-robin order, only the two rotated columns updated
 //!   and mirrored) remains for warm starts and as the fallback when the Householder path
@@ -56,6 +76,7 @@
 //! Layout: `h` is row-major n×n; eigenvalues come out ascending and eigenvector k is column k
 //! of the row-major `vecs` (component i at `vecs[i * n + k]`).
 
+use crate::eigen_quad;
 use crate::eigen_small;
 use crate::error::{CoreError, CoreResult};
 use crate::C64;
@@ -69,6 +90,8 @@ pub const JACOBI_MAX_N: usize = 8;
 /// (random matrices, `--no-default-features`; faer's are below 1e-14, see `FAER_MIN_N`).
 pub const SMALL_MAX_N: usize = 16;
 const MAX_SWEEPS: usize = 60;
+/// Largest size solved four at a time in lanes (`eigen_quad`; above it, pairs).
+pub const QUAD_MAX_N: usize = 8;
 
 fn check_buffers(h: &[C64], n: usize, evals: &[f64], vecs: &[C64]) -> CoreResult<()> {
     check_sizes(h, n, evals, vecs)?;
@@ -271,10 +294,233 @@ pub fn eigh_occupied_pair_into(
     Ok(())
 }
 
+/// [`eigh_into`] for four independent matrices of the same size (`h[p]` → `evals[p]`,
+/// `vecs[p]`). 2 ≤ n ≤ `QUAD_MAX_N`: the Kramers closed form where it applies (n = 4), then
+/// the others together in the lanes of `eigen_quad` when three or four are left (a zero
+/// matrix fills a free lane), as a pair or alone otherwise. Other n: two
+/// [`eigh_pair_into`]. The results may differ from single solves in the last bits (another
+/// order of the same operations).
+pub fn eigh_quad_into(
+    h: [&[C64]; 4],
+    n: usize,
+    evals: [&mut [f64]; 4],
+    vecs: [&mut [C64]; 4],
+) -> CoreResult<()> {
+    let [e0, e1, e2, e3] = evals;
+    let [v0, v1, v2, v3] = vecs;
+    if !(2..=QUAD_MAX_N).contains(&n) {
+        eigh_pair_into([h[0], h[1]], n, [e0, e1], [v0, v1])?;
+        return eigh_pair_into([h[2], h[3]], n, [e2, e3], [v2, v3]);
+    }
+    let (mut evals, mut vecs) = ([e0, e1, e2, e3], [v0, v1, v2, v3]);
+    for p in 0..4 {
+        check_sizes(h[p], n, evals[p], vecs[p])?;
+    }
+    // the closed form until it first declines (see `lanes`)
+    let mut done = [false; 4];
+    for p in 0..4 {
+        if n != 4 {
+            break;
+        }
+        done[p] = eigen_small::two_level4::<2, 4>(h[p], evals[p], vecs[p]);
+        if !done[p] {
+            break;
+        }
+    }
+    if done.iter().filter(|&&d| !d).count() >= 3 {
+        lanes(h, n, &mut done, n, n, &mut evals, &mut vecs);
+    }
+    let (left, count) = not_done(&done);
+    if let [a, b] = left[..count] {
+        let (lo_e, hi_e) = evals.split_at_mut(b);
+        let (lo_v, hi_v) = vecs.split_at_mut(b);
+        return eigh_pair_into(
+            [h[a], h[b]],
+            n,
+            [&mut *lo_e[a], &mut *hi_e[0]],
+            [&mut *lo_v[a], &mut *hi_v[0]],
+        );
+    }
+    for &p in &left[..count] {
+        eigh_into(h[p], n, evals[p], vecs[p])?;
+    }
+    Ok(())
+}
+
+/// [`eigh_occupied_into`] for four independent matrices of the same size (a Wilson line's κ
+/// points s … s + 3): as [`eigh_quad_into`], with the occupied-only closed form and only
+/// the lowest `nocc` vectors formed. `work` (n × n) is scratch for the fallbacks.
+pub fn eigh_occupied_quad_into(
+    h: [&[C64]; 4],
+    n: usize,
+    nocc: usize,
+    evals: [&mut [f64]; 4],
+    occ: [&mut [C64]; 4],
+    work: &mut [C64],
+) -> CoreResult<()> {
+    let [e0, e1, e2, e3] = evals;
+    let [o0, o1, o2, o3] = occ;
+    if !(2..=QUAD_MAX_N).contains(&n) {
+        eigh_occupied_pair_into([h[0], h[1]], n, nocc, [e0, e1], [o0, o1], work)?;
+        return eigh_occupied_pair_into([h[2], h[3]], n, nocc, [e2, e3], [o2, o3], work);
+    }
+    let (mut evals, mut occ) = ([e0, e1, e2, e3], [o0, o1, o2, o3]);
+    for p in 0..4 {
+        check_sizes(h[p], n, evals[p], work)?;
+        if nocc > n || occ[p].len() < n * nocc {
+            return Err(CoreError::Internal(
+                "eigh_occupied_quad_into: buffer too small".into(),
+            ));
+        }
+    }
+    // the closed form until it first declines (see `lanes`)
+    let mut done = [false; 4];
+    for p in 0..4 {
+        if n != 4 {
+            break;
+        }
+        done[p] = match nocc {
+            2 => eigen_small::two_level4::<1, 2>(h[p], evals[p], occ[p]),
+            0 => eigen_small::two_level4::<0, 0>(h[p], evals[p], occ[p]),
+            _ => false,
+        };
+        if !done[p] {
+            break;
+        }
+    }
+    if done.iter().filter(|&&d| !d).count() >= 3 {
+        lanes(h, n, &mut done, nocc, nocc, &mut evals, &mut occ);
+    }
+    let (left, count) = not_done(&done);
+    if let [a, b] = left[..count] {
+        let (lo_e, hi_e) = evals.split_at_mut(b);
+        let (lo_o, hi_o) = occ.split_at_mut(b);
+        return eigh_occupied_pair_into(
+            [h[a], h[b]],
+            n,
+            nocc,
+            [&mut *lo_e[a], &mut *hi_e[0]],
+            [&mut *lo_o[a], &mut *hi_o[0]],
+            work,
+        );
+    }
+    for &p in &left[..count] {
+        eigh_occupied_into(h[p], n, nocc, evals[p], occ[p], work)?;
+    }
+    Ok(())
+}
+
+/// The indices p with `!done[p]`, ascending, and how many there are.
+fn not_done(done: &[bool; 4]) -> ([usize; 4], usize) {
+    let (mut left, mut count) = ([0; 4], 0);
+    for (p, _) in done.iter().enumerate().filter(|(_, &d)| !d) {
+        left[count] = p;
+        count += 1;
+    }
+    (left, count)
+}
+
+/// The 4-lane solve of the n×n matrices not yet `done` (called when three or four are left;
+/// the others' lanes run the zero matrix, which converges at once): eigenvalues and the lowest
+/// `count` vectors (row stride `ld`) written for the solved lanes, which are marked done.
+/// Lanes that decline stay not done (the caller's single paths then decide).
+///
+/// The callers try the Kramers closed form only until it first declines: its refusal costs
+/// ~180 instructions per matrix (it builds A = H − d0 before it can test A² = r²), more
+/// than a tenth of a lane's share of the solve (~1600 at n = 4), and a line of a model
+/// without inversion is generic except at its TRIMs; a Kramers-degenerate matrix in a lane
+/// is solved as accurately, only without the shortcut.
+fn lanes(
+    h: [&[C64]; 4],
+    n: usize,
+    done: &mut [bool; 4],
+    count: usize,
+    ld: usize,
+    evals: &mut [&mut [f64]; 4],
+    out: &mut [&mut [C64]; 4],
+) {
+    match n {
+        2 => lanes_of::<2>(h, done, count, ld, evals, out),
+        3 => lanes_of::<3>(h, done, count, ld, evals, out),
+        4 => lanes_of::<4>(h, done, count, ld, evals, out),
+        5 => lanes_of::<5>(h, done, count, ld, evals, out),
+        6 => lanes_of::<6>(h, done, count, ld, evals, out),
+        7 => lanes_of::<7>(h, done, count, ld, evals, out),
+        8 => lanes_of::<8>(h, done, count, ld, evals, out),
+        _ => {} // (not called: the pairs and single solves take the rest)
+    }
+}
+
+/// [`lanes`] for one size.
+fn lanes_of<const N: usize>(
+    h: [&[C64]; 4],
+    done: &mut [bool; 4],
+    count: usize,
+    ld: usize,
+    evals: &mut [&mut [f64]; 4],
+    out: &mut [&mut [C64]; 4],
+) {
+    let zero = [C64::new(0.0, 0.0); QUAD_MAX_N * QUAD_MAX_N];
+    let lanes: [&[C64]; 4] = std::array::from_fn(|p| if done[p] { &zero[..] } else { h[p] });
+    let mut quad = eigen_quad::Quad::<N>::new();
+    let solved = quad.solve(lanes);
+    let which: [bool; 4] = std::array::from_fn(|p| !done[p] && solved[p]);
+    quad.write(which, count, ld, evals, out);
+    for p in 0..4 {
+        done[p] |= which[p];
+    }
+}
+
+/// [`eigh_into`] for k consecutive matrices (`h`: k × n × n; `evals`: k × n; `vecs`:
+/// k × n × n), four at a time with [`eigh_quad_into`], the rest in a pair and alone:
+/// isolated κ points (TRIMs, gap grids of batch sources).
+pub fn eigh_many_into(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreResult<()> {
+    let nn = n * n;
+    let k = h.len() / nn.max(1);
+    if evals.len() < k * n || vecs.len() < k * nn {
+        return Err(CoreError::Internal(
+            "eigh_many_into: buffer too small".into(),
+        ));
+    }
+    let mut p = 0;
+    while p < k {
+        let g = (k - p).min(4);
+        let hs = &h[p * nn..(p + g) * nn];
+        let (es, vs) = (
+            &mut evals[p * n..(p + g) * n],
+            &mut vecs[p * nn..(p + g) * nn],
+        );
+        if g == 4 {
+            eigh_quad_into(split4(hs, nn), n, split4_mut(es, n), split4_mut(vs, nn))?;
+        } else if g >= 2 {
+            let (e01, v01) = (split2(&mut es[..2 * n], n), split2(&mut vs[..2 * nn], nn));
+            eigh_pair_into([&hs[..nn], &hs[nn..2 * nn]], n, e01, v01)?;
+        }
+        if g % 2 == 1 {
+            let (j0, j1) = (g - 1, g);
+            eigh_into(
+                &hs[j0 * nn..j1 * nn],
+                n,
+                &mut es[j0 * n..j1 * n],
+                &mut vs[j0 * nn..j1 * nn],
+            )?;
+        }
+        p += g;
+    }
+    Ok(())
+}
+
+/// The first two blocks of `len` entries of `buf`.
+fn split2<T>(buf: &mut [T], len: usize) -> [&mut [T]; 2] {
+    let (a, b) = buf.split_at_mut(len);
+    [a, &mut b[..len]]
+}
+
 /// [`eigh_occupied_into`] for k consecutive matrices of a line (`h`: k × n × n; `evals`: k × n;
-/// `occ`: k × n × nocc, empty for nocc = 0 — eigenvalues only), taken two at a time with
-/// [`eigh_occupied_pair_into`], an odd last one alone: the bulk gap grid and the lattice mesh
-/// rows. `work` (n × n) is scratch for the fallbacks.
+/// `occ`: k × n × nocc, empty for nocc = 0 — eigenvalues only), four at a time with
+/// [`eigh_occupied_quad_into`] (three 4×4s left over too, a zero matrix filling the fourth
+/// lane), the rest in a pair and alone: the κ points of a Wilson line,
+/// the bulk gap grid and the lattice mesh rows. `work` (n × n) is scratch for the fallbacks.
 pub fn eigh_occupied_many_into(
     h: &[C64],
     n: usize,
@@ -290,33 +536,79 @@ pub fn eigh_occupied_many_into(
             "eigh_occupied_many_into: buffer too small".into(),
         ));
     }
-    for p in (0..k).step_by(2) {
-        let (e, o) = (&mut evals[p * n..], &mut occ[p * no..]);
-        if p + 1 < k {
-            let (e0, e1) = e.split_at_mut(n);
-            let (o0, o1) = o.split_at_mut(no);
-            let hp = &h[p * nn..(p + 2) * nn];
-            let (h0, h1) = hp.split_at(nn);
-            eigh_occupied_pair_into(
-                [h0, h1],
-                n,
-                nocc,
-                [e0, &mut e1[..n]],
-                [o0, &mut o1[..no]],
-                work,
-            )?;
-        } else {
+    if n == 0 {
+        return Ok(());
+    }
+    // the groups of four by exact chunks (no index arithmetic per group: slicing each group
+    // by hand cost ~150 instructions, ~3 % of a Wilson–Dirac point), then the rest
+    let full = k / 4 * 4;
+    let (h4, h_rest) = h[..k * nn].split_at(full * nn);
+    let (e4, e_rest) = evals[..k * n].split_at_mut(full * n);
+    let (o4, o_rest) = occ[..k * no].split_at_mut(full * no);
+    for (j, (hg, eg)) in h4
+        .chunks_exact(4 * nn)
+        .zip(e4.chunks_exact_mut(4 * n))
+        .enumerate()
+    {
+        let og = &mut o4[j * 4 * no..(j + 1) * 4 * no];
+        let (hq, eq, oq) = (split4(hg, nn), split4_mut(eg, n), split4_mut(og, no));
+        eigh_occupied_quad_into(hq, n, nocc, eq, oq, work)?;
+    }
+    let (hs, es, os, g) = (h_rest, e_rest, o_rest, k - full);
+    if g == 3 && (2..=QUAD_MAX_N).contains(&n) && nocc <= n {
+        // three left: the lanes with a zero matrix in the fourth (cheaper than a pair and a
+        // single solve)
+        const M: usize = QUAD_MAX_N * QUAD_MAX_N;
+        let (zero, mut e_fill, mut o_fill) = (
+            [C64::new(0.0, 0.0); M],
+            [0.0; QUAD_MAX_N],
+            [C64::new(0.0, 0.0); M],
+        );
+        let hq = [&hs[..nn], &hs[nn..2 * nn], &hs[2 * nn..3 * nn], &zero[..nn]];
+        let (ea, e2) = es.split_at_mut(2 * n);
+        let [e0, e1] = split2(ea, n);
+        let (oa, o2) = os.split_at_mut(2 * no);
+        let [o0, o1] = split2(oa, no);
+        eigh_occupied_quad_into(
+            hq,
+            n,
+            nocc,
+            [e0, e1, e2, &mut e_fill[..n]],
+            [o0, o1, o2, &mut o_fill[..no]],
+            work,
+        )?;
+    } else {
+        if g >= 2 {
+            let (e01, o01) = (split2(&mut es[..2 * n], n), split2(&mut os[..2 * no], no));
+            eigh_occupied_pair_into([&hs[..nn], &hs[nn..2 * nn]], n, nocc, e01, o01, work)?;
+        }
+        if g % 2 == 1 {
+            let (j0, j1) = (g - 1, g);
             eigh_occupied_into(
-                &h[p * nn..(p + 1) * nn],
+                &hs[j0 * nn..j1 * nn],
                 n,
                 nocc,
-                &mut e[..n],
-                &mut o[..no],
+                &mut es[j0 * n..j1 * n],
+                &mut os[j0 * no..j1 * no],
                 work,
             )?;
         }
     }
     Ok(())
+}
+
+/// The first four consecutive blocks of `len` entries of `buf`.
+fn split4<T>(buf: &[T], len: usize) -> [&[T]; 4] {
+    let (a, b) = buf.split_at(2 * len);
+    let ((a0, a1), (b0, b1)) = (a.split_at(len), b.split_at(len));
+    [a0, a1, b0, &b1[..len]]
+}
+
+/// [`split4`] of a mutable buffer.
+fn split4_mut<T>(buf: &mut [T], len: usize) -> [&mut [T]; 4] {
+    let (a, b) = buf.split_at_mut(2 * len);
+    let ([a0, a1], [b0, b1]) = (split2(a, len), split2(b, len));
+    [a0, a1, b0, b1]
 }
 
 /// Paired Householder + QR, every vector formed; `[false, _]` where a solve declined.
@@ -946,7 +1238,7 @@ fn sort_pairs(n: usize, evals: &mut [f64], v: &mut [C64]) {
 pub(crate) mod tests {
     use super::*;
 
-    fn random_hermitian(n: usize, seed: u64) -> Vec<C64> {
+    pub(crate) fn random_hermitian(n: usize, seed: u64) -> Vec<C64> {
         let mut s = seed;
         let mut next = || {
             s = s
@@ -1391,7 +1683,7 @@ pub(crate) mod tests {
     /// and exactly degenerate spectra (H = U Λ U†), already reduced (diagonal, block-diagonal
     /// with a permutation), all-equal, the zero matrix, scaled far from 1, and (n = 4)
     /// Kramers-degenerate ones that take the closed form.
-    fn pairing_cases(n: usize) -> Vec<Vec<C64>> {
+    pub(crate) fn pairing_cases(n: usize) -> Vec<Vec<C64>> {
         let z = C64::new(0.0, 0.0);
         let mut cases = Vec::new();
         for seed in 0..4u64 {
@@ -1561,7 +1853,7 @@ pub(crate) mod tests {
         }
     }
 
-    fn eigh_reference(h: &[C64], n: usize) -> (Vec<f64>, Vec<C64>) {
+    pub(crate) fn eigh_reference(h: &[C64], n: usize) -> (Vec<f64>, Vec<C64>) {
         let (mut e, mut v) = (vec![0.0; n], vec![C64::new(0.0, 0.0); n * n]);
         eigh_reference_into(h, n, &mut e, &mut v).unwrap();
         (e, v)

@@ -7,6 +7,7 @@
 pub mod bloch;
 pub mod dense;
 pub mod eigen;
+mod eigen_quad;
 mod eigen_small;
 pub mod engine;
 pub mod error;
