@@ -380,16 +380,17 @@ fn evaluate<'py>(
             f.call0(py)?;
             detached(py, threads, points)
         }
-        // The Python job on the worker that takes the run (with the GIL this thread has
-        // released) while the other worker takes the points from it, and then joins them
-        // when the job is done. The job's exception wins over the core's: it says why the
-        // run was not valid in the first place.
+        // The points on the worker that takes the run, at once; the Python job (with the GIL
+        // this thread has released) is the first thing another worker steals — the oldest
+        // job in the queue — and that worker joins the points when it is done. (The other
+        // way round the points would wait for a second worker to wake up.) The job's
+        // exception wins over the core's: it says why the run was not valid in the first
+        // place.
         Some(f) => {
-            let (side, run) = detached(py, threads, || {
-                Ok(rayon::join(
-                    || Python::with_gil(|py| f.call0(py).map(drop)),
-                    points,
-                ))
+            let (run, side) = detached(py, threads, || {
+                Ok(rayon::join(points, || {
+                    Python::with_gil(|py| f.call0(py).map(drop))
+                }))
             })?;
             side?;
             run.map_err(to_py)
