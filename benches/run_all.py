@@ -393,7 +393,8 @@ def main() -> None:
         "in and out of Python. n ≤ 16: size-specialised Householder reduction + implicit QR on "
         "split real/imaginary arrays (n = 4: closed form when the spectrum is two "
         "Kramers-degenerate levels); n ≥ 17: faer. Matrices are solved one at a time here "
-        "(the engine pairs independent κ points, see the kernel tables).",
+        "(the engine solves independent κ points four at a time for n ≤ 8, see the kernel "
+        "tables).",
     )
     if not args.no_cargo:
         section(
