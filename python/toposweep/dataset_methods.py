@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-__all__ = ["AGREE_FLAGS", "Field", "method_fields"]
+__all__ = ["AGREE_FLAGS", "Field", "Raw", "method_fields"]
 
 #: CF flags of the comparison variables
 AGREE_FLAGS: dict[str, Any] = {
