@@ -73,7 +73,7 @@ pub fn gaps_at(
     // four κ points per task, solved together, eigenvalues only (eigh_occupied_many_into
     // with no occupied vectors: the Kramers closed form writes none); the rest in a pair and
     // alone
-    let energies: CoreResult<Vec<Vec<Vec<f64>>>> = h
+    let energies: CoreResult<Vec<Vec<f64>>> = h
         .par_chunks(4 * nn)
         .map_init(
             // eigenvector scratch of the fallbacks, once per rayon split
@@ -81,16 +81,17 @@ pub fn gaps_at(
             |work, hk| {
                 let mut e = vec![0.0; hk.len() / nn * n];
                 eigh_occupied_many_into(hk, n, 0, &mut e, &mut [], work)?;
-                Ok(e.chunks_exact(n).map(|e| e.to_vec()).collect())
+                Ok(e)
             },
         )
         .collect();
-    let energies: Vec<Vec<f64>> = energies?.into_iter().flatten().collect();
-    for (e, k) in energies.iter().zip(kappa.chunks_exact(dim)) {
+    // (n energies per point, in the order of `kappa`)
+    let energies = energies?.concat();
+    for (e, k) in energies.chunks_exact(n).zip(kappa.chunks_exact(dim)) {
         stats.add(e, filling, k);
     }
     Ok(energies
-        .iter()
+        .chunks_exact(n)
         .map(|e| e[filling] - e[filling - 1])
         .collect())
 }

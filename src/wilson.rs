@@ -418,9 +418,6 @@ fn pair_step(from: &[C64], to: &[C64], w: &mut [C64]) -> f64 {
     s
 }
 
-/// Eigenvalues and eigenvectors (n × n) of one κ point.
-type Spectrum = (Vec<f64>, Vec<C64>);
-
 /// Band statistics, per-point energies and per-point occupied eigenvectors (n × nocc each).
 pub type PointSpectra = (BandStats, Vec<Vec<f64>>, Vec<Vec<C64>>);
 
@@ -446,31 +443,29 @@ pub fn evaluate_points(
         src.fill(&kappa[start * dim..end * dim], &mut h)?;
         // four κ points per task, solved together (eigh_many_into); the rest in a pair and
         // alone
-        let res: CoreResult<Vec<Vec<Spectrum>>> = h
+        // (eigenvalues k × n and eigenvectors k × n × n of a task's k κ points)
+        let res: CoreResult<Vec<(Vec<f64>, Vec<C64>)>> = h
             .par_chunks(4 * nn)
             .map(|hk| {
                 let g = hk.len() / nn;
                 let (mut e, mut v) = (vec![0.0; g * n], vec![C64::new(0.0, 0.0); g * nn]);
                 eigh_many_into(hk, n, &mut e, &mut v)?;
-                Ok(e.chunks_exact(n)
-                    .zip(v.chunks_exact(nn))
-                    .map(|(e, v)| (e.to_vec(), v.to_vec()))
-                    .collect())
+                Ok((e, v))
             })
             .collect();
-        let res = res?.into_iter().flatten();
-        for (i, (e, v)) in res.enumerate() {
-            stats.add(
-                &e,
-                filling,
-                &kappa[(start + i) * dim..(start + i + 1) * dim],
-            );
+        // (each task's κ points one after the other; copied out only where they are kept)
+        let tasks = res?;
+        let points = tasks
+            .iter()
+            .flat_map(|(e, v)| e.chunks_exact(n).zip(v.chunks_exact(nn)));
+        for (i, (e, v)) in points.enumerate() {
+            stats.add(e, filling, &kappa[(start + i) * dim..(start + i + 1) * dim]);
             if keep_vectors {
                 let occ: Vec<C64> = (0..n)
                     .flat_map(|r| v[r * n..r * n + filling].to_vec())
                     .collect();
                 vectors.push(occ);
-                energies.push(e);
+                energies.push(e.to_vec());
             }
         }
     }
