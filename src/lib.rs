@@ -18,6 +18,7 @@ pub mod lattice_z2;
 pub mod matrix;
 pub mod parity;
 pub mod plane_flows;
+pub mod pools;
 pub mod wilson;
 
 #[cfg(feature = "python")]

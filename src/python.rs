@@ -7,6 +7,7 @@ use crate::bloch::{BlochSource, Hoppings};
 use crate::eigen::eigh_many_into;
 use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, Sampling};
 use crate::error::{CoreError, CoreResult};
+use crate::pools::{default_threads, mark_main_thread, run_with};
 use crate::C64;
 use numpy::ndarray::{Array1, Array2, Array3};
 use numpy::{
@@ -16,9 +17,8 @@ use pyo3::exceptions::{PyArithmeticError, PyKeyboardInterrupt, PyRuntimeError, P
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
 use rayon::prelude::*;
-use std::collections::HashMap;
 use std::panic::{catch_unwind, AssertUnwindSafe};
-use std::sync::{Arc, Mutex, OnceLock};
+use std::sync::{Arc, Mutex};
 
 fn to_py(e: CoreError) -> PyErr {
     match e {
@@ -31,92 +31,16 @@ fn to_py(e: CoreError) -> PyErr {
     }
 }
 
-fn pool(threads: usize) -> CoreResult<Arc<rayon::ThreadPool>> {
-    static POOLS: OnceLock<Mutex<HashMap<usize, Arc<rayon::ThreadPool>>>> = OnceLock::new();
-    let mut map = POOLS
-        .get_or_init(|| Mutex::new(HashMap::new()))
-        .lock()
-        .map_err(|_| CoreError::Internal("thread pool cache poisoned".into()))?;
-    if let Some(p) = map.get(&threads) {
-        return Ok(p.clone());
-    }
-    let p = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .map_err(|e| CoreError::Internal(format!("cannot start {threads} threads: {e}")))?;
-    let p = Arc::new(p);
-    map.insert(threads, p.clone());
-    Ok(p)
-}
-
-thread_local! {
-    /// `threads = 1`: a pool whose one worker is the calling thread itself (built on its first
-    /// such call), so the work runs inline — no hand-off to a sleeping worker and no wait for
-    /// it (about a fifth of a 4-band point on this machine), and no extra thread at all: what
-    /// callers that parallelise themselves (a process pool, Dask workers) want. A thread can be
-    /// a worker of one pool only, so larger `threads` use the shared pools.
-    static INLINE_POOL: std::cell::RefCell<Option<std::rc::Rc<rayon::ThreadPool>>> =
-        const { std::cell::RefCell::new(None) };
-}
-
-/// Run `f` on the calling thread (its one-worker pool); where that pool cannot be built (the
-/// caller is already a worker of another pool, e.g. inside a Python callback of a running
-/// evaluation), on the shared one-thread pool.
-fn on_calling_thread<T, F>(f: F) -> CoreResult<T>
-where
-    T: Send,
-    F: FnOnce() -> CoreResult<T> + Send,
-{
-    // (not borrowed while `f` runs: `f` may call back into Python and here again)
-    let own = INLINE_POOL.with(|cell| {
-        let found = cell.borrow().clone();
-        found.or_else(|| {
-            let built = rayon::ThreadPoolBuilder::new()
-                .num_threads(1)
-                .use_current_thread()
-                .build()
-                .ok()?;
-            let p = std::rc::Rc::new(built);
-            *cell.borrow_mut() = Some(p.clone());
-            Some(p)
-        })
-    });
-    match own {
-        Some(p) => p.install(f),
-        None => pool(1)?.install(f),
-    }
-}
-
-/// Workers when the caller does not say: RAYON_NUM_THREADS, else the cores this process may
-/// use (CPU affinity and cgroup quota included). Read once per process: asking the system
-/// reads cgroup files, ~15 µs that every default call paid (as much as a small model's point).
-fn default_threads() -> usize {
-    static THREADS: OnceLock<usize> = OnceLock::new();
-    *THREADS.get_or_init(|| {
-        std::env::var("RAYON_NUM_THREADS")
-            .ok()
-            .and_then(|v| v.trim().parse::<usize>().ok())
-            .filter(|&n| n > 0)
-            .or_else(|| std::thread::available_parallelism().ok().map(|n| n.get()))
-            .unwrap_or(1)
-    })
-}
-
-/// Release the GIL, run `f` on a pool of `threads` workers (1: the calling thread; None: a
-/// shared pool of [`default_threads`]), and turn errors and panics into Python exceptions.
+/// Release the GIL, run `f` with `threads` workers (None: [`default_threads`]; which threads
+/// they are: [`crate::pools`]), and turn errors and panics into Python exceptions.
 fn detached<T, F>(py: Python<'_>, threads: Option<usize>, f: F) -> PyResult<T>
 where
     T: Send,
     F: FnOnce() -> CoreResult<T> + Send,
 {
     let out = py.allow_threads(|| {
-        catch_unwind(AssertUnwindSafe(|| match threads {
-            Some(0) => Err(CoreError::InvalidInput("threads must be positive".into())),
-            Some(1) => on_calling_thread(f),
-            Some(n) => pool(n)?.install(f),
-            // (explicitly, not rayon's implicit global pool: a thread that is the worker of its
-            // `threads = 1` pool would otherwise run every later call on that one worker)
-            None => pool(default_threads())?.install(f),
+        catch_unwind(AssertUnwindSafe(|| {
+            run_with(threads.unwrap_or_else(default_threads), f)
         }))
     });
     match out {
@@ -622,6 +546,14 @@ fn instruction_set() -> &'static str {
 
 #[pymodule]
 fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    // the main thread may be one of the workers of its calls (see `pools`)
+    let threading = m.py().import("threading")?;
+    if threading
+        .call_method0("current_thread")?
+        .is(&threading.call_method0("main_thread")?)
+    {
+        mark_main_thread();
+    }
     m.add_class::<CoreModel>()?;
     m.add_function(wrap_pyfunction!(evaluate, m)?)?;
     m.add_function(wrap_pyfunction!(hamiltonian, m)?)?;

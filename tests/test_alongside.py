@@ -53,27 +53,31 @@ def test_callable_runs_once_and_results_do_not_change(wd_core, threads):
     assert beside["nu"].tolist() == [[0, 0, 0], [0, 0, 0]]
 
 
-def test_two_workers_run_the_callable_on_a_worker(wd_core):
+def test_two_workers_run_the_callable_beside_the_points(wd_core):
+    """With two workers the callable runs on a pool worker while the points run. Called from
+    a thread other than the main one, the call goes to the shared pool and the calling thread
+    only waits, so the callable's thread is never the caller (from the main thread, which is a
+    worker of its own pool, either thread may take it). With one worker it runs first, on the
+    calling thread."""
     core, coeffs = wd_core
-    where: list[bool] = []
-    _core.evaluate(
-        core,
-        coeffs,
-        2,
-        threads=2,
-        alongside=lambda: where.append(threading.current_thread() is threading.main_thread()),
-        **KW,
-    )
-    # (with one worker it runs on the calling thread, before the points)
-    _core.evaluate(
-        core,
-        coeffs,
-        2,
-        threads=1,
-        alongside=lambda: where.append(threading.current_thread() is threading.main_thread()),
-        **KW,
-    )
-    assert where == [False, True]
+    where: list[tuple[str, int]] = []
+
+    def call(threads: int) -> None:
+        caller = threading.get_ident()
+        _core.evaluate(
+            core,
+            coeffs,
+            2,
+            threads=threads,
+            alongside=lambda: where.append((f"threads={threads}", threading.get_ident() == caller)),
+            **KW,
+        )
+
+    side = threading.Thread(target=call, args=(2,))
+    side.start()
+    side.join()
+    call(1)
+    assert where == [("threads=2", False), ("threads=1", True)]
 
 
 class Marker(Exception):

@@ -133,3 +133,42 @@ def test_threads_one_starts_no_thread_and_leaves_the_default_parallel():
     assert default == start + 2
     assert three == default + 3
     assert one_last == three
+
+
+MAIN_THREAD_SCRIPT = """
+import os, threading, toposweep as ts
+from toposweep import _core
+from toposweep.sampling import Sampling
+count = lambda: len(os.listdir("/proc/self/task"))
+wd = ts.models.wilson_dirac()
+core, coeffs = wd.prepare([wd.resolve({"mass": -2.0})])
+kw = Sampling(loop_points=40, lines=41, max_lines=41).core_kwargs()
+seen, nu = [count()], []
+def call(threads):
+    nu.append(int(_core.evaluate(core, coeffs, 2, threads=threads, **kw)["nu0"][0]))
+for threads in (2, 2, 1):
+    call(threads)
+    seen.append(count())
+def other_thread():
+    call(2)
+    seen.append(count())  # (counted while this thread is alive: it may linger after join)
+other = threading.Thread(target=other_thread)
+other.start()
+other.join()
+print(*seen, *nu)
+"""
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self/task"), reason="counts threads through /proc")
+def test_main_thread_is_a_worker_of_its_first_pool():
+    """From the main thread, ``threads=2`` starts one helper (the main thread is the other
+    worker); a later ``threads=1`` from it, and ``threads=2`` from another thread, go to the
+    shared pools (one and two more threads, besides the calling thread itself); every call gives
+    the same index."""
+    out = subprocess.run([sys.executable, "-c", MAIN_THREAD_SCRIPT], capture_output=True, text=True)
+    assert out.returncode == 0, out.stderr
+    start, two, two_again, one, other, *nu = map(int, out.stdout.split())
+    assert two == start + 1 and two_again == two
+    assert one == two + 1
+    assert other == one + 1 + 2
+    assert nu == [1, 1, 1, 1]

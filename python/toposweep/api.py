@@ -61,9 +61,11 @@ def invariants(
     loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts, method, certify
         Sampling options, see :class:`toposweep.Sampling`.
     threads : int, optional
-        Worker threads. ``threads=1`` runs the call on the calling thread (no other thread);
-        larger values use a pool of that many workers shared by the calls that ask for it.
-        Default: a shared pool of one worker per core (or ``RAYON_NUM_THREADS``).
+        Worker threads. ``threads=1`` runs the call on the calling thread (no other thread).
+        Larger values: called from the main thread, that thread and ``threads - 1`` helpers;
+        from other threads, a pool of that many workers shared by such calls. A thread works
+        in the pool of the first count it asks for; other counts from it use the shared pools.
+        Default: one worker per core (or ``RAYON_NUM_THREADS``).
 
     Returns
     -------

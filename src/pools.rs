@@ -1,0 +1,190 @@
+//! Which threads run a call: the rayon pools of the binding.
+//!
+//! A call asks for `n` workers. Handing the work to a pool costs two wake-ups of sleeping
+//! threads — the worker that takes it, and the caller when it is done — and on a virtual
+//! machine each is tens of microseconds, which a 4-band point (a millisecond or two) feels.
+//! So where it can, the calling thread is itself one of the `n` workers and starts at once:
+//!
+//! * `n = 1`: any calling thread runs the work itself (a one-worker pool around it);
+//! * `n > 1` from the main thread (marked by [`mark_main_thread`]): a pool of the main thread
+//!   plus `n − 1` workers, so only the helpers need waking;
+//! * anything else — other threads asking for `n > 1`, or a thread asking for a second size —
+//!   goes to a pool of `n` workers shared by all such calls, so several threads that call at
+//!   once do not start more threads than they asked for.
+//!
+//! A thread can be a worker of one pool only (rayon), so the calling thread joins the pool of
+//! the first size it asks for; later calls of another size use the shared pools.
+
+use crate::error::{CoreError, CoreResult};
+use std::cell::RefCell;
+use std::collections::HashMap;
+use std::rc::Rc;
+use std::sync::{Arc, Mutex, OnceLock};
+use std::thread::ThreadId;
+
+static MAIN_THREAD: OnceLock<ThreadId> = OnceLock::new();
+
+/// Mark the calling thread as the main thread (the binding calls this at import when Python
+/// imports it on its main thread). Only the first mark counts.
+pub fn mark_main_thread() {
+    let _ = MAIN_THREAD.set(std::thread::current().id());
+}
+
+fn on_main_thread() -> bool {
+    MAIN_THREAD.get() == Some(&std::thread::current().id())
+}
+
+/// Workers when the caller does not say: RAYON_NUM_THREADS, else the cores this process may
+/// use (CPU affinity and cgroup quota included). Read once per process: asking the system
+/// reads cgroup files, ~15 µs that every default call paid (as much as a small model's point).
+pub fn default_threads() -> usize {
+    static THREADS: OnceLock<usize> = OnceLock::new();
+    *THREADS.get_or_init(|| {
+        std::env::var("RAYON_NUM_THREADS")
+            .ok()
+            .and_then(|v| v.trim().parse::<usize>().ok())
+            .filter(|&n| n > 0)
+            .or_else(|| std::thread::available_parallelism().ok().map(|n| n.get()))
+            .unwrap_or(1)
+    })
+}
+
+/// The pool of `n` workers shared by the calls that cannot use their own thread.
+fn shared(n: usize) -> CoreResult<Arc<rayon::ThreadPool>> {
+    static POOLS: OnceLock<Mutex<HashMap<usize, Arc<rayon::ThreadPool>>>> = OnceLock::new();
+    let mut map = POOLS
+        .get_or_init(|| Mutex::new(HashMap::new()))
+        .lock()
+        .map_err(|_| CoreError::Internal("thread pool cache poisoned".into()))?;
+    if let Some(p) = map.get(&n) {
+        return Ok(p.clone());
+    }
+    let p = rayon::ThreadPoolBuilder::new()
+        .num_threads(n)
+        .build()
+        .map_err(|e| CoreError::Internal(format!("cannot start {n} threads: {e}")))?;
+    let p = Arc::new(p);
+    map.insert(n, p.clone());
+    Ok(p)
+}
+
+thread_local! {
+    /// The pool this thread is worker 0 of, with its size (built on the first call that may).
+    static OWN: RefCell<Option<(usize, Rc<rayon::ThreadPool>)>> = const { RefCell::new(None) };
+}
+
+/// This thread's own pool of `n` workers, if it has or may build one.
+fn own(n: usize) -> Option<Rc<rayon::ThreadPool>> {
+    // (not borrowed while work runs: the work may call back into Python and here again)
+    OWN.with(|cell| {
+        if let Some((size, p)) = &*cell.borrow() {
+            return (*size == n).then(|| p.clone());
+        }
+        if n > 1 && !on_main_thread() {
+            return None;
+        }
+        // fails where this thread is already a worker of another pool (a Python callback
+        // running inside a call): the shared pool then
+        let built = rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .use_current_thread()
+            .build()
+            .ok()?;
+        let p = Rc::new(built);
+        *cell.borrow_mut() = Some((n, p.clone()));
+        Some(p)
+    })
+}
+
+/// Run `f` with `n` workers (see the module notes for which threads they are).
+pub fn run_with<T, F>(n: usize, f: F) -> CoreResult<T>
+where
+    T: Send,
+    F: FnOnce() -> CoreResult<T> + Send,
+{
+    if n == 0 {
+        return Err(CoreError::InvalidInput("threads must be positive".into()));
+    }
+    match own(n) {
+        Some(p) => p.install(f),
+        None => shared(n)?.install(f),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// (worker index of the thread that runs the body, pool size, whether it is the caller)
+    fn probe(n: usize) -> (Option<usize>, usize, bool) {
+        let caller = std::thread::current().id();
+        run_with(n, || {
+            Ok((
+                rayon::current_thread_index(),
+                rayon::current_num_threads(),
+                std::thread::current().id() == caller,
+            ))
+        })
+        .unwrap()
+    }
+
+    #[test]
+    fn zero_threads_is_an_error() {
+        assert!(matches!(
+            run_with(0, || Ok(())),
+            Err(CoreError::InvalidInput(_))
+        ));
+    }
+
+    #[test]
+    fn one_worker_is_the_calling_thread() {
+        std::thread::spawn(|| assert_eq!(probe(1), (Some(0), 1, true)))
+            .join()
+            .unwrap();
+    }
+
+    #[test]
+    fn other_threads_hand_larger_pools_over() {
+        std::thread::spawn(|| {
+            let (_, size, inline) = probe(2);
+            assert_eq!(size, 2);
+            assert!(
+                !inline,
+                "only the main thread joins a pool of several workers"
+            );
+        })
+        .join()
+        .unwrap();
+    }
+
+    #[test]
+    fn main_thread_joins_its_first_pool_and_hands_other_sizes_over() {
+        std::thread::spawn(|| {
+            mark_main_thread();
+            assert!(on_main_thread());
+            assert_eq!(probe(3), (Some(0), 3, true));
+            // both halves of a join run, whichever worker takes them
+            let (a, b) = run_with(3, || Ok(rayon::join(|| 1, || 2))).unwrap();
+            assert_eq!(a + b, 3);
+            let (_, size, inline) = probe(1);
+            assert_eq!(size, 1);
+            assert!(!inline, "a thread is a worker of one pool only");
+            assert_eq!(probe(3), (Some(0), 3, true));
+        })
+        .join()
+        .unwrap();
+    }
+
+    #[test]
+    fn a_worker_of_a_shared_pool_hands_a_one_thread_call_over() {
+        // a Python callback that runs on a shared worker and calls the core again: that
+        // worker cannot join a pool of its own, so the shared one-worker pool takes the call
+        std::thread::spawn(|| {
+            let inner = run_with(2, || Ok(probe(1))).unwrap();
+            assert_eq!(inner.1, 1);
+            assert!(!inner.2);
+        })
+        .join()
+        .unwrap();
+    }
+}
