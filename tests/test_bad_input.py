@@ -552,3 +552,34 @@ def test_rust_panic_becomes_a_python_exception():
     assert lines["first"] != "returned", out.stdout
     outcomes = lines["outcomes"].split()
     assert "returned" not in outcomes[1:], outcomes
+
+
+def test_repeated_options_are_checked_every_time_they_are_wrong():
+    """``invariants`` reuses the Sampling of options it has seen (sampling_for): a wrong option
+    is refused on every call, options that compare equal but differ in type are kept apart,
+    and unhashable ones still get the constructor's message."""
+    from toposweep.sampling import sampling_for
+
+    model = ts.models.bhz()
+    for _ in range(2):
+        with pytest.raises(SamplingError, match="loop_points must be at least 4"):
+            ts.invariants(model, 2, {"mass": -1.0}, loop_points=3)
+    with pytest.raises(SamplingError, match="certify must be True or False"):
+        sampling_for(certify=1)  # (equal to True, and True is a valid option)
+    assert sampling_for(certify=True).certify is True
+    with pytest.raises(SamplingError, match="loop_points must be an integer"):
+        sampling_for(loop_points=[40])
+    assert sampling_for(loop_points=np.int64(40)) == sampling_for(loop_points=40)
+
+
+def test_model_inversion_changed_in_place_is_normalised_again():
+    """The normalised inversion matrix is kept per matrix entries: changing the model's P in
+    place (here P -> -P, also a symmetry of BHZ) gives the new matrix, not the kept one."""
+    from toposweep.symmetry import normalised_inversion
+
+    model = ts.models.bhz()
+    p = np.array(model.inversion, dtype=complex)
+    first = normalised_inversion(p)
+    p *= -1
+    np.testing.assert_array_equal(normalised_inversion(p), -first)
+    assert not first.flags.writeable

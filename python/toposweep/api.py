@@ -13,7 +13,7 @@ from .dataset import ResultLayout, plan_dataset
 from .errors import ModelError, SamplingError
 from .evaluation import check_filling, check_threads, prepare_request, run_points
 from .model import Model, Params
-from .sampling import MAXIMA, Sampling
+from .sampling import MAXIMA, Sampling, sampling_for
 
 __all__ = ["invariants", "wcc_flow"]
 
@@ -87,7 +87,7 @@ def invariants(
     >>> int(km.nu0), int(km.nu0_lattice), int(km.methods_agree)
     (1, 1, 1)
     """
-    sampling = Sampling(
+    sampling = sampling_for(
         loop_points=loop_points,
         lines=lines,
         max_lines=max_lines,

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, fields
+from functools import cached_property
 from numbers import Real
 from typing import Any
 
@@ -11,7 +12,7 @@ import numpy as np
 
 from .errors import SamplingError
 
-__all__ = ["MAXIMA", "METHODS", "Sampling"]
+__all__ = ["MAXIMA", "METHODS", "Sampling", "sampling_for"]
 
 #: the Z2 methods a run can use
 METHODS = ("wilson", "lattice", "both")
@@ -165,6 +166,40 @@ class Sampling:
 
     def core_kwargs(self) -> dict[str, Any]:
         """Keyword arguments for :func:`toposweep._core.evaluate`."""
+        return dict(self._core_kwargs)
+
+    @cached_property
+    def _core_kwargs(self) -> dict[str, Any]:
+        # (made once per instance: the fields are frozen)
         d = self.as_dict()
         d["gap_floor"] = -1.0 if self.gap_floor is None else float(self.gap_floor)
         return d
+
+
+#: recently validated samplings by their options (see :func:`sampling_for`)
+_RECENT: dict[tuple, Sampling] = {}
+
+
+def sampling_for(**options: Any) -> Sampling:
+    """``Sampling(**options)``, validated once for options seen before.
+
+    A loop of :func:`toposweep.invariants` calls passes the same options every time; checking
+    them again cost ~10 µs of serial Python per call. Options are matched by type and value
+    (``1`` and ``1.0`` are different options), and unhashable ones are simply validated.
+
+    Examples
+    --------
+    >>> sampling_for(loop_points=40) is sampling_for(loop_points=40)
+    True
+    """
+    try:
+        key = tuple((k, type(v), v) for k, v in options.items())
+        found = _RECENT.get(key)
+    except TypeError:  # an unhashable option: the constructor says what is wrong with it
+        return Sampling(**options)
+    if found is None:
+        found = Sampling(**options)
+        if len(_RECENT) >= 64:
+            _RECENT.clear()
+        _RECENT[key] = found
+    return found

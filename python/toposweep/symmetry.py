@@ -45,8 +45,34 @@ def as_operator(m: ArrayLike | None, norb: int, what: str) -> NDArray[np.complex
     return a
 
 
+#: normalised inversion matrices by their entries (see :func:`normalised_inversion`)
+_NORMALISED: dict[tuple, NDArray[np.complex128]] = {}
+
+
 def normalised_inversion(p: NDArray[np.complex128]) -> NDArray[np.complex128]:
-    """Return P scaled so that P² = 1 (an operator with P² = −1 is multiplied by i)."""
+    """Return P scaled so that P² = 1 (an operator with P² = −1 is multiplied by i).
+
+    The result is a read-only copy, kept for matrices seen before: every call of
+    :func:`toposweep.invariants` normalises the model's P again (~6 µs of serial Python).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> normalised_inversion(np.diag([1j, -1j])).real.tolist()
+    [[-1.0, 0.0], [0.0, 1.0]]
+    """
+    key = (p.shape, p.dtype.str, p.tobytes())
+    found = _NORMALISED.get(key)
+    if found is None:
+        found = np.array(_normalised(p))
+        found.setflags(write=False)
+        if len(_NORMALISED) >= 32:
+            _NORMALISED.clear()
+        _NORMALISED[key] = found
+    return found
+
+
+def _normalised(p: NDArray[np.complex128]) -> NDArray[np.complex128]:
     sq = p @ p
     n = p.shape[0]
     if np.abs(sq - np.eye(n)).max() < 1e-8:
