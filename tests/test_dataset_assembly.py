@@ -102,3 +102,43 @@ def test_results_do_not_share_coordinate_attributes():
     second = ts.invariants(model, 2, {"mass": -2.0}, **kw)
     assert second.axis.attrs["long_name"] == "reciprocal lattice axis"
     assert "extra" not in second.axis.attrs
+
+
+def _phase_by_hand(nu0: int, nu: tuple[int, ...] | None) -> int:
+    # PHASES, read off one by one: undefined; strong; weak (3D, some weak index odd); 2D odd
+    if nu0 < 0:
+        return -1
+    if nu is None:
+        return 3 if nu0 == 1 else 0
+    if nu0 == 1:
+        return 2
+    return 1 if 1 in nu else 0
+
+
+def _agree_by_hand(a: tuple, b: tuple) -> int:
+    if a[0] < 0 or b[0] < 0:
+        return -1
+    return int(a == b)
+
+
+def test_derived_variables_equal_their_definitions_for_every_combination():
+    """phase, parity_agrees and methods_agree (table lookups and array logic) against the
+    definitions written out case by case, over every combination of -1/0/1 indices."""
+    import itertools
+
+    from toposweep.dataset import classify_phase, indices_agree
+
+    combos = list(itertools.product([-1, 0, 1], repeat=4))  # (nu0, nu1, nu2, nu3)
+    nu0 = np.array([c[0] for c in combos], np.int8)
+    nu = np.array([c[1:] for c in combos], np.int8)
+    assert classify_phase(nu0, nu).tolist() == [_phase_by_hand(c[0], c[1:]) for c in combos]
+    assert classify_phase(nu0, None).tolist() == [_phase_by_hand(c[0], None) for c in combos]
+    assert classify_phase(nu0[:1], nu[:1]).dtype == np.int8
+    pairs = list(itertools.product(combos[::5], combos[::7]))
+    a = np.array([p[0] for p in pairs], np.int8)
+    b = np.array([p[1] for p in pairs], np.int8)
+    got = indices_agree(a[:, 0], b[:, 0], a[:, 1:], b[:, 1:])
+    assert got.tolist() == [_agree_by_hand(p[0], p[1]) for p in pairs]
+    got_2d = indices_agree(a[:, 0], b[:, 0], None, None)
+    assert got_2d.tolist() == [_agree_by_hand(p[0][:1], p[1][:1]) for p in pairs]
+    assert got.dtype == got_2d.dtype == np.int8

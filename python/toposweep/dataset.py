@@ -29,6 +29,7 @@ from .sampling import Sampling
 __all__ = [
     "build_dataset",
     "classify_phase",
+    "indices_agree",
     "plan_dataset",
     "ResultLayout",
     "PHASES",
@@ -78,8 +79,16 @@ INDEX_FLAGS = {
 }
 
 
+#: phase code by [nu0 + 1, weak index odd] in 3D and by [nu0 + 1] in 2D (see PHASES)
+_PHASE_3D = np.array([[-1, -1], [0, 1], [2, 2]], np.int8)
+_PHASE_2D = np.array([-1, 0, 3], np.int8)
+
+
 def classify_phase(nu0: NDArray, nu: NDArray | None) -> NDArray[np.int8]:
     """Phase codes (see :data:`PHASES`) from ν0 and, in 3D, the weak indices (last axis).
+
+    (A table lookup: four NumPy calls, so that the one-point results of
+    :func:`toposweep.invariants` spend little serial time here.)
 
     Examples
     --------
@@ -90,13 +99,30 @@ def classify_phase(nu0: NDArray, nu: NDArray | None) -> NDArray[np.int8]:
     >>> classify_phase(np.array([1, 0]), None)
     array([3, 0], dtype=int8)
     """
-    nu0 = np.asarray(nu0)
+    row = np.asarray(nu0) + 1
     if nu is None:
-        out = np.where(nu0 == 1, 3, 0)
-    else:
-        weak = np.any(np.asarray(nu) == 1, axis=-1)
-        out = np.where(nu0 == 1, 2, np.where(weak, 1, 0))
-    return np.where(nu0 < 0, -1, out).astype(np.int8)
+        return _PHASE_2D[row]
+    return _PHASE_3D[row, (np.asarray(nu) == 1).any(axis=-1).view(np.int8)]
+
+
+def indices_agree(
+    nu0_a: NDArray, nu0_b: NDArray, nu_a: NDArray | None, nu_b: NDArray | None
+) -> NDArray[np.int8]:
+    """1 where two sets of indices are equal, 0 where they differ, -1 where either ν0 is
+    undefined (negative); the weak indices ``nu_*`` (last axis) only in 3D.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> indices_agree(np.array([1, 1, -1]), np.array([1, 0, 1]), None, None)
+    array([ 1,  0, -1], dtype=int8)
+    """
+    nu0_a, nu0_b = np.asarray(nu0_a), np.asarray(nu0_b)
+    same = nu0_a == nu0_b
+    if nu_a is not None and nu_b is not None:
+        same &= (np.asarray(nu_a) == np.asarray(nu_b)).all(axis=-1)
+    # (undefined is -1 and defined 0 or 1: the smaller of the two says whether both are)
+    return np.where(np.minimum(nu0_a, nu0_b) < 0, -1, same).astype(np.int8)
 
 
 def _flags(codes: Mapping[int, str], dtype: Any = np.int8) -> dict[str, Any]:
@@ -114,12 +140,9 @@ _YES_NO_FLAGS = {"flag_values": _read_only(np.array([0, 1], np.int8)), "flag_mea
 
 def _parity_agrees(raw: Raw, *, three_d: bool) -> NDArray[np.int8]:
     """``parity_agrees`` per point: 1 equal, 0 different, -1 where one side is undefined."""
-    nu0p, nu0 = raw["nu0_parity"].astype(np.int8), raw["nu0"].astype(np.int8)
-    agree = np.where(nu0p == nu0, 1, 0)
     if three_d:
-        agree = np.where(np.all(raw["nu_parity"].astype(np.int8) == raw["nu"], axis=-1), agree, 0)
-    both = (nu0p >= 0) & (nu0 >= 0)
-    return np.where(both, agree, -1).astype(np.int8)
+        return indices_agree(raw["nu0_parity"], raw["nu0"], raw["nu_parity"], raw["nu"])
+    return indices_agree(raw["nu0_parity"], raw["nu0"], None, None)
 
 
 @lru_cache(maxsize=64)

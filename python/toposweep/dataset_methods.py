@@ -43,12 +43,11 @@ class Field:
 
 def _agree(raw: Raw, *, three_d: bool) -> NDArray[np.int8]:
     """``methods_agree`` per point: 1 equal, 0 different, -1 where one side is undefined."""
-    nu0w, nu0l = raw["nu0"].astype(np.int8), raw["nu0_lattice"].astype(np.int8)
-    agree = nu0w == nu0l
+    from .dataset import indices_agree  # (dataset imports this module)
+
     if three_d:
-        agree &= np.all(raw["nu"] == raw["nu_lattice"], axis=-1)
-    both = (nu0w >= 0) & (nu0l >= 0)
-    return np.where(both, agree.astype(np.int8), -1).astype(np.int8)
+        return indices_agree(raw["nu0"], raw["nu0_lattice"], raw["nu"], raw["nu_lattice"])
+    return indices_agree(raw["nu0"], raw["nu0_lattice"], None, None)
 
 
 def method_fields(
