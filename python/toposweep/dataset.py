@@ -108,8 +108,10 @@ def classify_phase(nu0: NDArray, nu: NDArray | None) -> NDArray[np.int8]:
 def indices_agree(
     nu0_a: NDArray, nu0_b: NDArray, nu_a: NDArray | None, nu_b: NDArray | None
 ) -> NDArray[np.int8]:
-    """1 where two sets of indices are equal, 0 where they differ, -1 where either ν0 is
-    undefined (negative); the weak indices ``nu_*`` (last axis) only in 3D.
+    """Whether two sets of Z2 indices agree: 1 equal, 0 different, -1 not comparable.
+
+    Not comparable where either ν0 is undefined (negative); the weak indices ``nu_*`` (last
+    axis) are compared only in 3D.
 
     Examples
     --------
