@@ -117,6 +117,13 @@ def best_times(fs: list[Callable[[], object]], repeats: int, min_seconds: float 
     """Like :func:`best_time` for several functions, interleaved round by round, so that every
     function sees the same changes of machine load (ratios stay fair on a shared machine).
     The rounds of an :class:`OnOneThread` function run on :data:`ONE_THREAD`."""
+    return [min(column) for column in zip(*round_times(fs, repeats, min_seconds), strict=True)]
+
+
+def round_times(
+    fs: list[Callable[[], object]], rounds: int, min_seconds: float = 0.2
+) -> list[list[float]]:
+    """Time per call of each function in each round (``[round][function]``), interleaved."""
 
     def round_of(f: Callable[[], object]) -> float:
         n, t0 = 0, time.perf_counter()
@@ -134,11 +141,18 @@ def best_times(fs: list[Callable[[], object]], repeats: int, min_seconds: float 
 
     for f in fs:
         f()
-    best = [float("inf")] * len(fs)
-    for _ in range(repeats):
-        for k, f in enumerate(fs):
-            best[k] = min(best[k], timed(f))
-    return best
+    return [[timed(f) for f in fs] for _ in range(rounds)]
+
+
+def paired_gain(times: list[list[float]], one: int, many: int) -> float:
+    """Threads gain: the median over rounds of (one-thread time) / (all-core time).
+
+    Each round times both right after each other. On this VM the two virtual cores change
+    speed independently, for seconds at a time (one ran a third slower than the other for
+    12 s while both were busy); a ratio of best times would set the fastest moment of one
+    core against the fastest moment of both at once, which is rarer.
+    """
+    return float(np.median([r[one] / r[many] for r in times]))
 
 
 def load() -> str:
@@ -220,7 +234,7 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
         ref, _ = compare(model, filling, params, **opts)  # asserts agreement
         reps = repeats if model.norb <= 16 else 1
         kw = {**opts, **ENGINE_FIXED, "max_lines": opts["lines"]}
-        t_np, t1, tn = best_times(
+        times = round_times(
             [
                 lambda m=model, f=filling, p=params, o=opts: invariants_numpy(m, f, p, **o),
                 OnOneThread(
@@ -232,15 +246,18 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
                     m, f, p, threads=os.cpu_count(), **kw
                 ),
             ],
-            reps,
+            3 * reps,
+            min_seconds=0.07,
         )
+        t_np, t1, tn = (min(column) for column in zip(*times, strict=True))
+        gain = paired_gain(times, 1, 2)
         if ref["nu0"] < 0:
             result = f"undefined (reason {ref['reason']}), same on both sides"
         else:
             result = f"({ref['nu0']};{''.join(map(str, ref['nu']))})"
         out.append(
             f"| {label} | {t_np * 1e3:.1f} | {t1 * 1e3:.2f} | {t_np / t1:.1f}× | "
-            f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {t1 / tn:.2f}× | {result} |"
+            f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {gain:.2f}× | {result} |"
         )
         if label.startswith("16"):
             assert (ref["nu0"], ref["nu"]) == expected_indices(4)
@@ -295,8 +312,15 @@ def core_only_table(repeats: int) -> list[str]:
         ),
     ]
     for name, f in rows:
-        t1, tn = best_times([OnOneThread(lambda f=f: f(1)), lambda f=f: f(os.cpu_count())], repeats)
-        out.append(f"| {name} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {t1 / tn:.2f}× |")
+        times = round_times(
+            [OnOneThread(lambda f=f: f(1)), lambda f=f: f(os.cpu_count())],
+            3 * repeats,
+            min_seconds=0.07,
+        )
+        t1, tn = (min(column) for column in zip(*times, strict=True))
+        out.append(
+            f"| {name} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {paired_gain(times, 0, 1):.2f}× |"
+        )
     out.append(
         f"| two independent one-thread processes, throughput over one alone | | | "
         f"{machine_ceiling():.2f}× |"
@@ -346,6 +370,24 @@ def machine_ceiling(seconds: float = 1.0, rounds: int = 5) -> float:
 
     ratios = sorted(rates(2) / rates(1) for _ in range(rounds))
     return ratios[len(ratios) // 2]
+
+
+def core_speed_table(seconds: float) -> list[str]:
+    """Each core's speed with both busy (``core_speeds.py``), summarised."""
+    from core_speeds import ceilings, measure
+
+    cores, rates = measure(seconds)
+    out = [
+        "| core | calls/s, median | slowest half second | fastest half second |",
+        "|---:|---:|---:|---:|",
+    ]
+    for c, r in zip(cores, rates, strict=True):
+        out.append(f"| {c} | {np.median(r):.0f} | {min(r):.0f} | {max(r):.0f} |")
+    c = ceilings(rates)
+    out.append(
+        f"| sum over fastest, per half second | {np.median(c):.2f} | {min(c):.2f} | {max(c):.2f} |"
+    )
+    return out
 
 
 def sweep_table(quick: bool) -> list[str]:
@@ -428,8 +470,10 @@ def main() -> None:
         f"numpy {np.__version__} (BLAS pinned to one thread), toposweep {ts.__version__} "
         f"with kernels compiled for {_core.INSTRUCTION_SET} "
         f"(RUSTFLAGS='{os.environ.get('RUSTFLAGS', '')}'). "
-        "Best of several repeats; one-thread calls are made from a thread of their own and "
-        "calls on all cores from the main thread. Other jobs were sharing the machine "
+        "Times are the best of several rounds; a threads gain is the median over the rounds of "
+        "the one-thread time over the all-core time measured right after it. One-thread calls "
+        "are made from a thread of their own and calls on all cores from the main thread. "
+        "Other jobs were sharing the machine "
         f"({load()} at the start).",
         "",
     ]
@@ -479,6 +523,14 @@ def main() -> None:
             "from a nearby matrix's eigenvectors, nalgebra's Householder, faer), polar factors, "
             "one Wilson line and one full point on one thread.",
         )
+    section(
+        "What a second core gives on this machine",
+        core_speed_table(4.0 if args.quick else 10.0),
+        "One process per core, pinned, all busy at once, each evaluating the Wilson–Dirac point "
+        "of the table above on one thread and counting the calls it finishes per half second "
+        "(`benches/core_speeds.py` prints every half second). A threads gain of one call "
+        "cannot exceed the sum of its cores' speeds over the fastest one's at that moment.",
+    )
     section("(c) Sweep throughput", sweep_table(args.quick))
     section(
         "(d) Peak memory against the number of points",
