@@ -488,8 +488,8 @@ def plan_dataset(
     data: dict[str, tuple] = {}
     sources: list[tuple[NDArray, Any]] = []
     for f in _fields(model.dim, model.energy_unit, parity_known, sampling.method):
-        target = np.empty(shape + tuple(n for _, n in f.extra), f.dtype)
-        data[f.name] = (dims + tuple(d for d, _ in f.extra), target, f.attrs)
+        target = np.empty(shape + f.extra_shape, f.dtype)
+        data[f.name] = (dims + f.extra_dims, target, f.attrs)
         sources.append((target, f.source))
     attrs: dict[str, Any] = {
         "title": f"Z2 indices of {model.name or 'a lattice model'}",

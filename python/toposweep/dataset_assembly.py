@@ -59,11 +59,13 @@ def _variables(
     indexes: dict[str, PandasIndex] = {}
     sizes: dict[str, int] = {}
     for name, (dims, values, attrs) in [*data.items(), *coords.items()]:
-        values = np.asarray(values)
+        if type(values) is not np.ndarray:  # (most are already: ~30 calls saved per result)
+            values = np.asarray(values)
         if values.dtype.kind not in "biuf":
             raise ValueError("only numeric variables take the fast path")
         var = _numeric_variable(dims, values, attrs)
-        for d, n in zip(var.dims, var.shape, strict=True):
+        # (the Variable's own dims and shape, read without xarray's property calls)
+        for d, n in zip(var._dims, values.shape, strict=True):
             if sizes.setdefault(d, n) != n:
                 raise ValueError(f"dimension {d!r} has sizes {sizes[d]} and {n}")
         if name in coords and var.dims == (name,):
@@ -82,7 +84,8 @@ def _numeric_variable(dims: Any, values: np.ndarray, attrs: Mapping[str, Any]) -
     is nothing but its four slots (checked once, :data:`_SLOTS_ONLY`) they are filled directly —
     a third of the cost of a single-point result is otherwise spent in ~30 constructor calls.
     """
-    dims = (dims,) if isinstance(dims, str) else tuple(dims)
+    if type(dims) is not tuple:
+        dims = (dims,) if isinstance(dims, str) else tuple(dims)
     if len(dims) != values.ndim:
         raise ValueError(f"dims {dims} do not match an array of {values.ndim} dimensions")
     if not _SLOTS_ONLY:

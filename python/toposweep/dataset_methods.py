@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -39,6 +40,16 @@ class Field:
     dtype: type
     attrs: Mapping[str, Any]
     source: str | Callable[[Raw], NDArray[Any]]
+
+    @cached_property
+    def extra_dims(self) -> tuple[str, ...]:
+        """Names of the trailing dimensions."""
+        return tuple(d for d, _ in self.extra)
+
+    @cached_property
+    def extra_shape(self) -> tuple[int, ...]:
+        """Lengths of the trailing dimensions."""
+        return tuple(n for _, n in self.extra)
 
 
 def _agree(raw: Raw, *, three_d: bool) -> NDArray[np.int8]:
