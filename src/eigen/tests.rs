@@ -2,6 +2,7 @@
 //! accuracy on clustered and degenerate spectra, pairing and grouping against single solves.
 //! (A file of their own to keep `eigen.rs` about the solvers.)
 
+use super::jacobi::SCHEDULE;
 use super::*;
 
 pub(crate) fn random_hermitian(n: usize, seed: u64) -> Vec<C64> {
