@@ -402,13 +402,8 @@ mod tests {
     #[test]
     fn fill_line_matches_points() {
         let n = 3;
-        let mut st = 99u64;
-        let mut next = || {
-            st = st
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            ((st >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
-        };
+        let mut rng = crate::test_rng::TestRng::new(99u64);
+        let mut next = || rng.uniform();
         let r = vec![0, 0, 0, 1, 0, 0, 1, -2, 0, 0, 3, 1];
         let mut t: Vec<C64> = (0..4 * n * n).map(|_| C64::new(next(), next())).collect();
         for i in 0..n {

@@ -155,13 +155,8 @@ mod tests {
     use super::*;
 
     fn random(len: usize, seed: u64) -> Vec<C64> {
-        let mut st = seed;
-        let mut next = || {
-            st = st
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            ((st >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
-        };
+        let mut rng = crate::test_rng::TestRng::new(seed);
+        let mut next = || rng.uniform();
         (0..len).map(|_| C64::new(next(), next())).collect()
     }
 

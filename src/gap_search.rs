@@ -401,13 +401,8 @@ mod tests {
     #[test]
     fn grid_by_lines_matches_batch() {
         use crate::bloch::Hoppings;
-        let mut st = 7u64;
-        let mut next = || {
-            st = st
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            ((st >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
-        };
+        let mut rng = crate::test_rng::TestRng::new(7u64);
+        let mut next = || rng.uniform();
         let n = 4;
         // R = 0 Hermitian, R = ±x, ±y, ±z as pairs (T, T†): a generic Hermitian H(κ)
         let r: Vec<i64> = vec![

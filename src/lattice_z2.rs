@@ -568,13 +568,8 @@ mod tests {
         seed: u64,
     ) -> Vec<Vec<C64>> {
         let n = src.norb();
-        let mut state = seed;
-        let mut next = || {
-            state = state
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            ((state >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
-        };
+        let mut rng = crate::test_rng::TestRng::new(seed);
+        let mut next = || rng.uniform();
         let mut out = Vec::new();
         for i in 0..=n2 {
             for j in 0..n1 {

@@ -19,6 +19,8 @@ pub mod matrix;
 pub mod parity;
 pub mod plane_flows;
 pub mod pools;
+#[cfg(test)]
+mod test_rng;
 pub mod wilson;
 
 #[cfg(feature = "python")]

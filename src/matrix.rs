@@ -310,13 +310,8 @@ mod tests {
     use super::*;
 
     fn rand_matrix(n: usize, seed: u64) -> Vec<C64> {
-        let mut s = seed;
-        let mut next = || {
-            s = s
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            ((s >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
-        };
+        let mut rng = crate::test_rng::TestRng::new(seed);
+        let mut next = || rng.uniform();
         (0..n * n).map(|_| C64::new(next(), next())).collect()
     }
 

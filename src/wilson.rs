@@ -478,13 +478,8 @@ mod tests {
     use crate::bloch::Hoppings;
 
     fn random_model(n: usize, seed: u64) -> Hoppings {
-        let mut s = seed;
-        let mut next = || {
-            s = s
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            ((s >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
-        };
+        let mut rng = crate::test_rng::TestRng::new(seed);
+        let mut next = || rng.uniform();
         let nn = n * n;
         let mut t = Vec::new();
         for _ in 0..4 {

@@ -6,13 +6,8 @@ use super::jacobi::SCHEDULE;
 use super::*;
 
 pub(crate) fn random_hermitian(n: usize, seed: u64) -> Vec<C64> {
-    let mut s = seed;
-    let mut next = || {
-        s = s
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        ((s >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
-    };
+    let mut rng = crate::test_rng::TestRng::new(seed);
+    let mut next = || rng.uniform();
     let mut h = vec![C64::new(0.0, 0.0); n * n];
     for i in 0..n {
         h[i * n + i] = C64::new(next(), 0.0);
@@ -315,13 +310,8 @@ fn two_level_path_matches_reference() {
     for seed in 0..20u64 {
         let q = random_hermitian(4, 500 + seed);
         let (_, u) = eigh_reference(&q, 4);
-        let mut st = seed + 1;
-        let mut next = || {
-            st = st
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            ((st >> 11) as f64) / ((1u64 << 53) as f64) - 0.5
-        };
+        let mut rng = crate::test_rng::TestRng::new(seed + 1);
+        let mut next = || rng.uniform();
         let mut h0 = vec![C64::new(next(), 0.0); 16];
         for (i, x) in h0.iter_mut().enumerate() {
             if i % 5 != 0 {
