@@ -55,9 +55,98 @@ pub fn combine(dim: usize, plane_z2: &[i8], blocking: u8, unresolved: u8) -> Ind
     }
 }
 
+/// Phase codes of a result (the `phase` variable; names in Python's `dataset.PHASES`).
+pub mod phase {
+    pub const UNDEFINED: i8 = -1;
+    pub const TRIVIAL: i8 = 0;
+    pub const WEAK: i8 = 1;
+    pub const STRONG: i8 = 2;
+    pub const Z2_ODD_2D: i8 = 3;
+}
+
+/// The phase of indices (ν0; ν) — in 2D only ν0 counts: undefined where ν0 is; a strong
+/// topological insulator where ν0 = 1 (3D); weak where ν0 = 0 and some ν_i = 1 (3D); Z2-odd
+/// where ν0 = 1 (2D); trivial otherwise.
+pub fn phase_of(dim: usize, nu0: i8, nu: [i8; 3]) -> i8 {
+    match (nu0, dim == 3) {
+        (n, _) if n < 0 => phase::UNDEFINED,
+        (1, true) => phase::STRONG,
+        (1, false) => phase::Z2_ODD_2D,
+        (_, true) if nu.contains(&1) => phase::WEAK,
+        _ => phase::TRIVIAL,
+    }
+}
+
+/// Whether two sets of indices agree (the `parity_agrees` and `methods_agree` variables): 1
+/// equal, 0 different, −1 where either ν0 is undefined; the weak indices count in 3D only.
+pub fn agreement(dim: usize, a: (i8, [i8; 3]), b: (i8, [i8; 3])) -> i8 {
+    if a.0 < 0 || b.0 < 0 {
+        -1
+    } else {
+        i8::from(a.0 == b.0 && (dim != 3 || a.1 == b.1))
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Every (ν0; ν1ν2ν3) with entries −1, 0, 1.
+    fn all_indices() -> Vec<(i8, [i8; 3])> {
+        let v = [-1i8, 0, 1];
+        let mut out = Vec::new();
+        for a in v {
+            for b in v {
+                for c in v {
+                    for d in v {
+                        out.push((a, [b, c, d]));
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn phase_follows_its_definition_for_every_index_combination() {
+        for (nu0, nu) in all_indices() {
+            // the definitions, one case at a time
+            let mut some_weak_odd = false;
+            for x in nu {
+                some_weak_odd |= x == 1;
+            }
+            let want_3d = if nu0 < 0 {
+                -1
+            } else if nu0 == 1 {
+                2
+            } else if some_weak_odd {
+                1
+            } else {
+                0
+            };
+            let want_2d = match nu0 {
+                -1 => -1,
+                1 => 3,
+                _ => 0,
+            };
+            assert_eq!(phase_of(3, nu0, nu), want_3d, "{nu0} {nu:?}");
+            assert_eq!(phase_of(2, nu0, nu), want_2d, "{nu0} {nu:?}");
+        }
+    }
+
+    #[test]
+    fn agreement_follows_its_definition_for_every_pair() {
+        let all = all_indices();
+        for &a in &all {
+            for &b in &all {
+                let comparable = a.0 >= 0 && b.0 >= 0;
+                let want_3d = if comparable { (a == b) as i8 } else { -1 };
+                let want_2d = if comparable { (a.0 == b.0) as i8 } else { -1 };
+                assert_eq!(agreement(3, a, b), want_3d, "{a:?} {b:?}");
+                assert_eq!(agreement(2, a, b), want_2d, "{a:?} {b:?}");
+            }
+        }
+    }
 
     #[test]
     fn strong_weak_and_undefined() {

@@ -366,6 +366,9 @@ def test_time_reversal_broken_at_some_points_only_marks_those():
     assert raw["reason"].tolist()[1] == 8
     # the model's own inversion also fails at the broken point: parity undefined there too
     assert raw["nu0_parity"].tolist() == [1, -1]
+    # and what the core derived from the indices follows the marks
+    assert raw["phase"].tolist() == [2, -1]
+    assert raw["parity_agrees"].tolist() == [1, -1]
 
 
 def test_nearly_symmetric_model_is_told_how_to_symmetrise():

@@ -121,24 +121,39 @@ def _agree_by_hand(a: tuple, b: tuple) -> int:
     return int(a == b)
 
 
-def test_derived_variables_equal_their_definitions_for_every_combination():
-    """phase, parity_agrees and methods_agree (table lookups and array logic) against the
-    definitions written out case by case, over every combination of -1/0/1 indices."""
-    import itertools
-
-    from toposweep.dataset import classify_phase, indices_agree
-
-    combos = list(itertools.product([-1, 0, 1], repeat=4))  # (nu0, nu1, nu2, nu3)
-    nu0 = np.array([c[0] for c in combos], np.int8)
-    nu = np.array([c[1:] for c in combos], np.int8)
-    assert classify_phase(nu0, nu).tolist() == [_phase_by_hand(c[0], c[1:]) for c in combos]
-    assert classify_phase(nu0, None).tolist() == [_phase_by_hand(c[0], None) for c in combos]
-    assert classify_phase(nu0[:1], nu[:1]).dtype == np.int8
-    pairs = list(itertools.product(combos[::5], combos[::7]))
-    a = np.array([p[0] for p in pairs], np.int8)
-    b = np.array([p[1] for p in pairs], np.int8)
-    got = indices_agree(a[:, 0], b[:, 0], a[:, 1:], b[:, 1:])
-    assert got.tolist() == [_agree_by_hand(p[0], p[1]) for p in pairs]
-    got_2d = indices_agree(a[:, 0], b[:, 0], None, None)
-    assert got_2d.tolist() == [_agree_by_hand(p[0][:1], p[1][:1]) for p in pairs]
-    assert got.dtype == got_2d.dtype == np.int8
+def test_derived_variables_follow_their_definitions():
+    """phase, parity_agrees and methods_agree (derived by the core) against their definitions
+    written out case by case, over sweeps that cross every phase of the Wilson–Dirac and BHZ
+    models, gap closings (undefined points) included. (The core's unit tests run the same
+    definitions over every -1/0/1 combination.)"""
+    wd = ts.sweep(
+        ts.models.wilson_dirac(),
+        {"mass": np.linspace(-7.0, 7.0, 29)},
+        2,
+        method="both",
+        progress=False,
+        loop_points=16,
+        lines=9,
+    )
+    bhz = ts.sweep(
+        ts.models.bhz(),
+        {"mass": np.linspace(-5.0, 5.0, 21)},
+        2,
+        method="both",
+        progress=False,
+        loop_points=16,
+        lines=9,
+    )
+    seen = set()
+    for ds, three_d in ((wd, True), (bhz, False)):
+        for i in range(ds.sizes["mass"]):
+            p = ds.isel(mass=i)
+            nu = tuple(p.nu.values.tolist()) if three_d else None
+            headline = (int(p.nu0), nu)
+            parity = (int(p.nu0_parity), tuple(p.nu_parity.values.tolist()) if three_d else None)
+            lattice = (int(p.nu0_lattice), tuple(p.nu_lattice.values.tolist()) if three_d else None)
+            assert int(p.phase) == _phase_by_hand(*headline)
+            assert int(p.parity_agrees) == _agree_by_hand(parity, headline)
+            assert int(p.methods_agree) == _agree_by_hand(headline, lattice)
+            seen.add(int(p.phase))
+    assert seen == {-1, 0, 1, 2, 3}  # every phase code occurs

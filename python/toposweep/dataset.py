@@ -28,15 +28,13 @@ from .sampling import Sampling
 
 __all__ = [
     "build_dataset",
-    "classify_phase",
-    "indices_agree",
     "plan_dataset",
     "ResultLayout",
     "PHASES",
     "REASONS",
 ]
 
-#: phase codes → CF flag meanings
+#: phase codes → CF flag meanings (the core derives them: ``indices::phase_of``)
 PHASES: dict[int, str] = {
     -1: "undefined",
     0: "trivial_insulator",
@@ -79,54 +77,6 @@ INDEX_FLAGS = {
 }
 
 
-#: phase code by [nu0 + 1, weak index odd] in 3D and by [nu0 + 1] in 2D (see PHASES)
-_PHASE_3D = np.array([[-1, -1], [0, 1], [2, 2]], np.int8)
-_PHASE_2D = np.array([-1, 0, 3], np.int8)
-
-
-def classify_phase(nu0: NDArray, nu: NDArray | None) -> NDArray[np.int8]:
-    """Phase codes (see :data:`PHASES`) from ν0 and, in 3D, the weak indices (last axis).
-
-    (A table lookup: four NumPy calls, so that the one-point results of
-    :func:`toposweep.invariants` spend little serial time here.)
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> weak = np.array([[0, 0, 0], [1, 0, 0], [0, 0, 0], [-1, -1, -1]])
-    >>> classify_phase(np.array([1, 0, 0, -1]), weak)
-    array([ 2,  1,  0, -1], dtype=int8)
-    >>> classify_phase(np.array([1, 0]), None)
-    array([3, 0], dtype=int8)
-    """
-    row = np.asarray(nu0) + 1
-    if nu is None:
-        return _PHASE_2D[row]
-    return _PHASE_3D[row, (np.asarray(nu) == 1).any(axis=-1).view(np.int8)]
-
-
-def indices_agree(
-    nu0_a: NDArray, nu0_b: NDArray, nu_a: NDArray | None, nu_b: NDArray | None
-) -> NDArray[np.int8]:
-    """Whether two sets of Z2 indices agree: 1 equal, 0 different, -1 not comparable.
-
-    Not comparable where either ν0 is undefined (negative); the weak indices ``nu_*`` (last
-    axis) are compared only in 3D.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> indices_agree(np.array([1, 1, -1]), np.array([1, 0, 1]), None, None)
-    array([ 1,  0, -1], dtype=int8)
-    """
-    nu0_a, nu0_b = np.asarray(nu0_a), np.asarray(nu0_b)
-    same = nu0_a == nu0_b
-    if nu_a is not None and nu_b is not None:
-        same &= (np.asarray(nu_a) == np.asarray(nu_b)).all(axis=-1)
-    # (undefined is -1 and defined 0 or 1: the smaller of the two says whether both are)
-    return np.where(np.minimum(nu0_a, nu0_b) < 0, -1, same).astype(np.int8)
-
-
 def _flags(codes: Mapping[int, str], dtype: Any = np.int8) -> dict[str, Any]:
     return {
         "flag_values": _read_only(np.array(list(codes), dtype=dtype)),
@@ -138,13 +88,6 @@ def _flags(codes: Mapping[int, str], dtype: Any = np.int8) -> dict[str, Any]:
 _PHASE_FLAGS = _flags(PHASES)
 _REASON_FLAGS = _flags(REASONS)
 _YES_NO_FLAGS = {"flag_values": _read_only(np.array([0, 1], np.int8)), "flag_meanings": "no yes"}
-
-
-def _parity_agrees(raw: Raw, *, three_d: bool) -> NDArray[np.int8]:
-    """``parity_agrees`` per point: 1 equal, 0 different, -1 where one side is undefined."""
-    if three_d:
-        return indices_agree(raw["nu0_parity"], raw["nu0"], raw["nu_parity"], raw["nu"])
-    return indices_agree(raw["nu0_parity"], raw["nu0"], None, None)
 
 
 @lru_cache(maxsize=64)
@@ -194,7 +137,7 @@ def _fields(dim: int, unit: str, parity_known: bool, method: str) -> tuple[Field
             (),
             np.int8,
             {"long_name": "topological phase", "units": "1", **_PHASE_FLAGS},
-            lambda raw: classify_phase(raw["nu0"], raw["nu"] if three_d else None),
+            "phase",
         ),
         Field(
             "undefined_reason",
@@ -332,7 +275,7 @@ def _parity_fields(dim: int, three_d: bool) -> list[Field]:
                 "units": "1",
                 **AGREE_FLAGS,
             },
-            lambda raw: _parity_agrees(raw, three_d=three_d),
+            "parity_agrees",
         ),
         Field(
             "parity_undefined_reason",

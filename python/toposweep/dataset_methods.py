@@ -52,15 +52,6 @@ class Field:
         return tuple(n for _, n in self.extra)
 
 
-def _agree(raw: Raw, *, three_d: bool) -> NDArray[np.int8]:
-    """``methods_agree`` per point: 1 equal, 0 different, -1 where one side is undefined."""
-    from .dataset import indices_agree  # (dataset imports this module)
-
-    if three_d:
-        return indices_agree(raw["nu0"], raw["nu0_lattice"], raw["nu"], raw["nu_lattice"])
-    return indices_agree(raw["nu0"], raw["nu0_lattice"], None, None)
-
-
 def method_fields(
     *,
     three_d: bool,
@@ -186,7 +177,7 @@ def method_fields(
                     "units": "1",
                     **AGREE_FLAGS,
                 },
-                lambda raw: _agree(raw, three_d=three_d),
+                "methods_agree",
             )
         )
     return fields

@@ -126,16 +126,25 @@ def prepare_request(
 
 
 def _mark(raw: dict[str, NDArray], mask: NDArray[np.bool_], reason: int, *, parity: bool) -> None:
-    """Overwrite results at ``mask`` as undefined with ``reason`` (Wilson or parity part)."""
+    """Overwrite results at ``mask`` as undefined with ``reason`` (Wilson or parity part).
+
+    The variables the core derives from the indices follow: an undefined ν0 makes the phase
+    undefined and every comparison that involves it not comparable (-1).
+    """
     if parity:
         raw["nu0_parity"][mask] = -1
         raw["nu_parity"][mask] = -1
         raw["parity_reason"][mask] = reason
         raw["odd_count"][mask] = -1
+        raw["parity_agrees"][mask] = -1
     else:
         raw["nu0"][mask] = -1
         raw["nu"][mask] = -1
         raw["reason"][mask] = reason
+        raw["phase"][mask] = -1
+        for key in ("parity_agrees", "methods_agree"):
+            if key in raw:
+                raw[key][mask] = -1
         if "nu0_lattice" in raw:
             raw["nu0_lattice"][mask] = -1
             raw["nu_lattice"][mask] = -1
