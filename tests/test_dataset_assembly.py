@@ -10,13 +10,20 @@ import xarray as xr
 from toposweep.dataset_assembly import assemble
 
 
+class _KeepsNothing(dict):
+    def __setitem__(self, key, value) -> None:
+        pass
+
+
 def _public(monkeypatch, build):
-    """Run ``build`` with assembly through ``xr.Dataset(...)`` only."""
+    """Run ``build`` with assembly through ``xr.Dataset(...)`` only (no layout copied from an
+    earlier result)."""
     monkeypatch.setattr(
         dataset_module,
         "assemble",
         lambda data, coords, attrs: xr.Dataset(data, coords=coords, attrs=attrs),
     )
+    monkeypatch.setattr(dataset_module, "_TEMPLATES", _KeepsNothing())
     try:
         return build()
     finally:
@@ -48,6 +55,39 @@ def test_single_point_matches_public_constructor(monkeypatch, name, filling, par
     fast = ts.invariants(model, filling, params, **kw)
     slow = _public(monkeypatch, lambda: ts.invariants(model, filling, params, **kw))
     _same(fast, slow)
+
+
+@pytest.mark.parametrize(("name", "filling", "params", "opts"), CASES)
+def test_next_point_copied_from_the_last_layout_matches_public_constructor(
+    monkeypatch, name, filling, params, opts
+):
+    """A second one-point result of the same model and options is copied from the first one's
+    layout (dataset_assembly.renewed): it equals the public constructor's for its own
+    parameters, and changing one result in place leaves the next untouched."""
+    model = getattr(ts.models, name)()
+    kw = {"loop_points": 12, "lines": 7, "gap_starts": 0, "certify": False, **opts}
+    other = {k: v + 0.25 for k, v in params.items()}
+    first = ts.invariants(model, filling, params, **kw)
+    first.attrs["title"] = "changed"
+    first.nu0.attrs["long_name"] = "changed"
+    for name_ in first.coords:
+        if first[name_].values.flags.writeable:
+            first[name_].values[...] = 7
+    copied: list[bool] = []
+    renewed = dataset_module.renewed
+
+    def spy(template, data, attrs):
+        # (new arrays: a result copied from the layout; none: a layout kept for the next call)
+        copied.append(bool(data))
+        return renewed(template, data, attrs)
+
+    monkeypatch.setattr(dataset_module, "renewed", spy)
+    second = ts.invariants(model, filling, other, **kw)
+    monkeypatch.undo()
+    assert copied == [True], "the second result was not copied from the first one's layout"
+    slow = _public(monkeypatch, lambda: ts.invariants(model, filling, other, **kw))
+    _same(second, slow)
+    assert second.attrs["title"] == slow.attrs["title"] != "changed"
 
 
 @pytest.mark.parametrize("slots_only", [True, False])

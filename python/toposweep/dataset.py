@@ -21,7 +21,7 @@ import xarray as xr
 from numpy.typing import NDArray
 
 from ._version import __version__
-from .dataset_assembly import assemble
+from .dataset_assembly import assemble, renewed
 from .dataset_methods import AGREE_FLAGS, Field, Raw, method_fields
 from .model import Model
 from .sampling import Sampling
@@ -361,6 +361,15 @@ class ResultLayout:
         self._dataset: xr.Dataset | None = _assembled_in_place(data, coords, attrs)
         self._filled = False
 
+    @classmethod
+    def around(
+        cls, dataset: xr.Dataset, sources: list[tuple[NDArray, str | Callable[[Raw], NDArray]]]
+    ) -> ResultLayout:
+        """A layout of a Dataset that already holds the target arrays of ``sources``."""
+        layout = cls.__new__(cls)
+        layout._sources, layout._dataset, layout._filled = sources, dataset, False
+        return layout
+
     def fill(self, raw: Raw) -> xr.Dataset:
         """The Dataset with the values of ``raw`` (the dict of :func:`_core.evaluate`)."""
         if self._filled:
@@ -427,10 +436,21 @@ def plan_dataset(
     (1, '1')
     """
     dims = tuple(dims)
+    fields = _fields(model.dim, model.energy_unit, parity_known, sampling.method)
+    # One-point results (invariants() in a loop) differ only in the parameter values and the
+    # time: the next is copied from the previous one's layout instead of assembled again.
+    key = None
+    if not dims and not extra_attrs:
+        key = _template_key(model, fixed, filling, sampling, parity_known)
+        template = _TEMPLATES.get(key)
+        if template is not None:
+            layout = _from_template(template, fields, fixed)
+            if layout is not None:
+                return layout
     shape = tuple(len(coords[d]) for d in dims)
     data: dict[str, tuple] = {}
     sources: list[tuple[NDArray, Any]] = []
-    for f in _fields(model.dim, model.energy_unit, parity_known, sampling.method):
+    for f in fields:
         target = np.empty(shape + f.extra_shape, f.dtype)
         data[f.name] = (dims + f.extra_dims, target, f.attrs)
         sources.append((target, f.source))
@@ -448,7 +468,41 @@ def plan_dataset(
     }
     attrs.update(extra_attrs or {})
     coord_vars = _coordinates(model, dims, coords, fixed, parity_known)
-    return ResultLayout(data, coord_vars, attrs, sources)
+    layout = ResultLayout(data, coord_vars, attrs, sources)
+    if key is not None and layout._dataset is not None:
+        # (a copy of its own: the layout's Dataset goes to the caller, who may change it)
+        template = renewed(layout._dataset, {}, attrs)
+        if template is not None:
+            if len(_TEMPLATES) >= 32:
+                _TEMPLATES.clear()
+            _TEMPLATES[key] = template
+    return layout
+
+
+#: one-point layouts (no grid dims, no extra attributes) by everything but the values they
+#: differ in — the fixed parameter values and the creation time (see :func:`plan_dataset`)
+_TEMPLATES: dict[tuple, xr.Dataset] = {}
+
+
+def _template_key(
+    model: Model, fixed: Mapping[str, float], filling: int, sampling: Sampling, parity_known: bool
+) -> tuple:
+    # (to_json covers the model's name, unit, operators and parameter descriptions)
+    return (type(model), model.to_json(), tuple(fixed), int(filling), sampling, parity_known)
+
+
+def _from_template(
+    template: xr.Dataset, fields: Sequence[Field], fixed: Mapping[str, float]
+) -> ResultLayout | None:
+    """A fresh layout shaped like ``template``: new empty arrays, this point's parameters."""
+    data: dict[str, NDArray] = {f.name: np.empty(f.extra_shape, f.dtype) for f in fields}
+    sources = [(data[f.name], f.source) for f in fields]
+    for name, value in fixed.items():
+        data[name] = np.asarray(float(value))
+    attrs = dict(template.attrs)
+    attrs["created"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    ds = renewed(template, data, attrs)
+    return None if ds is None else ResultLayout.around(ds, sources)
 
 
 def build_dataset(

@@ -155,3 +155,50 @@ def _shallow_copy(var: xr.Variable) -> xr.Variable:
     out._attrs = None if var._attrs is None else dict(var._attrs)
     out._encoding = None if var._encoding is None else dict(var._encoding)
     return out
+
+
+def renewed(
+    template: xr.Dataset,
+    data: Mapping[str, np.ndarray],
+    attrs: Mapping[str, Any],
+) -> xr.Dataset | None:
+    """A Dataset shaped like ``template`` with the arrays ``data`` for the variables it names.
+
+    Every other variable keeps its dimensions and values (plain arrays copied, indexes shared,
+    as ``Dataset.copy()`` shares them); every variable gets attribute and encoding dicts of
+    its own, and the Dataset gets ``attrs``. Used to make the next one-point result from the
+    previous one's layout in ~a third of the time of assembling it. None where this xarray
+    does not offer the direct constructor or slot-only Variables the copy relies on.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = assemble({"gap": ((), np.array(0.5), {"units": "eV"})}, {}, {"title": "a"})
+    >>> ds = renewed(t, {"gap": np.array(0.25)}, {"title": "b"})
+    >>> float(ds.gap), ds.gap.attrs["units"], ds.attrs["title"], float(t.gap)
+    (0.25, 'eV', 'b', 0.5)
+    """
+    direct = getattr(xr.Dataset, "_construct_direct", None)
+    # (the Dataset's own dicts, not its public read-only views: iterating those cost more than
+    # all the rest here)
+    parts = [getattr(template, a, None) for a in ("_variables", "_coord_names", "_indexes")]
+    if direct is None or not _SLOTS_ONLY or not all(isinstance(p, dict | set) for p in parts):
+        return None
+    own_variables, coord_names, indexes = parts
+    variables: dict[str, xr.Variable] = {}
+    for name, var in own_variables.items():
+        out = object.__new__(type(var))
+        out._dims = var._dims
+        new = data.get(name)
+        if new is not None:
+            if new.shape != var._data.shape:
+                raise ValueError(f"{name}: shape {new.shape}, the template has {var._data.shape}")
+            out._data = new
+        elif type(var._data) is np.ndarray:
+            out._data = var._data.copy()  # (no array shared: results may be changed in place)
+        else:
+            out._data = var._data  # an index's adapter, immutable (shared as copy() shares it)
+        out._attrs = None if var._attrs is None else dict(var._attrs)
+        out._encoding = None if var._encoding is None else dict(var._encoding)
+        variables[name] = out
+    return direct(variables, set(coord_names), dict(template.sizes), dict(attrs), dict(indexes))
