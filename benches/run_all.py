@@ -246,8 +246,8 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
                     m, f, p, threads=os.cpu_count(), **kw
                 ),
             ],
-            3 * reps,
-            min_seconds=0.07,
+            6 * reps,
+            min_seconds=0.035,
         )
         t_np, t1, tn = (min(column) for column in zip(*times, strict=True))
         gain = paired_gain(times, 1, 2)
@@ -314,8 +314,8 @@ def core_only_table(repeats: int) -> list[str]:
     for name, f in rows:
         times = round_times(
             [OnOneThread(lambda f=f: f(1)), lambda f=f: f(os.cpu_count())],
-            3 * repeats,
-            min_seconds=0.07,
+            6 * repeats,
+            min_seconds=0.035,
         )
         t1, tn = (min(column) for column in zip(*times, strict=True))
         out.append(
