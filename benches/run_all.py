@@ -321,55 +321,7 @@ def core_only_table(repeats: int) -> list[str]:
         out.append(
             f"| {name} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {paired_gain(times, 0, 1):.2f}× |"
         )
-    out.append(
-        f"| two independent one-thread processes, throughput over one alone | | | "
-        f"{machine_ceiling():.2f}× |"
-    )
     return out
-
-
-#: one process evaluating the Wilson–Dirac point on one thread for a fixed time; prints points/s
-_RATE_SCRIPT = """
-import sys, time, toposweep as ts
-from toposweep import _core
-from toposweep.sampling import Sampling
-wd = ts.models.wilson_dirac()
-core, coeffs = wd.prepare([wd.resolve({"mass": -2.0})])
-kw = Sampling(loop_points=40, lines=41, max_lines=41, gap_starts=0, certify=False).core_kwargs()
-run = lambda: _core.evaluate(core, coeffs, 2, inversion=None, threads=1, **kw)
-for _ in range(20):
-    run()
-n, t0 = 0, time.perf_counter()
-while time.perf_counter() - t0 < float(sys.argv[1]):
-    run()
-    n += 1
-print(n / (time.perf_counter() - t0))
-"""
-
-
-def machine_ceiling(seconds: float = 1.0, rounds: int = 5) -> float:
-    """Throughput of two independent one-thread processes over one alone.
-
-    What perfectly parallel work gains from the second core of this machine: the bound for
-    any threads gain below (cores that share execution units, or a busy host, keep it under 2).
-    Each round measures one process alone, then two at once, right after each other; the
-    median of the rounds' ratios is robust to the slow and fast phases of a shared host (a
-    best-of over separate rounds once gave 2.4×).
-    """
-    import subprocess
-    import sys
-
-    def rates(k: int) -> float:
-        procs = [
-            subprocess.Popen(
-                [sys.executable, "-c", _RATE_SCRIPT, str(seconds)], stdout=subprocess.PIPE
-            )
-            for _ in range(k)
-        ]
-        return sum(float(p.communicate()[0]) for p in procs)
-
-    ratios = sorted(rates(2) / rates(1) for _ in range(rounds))
-    return ratios[len(ratios) // 2]
 
 
 def core_speed_table(seconds: float) -> list[str]:
@@ -501,8 +453,8 @@ def main() -> None:
         "The Rust core alone; with the Python-side symmetry checks first; with those, then "
         "the xarray Dataset after the core (one step after the other); and the public call, "
         "which makes the checks and the Dataset's layout while the core computes (on a second "
-        "worker when there is one). The last row is the most a second core gives on this "
-        "machine: the same one-thread core loop in two processes at once, against one alone.",
+        "worker when there is one). The most the machine's second core can give is measured "
+        'below, in "What a second core gives on this machine".',
     )
     section(
         "(a) Hermitian eigensolver per matrix",
