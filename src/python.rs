@@ -305,12 +305,13 @@ fn evaluate<'py>(
             f.call0(py)?;
             detached(py, threads, points)
         }
-        // The points on the worker that takes the run, at once; the Python job (with the GIL
-        // this thread has released) is the first thing another worker steals — the oldest
-        // job in the queue — and that worker joins the points when it is done. (The other
-        // way round the points would wait for a second worker to wake up.) The job's
-        // exception wins over the core's: it says why the run was not valid in the first
-        // place.
+        // The points on the worker that takes the run (from the main thread: this thread),
+        // at once; the Python job (with the GIL this thread has released) is the first thing
+        // another worker steals — the oldest job in the queue — and that worker joins the
+        // points when it is done. (The other way round the points would wait for a second
+        // worker to wake up; and should none come first, the first worker runs the job
+        // itself after its points.) The job's exception wins over the core's: it says why the
+        // run was not valid in the first place.
         Some(f) => {
             let (run, side) = detached(py, threads, || {
                 Ok(rayon::join(points, || {

@@ -64,8 +64,8 @@ def _variables(
         if values.dtype.kind not in "biuf":
             raise ValueError("only numeric variables take the fast path")
         var = _numeric_variable(dims, values, attrs)
-        # (the Variable's own dims and shape, read without xarray's property calls)
-        for d, n in zip(var._dims, values.shape, strict=True):
+        # (the Variable's own dims, read without xarray's property call where it is slots only)
+        for d, n in zip(var._dims if _SLOTS_ONLY else var.dims, values.shape, strict=True):
             if sizes.setdefault(d, n) != n:
                 raise ValueError(f"dimension {d!r} has sizes {sizes[d]} and {n}")
         if name in coords and var.dims == (name,):
