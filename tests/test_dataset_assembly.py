@@ -166,26 +166,15 @@ def test_derived_variables_follow_their_definitions():
     written out case by case, over sweeps that cross every phase of the Wilson–Dirac and BHZ
     models, gap closings (undefined points) included. (The core's unit tests run the same
     definitions over every -1/0/1 combination.)"""
-    wd = ts.sweep(
-        ts.models.wilson_dirac(),
-        {"mass": np.linspace(-7.0, 7.0, 29)},
-        2,
-        method="both",
-        progress=False,
-        loop_points=16,
-        lines=9,
-    )
-    bhz = ts.sweep(
-        ts.models.bhz(),
-        {"mass": np.linspace(-5.0, 5.0, 21)},
-        2,
-        method="both",
-        progress=False,
-        loop_points=16,
-        lines=9,
-    )
     seen = set()
-    for ds, three_d in ((wd, True), (bhz, False)):
+    for model, masses in (
+        (ts.models.wilson_dirac(), np.linspace(-7.0, 7.0, 29)),
+        (ts.models.bhz(), np.linspace(-5.0, 5.0, 21)),
+    ):
+        ds = ts.sweep(
+            model, {"mass": masses}, 2, method="both", progress=False, loop_points=16, lines=9
+        )
+        three_d = model.dim == 3
         for i in range(ds.sizes["mass"]):
             p = ds.isel(mass=i)
             nu = tuple(p.nu.values.tolist()) if three_d else None
