@@ -171,4 +171,5 @@ def test_main_thread_is_a_worker_of_its_first_pool():
     assert two == start + 1 and two_again == two
     assert one == two + 1
     assert other == one + 1 + 2
+    # (1;000) at m = -2: Fu & Kane, Phys. Rev. B 76, 045302 (2007), as in the physics tests
     assert nu == [1, 1, 1, 1]
