@@ -382,16 +382,7 @@ mod tests {
                 );
             }
             assert_eq!(gaps.len(), npts);
-            for (a, b) in [
-                (stats.min_direct, want.min_direct),
-                (stats.top_occ, want.top_occ),
-                (stats.bottom_empty, want.bottom_empty),
-                (stats.e_min, want.e_min),
-                (stats.e_max, want.e_max),
-            ] {
-                assert!((a - b).abs() <= 1e-13, "{a} vs {b}");
-            }
-            assert_eq!(stats.min_direct_at, want.min_direct_at);
+            stats.assert_close(&want, 1e-13, "grid by lines against batch");
         }
     }
 

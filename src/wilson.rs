@@ -48,6 +48,21 @@ impl Default for BandStats {
 }
 
 impl BandStats {
+    /// Test helper: every statistic within `tol` of `want`, and the gap found at the same κ.
+    #[cfg(test)]
+    pub(crate) fn assert_close(&self, want: &BandStats, tol: f64, what: &str) {
+        for (a, b) in [
+            (self.min_direct, want.min_direct),
+            (self.top_occ, want.top_occ),
+            (self.bottom_empty, want.bottom_empty),
+            (self.e_min, want.e_min),
+            (self.e_max, want.e_max),
+        ] {
+            assert!((a - b).abs() <= tol, "{what}: {a} vs {b}");
+        }
+        assert_eq!(self.min_direct_at, want.min_direct_at, "{what}");
+    }
+
     pub fn add(&mut self, e: &[f64], filling: usize, kappa: &[f64]) {
         let gap = e[filling] - e[filling - 1];
         if gap < self.min_direct {
@@ -618,17 +633,8 @@ mod tests {
                 for (a, b) in quad.centres.iter().zip(&single.centres) {
                     assert!(crate::flow::circ_dist(*a, *b) <= 1e-12, "n={n}: {a} vs {b}");
                 }
-                let (p, q) = (quad.stats, single.stats);
-                for (a, b) in [
-                    (p.min_direct, q.min_direct),
-                    (p.top_occ, q.top_occ),
-                    (p.bottom_empty, q.bottom_empty),
-                    (p.e_min, q.e_min),
-                    (p.e_max, q.e_max),
-                ] {
-                    assert!((a - b).abs() <= 1e-12, "n={n}: {a} vs {b}");
-                }
-                assert_eq!(p.min_direct_at, q.min_direct_at);
+                quad.stats
+                    .assert_close(&single.stats, 1e-12, &format!("n={n}"));
                 assert!((quad.min_singular - single.min_singular).abs() <= 1e-12);
             }
             let kappa: Vec<f64> = (0..5).flat_map(|s| [0.1 * s as f64, 0.3, 0.77]).collect();
