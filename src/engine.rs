@@ -186,8 +186,8 @@ pub fn evaluate_point(
     };
     // TRIMs (gaps, parity), a uniform bulk grid (3D) and the initial pump lines: independent,
     // so one parallel phase — rayon::join lets a worker that runs out of one steal from the
-    // others, where three phases in a row would each end with a worker waiting. Every sampled
-    // κ point is a candidate start for the gap search.
+    // others, where three phases in a row would each end with a worker waiting. When the gap
+    // search runs, every sampled κ point is a candidate start for it.
     let trim_k: Vec<f64> = trims(dim).iter().flat_map(|k| k[..dim].to_vec()).collect();
     let bulk_k = bulk_grid(dim, s.gap_points);
     let pl = planes(dim);
@@ -212,22 +212,24 @@ pub fn evaluate_point(
     let (trim_stats, trim_e, trim_v) = trim_res?;
     let mut stats = trim_stats;
     let trim_gap: Vec<f64> = trim_e.iter().map(|e| e[filling] - e[filling - 1]).collect();
-    let mut cand: Vec<(f64, [f64; 3])> = trims(dim)
-        .into_iter()
-        .zip(&trim_gap)
-        .map(|(k, &g)| (g, k))
-        .collect();
+    // (candidates are collected only for a search that will use them)
+    let mut cand: Vec<(f64, [f64; 3])> = Vec::new();
+    if s.gap_starts > 0 {
+        cand.extend(trims(dim).into_iter().zip(&trim_gap).map(|(k, &g)| (g, k)));
+    }
     // (merged in the order the points were sampled: the same statistics as adding them in turn)
     let (bulk_gap, bulk_stats) = bulk_res?;
     stats.merge(&bulk_stats);
-    for (g, k) in bulk_gap.iter().zip(bulk_k.chunks_exact(dim)) {
-        let mut at = [0.0; 3];
-        at[..dim].copy_from_slice(k);
-        cand.push((*g, at));
+    if s.gap_starts > 0 {
+        for (g, k) in bulk_gap.iter().zip(bulk_k.chunks_exact(dim)) {
+            let mut at = [0.0; 3];
+            at[..dim].copy_from_slice(k);
+            cand.push((*g, at));
+        }
     }
     let mut lines = lines_res?;
     if want_wilson {
-        line_stats(&lines, &mut stats, &mut cand);
+        line_stats(&lines, &mut stats, (s.gap_starts > 0).then_some(&mut cand));
     }
     let mut lat = match u_t {
         Some(u) => {
@@ -269,9 +271,9 @@ pub fn evaluate_point(
     let gapped = stats.min_direct >= floor_of(&stats);
     if gapped && want_wilson {
         refine_lines(src, &pl, &mut lines, filling, s, s.loop_points)?;
-        line_stats(&lines, &mut stats, &mut Vec::new());
+        line_stats(&lines, &mut stats, None);
     }
-    let mut plane_res = summarise(lines, s);
+    let mut plane_res = summarise(&lines, s);
     if gapped && want_wilson && s.certify {
         certify(src, &pl, &mut plane_res, filling, s, &mut stats)?;
     }

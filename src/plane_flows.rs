@@ -9,7 +9,7 @@
 use crate::bloch::BlochSource;
 use crate::engine::Sampling;
 use crate::error::CoreResult;
-use crate::flow::{inspect, z2_of_flow};
+use crate::flow::{inspect, z2_of_flow, Interval};
 use crate::lattice_z2::LatticePlane;
 use crate::wilson::{evaluate_lines, BandStats, LineResult, LineSpec};
 use rayon::prelude::*;
@@ -28,9 +28,6 @@ pub struct PlaneResult {
     pub lines_used: usize,
     pub max_step: f64,
     pub min_clearance: f64,
-    /// pump coordinates and centres of every line (kept for flow plots)
-    pub pump: Vec<f64>,
-    pub centres: Vec<Vec<f64>>,
 }
 
 /// A time-reversal-invariant plane: base point, loop axis and pump axis.
@@ -83,14 +80,74 @@ pub fn planes(dim: usize) -> Vec<Plane> {
     }
 }
 
-/// The pump lines of one plane computed so far, in ascending pump coordinate.
+/// The pump lines of one plane computed so far, in ascending pump coordinate, with the
+/// refinement test of every neighbouring pair and, once no pair needs a line between them, the
+/// plane's Z2.
+///
+/// The centres are kept in one flat array (`width` per line): the plane's lines are examined in
+/// the same parallel task that computed them, and the per-line allocations are freed there,
+/// not serially after the parallel phase.
 #[derive(Clone, Debug, Default)]
 pub struct PlaneLines {
     pump: Vec<f64>,
-    lines: Vec<LineResult>,
+    centres: Vec<f64>,
+    width: usize,
+    line_stats: Vec<BandStats>,
+    /// all lines' statistics merged in pump order
+    stats: BandStats,
+    /// `inspect` of lines (m, m + 1), for every m
+    checks: Vec<Interval>,
+    /// Z2 of the flow when no check asks for refinement
+    z2: Option<u8>,
 }
 
-/// The initial, evenly spaced pump lines of several planes, as one batch for the source.
+impl PlaneLines {
+    fn new(pump: Vec<f64>, lines: Vec<LineResult>, width: usize, step_limit: f64) -> Self {
+        let mut pl = PlaneLines {
+            pump,
+            centres: Vec::with_capacity(lines.len() * width),
+            width,
+            line_stats: Vec::with_capacity(lines.len()),
+            ..Default::default()
+        };
+        for l in lines {
+            pl.centres.extend_from_slice(&l.centres);
+            pl.stats.merge(&l.stats);
+            pl.line_stats.push(l.stats);
+        }
+        pl.examine(step_limit);
+        pl
+    }
+
+    fn line(&self, m: usize) -> &[f64] {
+        &self.centres[m * self.width..(m + 1) * self.width]
+    }
+
+    /// Insert a line at pump coordinate `t` (the checks are stale until [`Self::examine`]).
+    fn insert(&mut self, t: f64, l: LineResult) {
+        let at = self.pump.partition_point(|&x| x < t);
+        self.pump.insert(at, t);
+        let w = self.width;
+        self.centres.splice(at * w..at * w, l.centres);
+        self.stats.merge(&l.stats);
+        self.line_stats.insert(at, l.stats);
+    }
+
+    /// The refinement test of every neighbouring pair, and the Z2 when none needs a line.
+    fn examine(&mut self, step_limit: f64) {
+        let count = self.pump.len();
+        self.checks = (0..count.saturating_sub(1))
+            .map(|m| inspect(self.line(m), self.line(m + 1), step_limit))
+            .collect();
+        self.z2 = self.checks.iter().all(|c| !c.refine).then(|| {
+            let refs: Vec<&[f64]> = (0..count).map(|m| self.line(m)).collect();
+            z2_of_flow(&refs)
+        });
+    }
+}
+
+/// The initial, evenly spaced pump lines of several planes, each plane examined as soon as its
+/// lines are done.
 pub fn initial_lines(
     src: &dyn BlochSource,
     planes: &[Plane],
@@ -101,18 +158,31 @@ pub fn initial_lines(
     let t0: Vec<f64> = (0..s.lines)
         .map(|m| 0.5 * m as f64 / (s.lines - 1) as f64)
         .collect();
-    let specs: Vec<LineSpec> = planes
-        .iter()
-        .flat_map(|p| t0.iter().map(move |&t| p.line(t)))
-        .collect();
-    let mut res = evaluate_lines(src, &specs, loop_points, filling, None)?.into_iter();
-    Ok(planes
-        .iter()
-        .map(|_| PlaneLines {
-            pump: t0.clone(),
-            lines: res.by_ref().take(s.lines).collect(),
+    let specs_of = |p: &Plane| -> Vec<LineSpec> { t0.iter().map(|&t| p.line(t)).collect() };
+    if src.prefers_batches() {
+        // one batch of every plane's lines (a source that prefers batches, such as a Python
+        // callback, is asked once), then the planes' checks
+        let specs: Vec<LineSpec> = planes.iter().flat_map(specs_of).collect();
+        let mut res = evaluate_lines(src, &specs, loop_points, filling, None)?.into_iter();
+        let per_plane: Vec<Vec<LineResult>> = planes
+            .iter()
+            .map(|_| res.by_ref().take(s.lines).collect())
+            .collect();
+        return Ok(per_plane
+            .into_par_iter()
+            .map(|lines| PlaneLines::new(t0.clone(), lines, filling, s.step_limit))
+            .collect());
+    }
+    // A plane's lines and its checks as one task (the lines themselves are split further):
+    // a plane is examined while other planes' lines are still being computed, instead of in
+    // a serial stretch after the last line.
+    planes
+        .par_iter()
+        .map(|p| {
+            let lines = evaluate_lines(src, &specs_of(p), loop_points, filling, None)?;
+            Ok(PlaneLines::new(t0.clone(), lines, filling, s.step_limit))
         })
-        .collect())
+        .collect()
 }
 
 /// Adaptive insertion of pump lines (all planes in one batch per round) until every
@@ -128,17 +198,14 @@ pub fn refine_lines(
     loop {
         let mut wanted: Vec<(usize, f64)> = Vec::new();
         for (p, pl) in all.iter().enumerate() {
-            let (ts, ls) = (&pl.pump, &pl.lines);
-            let budget = s.max_lines.saturating_sub(ts.len());
-            if budget == 0 {
-                continue; // (no line may be added: skip inspecting the flow for it)
+            let budget = s.max_lines.saturating_sub(pl.pump.len());
+            if budget == 0 || pl.z2.is_some() {
+                continue; // no line may be added, or none is needed
             }
+            let ts = &pl.pump;
             let mut new: Vec<(f64, f64)> = (0..ts.len() - 1)
-                .filter(|&m| ts[m + 1] - ts[m] > MIN_INTERVAL)
-                .filter_map(|m| {
-                    let iv = inspect(&ls[m].centres, &ls[m + 1].centres, s.step_limit);
-                    iv.refine.then_some((iv.step, 0.5 * (ts[m] + ts[m + 1])))
-                })
+                .filter(|&m| ts[m + 1] - ts[m] > MIN_INTERVAL && pl.checks[m].refine)
+                .map(|m| (pl.checks[m].step, 0.5 * (ts[m] + ts[m + 1])))
                 .collect();
             // largest motion first when the budget cannot take them all
             new.sort_by(|a, b| b.0.total_cmp(&a.0));
@@ -149,59 +216,50 @@ pub fn refine_lines(
         }
         let specs: Vec<LineSpec> = wanted.iter().map(|&(p, t)| planes[p].line(t)).collect();
         let got = evaluate_lines(src, &specs, loop_points, filling, None)?;
+        let mut grown = vec![false; all.len()];
         for ((p, t), r) in wanted.into_iter().zip(got) {
-            let at = all[p].pump.partition_point(|&x| x < t);
-            all[p].pump.insert(at, t);
-            all[p].lines.insert(at, r);
+            all[p].insert(t, r);
+            grown[p] = true;
         }
+        all.par_iter_mut()
+            .zip(grown)
+            .filter(|(_, g)| *g)
+            .for_each(|(pl, _)| pl.examine(s.step_limit));
     }
 }
 
-/// Z2 and flow diagnostics of each plane from its lines.
-pub fn summarise(all: Vec<PlaneLines>, s: &Sampling) -> Vec<PlaneResult> {
-    // one rayon task per plane: otherwise the one serial stretch between the parallel phases
-    all.into_par_iter()
-        .map(
-            |PlaneLines {
-                 pump: ts,
-                 lines: ls,
-             }| {
-                let mut converged = true;
-                let (mut max_step, mut min_clear) = (0.0f64, f64::INFINITY);
-                for m in 0..ls.len() - 1 {
-                    let iv = inspect(&ls[m].centres, &ls[m + 1].centres, s.step_limit);
-                    converged &= !iv.refine;
-                    max_step = max_step.max(iv.step);
-                    min_clear = min_clear.min(iv.clearance);
-                }
-                let centres: Vec<Vec<f64>> = ls.into_iter().map(|l| l.centres).collect();
-                let refs: Vec<&[f64]> = centres.iter().map(|c| c.as_slice()).collect();
-                let z2 = if converged {
-                    z2_of_flow(&refs) as i8
-                } else {
-                    -1
-                };
-                PlaneResult {
-                    z2,
-                    converged,
-                    loop_points: s.loop_points,
-                    changed: false,
-                    lines_used: ts.len(),
-                    max_step,
-                    min_clearance: min_clear,
-                    pump: ts,
-                    centres,
-                }
-            },
-        )
+/// Z2 and flow diagnostics of each plane from its examined lines.
+pub fn summarise(all: &[PlaneLines], s: &Sampling) -> Vec<PlaneResult> {
+    all.iter()
+        .map(|pl| PlaneResult {
+            z2: pl.z2.map_or(-1, |z| z as i8),
+            converged: pl.z2.is_some(),
+            loop_points: s.loop_points,
+            changed: false,
+            lines_used: pl.pump.len(),
+            max_step: pl.checks.iter().map(|c| c.step).fold(0.0, f64::max),
+            min_clearance: pl
+                .checks
+                .iter()
+                .map(|c| c.clearance)
+                .fold(f64::INFINITY, f64::min),
+        })
         .collect()
 }
 
-/// Band statistics of every line, and each line's own smallest gap (gap-search candidates).
-pub fn line_stats(all: &[PlaneLines], stats: &mut BandStats, cand: &mut Vec<(f64, [f64; 3])>) {
-    for l in all.iter().flat_map(|p| &p.lines) {
-        stats.merge(&l.stats);
-        cand.push((l.stats.min_direct, l.stats.min_direct_at));
+/// Band statistics of all lines (merged per plane, in pump order), and, when `cand` is given,
+/// each line's own smallest gap (gap-search candidates).
+pub fn line_stats(
+    all: &[PlaneLines],
+    stats: &mut BandStats,
+    cand: Option<&mut Vec<(f64, [f64; 3])>>,
+) {
+    for pl in all {
+        stats.merge(&pl.stats);
+    }
+    if let Some(cand) = cand {
+        let every = all.iter().flat_map(|pl| &pl.line_stats);
+        cand.extend(every.map(|l| (l.min_direct, l.min_direct_at)));
     }
 }
 
@@ -231,8 +289,8 @@ pub fn certify(
     let fine = 2 * s.loop_points;
     let mut lines = initial_lines(src, &sub, filling, s, fine)?;
     refine_lines(src, &sub, &mut lines, filling, s, fine)?;
-    line_stats(&lines, stats, &mut Vec::new());
-    for (&i, mut again) in tight.iter().zip(summarise(lines, s)) {
+    line_stats(&lines, stats, None);
+    for (&i, mut again) in tight.iter().zip(summarise(&lines, s)) {
         again.loop_points = fine;
         if again.z2 != res[i].z2 {
             again.z2 = -1;
@@ -286,9 +344,108 @@ mod tests {
             lines_used: 5,
             max_step: step,
             min_clearance: clearance,
-            pump: Vec::new(),
-            centres: Vec::new(),
         }
+    }
+
+    /// A line of two centres (a Kramers-like pair at ±x around 0.3) and made-up statistics.
+    fn line_at(t: f64) -> LineResult {
+        let x = 0.45 * (2.0 * std::f64::consts::PI * t).sin().abs();
+        let mut centres = vec![(0.3 + x).rem_euclid(1.0), (0.3 - x).rem_euclid(1.0)];
+        centres.sort_by(|a, b| a.total_cmp(b));
+        let mut stats = BandStats::default();
+        let e = 1.0 + (7.0 * t).cos();
+        stats.min_direct = e;
+        stats.min_direct_at = [t, 0.5, 0.0];
+        stats.top_occ = -e;
+        stats.bottom_empty = e;
+        stats.e_min = -3.0 - t;
+        stats.e_max = 3.0 + t;
+        LineResult {
+            centres,
+            stats,
+            min_singular: 1.0,
+        }
+    }
+
+    /// Lines inserted one by one end as a plane built at once from all of them: the same flat
+    /// centres, statistics, checks and Z2 (the checks and Z2 recomputed by `examine`).
+    #[test]
+    fn inserted_lines_equal_a_plane_built_at_once() {
+        let step_limit = 0.08;
+        let coarse: Vec<f64> = (0..5).map(|m| 0.125 * m as f64).collect();
+        let extra = [0.3125, 0.0625, 0.4375, 0.1875];
+        let mut grown = PlaneLines::new(
+            coarse.clone(),
+            coarse.iter().map(|&t| line_at(t)).collect(),
+            2,
+            step_limit,
+        );
+        for &t in &extra {
+            grown.insert(t, line_at(t));
+        }
+        grown.examine(step_limit);
+        let mut all: Vec<f64> = coarse.iter().chain(&extra).copied().collect();
+        all.sort_by(|a, b| a.total_cmp(b));
+        let at_once = PlaneLines::new(
+            all.clone(),
+            all.iter().map(|&t| line_at(t)).collect(),
+            2,
+            step_limit,
+        );
+        assert_eq!(grown.pump, at_once.pump);
+        assert_eq!(grown.centres, at_once.centres);
+        assert_eq!(grown.line_stats, at_once.line_stats);
+        assert_eq!(grown.checks, at_once.checks);
+        assert_eq!(grown.z2, at_once.z2);
+        grown
+            .stats
+            .assert_close(&at_once.stats, 0.0, "merged statistics");
+        // the checks are those of `inspect` on neighbouring lines, and the merged statistics
+        // those of merging every line in turn
+        let mut seq = BandStats::default();
+        for (m, &t) in all.iter().enumerate() {
+            seq.merge(&line_at(t).stats);
+            if m + 1 < all.len() {
+                let want = inspect(
+                    &line_at(t).centres,
+                    &line_at(all[m + 1]).centres,
+                    step_limit,
+                );
+                assert_eq!(grown.checks[m], want, "interval {m}");
+            }
+        }
+        grown.stats.assert_close(&seq, 0.0, "sequential merge");
+    }
+
+    /// `summarise` reads the checks: converged exactly when no interval asks for a line, with the
+    /// largest step and smallest clearance of all intervals.
+    #[test]
+    fn summary_follows_the_checks() {
+        let s = sampling();
+        let coarse: Vec<f64> = (0..3).map(|m| 0.25 * m as f64).collect();
+        let fine: Vec<f64> = (0..41).map(|m| 0.0125 * m as f64).collect();
+        let mut seen = Vec::new();
+        for pump in [coarse, fine] {
+            let pl = PlaneLines::new(
+                pump.clone(),
+                pump.iter().map(|&t| line_at(t)).collect(),
+                2,
+                s.step_limit,
+            );
+            let r = &summarise(std::slice::from_ref(&pl), &s)[0];
+            let refine = pl.checks.iter().any(|c| c.refine);
+            assert_eq!(r.converged, !refine);
+            assert_eq!(r.z2 < 0, refine);
+            assert_eq!(r.lines_used, pump.len());
+            let step = pl.checks.iter().map(|c| c.step).fold(0.0, f64::max);
+            assert_eq!(r.max_step, step);
+            seen.push(refine);
+        }
+        assert_eq!(
+            seen,
+            [true, false],
+            "one unresolved and one converged plane"
+        );
     }
 
     #[test]
