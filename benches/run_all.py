@@ -29,15 +29,11 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
 
 import argparse  # noqa: E402
 import platform  # noqa: E402
-import queue  # noqa: E402
 import subprocess  # noqa: E402
 import sys  # noqa: E402
-import threading  # noqa: E402
 import time  # noqa: E402
-from collections.abc import Callable  # noqa: E402
 from datetime import datetime, timezone  # noqa: E402
 from pathlib import Path  # noqa: E402
-from typing import TypeVar  # noqa: E402
 
 import numpy as np  # noqa: E402
 import toposweep as ts  # noqa: E402
@@ -51,108 +47,15 @@ from baseline_models import (  # noqa: E402
     stacked_wilson_dirac,
     wilson_dirac_without_inversion,
 )
+from fork_join_gain import table as fork_join_table  # noqa: E402
 from numpy_baseline import compare, invariants_numpy  # noqa: E402
-
-T = TypeVar("T")
+from timing import ONE_THREAD, OnOneThread, best_time, paired_gain, round_times  # noqa: E402
 
 #: the fixed sampling of issues 2 and 4
 FIXED = {"loop_points": 40, "lines": 41}
 #: engine options that would sample more κ than the baseline: gap minimiser and convergence
 #: certificate (finer loops) off, as in numpy_baseline.compare
 ENGINE_FIXED = {"gap_starts": 0, "certify": False}
-
-
-class CallerThread:
-    """A thread of its own that makes calls for the main thread and returns their results.
-
-    A thread works in the pool of the first thread count it asks for and hands calls of other
-    counts to shared pools (DEVELOPERS.md, "Threads"), as an application that uses one count
-    per thread never notices. So every one-thread call of the benchmarks is made from this
-    thread, and the main thread makes the calls with all cores: each count is timed as its
-    users meet it.
-    """
-
-    def __init__(self) -> None:
-        self._jobs: queue.Queue = queue.Queue()
-        self._results: queue.Queue = queue.Queue()
-        threading.Thread(target=self._serve, name="one-thread calls", daemon=True).start()
-
-    def _serve(self) -> None:
-        while True:
-            job = self._jobs.get()
-            try:
-                self._results.put((True, job()))
-            except BaseException as e:  # raised again on the main thread
-                self._results.put((False, e))
-
-    def run(self, job: Callable[[], T]) -> T:
-        """``job()`` on this thread; its result (or its exception, raised here)."""
-        self._jobs.put(job)
-        ok, value = self._results.get()
-        if not ok:
-            raise value
-        return value
-
-
-#: makes every ``threads=1`` call of the benchmarks (see :class:`CallerThread`)
-ONE_THREAD = CallerThread()
-
-
-class OnOneThread:
-    """A function whose timing loops :func:`best_times` runs on :data:`ONE_THREAD`."""
-
-    def __init__(self, f: Callable[[], object]) -> None:
-        self.f = f
-
-    def __call__(self) -> object:
-        return ONE_THREAD.run(self.f)
-
-
-def best_time(f: Callable[[], object], repeats: int, min_seconds: float = 0.2) -> float:
-    """Best wall time of one call over `repeats` rounds (each round long enough to time)."""
-    return best_times([f], repeats, min_seconds)[0]
-
-
-def best_times(fs: list[Callable[[], object]], repeats: int, min_seconds: float = 0.2) -> list:
-    """Like :func:`best_time` for several functions, interleaved round by round, so that every
-    function sees the same changes of machine load (ratios stay fair on a shared machine).
-    The rounds of an :class:`OnOneThread` function run on :data:`ONE_THREAD`."""
-    return [min(column) for column in zip(*round_times(fs, repeats, min_seconds), strict=True)]
-
-
-def round_times(
-    fs: list[Callable[[], object]], rounds: int, min_seconds: float = 0.2
-) -> list[list[float]]:
-    """Time per call of each function in each round (``[round][function]``), interleaved."""
-
-    def round_of(f: Callable[[], object]) -> float:
-        n, t0 = 0, time.perf_counter()
-        while True:
-            f()
-            n += 1
-            dt = time.perf_counter() - t0
-            if dt >= min_seconds or n >= 1000:
-                return dt / n
-
-    def timed(f: Callable[[], object]) -> float:
-        if isinstance(f, OnOneThread):
-            return ONE_THREAD.run(lambda: round_of(f.f))
-        return round_of(f)
-
-    for f in fs:
-        f()
-    return [[timed(f) for f in fs] for _ in range(rounds)]
-
-
-def paired_gain(times: list[list[float]], one: int, many: int) -> float:
-    """Threads gain: the median over rounds of (one-thread time) / (all-core time).
-
-    Each round times both right after each other. On this VM the two virtual cores change
-    speed independently, for seconds at a time (one ran a third slower than the other for
-    12 s while both were busy); a ratio of best times would set the fastest moment of one
-    core against the fastest moment of both at once, which is rarer.
-    """
-    return float(np.median([r[one] / r[many] for r in times]))
 
 
 def load() -> str:
@@ -482,6 +385,16 @@ def main() -> None:
         "of the table above on one thread and counting the calls it finishes per half second "
         "(`benches/core_speeds.py` prints every half second). A threads gain of one call "
         "cannot exceed the sum of its cores' speeds over the fastest one's at that moment.",
+    )
+    section(
+        "A call with nothing serial in it, beside the point",
+        fork_join_table(10 if args.quick else 40),
+        "Two processes never wait for each other; one call waits at its end for its last task, "
+        "and on a virtual machine for a worker whose virtual CPU the host has paused. "
+        "`_core.fork_join_probe` is a call of equal tasks of pure arithmetic through the same "
+        "pools, as long on one thread as the point: its threads gain is what this machine "
+        "gives any call of that length. Rounds of the four calls are interleaved "
+        "(`benches/fork_join_gain.py`).",
     )
     section("(c) Sweep throughput", sweep_table(args.quick))
     section(
