@@ -1,17 +1,20 @@
-"""Speed of each core of this machine over time, all cores busy at once.
+"""Speed of each core of this machine over time: the first core alone, then all cores at once.
 
 One process per core, pinned to it, evaluates the Wilson–Dirac point of ``make bench`` on one
-thread in a loop and counts the calls it finishes in every half second; all start together.
-On a quiet machine every column stays flat and all columns agree. On a shared virtual machine
-they need not: each virtual core's speed changes with what the host runs beside it, and a
-threads gain of one call is bounded by the sum of its cores' speeds over the fastest one.
+thread in a loop and counts the calls it finishes in every half second. The first core works in
+every half second; the others only in every other one, so windows where the first core runs
+alone alternate with windows where all cores run. A threads gain of one call is at most the sum
+of the cores' speeds while all work over the speed of one core working alone (the one-thread
+call has the machine to itself). On a quiet machine that is the number of cores. On a shared
+virtual machine it need not be: each virtual core's speed changes with what the host runs
+beside it, and a core may run slower while the others work too.
 
 Usage::
 
     .venv/bin/python benches/core_speeds.py [--seconds 15]
 
-Prints a markdown table: calls per second of each core in each half second, and the sum of
-the cores over the fastest one.
+Prints a markdown table: calls per second of each core in each half second, and, for each
+window of all cores after a window of the first alone, the sum of all over the one alone.
 """
 
 from __future__ import annotations
@@ -22,7 +25,10 @@ import subprocess
 import sys
 import time
 
+import numpy as np
+
 #: one pinned process: waits for the common start time, then prints calls/s per window
+#: (0 where it sat out); windows are fixed in wall time so that all processes agree on them
 _WORKER = """
 import os, sys, time
 os.sched_setaffinity(0, {int(sys.argv[1])})
@@ -35,51 +41,75 @@ kw = Sampling(loop_points=40, lines=41, max_lines=41, gap_starts=0, certify=Fals
 run = lambda: _core.evaluate(core, coeffs, 2, inversion=None, threads=1, **kw)
 for _ in range(50):
     run()
-start, windows = float(sys.argv[2]), int(sys.argv[3])
+start, windows, always = float(sys.argv[2]), int(sys.argv[3]), sys.argv[4] == "always"
 while time.time() < start:
     pass
 rates = []
-for _ in range(windows):
-    n, t0 = 0, time.perf_counter()
-    while time.perf_counter() - t0 < 0.5:
+for w in range(windows):
+    end = start + 0.5 * (w + 1)
+    if not always and w % 2 == 0:
+        time.sleep(max(0.0, end - time.time()))
+        rates.append(0.0)
+        continue
+    n, t0 = 0, time.time()
+    while time.time() < end:
         run()
         n += 1
-    rates.append(n / (time.perf_counter() - t0))
+    rates.append(n / (time.time() - t0))
 print(*(f"{r:.0f}" for r in rates))
 """
 
 
 def measure(seconds: float) -> tuple[list[int], list[list[float]]]:
-    """The cores used and, per core, its calls/s in each half second (all busy at once)."""
+    """The cores used and, per core, its calls/s in each half second (0: it sat out)."""
     cores = sorted(os.sched_getaffinity(0))
-    windows = max(1, int(seconds / 0.5))
+    windows = 2 * max(1, int(seconds))
     start = time.time() + 3.0  # (time for every process to import and warm up)
     procs = [
         subprocess.Popen(
-            [sys.executable, "-c", _WORKER, str(c), str(start), str(windows)],
+            [
+                sys.executable,
+                "-c",
+                _WORKER,
+                str(c),
+                str(start),
+                str(windows),
+                "always" if i == 0 else "alternate",
+            ],
             stdout=subprocess.PIPE,
             text=True,
         )
-        for c in cores
+        for i, c in enumerate(cores)
     ]
     return cores, [list(map(float, p.communicate()[0].split())) for p in procs]
 
 
 def ceilings(rates: list[list[float]]) -> list[float]:
-    """Per half second: the sum of the cores' speeds over the fastest core's."""
-    return [sum(row) / max(row) for row in zip(*rates, strict=True)]
+    """For each window of all cores: their summed speed over the first core's speed alone in
+    the window before it."""
+    rows = list(zip(*rates, strict=True))
+    return [sum(rows[w]) / rows[w - 1][0] for w in range(1, len(rows), 2)]
+
+
+def speeds(rates: list[list[float]]) -> tuple[float, list[float]]:
+    """Median calls/s of the first core alone, and of every core while all work."""
+    alone = float(np.median(rates[0][0::2]))
+    return alone, [float(np.median(r[1::2])) for r in rates]
 
 
 def table(cores: list[int], rates: list[list[float]]) -> list[str]:
-    """Markdown rows: each core's calls/s per half second, and sum over fastest."""
+    """Markdown rows: each core's calls/s per half second, and the ceiling per pair."""
     out = [
         "| half second | "
         + " | ".join(f"core {c} (calls/s)" for c in cores)
-        + " | sum / fastest |",
+        + " | all over one alone |",
         "|---:|" + "---:|" * len(cores) + "---:|",
     ]
-    for w, (row, c) in enumerate(zip(zip(*rates, strict=True), ceilings(rates), strict=True)):
-        out.append(f"| {w + 1} | " + " | ".join(f"{x:.0f}" for x in row) + f" | {c:.2f} |")
+    rows = list(zip(*rates, strict=True))
+    c = ceilings(rates)
+    for w, row in enumerate(rows):
+        tail = f"{c[w // 2]:.2f}" if w % 2 else ""
+        out.append(f"| {w + 1} | " + " | ".join(f"{x:.0f}" for x in row) + f" | {tail} |")
     return out
 
 
@@ -90,7 +120,7 @@ def main() -> None:
     cores, rates = measure(args.seconds)
     print("\n".join(table(cores, rates)))
     c = sorted(ceilings(rates))
-    print(f"\nsum / fastest: median {c[len(c) // 2]:.2f}, range {c[0]:.2f}-{c[-1]:.2f}")
+    print(f"\nall over one alone: median {c[len(c) // 2]:.2f}, range {c[0]:.2f}-{c[-1]:.2f}")
 
 
 if __name__ == "__main__":

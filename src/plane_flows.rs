@@ -111,6 +111,7 @@ impl PlaneLines {
             ..Default::default()
         };
         for l in lines {
+            debug_assert_eq!(l.centres.len(), width, "one centre per occupied band");
             pl.centres.extend_from_slice(&l.centres);
             pl.stats.merge(&l.stats);
             pl.line_stats.push(l.stats);
@@ -128,6 +129,7 @@ impl PlaneLines {
         let at = self.pump.partition_point(|&x| x < t);
         self.pump.insert(at, t);
         let w = self.width;
+        debug_assert_eq!(l.centres.len(), w, "one centre per occupied band");
         self.centres.splice(at * w..at * w, l.centres);
         self.stats.merge(&l.stats);
         self.line_stats.insert(at, l.stats);
