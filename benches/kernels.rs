@@ -20,6 +20,7 @@ use toposweep::eigen::{
 };
 use toposweep::engine::{evaluate_point, Method, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
+use toposweep::probe::divisible_work;
 use toposweep::wilson::{wilson_line_with, Kernels};
 use toposweep::C64;
 
@@ -494,6 +495,7 @@ fn main() {
         if std::env::var_os("KERNEL_BENCH_SKIP_GENERIC").is_none() {
             run(&wdg, "same + 0.1 σx⊗1 (generic 4×4 away from the TRIMs)");
         }
+        paired_with_probe(&wd, &s, &pools, if quick { 4 } else { 30 }, inner(20));
     }
 
     if want("dense") {
@@ -504,6 +506,54 @@ fn main() {
     if want("simd") {
         simd_state_table(&wd, &mut rng, reps);
     }
+}
+
+/// The point's threads gain beside that of a call with nothing serial in it
+/// (`probe::divisible_work`: 246 equal tasks of arithmetic, as long on one thread as the
+/// point), in paired rounds — one thread, then two, `calls` calls each — through the same
+/// pools: the share of what this machine gives a fork–join call that the core gets, without
+/// Python.
+fn paired_with_probe(
+    model: &toposweep::bloch::Bloch,
+    s: &Sampling,
+    pools: &[rayon::ThreadPool],
+    rounds: usize,
+    calls: usize,
+) {
+    let point = || {
+        black_box(evaluate_point(model, 2, None, None, s).unwrap());
+    };
+    let t_point = pools[0].install(|| time_ns(3, calls, |_| point()));
+    let t_unit = pools[0].install(|| {
+        time_ns(3, calls, |_| {
+            black_box(divisible_work(246, 1000));
+        })
+    });
+    let iterations = ((1000.0 * t_point / t_unit).round() as u64).max(1);
+    let probe = || {
+        black_box(divisible_work(246, iterations));
+    };
+    let works: [&(dyn Fn() + Sync); 2] = [&point, &probe];
+    let mut gains = [Vec::new(), Vec::new()];
+    for _ in 0..rounds {
+        for (g, f) in gains.iter_mut().zip(works) {
+            let t1 = pools[0].install(|| time_ns(1, calls, |_| f()));
+            let t2 = pools[1].install(|| time_ns(1, calls, |_| f()));
+            g.push(t1 / t2);
+        }
+    }
+    let median = |v: &mut Vec<f64>| {
+        v.sort_by(|a, b| a.total_cmp(b));
+        v[v.len() / 2]
+    };
+    let [mut gp, mut gq] = gains;
+    println!(
+        "Paired rounds (one thread, then two; {calls} calls each; median of {rounds}): \
+         Wilson–Dirac point {:.2}×, 246 equal tasks of pure arithmetic as long on one thread \
+         (`probe::divisible_work`) {:.2}×\n",
+        median(&mut gp),
+        median(&mut gq)
+    );
 }
 
 /// A Wilson–Dirac point on one thread: fresh, right after a 64×64 eigensolve by faer itself

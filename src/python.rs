@@ -526,7 +526,7 @@ fn eigh<'py>(
     Ok((e.into_pyarray(py), v.into_pyarray(py)))
 }
 
-/// Benchmark probe: `tasks` equal chains of `iterations` integer steps over the pool, nothing
+/// Benchmark probe: `tasks` equal chains of `iterations` multiply–adds over the pool, nothing
 /// serial (see [`crate::probe`]); returns their checksum.
 #[pyfunction]
 #[pyo3(signature = (tasks, iterations, *, threads=None))]
