@@ -213,14 +213,15 @@ pub fn evaluate_point(
     let mut stats = trim_stats;
     let trim_gap: Vec<f64> = trim_e.iter().map(|e| e[filling] - e[filling - 1]).collect();
     // (candidates are collected only for a search that will use them)
+    let searching = s.gap_starts > 0;
     let mut cand: Vec<(f64, [f64; 3])> = Vec::new();
-    if s.gap_starts > 0 {
+    if searching {
         cand.extend(trims(dim).into_iter().zip(&trim_gap).map(|(k, &g)| (g, k)));
     }
     // (merged in the order the points were sampled: the same statistics as adding them in turn)
     let (bulk_gap, bulk_stats) = bulk_res?;
     stats.merge(&bulk_stats);
-    if s.gap_starts > 0 {
+    if searching {
         for (g, k) in bulk_gap.iter().zip(bulk_k.chunks_exact(dim)) {
             let mut at = [0.0; 3];
             at[..dim].copy_from_slice(k);
@@ -229,7 +230,7 @@ pub fn evaluate_point(
     }
     let mut lines = lines_res?;
     if want_wilson {
-        line_stats(&lines, &mut stats, (s.gap_starts > 0).then_some(&mut cand));
+        line_stats(&lines, &mut stats, searching.then_some(&mut cand));
     }
     let mut lat = match u_t {
         Some(u) => {
@@ -256,7 +257,7 @@ pub fn evaluate_point(
     };
     // True gap minimum: follow the smallest sampled gaps down to the model's local minima.
     let mut search_evaluations = 0;
-    if s.gap_starts > 0 && stats.min_direct >= floor_of(&stats) {
+    if searching && stats.min_direct >= floor_of(&stats) {
         let starts = pick_starts(&mut cand, s.gap_starts, dim);
         let set = SearchSettings::new(0.5 * sampled_spacing(dim, s), floor_of(&stats));
         let found = minimise(src, filling, &starts, &set, &mut stats)?;

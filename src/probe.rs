@@ -55,7 +55,9 @@ mod tests {
             std::hint::black_box(chain(1, it));
             t0.elapsed()
         };
-        t(1000); // (warm up)
-        assert!(t(2_000_000) > t(1000) * 100);
+        // (the shorter time as the best of several, so that a pause of the thread cannot
+        // inflate it)
+        let short = (0..5).map(|_| t(1000)).min().unwrap();
+        assert!(t(2_000_000) > short * 100);
     }
 }
