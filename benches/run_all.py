@@ -7,7 +7,10 @@
     gap minimiser) against the plain-NumPy implementation in ``numpy_baseline.py``, one thread and
     all cores, indices and gaps asserted equal;
 (c) sweep throughput (points/s) of a 2D and a 3D model;
-(d) peak memory against the number of points (``sweep_memory.py``, fresh processes).
+(d) peak memory against the number of points (``sweep_memory.py``, fresh processes);
+and what a second core gives on this machine: each core's speed alone and with all at work
+(``core_speeds.py``), and the point's threads gain beside that of a call with nothing serial in
+it (``fork_join_gain.py``).
 
 Timings are the best of several repeats, measured side by side in one run and interleaved
 round by round (NumPy, one thread, all cores) so that all see the same load; other jobs on the
