@@ -93,7 +93,7 @@ pub struct PlaneLines {
     centres: Vec<f64>,
     width: usize,
     line_stats: Vec<BandStats>,
-    /// all lines' statistics merged in pump order
+    /// all lines' statistics, merged in the order the lines were computed
     stats: BandStats,
     /// `inspect` of lines (m, m + 1), for every m
     checks: Vec<Interval>,
@@ -249,7 +249,7 @@ pub fn summarise(all: &[PlaneLines], s: &Sampling) -> Vec<PlaneResult> {
         .collect()
 }
 
-/// Band statistics of all lines (merged per plane, in pump order), and, when `cand` is given,
+/// Band statistics of all lines (merged per plane first), and, when `cand` is given,
 /// each line's own smallest gap (gap-search candidates).
 pub fn line_stats(
     all: &[PlaneLines],
