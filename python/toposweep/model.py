@@ -7,6 +7,7 @@ defaults, and how to hand itself to the Rust core for a list of parameter points
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 from abc import ABC, abstractmethod
@@ -23,6 +24,17 @@ from .symmetry import as_operator, symmetry_residual
 __all__ = ["Model"]
 
 Params = Mapping[str, float]
+
+
+@functools.cache
+def _symmetry_kappa(dim: int) -> NDArray[np.float64]:
+    """Four fixed pseudo-random κ points (read-only) where symmetries are checked.
+
+    Made once per dimension: a new generator costs ~15 µs, a large part of one point's checks.
+    """
+    kappa = np.random.default_rng(7).random((4, dim))
+    kappa.flags.writeable = False
+    return kappa
 
 
 def matrix_to_json(m: NDArray[np.complex128] | None) -> dict[str, list[list[float]]] | None:
@@ -197,7 +209,7 @@ class Model(ABC):
         return out
 
     def _symmetry_kappa(self) -> NDArray[np.float64]:
-        return np.random.default_rng(7).random((4, self.dim))
+        return _symmetry_kappa(self.dim)
 
     # -- serialisation --------------------------------------------------------------------------
     def to_json(self) -> str:
