@@ -13,7 +13,7 @@ use crate::error::{CoreError, CoreResult};
 use crate::matrix::{
     matmul, overlap, unitarise, unitarise_2x2, unitarise_reference, unitary_phases,
 };
-use crate::{fmadd, C64};
+use crate::{fmadd, C64, KEPT_SCRATCH_BYTES};
 use rayon::prelude::*;
 use std::f64::consts::TAU;
 
@@ -269,11 +269,6 @@ struct LineBuffers {
     scratch: LineScratch,
 }
 
-/// Lines whose H takes more bytes than this do not keep their buffers after the line: a
-/// thread would otherwise hold a large model's buffers for the rest of the process, and at
-/// that size allocating them costs nothing next to the line's eigensolves.
-const KEPT_LINE_BYTES: usize = 1 << 20;
-
 thread_local! {
     static LINE_BUFFERS: std::cell::Cell<LineBuffers> =
         std::cell::Cell::new(LineBuffers::default());
@@ -286,7 +281,7 @@ fn with_line_buffers<T>(f: impl FnOnce(&mut LineBuffers) -> T) -> T {
     // (try_with: a thread being torn down has no slot any more, and then works without one)
     let mut b = LINE_BUFFERS.try_with(|c| c.take()).unwrap_or_default();
     let out = f(&mut b);
-    if b.h.capacity() * std::mem::size_of::<C64>() <= KEPT_LINE_BYTES {
+    if b.h.capacity() * std::mem::size_of::<C64>() <= KEPT_SCRATCH_BYTES {
         let _ = LINE_BUFFERS.try_with(|c| c.set(b));
     }
     out
@@ -664,7 +659,7 @@ mod tests {
         });
     }
 
-    /// Buffers are put back after a line unless its H is larger than `KEPT_LINE_BYTES`, and a
+    /// Buffers are put back after a line unless its H is larger than `KEPT_SCRATCH_BYTES`, and a
     /// line started inside another finds the slot empty rather than failing.
     #[test]
     fn line_buffers_are_kept_unless_large() {
@@ -680,7 +675,7 @@ mod tests {
             .join()
             .unwrap()
         };
-        let limit = KEPT_LINE_BYTES / std::mem::size_of::<C64>();
+        let limit = KEPT_SCRATCH_BYTES / std::mem::size_of::<C64>();
         assert!(kept_len(limit) >= limit);
         assert_eq!(kept_len(limit + 1), 0);
     }
