@@ -413,10 +413,12 @@ pub fn wilson_line_in(
     }
     min_singular = min_singular.min(step(prev, first, w)?);
     let mut centres: Vec<f64> = if min_singular > 0.0 {
-        unitary_phases(w, nocc)?
-            .iter()
-            .map(|t| (-t / TAU).rem_euclid(1.0))
-            .collect()
+        // (the phases' own vector becomes the centres: one allocation per line, not two)
+        let mut phases = unitary_phases(w, nocc)?;
+        for t in &mut phases {
+            *t = (-*t / TAU).rem_euclid(1.0);
+        }
+        phases
     } else {
         vec![f64::NAN; nocc]
     };
