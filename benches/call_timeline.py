@@ -7,8 +7,9 @@ it (the wrapper adds ~1 µs):
 
 - before: from the call until the core is entered (argument checks, sampling, the model's
   coefficients);
-- side job: the symmetry checks and the result Dataset's layout, which run on a second worker
-  while the core computes (first, on the calling thread, with one worker);
+- side job: the symmetry checks and the result Dataset's layout, which run on the calling
+  thread while a second worker starts on the points (first, then the points, with one
+  worker);
 - core: from entering the core until it returns (the side job included);
 - after: from the core's return until ``invariants()`` returns (the results copied in).
 

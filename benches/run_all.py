@@ -362,8 +362,9 @@ def main() -> None:
         core_only_table(repeats),
         "The Rust core alone; with the Python-side symmetry checks first; with those, then "
         "the xarray Dataset after the core (one step after the other); and the public call, "
-        "which makes the checks and the Dataset's layout while the core computes (on a second "
-        "worker when there is one). The most the machine's second core can give is measured "
+        "which makes the checks and the Dataset's layout while the core computes (on the "
+        "calling thread, while a second worker starts on the points). The most the machine's "
+        "second core can give is measured "
         'below, in "What a second core gives on this machine".',
     )
     section(
