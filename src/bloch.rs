@@ -6,7 +6,8 @@
 //! few complex multiply-adds per matrix element.
 
 use crate::error::{invalid, CoreResult};
-use crate::{fmadd, C64, KEPT_SCRATCH_BYTES};
+use crate::kept::with_kept;
+use crate::{fmadd, C64};
 use rayon::prelude::*;
 use std::cell::Cell;
 use std::collections::BTreeMap;
@@ -265,44 +266,43 @@ impl BlochSource for Bloch {
             ));
         }
         // (the thread's folded line, reused: see FOLDED)
-        let mut folded = FOLDED.try_with(Cell::take).unwrap_or_default();
-        self.fold_line_into(base, axis, shift / points as f64, &mut folded);
-        ROOTS.with(|cell| {
-            let mut roots = cell.borrow_mut();
-            if roots.len() != points {
-                // the same loop length comes back for every line: one table per worker thread
-                *roots = (0..points)
-                    .map(|k| (TAU * k as f64 / points as f64).sin_cos())
-                    .collect();
-            }
-            for (s, o) in out[..points * nn].chunks_exact_mut(nn).enumerate() {
-                let mut pairs = folded
-                    .harmonics
-                    .iter()
-                    .zip(folded.pairs.chunks_exact(2 * nn));
-                // the first harmonic writes constant + its combination in one pass (no copy)
-                match pairs.next() {
-                    Some((&m, pair)) => {
+        with_kept(&FOLDED, FoldedLine::bytes, |folded| {
+            self.fold_line_into(base, axis, shift / points as f64, folded);
+            ROOTS.with(|cell| {
+                let mut roots = cell.borrow_mut();
+                if roots.len() != points {
+                    // the same loop length comes back for every line: one table per worker
+                    // thread
+                    *roots = (0..points)
+                        .map(|k| (TAU * k as f64 / points as f64).sin_cos())
+                        .collect();
+                }
+                for (s, o) in out[..points * nn].chunks_exact_mut(nn).enumerate() {
+                    let mut pairs = folded
+                        .harmonics
+                        .iter()
+                        .zip(folded.pairs.chunks_exact(2 * nn));
+                    // the first harmonic writes constant + its combination in one pass (no copy)
+                    match pairs.next() {
+                        Some((&m, pair)) => {
+                            let (sn, cs) = roots[(m * s) % points];
+                            let (a, b) = pair.split_at(nn);
+                            let (k, o) = (&folded.constant[..nn], &mut o[..nn]);
+                            for i in 0..nn {
+                                o[i].re = fmadd(a[i].re, cs, fmadd(b[i].re, sn, k[i].re));
+                                o[i].im = fmadd(a[i].im, cs, fmadd(b[i].im, sn, k[i].im));
+                            }
+                        }
+                        None => o.copy_from_slice(&folded.constant),
+                    }
+                    for (&m, pair) in pairs {
                         let (sn, cs) = roots[(m * s) % points];
                         let (a, b) = pair.split_at(nn);
-                        let (k, o) = (&folded.constant[..nn], &mut o[..nn]);
-                        for i in 0..nn {
-                            o[i].re = fmadd(a[i].re, cs, fmadd(b[i].re, sn, k[i].re));
-                            o[i].im = fmadd(a[i].im, cs, fmadd(b[i].im, sn, k[i].im));
-                        }
+                        add_combination(o, a, b, cs, sn);
                     }
-                    None => o.copy_from_slice(&folded.constant),
                 }
-                for (&m, pair) in pairs {
-                    let (sn, cs) = roots[(m * s) % points];
-                    let (a, b) = pair.split_at(nn);
-                    add_combination(o, a, b, cs, sn);
-                }
-            }
+            });
         });
-        if folded.bytes() <= KEPT_SCRATCH_BYTES {
-            let _ = FOLDED.try_with(|c| c.set(folded));
-        }
         Ok(())
     }
 }

@@ -14,6 +14,7 @@ pub mod error;
 pub mod flow;
 pub mod gap_search;
 pub mod indices;
+mod kept;
 pub mod lattice_z2;
 pub mod matrix;
 pub mod parity;
@@ -28,12 +29,6 @@ pub mod wilson;
 mod python;
 
 pub use error::{CoreError, CoreResult};
-
-/// Per-thread scratch (a Wilson line's buffers, a folded line) is kept from one line to the
-/// next only up to this size: a thread would otherwise hold a large model's buffers for the
-/// rest of the process, and at that size allocating them costs nothing next to the line's
-/// eigensolves.
-pub(crate) const KEPT_SCRATCH_BYTES: usize = 1 << 20;
 pub use num_complex::Complex64 as C64;
 
 /// a·b + c, fused into one rounding where the build targets FMA (x86-64-v3: the Makefile's

@@ -10,10 +10,11 @@
 use crate::bloch::BlochSource;
 use crate::eigen::{eigh_many_into, eigh_occupied_many_into, eigh_reference_into};
 use crate::error::{CoreError, CoreResult};
+use crate::kept::with_kept;
 use crate::matrix::{
     matmul, overlap, unitarise, unitarise_2x2, unitarise_reference, unitary_phases,
 };
-use crate::{fmadd, C64, KEPT_SCRATCH_BYTES};
+use crate::{fmadd, C64};
 use rayon::prelude::*;
 use std::f64::consts::TAU;
 
@@ -274,17 +275,14 @@ thread_local! {
         std::cell::Cell::new(LineBuffers::default());
 }
 
-/// `f` on this thread's [`LineBuffers`], taken out of the thread's slot while `f` runs (a line
-/// started inside another line — never in this crate — would find it empty and start afresh)
-/// and put back after, unless too large to keep.
+/// `f` on this thread's [`LineBuffers`] (see [`with_kept`]; kept while the line's H is at most
+/// `KEPT_SCRATCH_BYTES`).
 fn with_line_buffers<T>(f: impl FnOnce(&mut LineBuffers) -> T) -> T {
-    // (try_with: a thread being torn down has no slot any more, and then works without one)
-    let mut b = LINE_BUFFERS.try_with(|c| c.take()).unwrap_or_default();
-    let out = f(&mut b);
-    if b.h.capacity() * std::mem::size_of::<C64>() <= KEPT_SCRATCH_BYTES {
-        let _ = LINE_BUFFERS.try_with(|c| c.set(b));
-    }
-    out
+    with_kept(
+        &LINE_BUFFERS,
+        |b| b.h.capacity() * std::mem::size_of::<C64>(),
+        f,
+    )
 }
 
 /// `buf` as `len` zeros (the state a freshly allocated buffer would have), keeping its memory.
@@ -659,27 +657,6 @@ mod tests {
             let again = bits(&evaluate_lines(&big, &lines, 16, 4, None).unwrap());
             assert_eq!(first, again);
         });
-    }
-
-    /// Buffers are put back after a line unless its H is larger than `KEPT_SCRATCH_BYTES`, and a
-    /// line started inside another finds the slot empty rather than failing.
-    #[test]
-    fn line_buffers_are_kept_unless_large() {
-        let kept_len = |len: usize| {
-            std::thread::spawn(move || {
-                with_line_buffers(|b| b.h.resize(len, C64::new(0.0, 0.0)));
-                with_line_buffers(|b| {
-                    let inner = with_line_buffers(|b| b.h.capacity());
-                    assert_eq!(inner, 0, "a nested line starts on empty buffers");
-                    b.h.capacity()
-                })
-            })
-            .join()
-            .unwrap()
-        };
-        let limit = KEPT_SCRATCH_BYTES / std::mem::size_of::<C64>();
-        assert!(kept_len(limit) >= limit);
-        assert_eq!(kept_len(limit + 1), 0);
     }
 
     /// Grouped eigensolves along a line — four κ points at a time (`Kernels::Fast`; the
