@@ -391,9 +391,8 @@ impl Bloch {
 mod tests {
     use super::*;
 
-    /// Two-band chain: onsite m σz, hopping (σz − iσx)/2 at R = 1 → H = (m + cos 2πκ) σz + sin 2πκ σx.
-    #[test]
-    fn chain_matches_closed_form() {
+    /// Two-band chain: onsite m σz (m the one coefficient), hopping (σz − iσx)/2 at R = 1.
+    fn chain() -> Hoppings {
         let z = C64::new(0.0, 0.0);
         let sz = vec![C64::new(1.0, 0.0), z, z, C64::new(-1.0, 0.0)];
         let hop = vec![
@@ -402,11 +401,38 @@ mod tests {
             C64::new(0.0, -0.5),
             C64::new(-0.5, 0.0),
         ];
-        let mut t = sz.clone();
+        let mut t = sz;
         t.extend(hop);
-        let model = Hoppings::new(1, 2, 1, vec![0, 1], t, vec![0, -1]).unwrap();
+        Hoppings::new(1, 2, 1, vec![0, 1], t, vec![0, -1]).unwrap()
+    }
+
+    /// A 3-orbital 3D model with random Hermitian onsite terms and random hoppings at
+    /// R = (1,0,0), (1,−2,0), (0,3,1); one coefficient scales the onsite and second hopping.
+    fn random_three_orbital(seed: u64) -> Hoppings {
+        let n = 3;
+        let mut rng = crate::test_rng::TestRng::new(seed);
+        let mut next = || rng.uniform();
+        let r = vec![0, 0, 0, 1, 0, 0, 1, -2, 0, 0, 3, 1];
+        let mut t: Vec<C64> = (0..4 * n * n).map(|_| C64::new(next(), next())).collect();
+        for i in 0..n {
+            for j in 0..n {
+                t[i * n + j] = if i <= j {
+                    t[i * n + j]
+                } else {
+                    t[j * n + i].conj()
+                };
+            }
+            t[i * n + i].im = 0.0;
+        }
+        Hoppings::new(3, n, 1, r, t, vec![-1, 0, -1, 0]).unwrap()
+    }
+
+    /// The chain is H = (m + cos 2πκ) σz + sin 2πκ σx.
+    #[test]
+    fn chain_matches_closed_form() {
+        let z = C64::new(0.0, 0.0);
         let m = 0.7;
-        let b = model.at(&[m]).unwrap();
+        let b = chain().at(&[m]).unwrap();
         let mut out = vec![z; 4];
         for &k in &[0.0, 0.13, 0.5, 0.77] {
             b.at_point(&[k], &mut out);
@@ -422,24 +448,7 @@ mod tests {
     #[test]
     fn fill_line_matches_points() {
         let n = 3;
-        let mut rng = crate::test_rng::TestRng::new(99u64);
-        let mut next = || rng.uniform();
-        let r = vec![0, 0, 0, 1, 0, 0, 1, -2, 0, 0, 3, 1];
-        let mut t: Vec<C64> = (0..4 * n * n).map(|_| C64::new(next(), next())).collect();
-        for i in 0..n {
-            for j in 0..n {
-                t[i * n + j] = if i <= j {
-                    t[i * n + j]
-                } else {
-                    t[j * n + i].conj()
-                };
-            }
-            t[i * n + i].im = 0.0;
-        }
-        let b = Hoppings::new(3, n, 1, r, t, vec![-1, 0, -1, 0])
-            .unwrap()
-            .at(&[0.7])
-            .unwrap();
+        let b = random_three_orbital(99).at(&[0.7]).unwrap();
         for (axis, lp, shift) in [
             (0, 7, 0.0),
             (1, 40, 0.0),
@@ -468,43 +477,13 @@ mod tests {
     }
 
     /// The folded line a thread keeps (FOLDED) carries nothing from one line to the next:
-    /// lines of a 3-orbital model with three harmonics and of a 2-orbital one with one,
-    /// alternated on one thread, equal bit for bit what a fresh thread gives.
+    /// lines of a 3-orbital model (harmonics 2 and 3 along one axis, 1 along another) and of
+    /// the 2-orbital chain (harmonic 1), alternated on one thread, equal bit for bit what a
+    /// fresh thread gives.
     #[test]
     fn kept_folded_line_carries_nothing_over() {
-        let chain = |m: f64| {
-            let z = C64::new(0.0, 0.0);
-            let sz = vec![C64::new(m, 0.0), z, z, C64::new(-m, 0.0)];
-            let hop = vec![
-                C64::new(0.5, 0.0),
-                C64::new(0.0, -0.5),
-                C64::new(0.0, -0.5),
-                C64::new(-0.5, 0.0),
-            ];
-            let mut t = sz;
-            t.extend(hop);
-            Hoppings::new(1, 2, 1, vec![0, 1], t, vec![0, -1])
-                .unwrap()
-                .at(&[1.0])
-                .unwrap()
-        };
-        let n = 3;
-        let mut rng = crate::test_rng::TestRng::new(7u64);
-        let mut t: Vec<C64> = (0..4 * n * n)
-            .map(|_| C64::new(rng.uniform(), rng.uniform()))
-            .collect();
-        for i in 0..n {
-            for j in 0..i {
-                t[i * n + j] = t[j * n + i].conj();
-            }
-            t[i * n + i].im = 0.0;
-        }
-        let r = vec![0, 0, 0, 1, 0, 0, 1, -2, 0, 0, 3, 1];
-        let wide = Hoppings::new(3, n, 1, r, t, vec![-1, 0, -1, 0])
-            .unwrap()
-            .at(&[0.3])
-            .unwrap();
-        let narrow = chain(0.4);
+        let wide = random_three_orbital(7).at(&[0.3]).unwrap();
+        let narrow = chain().at(&[0.4]).unwrap();
         let bits = |b: &Bloch, base: [f64; 3], axis: usize| {
             let lp = 11;
             let mut out = vec![C64::new(0.0, 0.0); lp * b.norb() * b.norb()];
