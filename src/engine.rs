@@ -9,13 +9,14 @@
 
 use crate::bloch::BlochSource;
 use crate::error::{invalid, CoreError, CoreResult};
-use crate::gap_search::{gaps_on_grid, minimise, pick_starts, SearchSettings};
+use crate::first_pass::{first_pass, FirstPass};
+use crate::gap_search::{minimise, pick_starts, SearchSettings};
 use crate::indices::{combine, Indices};
 use crate::lattice_z2::{lattice_planes_initial, lattice_planes_refine};
 use crate::parity::{parity_indices, reason, trims, ParityResult};
-use crate::plane_flows::{certify, initial_lines, line_stats, refine_lines, summarise};
+use crate::plane_flows::{certify, line_stats, refine_lines, summarise};
 pub use crate::plane_flows::{plane_flow, planes, Plane, PlaneResult};
-use crate::wilson::{evaluate_points, BandStats};
+use crate::wilson::BandStats;
 use crate::C64;
 
 /// Relative gap floor (× bandwidth) used when the caller gives none.
@@ -137,24 +138,6 @@ fn sampled_spacing(dim: usize, s: &Sampling) -> f64 {
     h
 }
 
-/// Uniform bulk grid of m³ points (m per axis), offset by half a step so it avoids the planes
-/// that the Wilson loops already sample.
-fn bulk_grid(dim: usize, m: usize) -> Vec<f64> {
-    if dim != 3 || m == 0 {
-        return Vec::new();
-    }
-    let step = 1.0 / m as f64;
-    let mut k = Vec::with_capacity(3 * m * m * m);
-    for a in 0..m {
-        for b in 0..m {
-            for c in 0..m {
-                k.extend([a, b, c].map(|x| (x as f64 + 0.5) * step));
-            }
-        }
-    }
-    k
-}
-
 /// Evaluate one parameter point. `inversion` (n×n, P² = 1) enables the parity indices;
 /// `time_reversal` (n×n U_T) is needed by the lattice method.
 pub fn evaluate_point(
@@ -184,32 +167,16 @@ pub fn evaluate_point(
             ))
         }
     };
-    // TRIMs (gaps, parity), a uniform bulk grid (3D) and the initial pump lines: independent,
-    // so one parallel phase — rayon::join lets a worker that runs out of one steal from the
-    // others, where three phases in a row would each end with a worker waiting. When the gap
-    // search runs, every sampled κ point is a candidate start for it.
-    let trim_k: Vec<f64> = trims(dim).iter().flat_map(|k| k[..dim].to_vec()).collect();
-    let bulk_k = bulk_grid(dim, s.gap_points);
+    // TRIMs (gaps, parity), a uniform bulk grid (3D) and the initial pump lines: one parallel
+    // phase. When the gap search runs, every sampled κ point is a candidate start for it.
     let pl = planes(dim);
-    let (trim_res, (bulk_res, lines_res)) = rayon::join(
-        || evaluate_points(src, &trim_k, filling, true),
-        || {
-            rayon::join(
-                || {
-                    let mut st = BandStats::default();
-                    gaps_on_grid(src, &bulk_k, s.gap_points, filling, &mut st).map(|g| (g, st))
-                },
-                || {
-                    if want_wilson {
-                        initial_lines(src, &pl, filling, s, s.loop_points)
-                    } else {
-                        Ok(Vec::new())
-                    }
-                },
-            )
-        },
-    );
-    let (trim_stats, trim_e, trim_v) = trim_res?;
+    let FirstPass {
+        trims: (trim_stats, trim_e, trim_v),
+        bulk_kappa: bulk_k,
+        bulk_gaps: bulk_gap,
+        bulk_stats,
+        mut lines,
+    } = first_pass(src, &pl, filling, s, want_wilson)?;
     let mut stats = trim_stats;
     let trim_gap: Vec<f64> = trim_e.iter().map(|e| e[filling] - e[filling - 1]).collect();
     // (candidates are collected only for a search that will use them)
@@ -219,7 +186,6 @@ pub fn evaluate_point(
         cand.extend(trims(dim).into_iter().zip(&trim_gap).map(|(k, &g)| (g, k)));
     }
     // (merged in the order the points were sampled: the same statistics as adding them in turn)
-    let (bulk_gap, bulk_stats) = bulk_res?;
     stats.merge(&bulk_stats);
     if searching {
         for (g, k) in bulk_gap.iter().zip(bulk_k.chunks_exact(dim)) {
@@ -228,7 +194,6 @@ pub fn evaluate_point(
             cand.push((*g, at));
         }
     }
-    let mut lines = lines_res?;
     if want_wilson {
         line_stats(&lines, &mut stats, searching.then_some(&mut cand));
     }

@@ -14,6 +14,7 @@
 use crate::bloch::BlochSource;
 use crate::eigen::eigh_occupied_many_into;
 use crate::error::CoreResult;
+use crate::guided::map_guided;
 use crate::wilson::BandStats;
 use crate::C64;
 use rayon::prelude::*;
@@ -98,10 +99,9 @@ pub fn gaps_at(
 
 /// Direct gaps on the uniform bulk grid κ = (j + ½)/m of a 3D model — `kappa` lists its m³
 /// points in C order, the last axis fastest — with their band statistics merged into `stats`
-/// in that order. A source that builds H anywhere cheaply is taken line by line along the last
-/// axis: one rayon task per line builds it (`fill_line_shifted`) and solves for eigenvalues
-/// only, so the grid is one parallel phase with no m³ buffer. Batch sources (Python callbacks)
-/// and other κ lists take [`gaps_at`].
+/// in that order. A source that builds H anywhere cheaply is taken row by row along the last
+/// axis ([`grid_row`], one task of a guided list per row), so there is no m³ buffer. Batch
+/// sources (Python callbacks) and other κ lists take [`gaps_at`].
 pub fn gaps_on_grid(
     src: &dyn BlochSource,
     kappa: &[f64],
@@ -109,43 +109,69 @@ pub fn gaps_on_grid(
     filling: usize,
     stats: &mut BandStats,
 ) -> CoreResult<Vec<f64>> {
-    let (dim, n) = (src.dim(), src.norb());
-    if src.prefers_batches() || dim != 3 || m == 0 || kappa.len() != 3 * m * m * m {
+    if !grid_by_rows(src, kappa, m) {
         return gaps_at(src, kappa, filling, stats);
     }
-    let nn = n * n;
+    let rows = map_guided(
+        m * m,
+        || grid_row_scratch(src, m),
+        |(h, work), row| grid_row(src, m, row, h, work),
+    )?;
+    Ok(grid_gaps(&rows, kappa, src.norb(), filling, stats))
+}
+
+/// Whether [`gaps_on_grid`] takes the grid row by row (else as one batch of κ points).
+pub fn grid_by_rows(src: &dyn BlochSource, kappa: &[f64], m: usize) -> bool {
+    !src.prefers_batches() && src.dim() == 3 && m > 0 && kappa.len() == 3 * m * m * m
+}
+
+/// Scratch of [`grid_row`] for a worker: one row of H (m × n²) and the solver's n².
+pub fn grid_row_scratch(src: &dyn BlochSource, m: usize) -> (Vec<C64>, Vec<C64>) {
+    let nn = src.norb() * src.norb();
+    (
+        vec![C64::new(0.0, 0.0); m * nn],
+        vec![C64::new(0.0, 0.0); nn],
+    )
+}
+
+/// Eigenvalues (m × n) of row `row` = a m + b of the bulk grid: the m points κ = ((a + ½)/m,
+/// (b + ½)/m, (c + ½)/m), c = 0…m−1, built in `h` by `fill_line_shifted`.
+pub fn grid_row(
+    src: &dyn BlochSource,
+    m: usize,
+    row: usize,
+    h: &mut [C64],
+    work: &mut [C64],
+) -> CoreResult<Vec<f64>> {
+    let n = src.norb();
     let step = 1.0 / m as f64;
-    let energies: CoreResult<Vec<Vec<f64>>> = (0..m * m)
-        .into_par_iter()
-        .map_init(
-            // one line of H and the solver's scratch per rayon split
-            || {
-                (
-                    vec![C64::new(0.0, 0.0); m * nn],
-                    vec![C64::new(0.0, 0.0); nn],
-                )
-            },
-            |(h, work), line| {
-                let (a, b) = (line / m, line % m);
-                let base = [(a as f64 + 0.5) * step, (b as f64 + 0.5) * step, 0.0];
-                src.fill_line_shifted(&base, 2, m, 0.5, h)?;
-                let mut e = vec![0.0; m * n];
-                eigh_occupied_many_into(h, n, 0, &mut e, &mut [], work)?;
-                Ok(e)
-            },
-        )
-        .collect();
-    let energies = energies?;
-    let mut gaps = Vec::with_capacity(m * m * m);
-    for (e, k) in energies
+    let (a, b) = (row / m, row % m);
+    let base = [(a as f64 + 0.5) * step, (b as f64 + 0.5) * step, 0.0];
+    src.fill_line_shifted(&base, 2, m, 0.5, h)?;
+    let mut e = vec![0.0; m * n];
+    eigh_occupied_many_into(h, n, 0, &mut e, &mut [], work)?;
+    Ok(e)
+}
+
+/// The grid's gaps from its rows' eigenvalues ([`grid_row`], in row order), the statistics of
+/// every point merged into `stats` in the order of `kappa`.
+pub fn grid_gaps(
+    rows: &[Vec<f64>],
+    kappa: &[f64],
+    n: usize,
+    filling: usize,
+    stats: &mut BandStats,
+) -> Vec<f64> {
+    let mut gaps = Vec::with_capacity(kappa.len() / 3);
+    for (e, k) in rows
         .iter()
-        .flat_map(|line| line.chunks_exact(n))
-        .zip(kappa.chunks_exact(dim))
+        .flat_map(|row| row.chunks_exact(n))
+        .zip(kappa.chunks_exact(3))
     {
         stats.add(e, filling, k);
         gaps.push(e[filling] - e[filling - 1]);
     }
-    Ok(gaps)
+    gaps
 }
 
 /// Pick up to `count` starting points, smallest gap first, skipping near-duplicates.

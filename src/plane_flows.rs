@@ -84,10 +84,9 @@ pub fn planes(dim: usize) -> Vec<Plane> {
 /// refinement test of every neighbouring pair and, once no pair needs a line between them, the
 /// plane's Z2.
 ///
-/// The centres are kept in one flat array (`width` per line): the plane's lines are examined in
-/// the same parallel task that computed them, and the per-line allocations are freed there,
-/// not serially after the parallel phase.
-#[derive(Clone, Debug, Default)]
+/// The centres are kept in one flat array (`width` per line), so that inserting lines and
+/// examining neighbours touch one allocation per plane.
+#[derive(Clone, Debug, Default, PartialEq)]
 pub struct PlaneLines {
     pump: Vec<f64>,
     centres: Vec<f64>,
@@ -120,6 +119,12 @@ impl PlaneLines {
         pl
     }
 
+    /// Every line's centres, line after line (for tests that compare planes to a tolerance).
+    #[cfg(test)]
+    pub(crate) fn centres(&self) -> &[f64] {
+        &self.centres
+    }
+
     fn line(&self, m: usize) -> &[f64] {
         &self.centres[m * self.width..(m + 1) * self.width]
     }
@@ -148,8 +153,40 @@ impl PlaneLines {
     }
 }
 
-/// The initial, evenly spaced pump lines of several planes, each plane examined as soon as its
-/// lines are done.
+/// The initial, evenly spaced pump coordinates of every plane: `lines` from 0 to 1/2.
+pub fn initial_pump(s: &Sampling) -> Vec<f64> {
+    (0..s.lines)
+        .map(|m| 0.5 * m as f64 / (s.lines - 1) as f64)
+        .collect()
+}
+
+/// The lines of every plane at the pump coordinates `pump`, plane after plane.
+pub fn plane_line_specs(planes: &[Plane], pump: &[f64]) -> Vec<LineSpec> {
+    planes
+        .iter()
+        .flat_map(|p| pump.iter().map(|&t| p.line(t)))
+        .collect()
+}
+
+/// The planes' examined lines from `lines`, as [`plane_line_specs`] lists them.
+pub fn examined_planes(
+    planes: usize,
+    pump: &[f64],
+    lines: Vec<LineResult>,
+    filling: usize,
+    s: &Sampling,
+) -> Vec<PlaneLines> {
+    let mut lines = lines.into_iter();
+    (0..planes)
+        .map(|_| {
+            let own = lines.by_ref().take(pump.len()).collect();
+            PlaneLines::new(pump.to_vec(), own, filling, s.step_limit)
+        })
+        .collect()
+}
+
+/// The initial, evenly spaced pump lines of several planes (all in one list of lines), then
+/// each plane's checks.
 pub fn initial_lines(
     src: &dyn BlochSource,
     planes: &[Plane],
@@ -157,34 +194,10 @@ pub fn initial_lines(
     s: &Sampling,
     loop_points: usize,
 ) -> CoreResult<Vec<PlaneLines>> {
-    let t0: Vec<f64> = (0..s.lines)
-        .map(|m| 0.5 * m as f64 / (s.lines - 1) as f64)
-        .collect();
-    let specs_of = |p: &Plane| -> Vec<LineSpec> { t0.iter().map(|&t| p.line(t)).collect() };
-    if src.prefers_batches() {
-        // one batch of every plane's lines (a source that prefers batches, such as a Python
-        // callback, is asked once), then the planes' checks
-        let specs: Vec<LineSpec> = planes.iter().flat_map(specs_of).collect();
-        let mut res = evaluate_lines(src, &specs, loop_points, filling, None)?.into_iter();
-        let per_plane: Vec<Vec<LineResult>> = planes
-            .iter()
-            .map(|_| res.by_ref().take(s.lines).collect())
-            .collect();
-        return Ok(per_plane
-            .into_par_iter()
-            .map(|lines| PlaneLines::new(t0.clone(), lines, filling, s.step_limit))
-            .collect());
-    }
-    // A plane's lines and its checks as one task (the lines themselves are split further):
-    // a plane is examined while other planes' lines are still being computed, instead of in
-    // a serial stretch after the last line.
-    planes
-        .par_iter()
-        .map(|p| {
-            let lines = evaluate_lines(src, &specs_of(p), loop_points, filling, None)?;
-            Ok(PlaneLines::new(t0.clone(), lines, filling, s.step_limit))
-        })
-        .collect()
+    let pump = initial_pump(s);
+    let specs = plane_line_specs(planes, &pump);
+    let lines = evaluate_lines(src, &specs, loop_points, filling, None)?;
+    Ok(examined_planes(planes.len(), &pump, lines, filling, s))
 }
 
 /// Adaptive insertion of pump lines (all planes in one batch per round) until every

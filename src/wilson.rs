@@ -10,6 +10,7 @@
 use crate::bloch::BlochSource;
 use crate::eigen::{eigh_many_into, eigh_occupied_many_into, eigh_reference_into};
 use crate::error::{CoreError, CoreResult};
+use crate::guided::map_guided;
 use crate::kept::with_kept;
 use crate::matrix::{
     matmul, overlap, unitarise, unitarise_2x2, unitarise_reference, unitary_phases,
@@ -110,9 +111,12 @@ pub struct LineResult {
     pub min_singular: f64,
 }
 
-/// Evaluate many lines: H in batches from `src`, then eigenvectors and Wilson loops per line in
-/// parallel. `positions_along` (one reduced coordinate per orbital along each line's axis,
-/// indexed `[axis * norb + orbital]`) switches to the tight-binding convention.
+/// Evaluate many lines in parallel. `positions` (one reduced coordinate per orbital along each
+/// axis, indexed `[axis * norb + orbital]`) switches to the tight-binding convention.
+///
+/// A source that builds H itself gives each line to a worker as one task of a guided list
+/// ([`evaluate_line`]); one that prefers batches (a Python callback) is asked for the H of many
+/// lines at once, and their eigenvectors and Wilson loops are then computed in parallel.
 pub fn evaluate_lines(
     src: &dyn BlochSource,
     lines: &[LineSpec],
@@ -127,48 +131,12 @@ pub fn evaluate_lines(
             "loop_points must be at least 2".into(),
         ));
     }
-    let weight_of = |l: &LineSpec| {
-        positions.map(|p| {
-            p[l.axis * n..(l.axis + 1) * n]
-                .iter()
-                .map(|&t| C64::from_polar(1.0, -TAU * t / loop_points as f64))
-                .collect::<Vec<_>>()
-        })
-    };
-    let line_kappa = |l: &LineSpec, kappa: &mut Vec<f64>| {
-        for s in 0..loop_points {
-            let mut k = l.base;
-            k[l.axis] = s as f64 / loop_points as f64;
-            kappa.extend_from_slice(&k[..dim]);
-        }
-    };
     if !src.prefers_batches() {
-        // H is cheap to build: each worker builds its own line into a small buffer and uses it
-        // at once (cache-resident, no batch buffer, lines spread over all workers), in the
-        // buffers its thread keeps (see `LineBuffers`)
-        return lines
-            .par_iter()
-            .map(|l| {
-                with_line_buffers(|b| {
-                    b.kappa.clear();
-                    line_kappa(l, &mut b.kappa);
-                    // (fill_line writes every entry: the old contents need no zeroing)
-                    b.h.resize(loop_points * nn, C64::new(0.0, 0.0));
-                    src.fill_line(&l.base[..dim], l.axis, loop_points, &mut b.h)?;
-                    let w = weight_of(l);
-                    wilson_line_in(
-                        &mut b.scratch,
-                        &b.h,
-                        &b.kappa,
-                        dim,
-                        n,
-                        filling,
-                        w.as_deref(),
-                        Kernels::Fast,
-                    )
-                })
-            })
-            .collect();
+        return map_guided(
+            lines.len(),
+            || (),
+            |_, i| evaluate_line(src, &lines[i], loop_points, filling, positions),
+        );
     }
     let per_line = (loop_points * nn * 16).max(1);
     let chunk = (BATCH_BYTES / per_line).max(1);
@@ -178,7 +146,7 @@ pub fn evaluate_lines(
     for group in lines.chunks(chunk) {
         kappa.clear();
         for l in group {
-            line_kappa(l, &mut kappa);
+            line_kappa(l, loop_points, dim, &mut kappa);
         }
         h.resize(group.len() * loop_points * nn, C64::new(0.0, 0.0));
         src.fill(&kappa, &mut h)?;
@@ -188,7 +156,7 @@ pub fn evaluate_lines(
             .map_init(LineScratch::default, |scratch, (i, l)| {
                 let hl = &h[i * loop_points * nn..(i + 1) * loop_points * nn];
                 let kl = &kappa[i * loop_points * dim..(i + 1) * loop_points * dim];
-                let w = weight_of(l);
+                let w = line_weights(l, loop_points, n, positions);
                 wilson_line_in(
                     scratch,
                     hl,
@@ -204,6 +172,62 @@ pub fn evaluate_lines(
         out.extend(res?);
     }
     Ok(out)
+}
+
+/// One line of a source that builds H itself (`BlochSource::fill_line`: cheap, so built where
+/// it is used, cache-resident, with no batch buffer), in the buffers its thread keeps (see
+/// [`LineBuffers`]). `positions` as for [`evaluate_lines`].
+pub fn evaluate_line(
+    src: &dyn BlochSource,
+    l: &LineSpec,
+    loop_points: usize,
+    filling: usize,
+    positions: Option<&[f64]>,
+) -> CoreResult<LineResult> {
+    let (dim, n) = (src.dim(), src.norb());
+    with_line_buffers(|b| {
+        b.kappa.clear();
+        line_kappa(l, loop_points, dim, &mut b.kappa);
+        // (fill_line writes every entry: the old contents need no zeroing)
+        b.h.resize(loop_points * n * n, C64::new(0.0, 0.0));
+        src.fill_line(&l.base[..dim], l.axis, loop_points, &mut b.h)?;
+        let w = line_weights(l, loop_points, n, positions);
+        wilson_line_in(
+            &mut b.scratch,
+            &b.h,
+            &b.kappa,
+            dim,
+            n,
+            filling,
+            w.as_deref(),
+            Kernels::Fast,
+        )
+    })
+}
+
+/// The κ points of a line (L × dim), appended to `kappa`.
+fn line_kappa(l: &LineSpec, loop_points: usize, dim: usize, kappa: &mut Vec<f64>) {
+    for s in 0..loop_points {
+        let mut k = l.base;
+        k[l.axis] = s as f64 / loop_points as f64;
+        kappa.extend_from_slice(&k[..dim]);
+    }
+}
+
+/// The phases exp(−2πi τ/L) of the orbitals along a line's axis (tight-binding convention),
+/// or None (periodic convention).
+fn line_weights(
+    l: &LineSpec,
+    loop_points: usize,
+    n: usize,
+    positions: Option<&[f64]>,
+) -> Option<Vec<C64>> {
+    positions.map(|p| {
+        p[l.axis * n..(l.axis + 1) * n]
+            .iter()
+            .map(|&t| C64::from_polar(1.0, -TAU * t / loop_points as f64))
+            .collect()
+    })
 }
 
 /// Which kernels a Wilson line uses: the production path, or the straightforward one that the
@@ -518,11 +542,11 @@ pub fn evaluate_points(
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::bloch::Hoppings;
 
-    fn random_model(n: usize, seed: u64) -> Hoppings {
+    pub(crate) fn random_model(n: usize, seed: u64) -> Hoppings {
         let mut rng = crate::test_rng::TestRng::new(seed);
         let mut next = || rng.uniform();
         let nn = n * n;
