@@ -15,9 +15,9 @@ use crate::gap_search::{gaps_on_grid, grid_by_rows, grid_gaps, grid_row, grid_ro
 use crate::guided::map_guided;
 use crate::parity::trims;
 use crate::plane_flows::{
-    examined_planes, initial_lines, initial_pump, plane_line_specs, Plane, PlaneLines,
+    initial_lines, initial_pump, plane_line_specs, Plane, PlaneInbox, PlaneLines,
 };
-use crate::wilson::{evaluate_line, evaluate_points, BandStats, LineResult, PointSpectra};
+use crate::wilson::{evaluate_line, evaluate_points, BandStats, PointSpectra};
 
 /// What the first pass found. `trims` lists the TRIMs as [`trims`] does.
 pub struct FirstPass {
@@ -49,10 +49,10 @@ fn bulk_grid(dim: usize, m: usize) -> Vec<f64> {
     k
 }
 
-/// One task of the list and what it gives.
+/// One task of the list and what it gives (a line goes to its plane's [`PlaneInbox`]).
 enum Found {
     Trims(PointSpectra),
-    Line(LineResult),
+    Line,
     Row(Vec<f64>),
 }
 
@@ -76,13 +76,20 @@ pub fn first_pass(
     let pump = initial_pump(s);
     let specs = plane_line_specs(wilson_planes, &pump);
     let rows = if bulk_kappa.is_empty() { 0 } else { m * m };
+    let inboxes: Vec<PlaneInbox> = wilson_planes
+        .iter()
+        .map(|_| PlaneInbox::new(pump.len()))
+        .collect();
     let found = map_guided(
         1 + specs.len() + rows,
         || grid_row_scratch(src, m),
         |(h, work), i| match i.checked_sub(1) {
             None => evaluate_points(src, &trim_k, filling, true).map(Found::Trims),
             Some(l) if l < specs.len() => {
-                evaluate_line(src, &specs[l], s.loop_points, filling, None).map(Found::Line)
+                let line = evaluate_line(src, &specs[l], s.loop_points, filling, None)?;
+                let (plane, j) = (l / pump.len(), l % pump.len());
+                inboxes[plane].deliver(j, line, &pump, filling, s.step_limit)?;
+                Ok(Found::Line)
             }
             Some(l) => grid_row(src, m, l - specs.len(), h, work).map(Found::Row),
         },
@@ -93,10 +100,10 @@ pub fn first_pass(
             "the first task is not the TRIMs".into(),
         ));
     };
-    let (mut lines, mut grid) = (Vec::with_capacity(specs.len()), Vec::with_capacity(rows));
+    let mut grid = Vec::with_capacity(rows);
     for f in found {
         match f {
-            Found::Line(l) => lines.push(l),
+            Found::Line => {}
             Found::Row(e) => grid.push(e),
             Found::Trims(_) => return Err(CoreError::Internal("the TRIMs came twice".into())),
         }
@@ -108,7 +115,10 @@ pub fn first_pass(
         bulk_kappa,
         bulk_gaps,
         bulk_stats,
-        lines: examined_planes(wilson_planes.len(), &pump, lines, filling, s),
+        lines: inboxes
+            .into_iter()
+            .map(PlaneInbox::into_plane)
+            .collect::<CoreResult<_>>()?,
     })
 }
 
