@@ -166,19 +166,31 @@ class TightBinding(Model):
 
     def _core(self) -> Any:
         if self._core_cache is None:
-            if not self._hops:
-                raise ModelError("the model has no hoppings; call add() first")
-            nhop = len(self._hops)
-            r = np.array([h[0] for h in self._hops], dtype=np.int64).reshape(nhop, self.dim)
-            t = np.array([h[1] for h in self._hops], dtype=complex).reshape(
-                nhop, self.norb, self.norb
-            )
-            idx = {name: i for i, name in enumerate(self._terms)}
-            term = np.array([-1 if h[2] is None else idx[h[2]] for h in self._hops], dtype=np.int64)
-            self._core_cache = _core.CoreModel.tight_binding(
-                self.dim, self.norb, len(self._terms), r, np.ascontiguousarray(t), term
-            )
+            self._core_cache = _core.CoreModel.tight_binding(*self._core_arguments())
         return self._core_cache
+
+    def _core_arguments(self) -> tuple[int, int, int, NDArray, NDArray, NDArray]:
+        """The arguments of ``_core.CoreModel.tight_binding`` for this model.
+
+        (dim, norb, number of terms, R (nhop, dim), t (nhop, norb, norb), term index of each
+        hopping, −1 for the fixed part). Benchmarks use them to build the same model in
+        another build of the extension.
+
+        Examples
+        --------
+        >>> from toposweep import models
+        >>> dim, norb, nterms, r, t, term = models.bhz()._core_arguments()
+        >>> (dim, norb, nterms, r.shape[1], t.shape[1:])
+        (2, 4, 2, 2, (4, 4))
+        """
+        if not self._hops:
+            raise ModelError("the model has no hoppings; call add() first")
+        nhop = len(self._hops)
+        r = np.array([h[0] for h in self._hops], dtype=np.int64).reshape(nhop, self.dim)
+        t = np.array([h[1] for h in self._hops], dtype=complex).reshape(nhop, self.norb, self.norb)
+        idx = {name: i for i, name in enumerate(self._terms)}
+        term = np.array([-1 if h[2] is None else idx[h[2]] for h in self._hops], dtype=np.int64)
+        return self.dim, self.norb, len(self._terms), r, np.ascontiguousarray(t), term
 
     def prepare(self, points: Sequence[Mapping[str, float]]) -> tuple[Any, NDArray[np.float64]]:
         """Core model and coefficient rows for resolved parameter dicts."""
