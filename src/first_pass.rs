@@ -159,6 +159,7 @@ mod tests {
     use super::*;
     use crate::bloch::Bloch;
     use crate::engine::{Method, Sampling};
+    use crate::guided::tests::pool;
     use crate::plane_flows::planes;
     use crate::wilson::tests::random_model;
 
@@ -192,13 +193,6 @@ mod tests {
         fn prefers_batches(&self) -> bool {
             true
         }
-    }
-
-    fn pool(n: usize) -> rayon::ThreadPool {
-        rayon::ThreadPoolBuilder::new()
-            .num_threads(n)
-            .build()
-            .unwrap()
     }
 
     /// The list's results, sorted back into TRIMs, grid and planes, equal those of the three

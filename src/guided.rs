@@ -78,12 +78,13 @@ pub fn map_guided<S, T: Send + Sync>(
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use std::sync::atomic::AtomicUsize;
     use std::sync::Mutex;
 
-    fn pool(n: usize) -> rayon::ThreadPool {
+    /// A pool of `n` workers for tests that compare results on different numbers of workers.
+    pub(crate) fn pool(n: usize) -> rayon::ThreadPool {
         rayon::ThreadPoolBuilder::new()
             .num_threads(n)
             .build()
