@@ -25,7 +25,9 @@ from __future__ import annotations
 
 import argparse
 import os
+import sys
 import time
+from pathlib import Path
 
 # (as in run_all.py: NumPy's BLAS on one thread, so its threads do not compete with ours)
 for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
@@ -34,6 +36,9 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
 import numpy as np  # noqa: E402
 import toposweep as ts  # noqa: E402
 from toposweep import evaluation  # noqa: E402
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from point_sampling import POINT_OPTIONS  # noqa: E402
 
 PARTS = ("before", "side job", "core", "after", "whole call")
 
@@ -55,10 +60,9 @@ def timeline(threads: int, calls: int) -> np.ndarray:
         return out
 
     model = ts.models.wilson_dirac()
-    opts = {"loop_points": 40, "lines": 41, "max_lines": 41, "gap_starts": 0, "certify": False}
 
     def call() -> None:
-        ts.invariants(model, 2, {"mass": -2.0}, threads=threads, **opts)
+        ts.invariants(model, 2, {"mass": -2.0}, threads=threads, **POINT_OPTIONS)
 
     evaluation._core.evaluate = timed_core
     try:

@@ -39,7 +39,8 @@ import toposweep as ts  # noqa: E402
 from toposweep import _core  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from fork_join_gain import POINT_OPTIONS, TASKS  # noqa: E402
+from fork_join_gain import TASKS  # noqa: E402
+from point_sampling import POINT_OPTIONS  # noqa: E402
 from timing import ONE_THREAD, OnOneThread, paired_gain, round_times  # noqa: E402
 
 

@@ -24,6 +24,7 @@ import os
 import subprocess
 import sys
 import time
+from pathlib import Path
 
 import numpy as np
 
@@ -37,7 +38,9 @@ import toposweep as ts
 from toposweep.sampling import Sampling
 wd = ts.models.wilson_dirac()
 core, coeffs = wd.prepare([wd.resolve({"mass": -2.0})])
-kw = Sampling(loop_points=40, lines=41, max_lines=41, gap_starts=0, certify=False).core_kwargs()
+sys.path.insert(0, sys.argv[5])
+from point_sampling import POINT_OPTIONS
+kw = Sampling(**POINT_OPTIONS).core_kwargs()
 run = lambda: _core.evaluate(core, coeffs, 2, inversion=None, threads=1, **kw)
 for _ in range(50):
     run()
@@ -75,6 +78,7 @@ def measure(seconds: float) -> tuple[list[int], list[list[float]]]:
                 str(start),
                 str(windows),
                 "always" if i == 0 else "alternate",
+                str(Path(__file__).resolve().parent),  # (where point_sampling.py is)
             ],
             stdout=subprocess.PIPE,
             text=True,

@@ -30,17 +30,9 @@ import toposweep as ts  # noqa: E402
 from toposweep import _core  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+from point_sampling import POINT_OPTIONS  # noqa: E402
 from timing import ONE_THREAD, OnOneThread, best_time, paired_gain, round_times  # noqa: E402
 
-#: the fixed sampling of table (b) of ``make bench``
-POINT_OPTIONS = {
-    "loop_points": 40,
-    "lines": 41,
-    "max_lines": 41,
-    "gap_points": 8,
-    "gap_starts": 0,
-    "certify": False,
-}
 #: tasks of the probe: the point's 6 planes × 41 lines
 TASKS = 246
 

@@ -52,13 +52,15 @@ from baseline_models import (  # noqa: E402
 )
 from fork_join_gain import table as fork_join_table  # noqa: E402
 from numpy_baseline import compare, invariants_numpy  # noqa: E402
+from point_sampling import POINT_OPTIONS  # noqa: E402
 from timing import ONE_THREAD, OnOneThread, best_time, paired_gain, round_times  # noqa: E402
 
-#: the fixed sampling of issues 2 and 4
-FIXED = {"loop_points": 40, "lines": 41}
+#: the loop and line counts of the fixed sampling (point_sampling.py), as the NumPy baseline
+#: takes them
+FIXED = {k: POINT_OPTIONS[k] for k in ("loop_points", "lines")}
 #: engine options that would sample more κ than the baseline: gap minimiser and convergence
 #: certificate (finer loops) off, as in numpy_baseline.compare
-ENGINE_FIXED = {"gap_starts": 0, "certify": False}
+ENGINE_FIXED = {k: POINT_OPTIONS[k] for k in ("gap_starts", "certify")}
 
 
 def load() -> str:
@@ -178,7 +180,7 @@ def core_only_table(repeats: int) -> list[str]:
 
     wd = ts.models.wilson_dirac()
     point = [wd.resolve({"mass": -2.0})]
-    s = Sampling(**FIXED, **ENGINE_FIXED, max_lines=FIXED["lines"])
+    s = Sampling(**POINT_OPTIONS)
     core, coeffs = wd.prepare(point)
     kw = s.core_kwargs()
     out = [
@@ -212,9 +214,7 @@ def core_only_table(repeats: int) -> list[str]:
         ),
         (
             "`invariants()`: checks and Dataset layout beside the core",
-            lambda th: ts.invariants(
-                wd, 2, {"mass": -2.0}, threads=th, max_lines=41, **ENGINE_FIXED, **FIXED
-            ),
+            lambda th: ts.invariants(wd, 2, {"mass": -2.0}, threads=th, **POINT_OPTIONS),
         ),
     ]
     for name, f in rows:
