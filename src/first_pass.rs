@@ -11,13 +11,11 @@
 
 use crate::bloch::BlochSource;
 use crate::error::{CoreError, CoreResult};
-use crate::gap_search::{gaps_on_grid, grid_by_rows, grid_gaps, grid_row, grid_row_scratch};
+use crate::gap_search::{gaps_on_grid, grid_gaps, grid_row, grid_row_scratch};
 use crate::guided::map_guided;
 use crate::parity::trims;
-use crate::plane_flows::{
-    initial_lines, initial_pump, plane_line_specs, Plane, PlaneInbox, PlaneLines,
-};
-use crate::wilson::{evaluate_line, evaluate_points, BandStats, PointSpectra};
+use crate::plane_flows::{initial_lines, InitialLines, Plane, PlaneLines};
+use crate::wilson::{evaluate_points, BandStats, PointSpectra};
 
 /// What the first pass found. `trims` lists the TRIMs as [`trims`] does.
 pub struct FirstPass {
@@ -49,7 +47,7 @@ fn bulk_grid(dim: usize, m: usize) -> Vec<f64> {
     k
 }
 
-/// One task of the list and what it gives (a line goes to its plane's [`PlaneInbox`]).
+/// One task of the list and what it gives (a line goes to its plane, [`InitialLines`]).
 enum Found {
     Trims(PointSpectra),
     Line,
@@ -70,28 +68,20 @@ pub fn first_pass(
     let bulk_kappa = bulk_grid(dim, s.gap_points);
     let m = s.gap_points;
     let wilson_planes = if wilson { planes } else { &[] };
-    if src.prefers_batches() || (!bulk_kappa.is_empty() && !grid_by_rows(src, &bulk_kappa, m)) {
+    if src.prefers_batches() {
         return batched(src, wilson_planes, filling, s, trim_k, bulk_kappa);
     }
-    let pump = initial_pump(s);
-    let specs = plane_line_specs(wilson_planes, &pump);
+    let lines = InitialLines::new(wilson_planes, s);
     let rows = if bulk_kappa.is_empty() { 0 } else { m * m };
-    let inboxes: Vec<PlaneInbox> = wilson_planes
-        .iter()
-        .map(|_| PlaneInbox::new(pump.len()))
-        .collect();
     let found = map_guided(
-        1 + specs.len() + rows,
+        1 + lines.len() + rows,
         || grid_row_scratch(src, m),
         |(h, work), i| match i.checked_sub(1) {
             None => evaluate_points(src, &trim_k, filling, true).map(Found::Trims),
-            Some(l) if l < specs.len() => {
-                let line = evaluate_line(src, &specs[l], s.loop_points, filling, None)?;
-                let (plane, j) = (l / pump.len(), l % pump.len());
-                inboxes[plane].deliver(j, line, &pump, filling, s.step_limit)?;
-                Ok(Found::Line)
-            }
-            Some(l) => grid_row(src, m, l - specs.len(), h, work).map(Found::Row),
+            Some(l) if l < lines.len() => lines
+                .run(src, l, s.loop_points, filling, s.step_limit)
+                .map(|()| Found::Line),
+            Some(l) => grid_row(src, m, l - lines.len(), h, work).map(Found::Row),
         },
     )?;
     let mut found = found.into_iter();
@@ -115,10 +105,7 @@ pub fn first_pass(
         bulk_kappa,
         bulk_gaps,
         bulk_stats,
-        lines: inboxes
-            .into_iter()
-            .map(PlaneInbox::into_plane)
-            .collect::<CoreResult<_>>()?,
+        lines: lines.into_planes()?,
     })
 }
 

@@ -121,7 +121,7 @@ pub fn gaps_on_grid(
 }
 
 /// Whether [`gaps_on_grid`] takes the grid row by row (else as one batch of κ points).
-pub fn grid_by_rows(src: &dyn BlochSource, kappa: &[f64], m: usize) -> bool {
+fn grid_by_rows(src: &dyn BlochSource, kappa: &[f64], m: usize) -> bool {
     !src.prefers_batches() && src.dim() == 3 && m > 0 && kappa.len() == 3 * m * m * m
 }
 

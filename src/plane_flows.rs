@@ -10,8 +10,9 @@ use crate::bloch::BlochSource;
 use crate::engine::Sampling;
 use crate::error::{CoreError, CoreResult};
 use crate::flow::{inspect_with_gaps, largest_gap, z2_of_tracked_flow, Interval};
+use crate::guided::map_guided;
 use crate::lattice_z2::LatticePlane;
-use crate::wilson::{evaluate_lines, BandStats, LineResult, LineSpec};
+use crate::wilson::{evaluate_line, evaluate_lines, BandStats, LineResult, LineSpec};
 use rayon::prelude::*;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{Mutex, OnceLock};
@@ -168,35 +169,67 @@ pub fn initial_pump(s: &Sampling) -> Vec<f64> {
         .collect()
 }
 
-/// The lines of every plane at the pump coordinates `pump`, plane after plane.
-pub fn plane_line_specs(planes: &[Plane], pump: &[f64]) -> Vec<LineSpec> {
-    planes
-        .iter()
-        .flat_map(|p| pump.iter().map(|&t| p.line(t)))
-        .collect()
+/// The initial lines of several planes as tasks of a list (one task per line, `len` of them,
+/// plane after plane), each plane examined by the task that delivers its last line
+/// ([`PlaneInbox`]). [`initial_lines`] runs them alone; the first pass of a point
+/// (`first_pass`) runs them among its other tasks.
+pub struct InitialLines {
+    specs: Vec<LineSpec>,
+    pump: Vec<f64>,
+    inboxes: Vec<PlaneInbox>,
 }
 
-/// The planes' examined lines from `lines`, as [`plane_line_specs`] lists them.
-pub fn examined_planes(
-    planes: usize,
-    pump: &[f64],
-    lines: Vec<LineResult>,
-    filling: usize,
-    s: &Sampling,
-) -> Vec<PlaneLines> {
-    let mut lines = lines.into_iter();
-    (0..planes)
-        .map(|_| {
-            let own = lines.by_ref().take(pump.len()).collect();
-            PlaneLines::new(pump.to_vec(), own, filling, s.step_limit)
-        })
-        .collect()
+impl InitialLines {
+    pub fn new(planes: &[Plane], s: &Sampling) -> Self {
+        let pump = initial_pump(s);
+        let specs = planes
+            .iter()
+            .flat_map(|p| pump.iter().map(|&t| p.line(t)))
+            .collect();
+        let inboxes = planes.iter().map(|_| PlaneInbox::new(pump.len())).collect();
+        Self {
+            specs,
+            pump,
+            inboxes,
+        }
+    }
+
+    /// Number of tasks (lines).
+    pub fn len(&self) -> usize {
+        self.specs.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.specs.is_empty()
+    }
+
+    /// Task `l`: its line, delivered to its plane.
+    pub fn run(
+        &self,
+        src: &dyn BlochSource,
+        l: usize,
+        loop_points: usize,
+        filling: usize,
+        step_limit: f64,
+    ) -> CoreResult<()> {
+        let line = evaluate_line(src, &self.specs[l], loop_points, filling, None)?;
+        let (plane, j) = (l / self.pump.len(), l % self.pump.len());
+        self.inboxes[plane].deliver(j, line, &self.pump, filling, step_limit)
+    }
+
+    /// The examined planes, once every task has run.
+    pub fn into_planes(self) -> CoreResult<Vec<PlaneLines>> {
+        self.inboxes
+            .into_iter()
+            .map(PlaneInbox::into_plane)
+            .collect()
+    }
 }
 
 /// A plane's lines as the tasks that compute them deliver them, in any order; the delivery of
 /// the last one examines the plane, in that task ([`PlaneLines`]). Planes are so examined while
-/// other lines are still being computed, not one after the other once all are done (on two
-/// workers six planes took ~20 µs after a 4-band point's ~1.2 ms), and the lines' allocations
+/// other lines are still being computed, not one after the other once all are done (six 4-band
+/// planes took ~48 µs so, on one thread, before `flow::unit_mod`), and the lines' allocations
 /// are freed in the same task.
 pub struct PlaneInbox {
     lines: Mutex<Vec<Option<LineResult>>>,
@@ -248,8 +281,10 @@ impl PlaneInbox {
     }
 }
 
-/// The initial, evenly spaced pump lines of several planes (all in one list of lines), then
-/// each plane's checks.
+/// The initial, evenly spaced pump lines of several planes, each plane examined once its lines
+/// are done: a source that builds H itself as one list of tasks ([`InitialLines`]); one that
+/// prefers batches (a Python callback) is asked for every line at once, and the planes are then
+/// examined side by side.
 pub fn initial_lines(
     src: &dyn BlochSource,
     planes: &[Plane],
@@ -257,10 +292,29 @@ pub fn initial_lines(
     s: &Sampling,
     loop_points: usize,
 ) -> CoreResult<Vec<PlaneLines>> {
+    if !src.prefers_batches() {
+        let tasks = InitialLines::new(planes, s);
+        map_guided(
+            tasks.len(),
+            || (),
+            |_, l| tasks.run(src, l, loop_points, filling, s.step_limit),
+        )?;
+        return tasks.into_planes();
+    }
     let pump = initial_pump(s);
-    let specs = plane_line_specs(planes, &pump);
-    let lines = evaluate_lines(src, &specs, loop_points, filling, None)?;
-    Ok(examined_planes(planes.len(), &pump, lines, filling, s))
+    let specs: Vec<LineSpec> = planes
+        .iter()
+        .flat_map(|p| pump.iter().map(|&t| p.line(t)))
+        .collect();
+    let mut lines = evaluate_lines(src, &specs, loop_points, filling, None)?.into_iter();
+    let per_plane: Vec<Vec<LineResult>> = planes
+        .iter()
+        .map(|_| lines.by_ref().take(pump.len()).collect())
+        .collect();
+    Ok(per_plane
+        .into_par_iter()
+        .map(|own| PlaneLines::new(pump.clone(), own, filling, s.step_limit))
+        .collect())
 }
 
 /// Adaptive insertion of pump lines (all planes in one batch per round) until every
