@@ -41,7 +41,7 @@ from toposweep import _core  # noqa: E402
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from fork_join_gain import TASKS  # noqa: E402
 from point_sampling import POINT_OPTIONS  # noqa: E402
-from timing import ONE_THREAD, OnOneThread, paired_gain, round_times  # noqa: E402
+from timing import ONE_THREAD, HostSteal, OnOneThread, paired_gain, round_times  # noqa: E402
 
 
 def load_other(path: str) -> ModuleType:
@@ -80,18 +80,19 @@ def main() -> None:
     for key in a:
         assert np.array_equal(a[key], b[key], equal_nan=True), f"the builds differ in {key}"
     iterations = 3000  # (the probe only reports what the machine gives; its length matters little)
-    times = round_times(
-        [
-            OnOneThread(call(other, model_other, 1)),
-            call(other, model_other, cores),
-            OnOneThread(call(_core, model_new, 1)),
-            call(_core, model_new, cores),
-            OnOneThread(lambda: _core.fork_join_probe(TASKS, iterations, threads=1)),
-            lambda: _core.fork_join_probe(TASKS, iterations, threads=cores),
-        ],
-        args.rounds,
-        min_seconds=0.035,
-    )
+    with HostSteal() as steal:
+        times = round_times(
+            [
+                OnOneThread(call(other, model_other, 1)),
+                call(other, model_other, cores),
+                OnOneThread(call(_core, model_new, 1)),
+                call(_core, model_new, cores),
+                OnOneThread(lambda: _core.fork_join_probe(TASKS, iterations, threads=1)),
+                lambda: _core.fork_join_probe(TASKS, iterations, threads=cores),
+            ],
+            args.rounds,
+            min_seconds=0.035,
+        )
     best = [min(column) * 1e3 for column in zip(*times, strict=True)]
     ratio = sorted(t[3] / t[1] for t in times)[len(times) // 2]
     print(f"| build | 1 thread (ms) | {cores} threads (ms) | threads gain |")
@@ -100,6 +101,7 @@ def main() -> None:
     print(f"| installed | {best[2]:.3f} | {best[3]:.3f} | {paired_gain(times, 2, 3):.2f}× |")
     print(f"| probe | {best[4]:.3f} | {best[5]:.3f} | {paired_gain(times, 4, 5):.2f}× |")
     print(f"\ninstalled over other, {cores} threads, median over rounds: {ratio:.3f}")
+    print(f"CPU time the host took away during the rounds (steal): {steal.text()}")
 
 
 if __name__ == "__main__":

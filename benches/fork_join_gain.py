@@ -31,14 +31,22 @@ from toposweep import _core  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from point_sampling import POINT_OPTIONS  # noqa: E402
-from timing import ONE_THREAD, OnOneThread, best_time, paired_gain, round_times  # noqa: E402
+from timing import (  # noqa: E402
+    ONE_THREAD,
+    HostSteal,
+    OnOneThread,
+    best_time,
+    paired_gain,
+    round_times,
+)
 
 #: tasks of the probe: the point's 6 planes × 41 lines
 TASKS = 246
 
 
-def measure(rounds: int) -> dict[str, tuple[float, float, float]]:
-    """Per call ("invariants()", "probe"): best one-thread and all-core time (s), paired gain."""
+def measure(rounds: int) -> tuple[dict[str, tuple[float, float, float]], HostSteal]:
+    """Per call ("invariants()", "probe"): best one-thread and all-core time (s), paired gain;
+    and the host's steal during the rounds."""
     cores = os.cpu_count() or 1
     model = ts.models.wilson_dirac()
 
@@ -53,26 +61,28 @@ def measure(rounds: int) -> dict[str, tuple[float, float, float]]:
     def probe(threads: int) -> object:
         return _core.fork_join_probe(TASKS, iterations, threads=threads)
 
-    times = round_times(
-        [
-            OnOneThread(lambda: point(1)),
-            lambda: point(cores),
-            OnOneThread(lambda: probe(1)),
-            lambda: probe(cores),
-        ],
-        rounds,
-        min_seconds=0.035,
-    )
+    with HostSteal() as steal:
+        times = round_times(
+            [
+                OnOneThread(lambda: point(1)),
+                lambda: point(cores),
+                OnOneThread(lambda: probe(1)),
+                lambda: probe(cores),
+            ],
+            rounds,
+            min_seconds=0.035,
+        )
     best = [min(column) for column in zip(*times, strict=True)]
     return {
         "invariants()": (best[0], best[1], paired_gain(times, 0, 1)),
         "probe": (best[2], best[3], paired_gain(times, 2, 3)),
-    }
+    }, steal
 
 
 def table(rounds: int) -> list[str]:
-    """Markdown rows: both calls, and the point's gain as a share of the probe's."""
-    res = measure(rounds)
+    """Markdown rows: both calls, the point's gain as a share of the probe's, and the host's
+    steal meanwhile."""
+    res, steal = measure(rounds)
     cores = os.cpu_count() or 1
     out = [
         f"| call | 1 thread (ms) | {cores} threads (ms) | threads gain |",
@@ -89,6 +99,7 @@ def table(rounds: int) -> list[str]:
         f"| the point's extra speed from more threads, as a share of the probe's | | | "
         f"{share:.0%} |"
     )
+    out.append(f"| CPU time the host took away during these rounds (steal) | | | {steal.text()} |")
     return out
 
 

@@ -53,7 +53,14 @@ from baseline_models import (  # noqa: E402
 from fork_join_gain import table as fork_join_table  # noqa: E402
 from numpy_baseline import compare, invariants_numpy  # noqa: E402
 from point_sampling import POINT_OPTIONS  # noqa: E402
-from timing import ONE_THREAD, OnOneThread, best_time, paired_gain, round_times  # noqa: E402
+from timing import (  # noqa: E402
+    ONE_THREAD,
+    HostSteal,
+    OnOneThread,
+    best_time,
+    paired_gain,
+    round_times,
+)
 
 #: the loop and line counts of the fixed sampling (point_sampling.py), as the NumPy baseline
 #: takes them
@@ -134,29 +141,31 @@ def point_cases(quick: bool) -> list[tuple[str, object, int, dict | None, dict]]
 def invariants_table(repeats: int, quick: bool) -> list[str]:
     out = [
         "| model | NumPy baseline (ms/point) | toposweep 1 thread (ms) | speed-up | "
-        f"toposweep {os.cpu_count()} threads (ms) | speed-up | threads gain | result |",
-        "|---|---:|---:|---:|---:|---:|---:|---|",
+        f"toposweep {os.cpu_count()} threads (ms) | speed-up | threads gain | host steal | "
+        "result |",
+        "|---|---:|---:|---:|---:|---:|---:|---:|---|",
     ]
     for label, model, filling, params, sampling in point_cases(quick):
         opts = {"gap_points": 8, **sampling}
         ref, _ = compare(model, filling, params, **opts)  # asserts agreement
         reps = repeats if model.norb <= 16 else 1
         kw = {**opts, **ENGINE_FIXED, "max_lines": opts["lines"]}
-        times = round_times(
-            [
-                lambda m=model, f=filling, p=params, o=opts: invariants_numpy(m, f, p, **o),
-                OnOneThread(
+        with HostSteal() as steal:
+            times = round_times(
+                [
+                    lambda m=model, f=filling, p=params, o=opts: invariants_numpy(m, f, p, **o),
+                    OnOneThread(
+                        lambda m=model, f=filling, p=params, kw=kw: ts.invariants(
+                            m, f, p, threads=1, **kw
+                        )
+                    ),
                     lambda m=model, f=filling, p=params, kw=kw: ts.invariants(
-                        m, f, p, threads=1, **kw
-                    )
-                ),
-                lambda m=model, f=filling, p=params, kw=kw: ts.invariants(
-                    m, f, p, threads=os.cpu_count(), **kw
-                ),
-            ],
-            6 * reps,
-            min_seconds=0.035,
-        )
+                        m, f, p, threads=os.cpu_count(), **kw
+                    ),
+                ],
+                6 * reps,
+                min_seconds=0.035,
+            )
         t_np, t1, tn = (min(column) for column in zip(*times, strict=True))
         gain = paired_gain(times, 1, 2)
         if ref["nu0"] < 0:
@@ -165,7 +174,7 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
             result = f"({ref['nu0']};{''.join(map(str, ref['nu']))})"
         out.append(
             f"| {label} | {t_np * 1e3:.1f} | {t1 * 1e3:.2f} | {t_np / t1:.1f}× | "
-            f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {gain:.2f}× | {result} |"
+            f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {gain:.2f}× | {steal.text()} | {result} |"
         )
         if label.startswith("16"):
             assert (ref["nu0"], ref["nu"]) == expected_indices(4)
@@ -185,8 +194,8 @@ def core_only_table(repeats: int) -> list[str]:
     kw = s.core_kwargs()
     out = [
         "| Wilson–Dirac point, fixed 40 × 41 × 6 | 1 thread (ms) | "
-        f"{os.cpu_count()} threads (ms) | threads gain |",
-        "|---|---:|---:|---:|",
+        f"{os.cpu_count()} threads (ms) | threads gain | host steal |",
+        "|---|---:|---:|---:|---:|",
     ]
     rows = [
         (
@@ -218,14 +227,16 @@ def core_only_table(repeats: int) -> list[str]:
         ),
     ]
     for name, f in rows:
-        times = round_times(
-            [OnOneThread(lambda f=f: f(1)), lambda f=f: f(os.cpu_count())],
-            6 * repeats,
-            min_seconds=0.035,
-        )
+        with HostSteal() as steal:
+            times = round_times(
+                [OnOneThread(lambda f=f: f(1)), lambda f=f: f(os.cpu_count())],
+                6 * repeats,
+                min_seconds=0.035,
+            )
         t1, tn = (min(column) for column in zip(*times, strict=True))
         out.append(
-            f"| {name} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {paired_gain(times, 0, 1):.2f}× |"
+            f"| {name} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {paired_gain(times, 0, 1):.2f}× | "
+            f"{steal.text()} |"
         )
     return out
 
@@ -234,7 +245,8 @@ def core_speed_table(seconds: float) -> list[str]:
     """Each core's speed, the first alone and all at once (``core_speeds.py``), summarised."""
     from core_speeds import ceilings, measure
 
-    cores, rates = measure(seconds)
+    with HostSteal() as steal:
+        cores, rates = measure(seconds)
     out = [
         "| core | calls/s, median | slowest half second | fastest half second |",
         "|---|---:|---:|---:|",
@@ -249,6 +261,7 @@ def core_speed_table(seconds: float) -> list[str]:
         "| all at work over the first alone in the half second before | "
         f"{np.median(c):.2f} | {min(c):.2f} | {max(c):.2f} |"
     )
+    out.append(f"| CPU time the host took away meanwhile (steal) | {steal.text()} | | |")
     return out
 
 
@@ -335,6 +348,9 @@ def main() -> None:
         "Times are the best of several rounds; a threads gain is the median over the rounds of "
         "the one-thread time over the all-core time measured right after it. One-thread calls "
         "are made from a thread of their own and calls on all cores from the main thread. "
+        "'Host steal' is the share of all CPUs' time that the hypervisor gave to other guests "
+        "while a row was measured (/proc/stat): on a shared virtual machine it caps a threads "
+        "gain, and it changes from minute to minute. "
         "Other jobs were sharing the machine "
         f"({load()} at the start).",
         "",

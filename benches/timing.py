@@ -1,5 +1,5 @@
-"""Timing helpers of the benchmarks: interleaved rounds, paired threads gains, and the thread
-that makes every one-thread call.
+"""Timing helpers of the benchmarks: interleaved rounds, paired threads gains, the thread that
+makes every one-thread call, and the share of the CPUs' time the host took away meanwhile.
 
 Used by ``run_all.py`` and the single-purpose scripts beside it.
 """
@@ -108,3 +108,54 @@ def paired_gain(times: list[list[float]], one: int, many: int) -> float:
     core against the fastest moment of both at once, which is rarer.
     """
     return float(np.median([r[one] / r[many] for r in times]))
+
+
+def cpu_ticks(path: str = "/proc/stat") -> tuple[int, int] | None:
+    """(stolen, all) clock ticks of all CPUs since boot, from Linux's /proc/stat; None elsewhere.
+
+    "Steal" is time a virtual CPU was ready to run but the hypervisor ran something else on
+    the physical core (common practice, no source: the eighth field of the ``cpu`` line, see
+    proc(5)).
+    """
+    try:
+        with open(path) as f:
+            fields = f.readline().split()
+    except OSError:
+        return None
+    if len(fields) < 9 or fields[0] != "cpu":
+        return None
+    # user nice system idle iowait irq softirq steal (guest time is counted in user already)
+    ticks = [int(x) for x in fields[1:9]]
+    return ticks[7], sum(ticks)
+
+
+class HostSteal:
+    """The share of all CPUs' time the host took away while the ``with`` block ran.
+
+    On a shared virtual machine a threads gain is capped by it: with both virtual CPUs busy
+    the host may run other guests on their physical cores. Resolution is a clock tick (10 ms),
+    so meaningful for blocks of a second or more.
+
+    Examples
+    --------
+    >>> with HostSteal() as steal:
+    ...     busy = sum(range(10**6))
+    >>> steal.share is None or 0.0 <= steal.share <= 1.0
+    True
+    """
+
+    def __init__(self) -> None:
+        self.share: float | None = None
+
+    def __enter__(self) -> HostSteal:
+        self._start = cpu_ticks()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        end = cpu_ticks()
+        if self._start is not None and end is not None and end[1] > self._start[1]:
+            self.share = (end[0] - self._start[0]) / (end[1] - self._start[1])
+
+    def text(self) -> str:
+        """The share in per cent, or "n/a" where the system does not report it."""
+        return "n/a" if self.share is None else f"{100 * self.share:.0f} %"
