@@ -4,16 +4,17 @@
 //! the requested rayon pool, catches panics and maps [`CoreError`] to Python exceptions.
 
 use crate::bloch::{BlochSource, Hoppings};
+use crate::columns::{columns, Column, Values};
 use crate::eigen::eigh_many_into;
 use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, Sampling};
 use crate::error::{CoreError, CoreResult};
-use crate::indices::{agreement, phase_of};
 use crate::pools::{default_threads, mark_main_thread, run_with};
 use crate::probe::divisible_work;
 use crate::C64;
-use numpy::ndarray::{Array1, Array2, Array3};
+use numpy::ndarray::{Array2, Array3, ArrayD, IxDyn};
 use numpy::{
-    IntoPyArray, PyReadonlyArray1, PyReadonlyArray2, PyReadonlyArray3, PyUntypedArrayMethods,
+    IntoPyArray, PyArrayDyn, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2, PyReadonlyArray3,
+    PyUntypedArray, PyUntypedArrayMethods,
 };
 use pyo3::exceptions::{PyArithmeticError, PyKeyboardInterrupt, PyRuntimeError, PyValueError};
 use pyo3::prelude::*;
@@ -299,12 +300,12 @@ fn evaluate<'py>(
             })
             .collect::<CoreResult<Vec<PointResult>>>()
     };
-    let run = match alongside {
-        None => detached(py, threads, points),
+    let (run, out) = match alongside {
+        None => (detached(py, threads, points), None),
         // one worker: the Python job first, on this thread, then the points
         Some(f) if threads.unwrap_or_else(default_threads) == 1 => {
-            f.call0(py)?;
-            detached(py, threads, points)
+            let out = f.call0(py)?;
+            (detached(py, threads, points), Some(out))
         }
         // The Python job on the worker that takes the run (from the main thread: this thread,
         // whose caches and thread state Python last used — on another worker the same job took
@@ -315,149 +316,122 @@ fn evaluate<'py>(
         // core's: it says why the run was not valid in the first place.
         Some(f) => {
             let (side, run) = detached(py, threads, || {
-                Ok(rayon::join(
-                    || Python::with_gil(|py| f.call0(py).map(drop)),
-                    points,
-                ))
+                Ok(rayon::join(|| Python::with_gil(|py| f.call0(py)), points))
             })?;
-            side?;
-            run.map_err(to_py)
+            (run.map_err(to_py), Some(side?))
         }
     };
     let res = finish(py, run, &error)?;
-    pack(py, &res, model.dim, method)
+    // (a dict returned by the Python job: arrays to write the results into, see `pack`)
+    let out = out.map(|o| o.into_bound(py));
+    let out = out.as_ref().and_then(|o| o.downcast::<PyDict>().ok());
+    pack(py, &res, model.dim, method, out)
 }
 
-/// The per-point results as one NumPy array per quantity. `phase`, `parity_agrees` and
-/// `methods_agree` are derived here (`indices::phase_of`, `indices::agreement`) rather than in
-/// Python: after the core they are serial work, ~35 µs of NumPy calls on one point.
+/// The per-point results as one NumPy array per quantity ([`columns`]). A quantity whose key
+/// `out` holds is written into that array instead, when the array is C-contiguous, writable,
+/// of the quantity's size and of a type that holds its values exactly (any integer type for
+/// integers, float64 for reals), and that very array is returned for it: the result Dataset
+/// planned beside the core gets its values without a copy after the core. Anything else gets
+/// a new array.
 fn pack<'py>(
     py: Python<'py>,
     res: &[PointResult],
     dim: usize,
     method: Method,
+    out: Option<&Bound<'py, PyDict>>,
 ) -> PyResult<Bound<'py, PyDict>> {
-    let np = res.len();
     let d = PyDict::new(py);
-    let col = |f: &dyn Fn(&PointResult) -> f64| Array1::from_iter(res.iter().map(f));
-    let icol = |f: &dyn Fn(&PointResult) -> i8| Array1::from_iter(res.iter().map(f));
-    let mat3 = |f: &dyn Fn(&PointResult) -> [i8; 3]| {
-        Array2::from_shape_fn((np, 3), |(i, j)| f(&res[i])[j])
-    };
-    d.set_item("nu0", icol(&|r| r.nu0).into_pyarray(py))?;
-    d.set_item("nu", mat3(&|r| r.nu).into_pyarray(py))?;
-    d.set_item("nu0_by_axis", mat3(&|r| r.nu0_by_axis).into_pyarray(py))?;
-    d.set_item(
-        "phase",
-        icol(&|r| phase_of(dim, r.nu0, r.nu)).into_pyarray(py),
-    )?;
-    d.set_item(
-        "z2_plane",
-        Array3::from_shape_fn((np, 3, 2), |(i, j, k)| res[i].z2_plane[j][k]).into_pyarray(py),
-    )?;
-    d.set_item("gap_direct", col(&|r| r.gap_direct).into_pyarray(py))?;
-    d.set_item("gap_indirect", col(&|r| r.gap_indirect).into_pyarray(py))?;
-    d.set_item("bandwidth", col(&|r| r.bandwidth).into_pyarray(py))?;
-    d.set_item("gap_floor", col(&|r| r.gap_floor).into_pyarray(py))?;
-    d.set_item("max_step", col(&|r| r.max_step).into_pyarray(py))?;
-    d.set_item("min_clearance", col(&|r| r.min_clearance).into_pyarray(py))?;
-    d.set_item(
-        "gap_kappa",
-        Array2::from_shape_fn((np, dim), |(i, j)| res[i].gap_kappa[j]).into_pyarray(py),
-    )?;
-    d.set_item(
-        "converged",
-        Array1::from_iter(res.iter().map(|r| r.converged)).into_pyarray(py),
-    )?;
-    d.set_item(
-        "reason",
-        Array1::from_iter(res.iter().map(|r| r.reason)).into_pyarray(py),
-    )?;
-    d.set_item(
-        "lines_used",
-        Array1::from_iter(res.iter().map(|r| r.lines_used as i32)).into_pyarray(py),
-    )?;
-    d.set_item(
-        "loop_points_used",
-        Array1::from_iter(res.iter().map(|r| r.loop_points_used as i32)).into_pyarray(py),
-    )?;
-    if res.iter().all(|r| r.lattice.is_some()) && np > 0 {
-        let l = |i: usize| res[i].lattice.as_ref().expect("checked above");
-        d.set_item(
-            "nu0_lattice",
-            Array1::from_shape_fn(np, |i| l(i).indices.nu0).into_pyarray(py),
-        )?;
-        d.set_item(
-            "nu_lattice",
-            Array2::from_shape_fn((np, 3), |(i, j)| l(i).indices.nu[j]).into_pyarray(py),
-        )?;
-        d.set_item(
-            "z2_plane_lattice",
-            Array3::from_shape_fn((np, 3, 2), |(i, j, k)| l(i).indices.z2_plane[j][k])
-                .into_pyarray(py),
-        )?;
-        d.set_item(
-            "lattice_reason",
-            Array1::from_shape_fn(np, |i| l(i).indices.reason).into_pyarray(py),
-        )?;
-        if method == Method::Both {
-            // (the lattice indices against the headline, Wilson-loop ones)
-            d.set_item(
-                "methods_agree",
-                Array1::from_shape_fn(np, |i| {
-                    let w = &res[i];
-                    let li = &l(i).indices;
-                    agreement(dim, (w.nu0, w.nu), (li.nu0, li.nu))
-                })
-                .into_pyarray(py),
-            )?;
+    for c in columns(res, dim, method) {
+        let target = match out {
+            Some(o) => o.get_item(c.key)?,
+            None => None,
+        };
+        match target {
+            Some(t) if write_into(&t, &c.values)? => d.set_item(c.key, t)?,
+            _ => d.set_item(c.key, new_array(py, c, res.len())?)?,
         }
-        d.set_item(
-            "lattice_max_field",
-            Array1::from_shape_fn(np, |i| l(i).max_field).into_pyarray(py),
-        )?;
-        d.set_item(
-            "lattice_min_link",
-            Array1::from_shape_fn(np, |i| l(i).min_link).into_pyarray(py),
-        )?;
-        d.set_item(
-            "lattice_mesh",
-            Array2::from_shape_fn((np, 2), |(i, j)| {
-                let m = l(i).mesh;
-                (if j == 0 { m.0 } else { m.1 }) as i32
-            })
-            .into_pyarray(py),
-        )?;
-    }
-    if res.iter().all(|r| r.parity.is_some()) && np > 0 {
-        let p = |i: usize| res[i].parity.as_ref().expect("checked above");
-        d.set_item(
-            "nu0_parity",
-            Array1::from_shape_fn(np, |i| p(i).nu0).into_pyarray(py),
-        )?;
-        d.set_item(
-            "nu_parity",
-            Array2::from_shape_fn((np, 3), |(i, j)| p(i).nu[j]).into_pyarray(py),
-        )?;
-        d.set_item(
-            "parity_reason",
-            Array1::from_shape_fn(np, |i| p(i).reason).into_pyarray(py),
-        )?;
-        d.set_item(
-            "parity_agrees",
-            Array1::from_shape_fn(np, |i| {
-                let w = &res[i];
-                agreement(dim, (p(i).nu0, p(i).nu), (w.nu0, w.nu))
-            })
-            .into_pyarray(py),
-        )?;
-        let ntrim = 1usize << dim;
-        d.set_item(
-            "odd_count",
-            Array2::from_shape_fn((np, ntrim), |(i, j)| p(i).odd_count[j]).into_pyarray(py),
-        )?;
     }
     Ok(d)
+}
+
+/// A new array of a column, shape (points, tail…).
+fn new_array(py: Python<'_>, c: Column, points: usize) -> PyResult<Bound<'_, PyAny>> {
+    let shape = IxDyn(&c.shape(points));
+    let bad = |e: numpy::ndarray::ShapeError| {
+        PyRuntimeError::new_err(format!("internal error: column {}: {e}", c.key))
+    };
+    Ok(match c.values {
+        Values::I8(v) => ArrayD::from_shape_vec(shape, v)
+            .map_err(bad)?
+            .into_pyarray(py)
+            .into_any(),
+        Values::U8(v) => ArrayD::from_shape_vec(shape, v)
+            .map_err(bad)?
+            .into_pyarray(py)
+            .into_any(),
+        Values::I32(v) => ArrayD::from_shape_vec(shape, v)
+            .map_err(bad)?
+            .into_pyarray(py)
+            .into_any(),
+        Values::F64(v) => ArrayD::from_shape_vec(shape, v)
+            .map_err(bad)?
+            .into_pyarray(py)
+            .into_any(),
+        Values::Bool(v) => ArrayD::from_shape_vec(shape, v)
+            .map_err(bad)?
+            .into_pyarray(py)
+            .into_any(),
+    })
+}
+
+/// Write `values` into `target` if it can hold them exactly (see [`pack`]); whether it did.
+fn write_into(target: &Bound<'_, PyAny>, values: &Values) -> PyResult<bool> {
+    let Ok(a) = target.downcast::<PyUntypedArray>() else {
+        return Ok(false);
+    };
+    if a.len() != values.len() || !a.is_c_contiguous() {
+        return Ok(false);
+    }
+    match values.integers() {
+        None => {
+            let Values::F64(v) = values else {
+                return Ok(false);
+            };
+            Ok(write_as(target, v.iter().map(|&x| Some(x))))
+        }
+        Some(ints) => Ok(
+            write_as::<i8>(target, ints.iter().map(|&x| x.try_into().ok()))
+                || write_as::<i16>(target, ints.iter().map(|&x| x.try_into().ok()))
+                || write_as::<i32>(target, ints.iter().map(|&x| x.try_into().ok()))
+                || write_as::<i64>(target, ints.iter().map(|&x| Some(x)))
+                || write_as::<u8>(target, ints.iter().map(|&x| x.try_into().ok())),
+        ),
+    }
+}
+
+/// Write the values into `target` if it is a writable array of `T` and every value converts;
+/// whether it did (nothing is written otherwise).
+fn write_as<T: numpy::Element + Copy>(
+    target: &Bound<'_, PyAny>,
+    values: impl Iterator<Item = Option<T>>,
+) -> bool {
+    let Ok(a) = target.downcast::<PyArrayDyn<T>>() else {
+        return false;
+    };
+    let Some(v) = values.collect::<Option<Vec<T>>>() else {
+        return false;
+    };
+    let Ok(mut rw) = a.try_readwrite() else {
+        return false;
+    };
+    match rw.as_slice_mut() {
+        Ok(s) if s.len() == v.len() => {
+            s.copy_from_slice(&v);
+            true
+        }
+        _ => false,
+    }
 }
 
 /// H(κ) for every row of `kappa` (N, dim) at one coefficient vector.

@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 import toposweep as ts
 from toposweep import _core
-from toposweep.dataset import build_dataset, plan_dataset
+from toposweep.dataset import ResultLayout, build_dataset, plan_dataset
 from toposweep.errors import SymmetryError
 from toposweep.evaluation import prepare_request, run_points
 from toposweep.sampling import Sampling
@@ -149,3 +149,89 @@ def test_invariants_same_on_one_and_two_threads():
     one.attrs.pop("created"), two.attrs.pop("created")
     assert one.identical(two)
     assert int(one.nu0) == 1 and int(one.nu0_parity) == 1
+
+
+@pytest.mark.parametrize("threads", [1, 2])
+@pytest.mark.parametrize("method", ["wilson", "both"])
+def test_results_written_straight_into_the_layout_equal_the_copied_ones(threads, method):
+    """The core writes every result the Dataset takes by key into the layout's arrays (no copy
+    after the core), and the Dataset equals the one filled by copying, on a grid of points."""
+    model = ts.models.fu_kane_mele()
+    s = Sampling(loop_points=16, lines=9, method=method)
+    req = prepare_request(model, 2, inversion=None, sampling=s, threads=threads)
+    points = [model.resolve({}), model.resolve({"dimerisation": -0.4})] * 3
+    kw = dict(
+        dims=("a", "b"),
+        coords={"a": np.arange(2), "b": np.arange(3)},
+        fixed={},
+        filling=2,
+        sampling=s,
+        parity_known=req.inversion is not None,
+    )
+    layout = plan_dataset(model, **kw)
+    raw = run_points(req, points, alongside=layout.core_targets)
+    targets = layout.core_targets()
+    assert set(targets) <= set(raw)
+    for key, target in targets.items():
+        assert raw[key] is target, f"{key}: the core made a new array"
+    direct = layout.fill(raw)
+    copied = build_dataset(model, run_points(req, points), **kw)
+    direct.attrs.pop("created"), copied.attrs.pop("created")
+    assert direct.identical(copied)
+    # the diamond model's phases (tests/test_physics_diamond.py): strong, weak for dimerisation < 0
+    assert direct.nu0.values.tolist() == [[1, 0, 1], [0, 1, 0]]
+
+
+@pytest.mark.parametrize("threads", [1, 2])
+def test_core_writes_only_into_arrays_that_hold_the_values_exactly(wd_core, threads):
+    """Given arrays of another integer type are written (values converted exactly); arrays that
+    cannot hold the values, are read-only, not contiguous or of another size are left alone
+    and new arrays returned."""
+    core, coeffs = wd_core
+    plain = _core.evaluate(core, coeffs, 2, threads=threads, **KW)
+    read_only = np.full(2, 7.0)
+    read_only.setflags(write=False)
+    out = {
+        "nu0": np.full(2, 9, np.int64),  # int8 values into int64: written
+        "reason": np.full(2, 9, np.int16),  # uint8 values into int16: written
+        "nu": np.full((2, 3), 9, np.uint8),  # values 0 fit uint8: written
+        "phase": np.full(2, 9, np.uint8),  # -1 would not fit, but both points are defined
+        "gap_direct": np.full(2, 9.0, np.float32),  # float64 into float32: not exact
+        "gap_indirect": read_only,
+        "bandwidth": np.full(4, 9.0)[::2],  # not contiguous
+        "max_step": np.full(3, 9.0),  # wrong size
+        "converged": np.full(2, 9, np.int8),  # booleans as 0/1
+    }
+    kept = {k: v.copy() for k, v in out.items()}
+    raw = _core.evaluate(core, coeffs, 2, threads=threads, alongside=lambda: out, **KW)
+    for key in ("nu0", "reason", "nu", "phase", "converged"):
+        assert raw[key] is out[key], key
+        np.testing.assert_array_equal(out[key], plain[key].astype(out[key].dtype), err_msg=key)
+    for key in ("gap_direct", "gap_indirect", "bandwidth", "max_step"):
+        assert raw[key] is not out[key], key
+        np.testing.assert_array_equal(out[key], kept[key], err_msg=key)  # untouched
+        np.testing.assert_array_equal(raw[key], plain[key], err_msg=key)
+    undefined = np.full(2, 9, np.uint8)  # nu0 of a gapless point is -1: not a uint8
+    gapless = _core.evaluate(
+        core, np.zeros_like(coeffs), 2, threads=threads, alongside=lambda: {"nu0": undefined}, **KW
+    )
+    assert gapless["nu0"].tolist() == [-1, -1] and undefined.tolist() == [9, 9]
+
+
+@pytest.mark.parametrize("threads", [1, 2])
+def test_invariants_leaves_nothing_to_copy_after_the_core(monkeypatch, threads):
+    """Every result the Dataset takes by key arrives written in place, for the first point's
+    layout and for the next, copied from it (dataset._TEMPLATES)."""
+    left: list[list[str]] = []
+    fill = ResultLayout.fill
+
+    def checking(self, raw):
+        left.append([k for k, v in self.core_targets().items() if raw[k] is not v])
+        return fill(self, raw)
+
+    monkeypatch.setattr(ResultLayout, "fill", checking)
+    model = ts.models.wilson_dirac()
+    for mass in (-2.0, 4.0):
+        ds = ts.invariants(model, 2, {"mass": mass}, method="both", threads=threads, **SMALL)
+    assert left == [[], []]
+    assert int(ds.nu0) == 0 and int(ds.nu0_lattice) == 0 and int(ds.nu0_parity) == 0

@@ -54,7 +54,16 @@ def evaluate(
     certify: bool = True,
     threads: int | None = None,
     alongside: Callable[[], object] | None = None,
-) -> dict[str, NDArray[Any]]: ...
+) -> dict[str, NDArray[Any]]:
+    """Per-point results by quantity, each an array of shape (points, ...).
+
+    ``alongside`` runs while the points are computed (first, with one thread). If it returns a
+    dict of arrays, a result whose key it holds is written into that array — C-contiguous,
+    writable, of the result's size, of a type that holds its values exactly — and that very
+    array is returned for it.
+    """
+    ...
+
 def hamiltonian(
     model: CoreModel, coeff: NDArray[np.float64], kappa: NDArray[np.float64]
 ) -> NDArray[np.complex128]: ...

@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 import xarray as xr
-from numpy.typing import ArrayLike
+from numpy.typing import ArrayLike, NDArray
 
 from . import _core
 from .dataset import ResultLayout, plan_dataset
@@ -104,7 +104,7 @@ def invariants(
     req = prepare_request(model, filling, inversion=inversion, sampling=sampling, threads=threads)
     layout: list[ResultLayout] = []
 
-    def plan() -> None:  # (while the core computes: needs none of its results)
+    def plan() -> dict[str, NDArray]:  # (while the core computes: needs none of its results)
         layout.append(
             plan_dataset(
                 model,
@@ -116,6 +116,7 @@ def invariants(
                 parity_known=req.inversion is not None,
             )
         )
+        return layout[0].core_targets()  # (the core writes its results straight into them)
 
     raw = run_points(req, [point], alongside=plan)
     return layout[0].fill(raw)

@@ -11,6 +11,7 @@ arrays. The plan is then made while the core computes (``_core.evaluate(alongsid
 from __future__ import annotations
 
 import json
+import math
 from collections.abc import Callable, Mapping, Sequence
 from datetime import datetime, timezone
 from functools import lru_cache
@@ -347,7 +348,8 @@ class ResultLayout:
 
     Made by :func:`plan_dataset`. The Dataset already holds every coordinate and attribute and
     one empty array per data variable; :meth:`fill` copies the core's flat per-point arrays
-    into those arrays (cast as ``astype`` would) and returns the Dataset.
+    into those arrays (cast as ``astype`` would) and returns the Dataset. Arrays the core
+    wrote itself (:meth:`core_targets`) are not copied again.
     """
 
     def __init__(
@@ -356,27 +358,74 @@ class ResultLayout:
         coords: dict[str, tuple],
         attrs: dict[str, Any],
         sources: list[tuple[NDArray, str | Callable[[Raw], NDArray]]],
+        grid_ndim: int,
     ) -> None:
         self._data, self._coords, self._attrs, self._sources = data, coords, attrs, sources
         self._dataset: xr.Dataset | None = _assembled_in_place(data, coords, attrs)
-        self._filled = False
+        self._filled, self._grid_ndim, self._direct = False, grid_ndim, {}
 
     @classmethod
     def around(
-        cls, dataset: xr.Dataset, sources: list[tuple[NDArray, str | Callable[[Raw], NDArray]]]
+        cls,
+        dataset: xr.Dataset,
+        sources: list[tuple[NDArray, str | Callable[[Raw], NDArray]]],
+        core_targets: dict[str, NDArray],
     ) -> ResultLayout:
-        """A layout of a Dataset that already holds the target arrays of ``sources``."""
+        """A one-point layout of a Dataset that already holds the target arrays of ``sources``.
+
+        ``core_targets`` are views of those arrays in the core's shapes (:meth:`core_targets`).
+        """
         layout = cls.__new__(cls)
         layout._sources, layout._dataset, layout._filled = sources, dataset, False
+        layout._grid_ndim, layout._direct = 0, core_targets
         return layout
+
+    def core_targets(self) -> dict[str, NDArray]:
+        """Views of the Dataset's arrays shaped as the core's results, by the core's keys.
+
+        Returned by the Python job of ``_core.evaluate(alongside=...)``, they tell the core to
+        write its results straight into the Dataset (where an array's type holds them
+        exactly; the core makes new arrays for the rest), so that after the core — serial
+        time, which caps what a second thread gives a call — :meth:`fill` has only the rest
+        to copy.
+
+        Examples
+        --------
+        >>> import toposweep as ts
+        >>> from toposweep.evaluation import prepare_request, run_points
+        >>> m = ts.models.bhz()
+        >>> req = prepare_request(m, 2, inversion=None, sampling=Sampling())
+        >>> point = m.resolve({"mass": -1.0})
+        >>> layout = plan_dataset(m, dims=(), coords={}, fixed=point, filling=2,
+        ...                       sampling=req.sampling, parity_known=False)
+        >>> raw = run_points(req, [point], alongside=layout.core_targets)
+        >>> raw["nu0"] is layout.core_targets()["nu0"], raw["nu0"].shape
+        (True, (1,))
+        >>> int(layout.fill(raw).nu0)
+        1
+        """
+        if not self._direct:
+            g = self._grid_ndim
+            for target, source in self._sources:
+                if isinstance(source, str):
+                    shape = target.shape
+                    # (math.prod: numpy's prod costs µs per call, this runs per variable)
+                    self._direct[source] = target.reshape((math.prod(shape[:g]), *shape[g:]))
+        return self._direct
 
     def fill(self, raw: Raw) -> xr.Dataset:
         """The Dataset with the values of ``raw`` (the dict of :func:`_core.evaluate`)."""
         if self._filled:
             raise RuntimeError("a ResultLayout is filled once; plan a new one for new values")
         self._filled = True
+        direct = self._direct
         for target, source in self._sources:
-            values = raw[source] if isinstance(source, str) else source(raw)
+            if isinstance(source, str):
+                values = raw[source]
+                if values is direct.get(source):
+                    continue  # (the core wrote it in place)
+            else:
+                values = source(raw)
             target[...] = np.asarray(values).reshape(target.shape)
         if self._dataset is not None:
             return self._dataset
@@ -468,7 +517,7 @@ def plan_dataset(
     }
     attrs.update(extra_attrs or {})
     coord_vars = _coordinates(model, dims, coords, fixed, parity_known)
-    layout = ResultLayout(data, coord_vars, attrs, sources)
+    layout = ResultLayout(data, coord_vars, attrs, sources, len(dims))
     if key is not None and layout._dataset is not None:
         # (a copy of its own: the layout's Dataset goes to the caller, who may change it)
         template = renewed(layout._dataset, {}, attrs)
@@ -495,14 +544,18 @@ def _from_template(
     template: xr.Dataset, fields: Sequence[Field], fixed: Mapping[str, float]
 ) -> ResultLayout | None:
     """A fresh layout shaped like ``template``: new empty arrays, this point's parameters."""
-    data: dict[str, NDArray] = {f.name: np.empty(f.extra_shape, f.dtype) for f in fields}
+    # (each array made in the core's shape, one point first, and the Dataset given a view
+    # without it: the core's targets come for the cost of an index, not a reshape later)
+    flat = {f.name: np.empty((1, *f.extra_shape), f.dtype) for f in fields}
+    data: dict[str, NDArray] = {name: a[0, ...] for name, a in flat.items()}
     sources = [(data[f.name], f.source) for f in fields]
+    direct = {f.source: flat[f.name] for f in fields if isinstance(f.source, str)}
     for name, value in fixed.items():
         data[name] = np.asarray(float(value))
     attrs = dict(template.attrs)
     attrs["created"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
     ds = renewed(template, data, attrs)
-    return None if ds is None else ResultLayout.around(ds, sources)
+    return None if ds is None else ResultLayout.around(ds, sources, direct)
 
 
 def build_dataset(

@@ -193,14 +193,15 @@ def run_points(
     checks and ``alongside()`` run instead while the core computes — on the worker that takes
     the call (from the main thread: the calling thread) while another worker starts on the
     points, so where there are two or more workers that work shares the cores with the points
-    instead of adding to their time; their errors are raised all the same.
+    instead of adding to their time; their errors are raised all the same. When ``alongside``
+    returns a dict of arrays (:meth:`toposweep.dataset.ResultLayout.core_targets`), the core
+    writes the results of those keys into them and returns those very arrays.
     """
     breaks: list[tuple[NDArray[np.bool_], NDArray[np.bool_]]] = []
 
-    def python_side() -> None:
+    def python_side() -> object:
         breaks.append(_symmetry_breaks(req, points))
-        if alongside is not None:
-            alongside()
+        return None if alongside is None else alongside()
 
     if alongside is None:
         python_side()
