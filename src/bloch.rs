@@ -216,6 +216,13 @@ fn add_combination(out: &mut [C64], cp: &[C64], sp: &[C64], c: f64, s: f64) {
     }
 }
 
+/// κ points of a batch fill per parallel task. A batch of at most this many is filled on the
+/// calling thread without touching rayon: a parallel iterator called outside any pool would
+/// start rayon's global pool, and the binding runs such small fills (the symmetry checks' few
+/// κ points) without a pool, so that they never make the caller a worker of a pool of a size
+/// it did not ask for (`crate::pools`).
+pub const FILL_CHUNK: usize = 64;
+
 impl BlochSource for Bloch {
     fn dim(&self) -> usize {
         self.dim
@@ -229,11 +236,18 @@ impl BlochSource for Bloch {
         if out.len() < npts * nn {
             return Err(invalid!("output buffer too small for {npts} κ points"));
         }
-        out[..npts * nn]
-            .par_chunks_mut(nn)
-            .zip(kappa.par_chunks(self.dim))
-            .with_min_len(64)
-            .for_each(|(o, k)| self.at_point(k, o));
+        let (out, kappa) = (&mut out[..npts * nn], &kappa[..npts * self.dim]);
+        if npts <= FILL_CHUNK {
+            // (on this thread, without asking any pool: see FILL_CHUNK)
+            for (o, k) in out.chunks_exact_mut(nn).zip(kappa.chunks_exact(self.dim)) {
+                self.at_point(k, o);
+            }
+        } else {
+            out.par_chunks_mut(nn)
+                .zip(kappa.par_chunks(self.dim))
+                .with_min_len(FILL_CHUNK)
+                .for_each(|(o, k)| self.at_point(k, o));
+        }
         Ok(())
     }
 
@@ -441,6 +455,30 @@ mod tests {
             assert!((out[3] + (m + c)).norm() < 1e-14);
             assert!((out[1] - s).norm() < 1e-14);
             assert!((out[2] - s).norm() < 1e-14);
+        }
+    }
+
+    /// A batch fill equals H point by point, bit for bit, on this thread (up to FILL_CHUNK
+    /// points) and split over a pool (more), so the binding may run small fills without one.
+    #[test]
+    fn batch_fill_equals_points_on_and_off_the_pool() {
+        let n = 3;
+        let b = random_three_orbital(5).at(&[0.4]).unwrap();
+        for npts in [1, FILL_CHUNK, FILL_CHUNK + 1, 3 * FILL_CHUNK + 7] {
+            let kappa: Vec<f64> = (0..3 * npts).map(|i| (i as f64 * 0.37).fract()).collect();
+            let mut batch = vec![C64::new(9.0, 9.0); npts * n * n];
+            crate::guided::tests::pool(2)
+                .install(|| b.fill(&kappa, &mut batch))
+                .unwrap();
+            let mut one = vec![C64::new(0.0, 0.0); n * n];
+            for (p, k) in kappa.chunks_exact(3).enumerate() {
+                b.at_point(k, &mut one);
+                assert_eq!(
+                    one[..],
+                    batch[p * n * n..(p + 1) * n * n],
+                    "{npts} points, {p}"
+                );
+            }
         }
     }
 

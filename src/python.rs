@@ -3,7 +3,7 @@
 //! All numerical work runs through [`detached`], the one place that releases the GIL, installs
 //! the requested rayon pool, catches panics and maps [`CoreError`] to Python exceptions.
 
-use crate::bloch::{BlochSource, Hoppings};
+use crate::bloch::{BlochSource, Hoppings, FILL_CHUNK};
 use crate::columns::{columns, Column, Values};
 use crate::eigen::eigh_many_into;
 use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, Sampling};
@@ -34,16 +34,29 @@ fn to_py(e: CoreError) -> PyErr {
     }
 }
 
-/// Release the GIL, run `f` with `threads` workers (None: [`default_threads`]; which threads
-/// they are: [`crate::pools`]), and turn errors and panics into Python exceptions.
-fn detached<T, F>(py: Python<'_>, threads: Option<usize>, f: F) -> PyResult<T>
+/// Which threads run a call's work.
+#[derive(Clone, Copy)]
+enum Workers {
+    /// A pool of this many workers (None: [`default_threads`]); which threads they are:
+    /// [`crate::pools`].
+    Pool(Option<usize>),
+    /// The calling thread alone, no pool: work too small to share. A pool would make the
+    /// caller a worker of a pool of the default size for good (rayon lets a thread be a worker
+    /// of one pool), and its later `threads=1` calls would be handed to another thread while
+    /// it waits.
+    Caller,
+}
+
+/// Release the GIL, run `f` on `workers`, and turn errors and panics into Python exceptions.
+fn detached<T, F>(py: Python<'_>, workers: Workers, f: F) -> PyResult<T>
 where
     T: Send,
     F: FnOnce() -> CoreResult<T> + Send,
 {
     let out = py.allow_threads(|| {
-        catch_unwind(AssertUnwindSafe(|| {
-            run_with(threads.unwrap_or_else(default_threads), f)
+        catch_unwind(AssertUnwindSafe(|| match workers {
+            Workers::Pool(threads) => run_with(threads.unwrap_or_else(default_threads), f),
+            Workers::Caller => f(),
         }))
     });
     match out {
@@ -301,11 +314,11 @@ fn evaluate<'py>(
             .collect::<CoreResult<Vec<PointResult>>>()
     };
     let (run, out) = match alongside {
-        None => (detached(py, threads, points), None),
+        None => (detached(py, Workers::Pool(threads), points), None),
         // one worker: the Python job first, on this thread, then the points
         Some(f) if threads.unwrap_or_else(default_threads) == 1 => {
             let out = f.call0(py)?;
-            (detached(py, threads, points), Some(out))
+            (detached(py, Workers::Pool(threads), points), Some(out))
         }
         // The Python job on the worker that takes the run (from the main thread: this thread,
         // whose caches and thread state Python last used — on another worker the same job took
@@ -315,7 +328,7 @@ fn evaluate<'py>(
         // worker runs the points itself after its job. The job's exception wins over the
         // core's: it says why the run was not valid in the first place.
         Some(f) => {
-            let (side, run) = detached(py, threads, || {
+            let (side, run) = detached(py, Workers::Pool(threads), || {
                 Ok(rayon::join(|| Python::with_gil(|py| f.call0(py)), points))
             })?;
             (run.map_err(to_py), Some(side?))
@@ -452,7 +465,13 @@ fn hamiltonian<'py>(
     let k: Vec<f64> = kappa.as_array().iter().copied().collect();
     let npts = kappa.shape()[0];
     let error = Arc::new(Mutex::new(None));
-    let run = detached(py, None, || {
+    // (a few κ points — the symmetry checks of every new model — are filled on this thread)
+    let workers = if npts <= FILL_CHUNK {
+        Workers::Caller
+    } else {
+        Workers::Pool(None)
+    };
+    let run = detached(py, workers, || {
         let mut out = vec![C64::new(0.0, 0.0); npts * n * n];
         model.with_source(&c, 0, &error, |src| src.fill(&k, &mut out))?;
         Ok(out)
@@ -484,7 +503,7 @@ fn eigh<'py>(
     }
     let (m, n) = (sh[0], sh[1]);
     let data: Vec<C64> = h.as_array().iter().copied().collect();
-    let (e, v) = detached(py, threads, || {
+    let (e, v) = detached(py, Workers::Pool(threads), || {
         let mut e = vec![0.0; m * n];
         let mut v = vec![C64::new(0.0, 0.0); m * n * n];
         // four matrices per task: n ≤ 8 are solved together in the lanes (eigh_many_into)
@@ -511,7 +530,9 @@ fn fork_join_probe(
     iterations: u64,
     threads: Option<usize>,
 ) -> PyResult<u64> {
-    detached(py, threads, || Ok(divisible_work(tasks, iterations)))
+    detached(py, Workers::Pool(threads), || {
+        Ok(divisible_work(tasks, iterations))
+    })
 }
 
 /// Hybrid Wannier centres (npump, filling) of one plane at fixed pump coordinates. `plane` is
@@ -541,7 +562,7 @@ fn flow<'py>(
     let t: Vec<f64> = pump.as_array().to_vec();
     let pos: Option<Vec<f64>> = positions.map(|p| p.as_array().iter().copied().collect());
     let error = Arc::new(Mutex::new(None));
-    let run = detached(py, threads, || {
+    let run = detached(py, Workers::Pool(threads), || {
         model.with_source(&c, 0, &error, |src| {
             plane_flow(src, filling, pl, loop_points, &t, pos.as_deref())
         })

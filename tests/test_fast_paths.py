@@ -135,6 +135,57 @@ def test_threads_one_starts_no_thread_and_leaves_the_default_parallel():
     assert one_last == three
 
 
+PUBLIC_ONE_THREAD_SCRIPT = """
+import os, numpy as np, toposweep as ts
+count = lambda: len(os.listdir("/proc/self/task"))
+seen, nu = [count()], []
+wd, km = ts.models.wilson_dirac(), ts.models.kane_mele()
+def qwz_stack(kappa, mass=-1.0):  # (BHZ in NumPy: two Qi-Wu-Zhang blocks, spin z up and down)
+    k = 2 * np.pi * np.asarray(kappa)
+    sx, sy, sz = np.array([[0, 1], [1, 0]]), np.array([[0, -1j], [1j, 0]]), np.diag([1, -1])
+    up = (np.sin(k[:, :1, None]) * sx + np.sin(k[:, 1:, None]) * sy
+          + (mass + np.cos(k).sum(axis=1))[:, None, None] * sz)
+    down = (-np.sin(k[:, :1, None]) * sx + np.sin(k[:, 1:, None]) * sy
+            + (mass + np.cos(k).sum(axis=1))[:, None, None] * sz)
+    h = np.zeros((len(k), 4, 4), complex)
+    h[:, :2, :2], h[:, 2:, 2:] = up, down
+    return h
+callable_model = ts.CallableModel(  # (the model's own symmetry checks call the core)
+    qwz_stack, 2, 4, time_reversal=np.kron([[0, 1], [-1, 0]], np.eye(2)))
+opts = dict(loop_points=12, lines=7, threads=1)
+for model, params in ((wd, {"mass": -2.0}), (wd, {"mass": 4.0}), (km, {}), (callable_model, {})):
+    ds = ts.invariants(model, 2, params, **opts)  # (new models: their symmetries checked anew)
+    nu.append(int(ds.nu0))
+    seen.append(count())
+ds = ts.invariants(wd, 2, {"mass": -2.0}, inversion=np.asarray(wd.inversion), **opts)
+nu.append(int(ds.nu0))
+ds = ts.sweep(km, {"staggered": [0.0, 0.2]}, filling=2, loop_points=12, lines=7, threads=1)
+nu += ds.nu0.values.tolist()
+seen.append(count())
+print(*seen, *nu)
+"""
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self/task"), reason="counts threads through /proc")
+def test_public_calls_with_one_thread_start_no_thread():
+    """``invariants`` and ``sweep`` with ``threads=1`` run on the calling thread, symmetry
+    checks of new models and operators included: these once ran on a pool of the default size,
+    which made the main thread a worker of that pool for good and handed each later
+    ``threads=1`` call to another thread, the main thread spinning until it was done."""
+    out = subprocess.run(
+        [sys.executable, "-c", PUBLIC_ONE_THREAD_SCRIPT], capture_output=True, text=True
+    )
+    assert out.returncode == 0, out.stderr
+    values = list(map(int, out.stdout.split()))
+    seen, nu = values[:6], values[6:]
+    assert seen == [seen[0]] * 6
+    # Wilson-Dirac (1;000) at m = -2, trivial at m = 4 (Fu & Kane, Phys. Rev. B 76, 045302
+    # (2007)); Kane-Mele Z2-odd without and with a small staggered potential (Kane & Mele,
+    # Phys. Rev. Lett. 95, 226801 (2005)); BHZ odd for 0 < |m| < 2 (Bernevig, Hughes & Zhang,
+    # Science 314, 1757 (2006)), as in the physics tests
+    assert nu == [1, 0, 1, 1, 1, 1, 1]
+
+
 MAIN_THREAD_SCRIPT = """
 import os, threading, toposweep as ts
 from toposweep import _core
