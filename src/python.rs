@@ -1,7 +1,8 @@
 //! The Python binding: every `#[pyfunction]`/`#[pyclass]` of `toposweep._core`.
 //!
 //! All numerical work runs through [`detached`], the one place that releases the GIL, installs
-//! the requested rayon pool, catches panics and maps [`CoreError`] to Python exceptions.
+//! the requested rayon pool (none for work too small to share), catches panics and maps
+//! [`CoreError`] to Python exceptions.
 
 use crate::bloch::{BlochSource, Hoppings, FILL_CHUNK};
 use crate::columns::{columns, Column, Values};
@@ -370,32 +371,25 @@ fn pack<'py>(
 
 /// A new array of a column, shape (points, tail…).
 fn new_array(py: Python<'_>, c: Column, points: usize) -> PyResult<Bound<'_, PyAny>> {
-    let shape = IxDyn(&c.shape(points));
-    let bad = |e: numpy::ndarray::ShapeError| {
-        PyRuntimeError::new_err(format!("internal error: column {}: {e}", c.key))
-    };
-    Ok(match c.values {
-        Values::I8(v) => ArrayD::from_shape_vec(shape, v)
-            .map_err(bad)?
-            .into_pyarray(py)
-            .into_any(),
-        Values::U8(v) => ArrayD::from_shape_vec(shape, v)
-            .map_err(bad)?
-            .into_pyarray(py)
-            .into_any(),
-        Values::I32(v) => ArrayD::from_shape_vec(shape, v)
-            .map_err(bad)?
-            .into_pyarray(py)
-            .into_any(),
-        Values::F64(v) => ArrayD::from_shape_vec(shape, v)
-            .map_err(bad)?
-            .into_pyarray(py)
-            .into_any(),
-        Values::Bool(v) => ArrayD::from_shape_vec(shape, v)
-            .map_err(bad)?
-            .into_pyarray(py)
-            .into_any(),
-    })
+    let shape = c.shape(points);
+    match c.values {
+        Values::I8(v) => array_of(py, &shape, v, c.key),
+        Values::U8(v) => array_of(py, &shape, v, c.key),
+        Values::I32(v) => array_of(py, &shape, v, c.key),
+        Values::F64(v) => array_of(py, &shape, v, c.key),
+        Values::Bool(v) => array_of(py, &shape, v, c.key),
+    }
+}
+
+fn array_of<'py, T: numpy::Element>(
+    py: Python<'py>,
+    shape: &[usize],
+    v: Vec<T>,
+    key: &str,
+) -> PyResult<Bound<'py, PyAny>> {
+    let a = ArrayD::from_shape_vec(IxDyn(shape), v)
+        .map_err(|e| PyRuntimeError::new_err(format!("internal error: column {key}: {e}")))?;
+    Ok(a.into_pyarray(py).into_any())
 }
 
 /// Write `values` into `target` if it can hold them exactly (see [`pack`]); whether it did.
