@@ -178,7 +178,8 @@ def test_results_written_straight_into_the_layout_equal_the_copied_ones(threads,
     copied = build_dataset(model, run_points(req, points), **kw)
     direct.attrs.pop("created"), copied.attrs.pop("created")
     assert direct.identical(copied)
-    # the diamond model's phases (tests/test_physics_diamond.py): strong, weak for dimerisation < 0
+    # the diamond model's phases (Fu, Kane & Mele, Phys. Rev. Lett. 98, 106803 (2007), as in
+    # tests/test_physics_diamond.py): strong for dimerisation > 0, weak for dimerisation < 0
     assert direct.nu0.values.tolist() == [[1, 0, 1], [0, 1, 0]]
 
 
