@@ -441,13 +441,17 @@ fn write_as<T: numpy::Element + Copy>(
     }
 }
 
-/// H(κ) for every row of `kappa` (N, dim) at one coefficient vector.
+/// H(κ) for every row of `kappa` (N, dim) at one coefficient vector, with `threads` workers
+/// (None: all cores) for batches larger than [`FILL_CHUNK`]; smaller ones run on the calling
+/// thread.
 #[pyfunction]
+#[pyo3(signature = (model, coeff, kappa, *, threads=None))]
 fn hamiltonian<'py>(
     py: Python<'py>,
     model: &CoreModel,
     coeff: PyReadonlyArray1<f64>,
     kappa: PyReadonlyArray2<f64>,
+    threads: Option<usize>,
 ) -> PyResult<Bound<'py, numpy::PyArray3<C64>>> {
     let (n, dim) = (model.norb, model.dim);
     if kappa.shape()[1] != dim {
@@ -463,7 +467,7 @@ fn hamiltonian<'py>(
     let workers = if npts <= FILL_CHUNK {
         Workers::Caller
     } else {
-        Workers::Pool(None)
+        Workers::Pool(threads)
     };
     let run = detached(py, workers, || {
         let mut out = vec![C64::new(0.0, 0.0); npts * n * n];

@@ -153,6 +153,9 @@ def qwz_stack(kappa, mass=-1.0):  # (BHZ in NumPy: two Qi-Wu-Zhang blocks, spin 
 callable_model = ts.CallableModel(  # (the model's own symmetry checks call the core)
     qwz_stack, 2, 4, time_reversal=np.kron([[0, 1], [-1, 0]], np.eye(2)))
 opts = dict(loop_points=12, lines=7, threads=1)
+grid = np.random.default_rng(3).random((500, 3))  # (more than one chunk: would use a pool)
+h1 = wd.hamiltonian(grid, {"mass": -2.0}, threads=1)
+seen.append(count())
 for model, params in ((wd, {"mass": -2.0}), (wd, {"mass": 4.0}), (km, {}), (callable_model, {})):
     ds = ts.invariants(model, 2, params, **opts)  # (new models: their symmetries checked anew)
     nu.append(int(ds.nu0))
@@ -168,8 +171,9 @@ print(*seen, *nu)
 
 @pytest.mark.skipif(not os.path.isdir("/proc/self/task"), reason="counts threads through /proc")
 def test_public_calls_with_one_thread_start_no_thread():
-    """``invariants`` and ``sweep`` with ``threads=1`` run on the calling thread, symmetry
-    checks of new models and operators included: these once ran on a pool of the default size,
+    """``invariants``, ``sweep`` and ``Model.hamiltonian`` with ``threads=1`` run on the calling
+    thread, symmetry checks of new models and operators included: these once ran on a pool of
+    the default size,
     which made the main thread a worker of that pool for good and handed each later
     ``threads=1`` call to another thread, the main thread spinning until it was done."""
     out = subprocess.run(
@@ -177,8 +181,8 @@ def test_public_calls_with_one_thread_start_no_thread():
     )
     assert out.returncode == 0, out.stderr
     values = list(map(int, out.stdout.split()))
-    seen, nu = values[:6], values[6:]
-    assert seen == [seen[0]] * 6
+    seen, nu = values[:7], values[7:]
+    assert seen == [seen[0]] * 7
     # Wilson-Dirac (1;000) at m = -2, trivial at m = 4 (Fu & Kane, Phys. Rev. B 76, 045302
     # (2007)); Kane-Mele Z2-odd without and with a small staggered potential (Kane & Mele,
     # Phys. Rev. Lett. 95, 226801 (2005)); BHZ odd for 0 < |m| < 2 (Bernevig, Hughes & Zhang,
@@ -224,3 +228,15 @@ def test_main_thread_is_a_worker_of_its_first_pool():
     assert other == one + 1 + 2
     # (1;000) at m = -2: Fu & Kane, Phys. Rev. B 76, 045302 (2007), as in the physics tests
     assert nu == [1, 1, 1, 1]
+
+
+def test_hamiltonian_batches_equal_on_any_number_of_threads():
+    """A batch larger than one parallel chunk gives the same H, bit for bit, on one thread, two
+    and the default; a bad thread count is refused like everywhere else."""
+    wd = ts.models.wilson_dirac()
+    grid = np.random.default_rng(4).random((300, 3))
+    one = wd.hamiltonian(grid, {"mass": -1.0}, threads=1)
+    for threads in (2, None):
+        np.testing.assert_array_equal(wd.hamiltonian(grid, {"mass": -1.0}, threads=threads), one)
+    with pytest.raises(ts.SamplingError, match="threads"):
+        wd.hamiltonian(grid, threads=0)

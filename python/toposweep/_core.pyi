@@ -65,7 +65,11 @@ def evaluate(
     ...
 
 def hamiltonian(
-    model: CoreModel, coeff: NDArray[np.float64], kappa: NDArray[np.float64]
+    model: CoreModel,
+    coeff: NDArray[np.float64],
+    kappa: NDArray[np.float64],
+    *,
+    threads: int | None = None,
 ) -> NDArray[np.complex128]: ...
 def eigh(
     h: NDArray[np.complex128], *, threads: int | None = None

@@ -164,11 +164,20 @@ class Model(ABC):
         return out
 
     # -- Hamiltonian ----------------------------------------------------------------------------
-    def hamiltonian(self, kappa: ArrayLike, params: Params | None = None) -> NDArray[np.complex128]:
+    def hamiltonian(
+        self, kappa: ArrayLike, params: Params | None = None, *, threads: int | None = None
+    ) -> NDArray[np.complex128]:
         """H(κ) at reduced coordinates ``kappa`` (shape ``(..., dim)``).
 
-        Returns an array of shape ``(..., norb, norb)``.
+        Returns an array of shape ``(..., norb, norb)``. ``threads`` are the worker threads
+        for a batch of more than 64 κ points (None: one per core); smaller batches are built
+        on the calling thread. As with :func:`toposweep.invariants`, a thread keeps the pool
+        of the first thread count it asks for: a program that runs ``threads=1`` calls (one
+        process per core, say) should pass ``threads=1`` here too.
         """
+        from .evaluation import check_threads  # (evaluation imports this module)
+
+        threads = check_threads(threads)
         try:
             if np.iscomplexobj(kappa):  # a cast would drop the imaginary parts silently
                 raise TypeError("complex values given")
@@ -183,7 +192,7 @@ class Model(ABC):
             raise ModelError("kappa contains NaN or infinity")
         flat = np.ascontiguousarray(k.reshape(-1, self.dim))
         core, coeffs = self.prepare([self.resolve(params)])
-        h = _core.hamiltonian(core, np.ascontiguousarray(coeffs[0]), flat)
+        h = _core.hamiltonian(core, np.ascontiguousarray(coeffs[0]), flat, threads=threads)
         return h.reshape(*k.shape[:-1], self.norb, self.norb)
 
     @abstractmethod
