@@ -11,9 +11,9 @@ from numpy.typing import ArrayLike, NDArray
 from . import _core
 from .dataset import ResultLayout, plan_dataset
 from .errors import ModelError, SamplingError
-from .evaluation import check_filling, check_threads, prepare_request, run_points
+from .evaluation import check_filling, prepare_request, run_points
 from .model import Model, Params
-from .sampling import MAXIMA, Sampling, sampling_for
+from .sampling import MAXIMA, Sampling, check_threads, sampling_for
 
 __all__ = ["invariants", "wcc_flow"]
 

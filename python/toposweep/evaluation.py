@@ -16,7 +16,7 @@ from numpy.typing import ArrayLike, NDArray
 from . import _core
 from .errors import FillingError, ModelError, SamplingError
 from .model import Model
-from .sampling import Sampling
+from .sampling import Sampling, check_threads
 from .symmetry import TOLERANCE, as_operator, normalised_inversion, symmetry_error
 from .tightbinding import TightBinding
 
@@ -55,17 +55,6 @@ def check_filling(model: Model, filling: Any) -> int:
             "pairs; use an even filling"
         )
     return f
-
-
-def check_threads(threads: Any) -> int | None:
-    """Validate the worker-thread count (None: all cores)."""
-    if threads is None:
-        return None
-    if isinstance(threads, bool) or not isinstance(threads, int | np.integer) or threads < 1:
-        raise SamplingError(
-            f"threads must be a positive integer, or None for all cores; got {threads!r}"
-        )
-    return int(threads)
 
 
 def check_loop_resolution(model: Model, sampling: Sampling) -> None:

@@ -19,6 +19,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from . import _core
 from .errors import ModelError, ParameterError
+from .sampling import check_threads
 from .symmetry import as_operator, symmetry_residual
 
 __all__ = ["Model"]
@@ -175,8 +176,6 @@ class Model(ABC):
         of the first thread count it asks for: a program that runs ``threads=1`` calls (one
         process per core, say) should pass ``threads=1`` here too.
         """
-        from .evaluation import check_threads  # (evaluation imports this module)
-
         threads = check_threads(threads)
         try:
             if np.iscomplexobj(kappa):  # a cast would drop the imaginary parts silently

@@ -12,7 +12,7 @@ import numpy as np
 
 from .errors import SamplingError
 
-__all__ = ["MAXIMA", "METHODS", "Sampling", "sampling_for"]
+__all__ = ["MAXIMA", "METHODS", "Sampling", "check_threads", "sampling_for"]
 
 #: the Z2 methods a run can use
 METHODS = ("wilson", "lattice", "both")
@@ -203,3 +203,14 @@ def sampling_for(**options: Any) -> Sampling:
             _RECENT.clear()
         _RECENT[key] = found
     return found
+
+
+def check_threads(threads: Any) -> int | None:
+    """Validate the worker-thread count (None: all cores)."""
+    if threads is None:
+        return None
+    if isinstance(threads, bool) or not isinstance(threads, int | np.integer) or threads < 1:
+        raise SamplingError(
+            f"threads must be a positive integer, or None for all cores; got {threads!r}"
+        )
+    return int(threads)
