@@ -235,4 +235,6 @@ def test_invariants_leaves_nothing_to_copy_after_the_core(monkeypatch, threads):
     for mass in (-2.0, 4.0):
         ds = ts.invariants(model, 2, {"mass": mass}, method="both", threads=threads, **SMALL)
     assert left == [[], []]
+    # trivial at m = 4 (|m| > 3: Fu & Kane, Phys. Rev. B 76, 045302 (2007), as in the physics
+    # tests), by all three methods
     assert int(ds.nu0) == 0 and int(ds.nu0_lattice) == 0 and int(ds.nu0_parity) == 0
