@@ -16,6 +16,10 @@ Build the other extension from a worktree of the earlier commit, for instance::
     mkdir /tmp/before-x && (cd /tmp/before-x && python -m zipfile -e /tmp/before-wheel/*.whl .)
     .venv/bin/python benches/compare_extensions.py --other /tmp/before-x/toposweep/_core.abi3.so
 
+With ``--whole-call`` each call is a whole ``invariants()`` call — the Python around the core and
+the Python job beside it included — with the build's ``evaluate`` put in for the installed
+one's for its calls; without, the core's ``evaluate`` alone.
+
 Prints, for each build, the threads gain (median over rounds of one-thread over all-core time)
 and the best times, and the median over rounds of the new build's all-core time over the other's.
 """
@@ -59,6 +63,11 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--other", required=True, help="path of the other build's _core library")
     parser.add_argument("--rounds", type=int, default=30, help="alternate rounds (default 30)")
+    parser.add_argument(
+        "--whole-call",
+        action="store_true",
+        help="time whole invariants() calls instead of the core's evaluate alone",
+    )
     args = parser.parse_args()
     other = load_other(args.other)
     cores = os.cpu_count() or 1
@@ -72,12 +81,32 @@ def main() -> None:
     ONE_THREAD.run(lambda: None)
 
     def call(module: ModuleType, model: object, threads: int):
+        if args.whole_call:
+            return whole_call(module, model, threads)
         return lambda: module.evaluate(
             model, coeffs, 2, inversion=None, threads=threads, **keywords
         )
 
+    installed_evaluate = _core.evaluate
+
+    def whole_call(module: ModuleType, model: object, threads: int):
+        own_evaluate = module.evaluate
+
+        def evaluate(_model: object, *rest: object, **kw: object) -> object:
+            return own_evaluate(model, *rest, **kw)  # (this build's model and evaluate)
+
+        def run() -> object:
+            _core.evaluate = evaluate
+            try:
+                ds = ts.invariants(wd, 2, {"mass": -2.0}, threads=threads, **POINT_OPTIONS)
+            finally:
+                _core.evaluate = installed_evaluate
+            return ds
+
+        return run
+
     a, b = call(other, model_other, cores)(), call(_core, model_new, cores)()
-    for key in a:
+    for key in a:  # (dict keys, or a Dataset's variables)
         assert np.array_equal(a[key], b[key], equal_nan=True), f"the builds differ in {key}"
     iterations = 3000  # (the probe only reports what the machine gives; its length matters little)
     with HostSteal() as steal:

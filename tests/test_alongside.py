@@ -220,6 +220,33 @@ def test_core_writes_only_into_arrays_that_hold_the_values_exactly(wd_core, thre
 
 
 @pytest.mark.parametrize("threads", [1, 2])
+def test_an_array_given_twice_or_not_in_a_dict_is_written_at_most_once(wd_core, threads):
+    """The arrays are borrowed for writing while the points run: one array under two keys is
+    written for one of them only (the other gets a new array), and targets that are not a
+    dict are not used at all."""
+    core, coeffs = wd_core
+    plain = _core.evaluate(core, coeffs, 2, threads=threads, **KW)
+    shared = np.full(2, 9.0)
+    raw = _core.evaluate(
+        core,
+        coeffs,
+        2,
+        threads=threads,
+        alongside=lambda: {"gap_direct": shared, "gap_indirect": shared},
+        **KW,
+    )
+    written = [k for k in ("gap_direct", "gap_indirect") if raw[k] is shared]
+    assert len(written) == 1
+    np.testing.assert_array_equal(shared, plain[written[0]])
+    for k in ("gap_direct", "gap_indirect"):
+        np.testing.assert_array_equal(raw[k], plain[k], err_msg=k)
+    given = [np.full(2, 9, np.int8)]
+    raw = _core.evaluate(core, coeffs, 2, threads=threads, alongside=lambda: given, **KW)
+    assert given[0].tolist() == [9, 9]
+    np.testing.assert_array_equal(raw["nu0"], plain["nu0"])
+
+
+@pytest.mark.parametrize("threads", [1, 2])
 def test_invariants_leaves_nothing_to_copy_after_the_core(monkeypatch, threads):
     """Every result the Dataset takes by key arrives written in place, for the first point's
     layout and for the next, copied from it (dataset._TEMPLATES)."""

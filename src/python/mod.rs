@@ -5,24 +5,27 @@
 //! [`CoreError`] to Python exceptions.
 
 use crate::bloch::{BlochSource, Hoppings, FILL_CHUNK};
-use crate::columns::{columns, Column, Values};
 use crate::eigen::eigh_many_into;
 use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, Sampling};
 use crate::error::{CoreError, CoreResult};
-use crate::pools::{default_threads, mark_main_thread, run_with};
+use crate::pools::{default_threads, help_until, mark_main_thread, run_with};
 use crate::probe::divisible_work;
 use crate::C64;
-use numpy::ndarray::{Array2, Array3, ArrayD, IxDyn};
+use numpy::ndarray::{Array2, Array3};
 use numpy::{
-    IntoPyArray, PyArrayDyn, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2, PyReadonlyArray3,
-    PyUntypedArray, PyUntypedArrayMethods,
+    IntoPyArray, PyReadonlyArray1, PyReadonlyArray2, PyReadonlyArray3, PyUntypedArrayMethods,
 };
+use pack::{pack, Targets};
 use pyo3::exceptions::{PyArithmeticError, PyKeyboardInterrupt, PyRuntimeError, PyValueError};
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
 use rayon::prelude::*;
+use std::any::Any;
 use std::panic::{catch_unwind, AssertUnwindSafe};
-use std::sync::{Arc, Mutex};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex, PoisonError};
+
+mod pack;
 
 fn to_py(e: CoreError) -> PyErr {
     match e {
@@ -62,17 +65,20 @@ where
     });
     match out {
         Ok(r) => r.map_err(to_py),
-        Err(panic) => {
-            let msg = panic
-                .downcast_ref::<String>()
-                .cloned()
-                .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
-                .unwrap_or_else(|| "unknown panic".into());
-            Err(PyRuntimeError::new_err(format!(
-                "internal error in toposweep core: {msg}"
-            )))
-        }
+        Err(panic) => Err(PyRuntimeError::new_err(format!(
+            "internal error in toposweep core: {}",
+            panic_text(panic.as_ref())
+        ))),
     }
+}
+
+/// The message of a panic.
+fn panic_text(panic: &(dyn Any + Send)) -> String {
+    panic
+        .downcast_ref::<String>()
+        .cloned()
+        .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
+        .unwrap_or_else(|| "unknown panic".into())
 }
 
 /// H(κ) from a Python function `func(kappa[(N, dim)], point) -> (N, norb, norb)`.
@@ -314,131 +320,64 @@ fn evaluate<'py>(
             })
             .collect::<CoreResult<Vec<PointResult>>>()
     };
-    let (run, out) = match alongside {
-        None => (detached(py, Workers::Pool(threads), points), None),
-        // one worker: the Python job first, on this thread, then the points
-        Some(f) if threads.unwrap_or_else(default_threads) == 1 => {
-            let out = f.call0(py)?;
-            (detached(py, Workers::Pool(threads), points), Some(out))
+    let f = match alongside {
+        None => {
+            let run = detached(py, Workers::Pool(threads), points);
+            return results(py, run, &error, model.dim, method, Targets::none());
         }
-        // The Python job on the worker that takes the run (from the main thread: this thread,
-        // whose caches and thread state Python last used — on another worker the same job took
-        // ~1.7× as long), at once; the points are the first thing another worker steals — the
-        // oldest job in the queue — and this worker joins them when its job is done. A worker
-        // that is slow to wake up costs nothing while the job runs; should none come, this
-        // worker runs the points itself after its job. The job's exception wins over the
-        // core's: it says why the run was not valid in the first place.
-        Some(f) => {
-            let (side, run) = detached(py, Workers::Pool(threads), || {
-                Ok(rayon::join(|| Python::with_gil(|py| f.call0(py)), points))
-            })?;
-            (run.map_err(to_py), Some(side?))
-        }
+        Some(f) => f,
     };
-    let res = finish(py, run, &error)?;
-    // (a dict returned by the Python job: arrays to write the results into, see `pack`)
-    let out = out.map(|o| o.into_bound(py));
-    let out = out.as_ref().and_then(|o| o.downcast::<PyDict>().ok());
-    pack(py, &res, model.dim, method, out)
+    if threads.unwrap_or_else(default_threads) == 1 {
+        // one worker: the Python job first, on this thread, then the points
+        let out = f.call0(py)?.into_bound(py);
+        let targets = Targets::borrow(&out);
+        let run = detached(py, Workers::Pool(threads), points);
+        return results(py, run, &error, model.dim, method, targets);
+    }
+    // The points are spawned first: another worker steals them at once. The Python job runs
+    // on the worker that takes the call (from the main thread: this thread, whose caches and
+    // thread state Python last used — on another worker the same job took ~1.7× as long), and
+    // then, still holding the GIL, borrows the arrays it returned for the results. Without
+    // the GIL the worker helps with the points until they are done — it never sleeps, so no
+    // wake-up is waited for at their end, and it runs them itself should no other worker
+    // come — and then only copies the values in. The job's exception wins over the core's: it
+    // says why the run was not valid in the first place.
+    let run = Mutex::new(None);
+    let done = AtomicBool::new(false);
+    let packed = detached(py, Workers::Pool(threads), || {
+        Ok(rayon::scope(|sc| {
+            sc.spawn(|_| {
+                let r = catch_unwind(AssertUnwindSafe(points))
+                    .unwrap_or_else(|p| Err(CoreError::Internal(panic_text(p.as_ref()))));
+                *run.lock().unwrap_or_else(PoisonError::into_inner) = Some(r);
+                done.store(true, Ordering::Release);
+            });
+            Python::with_gil(|py| {
+                let out = f.call0(py);
+                let targets = out.map(|o| Targets::borrow(&o.into_bound(py)));
+                py.allow_threads(|| help_until(&done));
+                let targets = targets?;
+                let r = run.lock().unwrap_or_else(PoisonError::into_inner).take();
+                let r =
+                    r.unwrap_or_else(|| Err(CoreError::Internal("the points did not run".into())));
+                results(py, r.map_err(to_py), &error, model.dim, method, targets).map(Bound::unbind)
+            })
+        }))
+    })?;
+    packed.map(|d| d.into_bound(py))
 }
 
-/// The per-point results as one NumPy array per quantity ([`columns`]). A quantity whose key
-/// `out` holds is written into that array instead, when the array is C-contiguous, writable,
-/// of the quantity's size and of a type that holds its values exactly (any integer type for
-/// integers, float64 for reals), and that very array is returned for it: the result Dataset
-/// planned beside the core gets its values without a copy after the core. Anything else gets
-/// a new array.
-fn pack<'py>(
+/// The dict of result arrays of a run ([`pack`]), or its error (a callback's exception first).
+fn results<'py>(
     py: Python<'py>,
-    res: &[PointResult],
+    run: PyResult<Vec<PointResult>>,
+    error: &Arc<Mutex<Option<PyErr>>>,
     dim: usize,
     method: Method,
-    out: Option<&Bound<'py, PyDict>>,
+    targets: Targets<'py>,
 ) -> PyResult<Bound<'py, PyDict>> {
-    let d = PyDict::new(py);
-    for c in columns(res, dim, method) {
-        let target = match out {
-            Some(o) => o.get_item(c.key)?,
-            None => None,
-        };
-        match target {
-            Some(t) if write_into(&t, &c.values)? => d.set_item(c.key, t)?,
-            _ => d.set_item(c.key, new_array(py, c, res.len())?)?,
-        }
-    }
-    Ok(d)
-}
-
-/// A new array of a column, shape (points, tail…).
-fn new_array(py: Python<'_>, c: Column, points: usize) -> PyResult<Bound<'_, PyAny>> {
-    let shape = c.shape(points);
-    match c.values {
-        Values::I8(v) => array_of(py, &shape, v, c.key),
-        Values::U8(v) => array_of(py, &shape, v, c.key),
-        Values::I32(v) => array_of(py, &shape, v, c.key),
-        Values::F64(v) => array_of(py, &shape, v, c.key),
-        Values::Bool(v) => array_of(py, &shape, v, c.key),
-    }
-}
-
-fn array_of<'py, T: numpy::Element>(
-    py: Python<'py>,
-    shape: &[usize],
-    v: Vec<T>,
-    key: &str,
-) -> PyResult<Bound<'py, PyAny>> {
-    let a = ArrayD::from_shape_vec(IxDyn(shape), v)
-        .map_err(|e| PyRuntimeError::new_err(format!("internal error: column {key}: {e}")))?;
-    Ok(a.into_pyarray(py).into_any())
-}
-
-/// Write `values` into `target` if it can hold them exactly (see [`pack`]); whether it did.
-fn write_into(target: &Bound<'_, PyAny>, values: &Values) -> PyResult<bool> {
-    let Ok(a) = target.downcast::<PyUntypedArray>() else {
-        return Ok(false);
-    };
-    if a.len() != values.len() || !a.is_c_contiguous() {
-        return Ok(false);
-    }
-    match values.integers() {
-        None => {
-            let Values::F64(v) = values else {
-                return Ok(false);
-            };
-            Ok(write_as(target, v.iter().map(|&x| Some(x))))
-        }
-        Some(ints) => Ok(
-            write_as::<i8>(target, ints.iter().map(|&x| x.try_into().ok()))
-                || write_as::<i16>(target, ints.iter().map(|&x| x.try_into().ok()))
-                || write_as::<i32>(target, ints.iter().map(|&x| x.try_into().ok()))
-                || write_as::<i64>(target, ints.iter().map(|&x| Some(x)))
-                || write_as::<u8>(target, ints.iter().map(|&x| x.try_into().ok())),
-        ),
-    }
-}
-
-/// Write the values into `target` if it is a writable array of `T` and every value converts;
-/// whether it did (nothing is written otherwise).
-fn write_as<T: numpy::Element + Copy>(
-    target: &Bound<'_, PyAny>,
-    values: impl Iterator<Item = Option<T>>,
-) -> bool {
-    let Ok(a) = target.downcast::<PyArrayDyn<T>>() else {
-        return false;
-    };
-    let Some(v) = values.collect::<Option<Vec<T>>>() else {
-        return false;
-    };
-    let Ok(mut rw) = a.try_readwrite() else {
-        return false;
-    };
-    match rw.as_slice_mut() {
-        Ok(s) if s.len() == v.len() => {
-            s.copy_from_slice(&v);
-            true
-        }
-        _ => false,
-    }
+    let res = finish(py, run, error)?;
+    pack(py, &res, dim, method, targets)
 }
 
 /// H(κ) for every row of `kappa` (N, dim) at one coefficient vector, with `threads` workers
