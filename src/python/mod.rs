@@ -44,10 +44,10 @@ enum Workers {
     /// A pool of this many workers (None: [`default_threads`]); which threads they are:
     /// [`crate::pools`].
     Pool(Option<usize>),
-    /// The calling thread alone, no pool: work too small to share. A pool would make the
-    /// caller a worker of a pool of the default size for good (rayon lets a thread be a worker
-    /// of one pool), and its later `threads=1` calls would be handed to another thread while
-    /// it waits.
+    /// The calling thread alone, no pool installed: work too small to share (a pool would make
+    /// the caller a worker of a pool of the default size for good — rayon lets a thread be a
+    /// worker of one pool — and its later `threads=1` calls would be handed to another thread
+    /// while it waits), or a worker helping the pool it is already in ([`help_until`]).
     Caller,
 }
 
@@ -355,7 +355,11 @@ fn evaluate<'py>(
             Python::with_gil(|py| {
                 let out = f.call0(py);
                 let targets = out.map(|o| Targets::borrow(&o.into_bound(py)));
-                py.allow_threads(|| help_until(&done));
+                // (without the GIL, on this thread: still inside this pool's scope)
+                detached(py, Workers::Caller, || {
+                    help_until(&done);
+                    Ok(())
+                })?;
                 let targets = targets?;
                 let r = run.lock().unwrap_or_else(PoisonError::into_inner).take();
                 let r =
