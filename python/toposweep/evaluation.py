@@ -186,10 +186,12 @@ def run_points(
     returns a dict of arrays (:meth:`toposweep.dataset.ResultLayout.core_targets`), the core
     writes the results of those keys into them and returns those very arrays.
     """
-    breaks: list[tuple[NDArray[np.bool_], NDArray[np.bool_]]] = []
+    breaks: list[tuple[NDArray[np.bool_], NDArray[np.bool_], bool, bool]] = []
 
     def python_side() -> object:
-        breaks.append(_symmetry_breaks(req, points))
+        tr_broken, p_broken = _symmetry_breaks(req, points)
+        # (whether any point is broken, found here: beside the core, not after it)
+        breaks.append((tr_broken, p_broken, bool(tr_broken.any()), bool(p_broken.any())))
         return None if alongside is None else alongside()
 
     if alongside is None:
@@ -207,10 +209,10 @@ def run_points(
         alongside=None if alongside is None else python_side,
         **req.sampling.core_kwargs(),
     )
-    tr_broken, p_broken = breaks[0]
-    if tr_broken.any():
+    tr_broken, p_broken, any_tr_broken, any_p_broken = breaks[0]
+    if any_tr_broken:
         _mark(raw, tr_broken, REASON_TIME_REVERSAL_BROKEN, parity=False)
-    if req.inversion is not None and (tr_broken.any() or p_broken.any()):
+    if req.inversion is not None and (any_tr_broken or any_p_broken):
         _mark(raw, p_broken | tr_broken, REASON_INVERSION_BROKEN, parity=True)
         raw["parity_reason"][tr_broken] = REASON_TIME_REVERSAL_BROKEN
     return raw
