@@ -338,9 +338,9 @@ fn evaluate<'py>(
     // on the worker that takes the call (from the main thread: this thread, whose caches and
     // thread state Python last used — on another worker the same job took ~1.7× as long), and
     // then, still holding the GIL, borrows the arrays it returned for the results. Without
-    // the GIL the worker helps with the points until they are done — it never sleeps, so no
-    // wake-up is waited for at their end, and it runs them itself should no other worker
-    // come — and then only copies the values in. The job's exception wins over the core's: it
+    // the GIL the worker helps with the points until they are done ([`help_until`]: it does
+    // not fall asleep, so no wake-up is waited for at their end, and it runs them itself
+    // should no other worker come), and then only copies the values in. The job's exception wins over the core's: it
     // says why the run was not valid in the first place.
     let run = Mutex::new(None);
     let done = AtomicBool::new(false);
