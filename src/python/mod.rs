@@ -340,8 +340,8 @@ fn evaluate<'py>(
     // then, still holding the GIL, borrows the arrays it returned for the results. Without
     // the GIL the worker helps with the points until they are done ([`help_until`]: it does
     // not fall asleep, so no wake-up is waited for at their end, and it runs them itself
-    // should no other worker come), and then only copies the values in. The job's exception wins over the core's: it
-    // says why the run was not valid in the first place.
+    // should no other worker come), and then only copies the values in. The job's exception
+    // wins over the core's: it says why the run was not valid in the first place.
     let run = Mutex::new(None);
     let done = AtomicBool::new(false);
     let packed = detached(py, Workers::Pool(threads), || {
