@@ -45,7 +45,7 @@ from toposweep import _core  # noqa: E402
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from fork_join_gain import TASKS  # noqa: E402
 from point_sampling import POINT_OPTIONS  # noqa: E402
-from timing import ONE_THREAD, HostSteal, OnOneThread, paired_gain, round_times  # noqa: E402
+from timing import ONE_THREAD, HostSteal, OnOneThread, gain_text, round_times  # noqa: E402
 
 
 def load_other(path: str) -> ModuleType:
@@ -124,11 +124,11 @@ def main() -> None:
         )
     best = [min(column) * 1e3 for column in zip(*times, strict=True)]
     ratio = sorted(t[3] / t[1] for t in times)[len(times) // 2]
-    print(f"| build | 1 thread (ms) | {cores} threads (ms) | threads gain |")
+    print(f"| build | 1 thread (ms) | {cores} threads (ms) | threads gain (95 % interval) |")
     print("|---|---:|---:|---:|")
-    print(f"| other | {best[0]:.3f} | {best[1]:.3f} | {paired_gain(times, 0, 1):.2f}× |")
-    print(f"| installed | {best[2]:.3f} | {best[3]:.3f} | {paired_gain(times, 2, 3):.2f}× |")
-    print(f"| probe | {best[4]:.3f} | {best[5]:.3f} | {paired_gain(times, 4, 5):.2f}× |")
+    print(f"| other | {best[0]:.3f} | {best[1]:.3f} | {gain_text(times, 0, 1)} |")
+    print(f"| installed | {best[2]:.3f} | {best[3]:.3f} | {gain_text(times, 2, 3)} |")
+    print(f"| probe | {best[4]:.3f} | {best[5]:.3f} | {gain_text(times, 4, 5)} |")
     print(f"\ninstalled over other, {cores} threads, median over rounds: {ratio:.3f}")
     print(f"CPU time the host took away during the rounds (steal): {steal.text()}")
 

@@ -7,7 +7,8 @@ fork–join call of that length at that moment: unlike two whole processes side 
 (``core_speeds.py``), a call must wait at its end for its last task, and on a virtual machine
 for a worker whose virtual CPU the host has paused. Rounds of the four calls are interleaved,
 so both gains see the same moments; each is the median over rounds of one-thread time over
-all-core time (``timing.paired_gain``).
+all-core time (``timing.paired_gain``), given with a 95 % bootstrap interval over the rounds
+(``timing.gain_interval``).
 
 Usage::
 
@@ -36,6 +37,7 @@ from timing import (  # noqa: E402
     HostSteal,
     OnOneThread,
     best_time,
+    gain_text,
     paired_gain,
     round_times,
 )
@@ -44,9 +46,9 @@ from timing import (  # noqa: E402
 TASKS = 246
 
 
-def measure(rounds: int) -> tuple[dict[str, tuple[float, float, float]], HostSteal]:
-    """Per call ("invariants()", "probe"): best one-thread and all-core time (s), paired gain;
-    and the host's steal during the rounds."""
+def measure(rounds: int) -> tuple[dict[str, tuple[float, float, float, str]], HostSteal]:
+    """Per call ("invariants()", "probe"): best one-thread and all-core time (s), paired gain
+    and the gain with its interval as text; and the host's steal during the rounds."""
     cores = os.cpu_count() or 1
     model = ts.models.wilson_dirac()
 
@@ -74,8 +76,8 @@ def measure(rounds: int) -> tuple[dict[str, tuple[float, float, float]], HostSte
         )
     best = [min(column) for column in zip(*times, strict=True)]
     return {
-        "invariants()": (best[0], best[1], paired_gain(times, 0, 1)),
-        "probe": (best[2], best[3], paired_gain(times, 2, 3)),
+        "invariants()": (best[0], best[1], paired_gain(times, 0, 1), gain_text(times, 0, 1)),
+        "probe": (best[2], best[3], paired_gain(times, 2, 3), gain_text(times, 2, 3)),
     }, steal
 
 
@@ -85,15 +87,15 @@ def table(rounds: int) -> list[str]:
     res, steal = measure(rounds)
     cores = os.cpu_count() or 1
     out = [
-        f"| call | 1 thread (ms) | {cores} threads (ms) | threads gain |",
+        f"| call | 1 thread (ms) | {cores} threads (ms) | threads gain (95 % interval) |",
         "|---|---:|---:|---:|",
     ]
     names = {
         "invariants()": "`invariants()`, Wilson–Dirac point of table (b)",
         "probe": f"`_core.fork_join_probe`: {TASKS} equal tasks, same one-thread time",
     }
-    for key, (t1, tn, gain) in res.items():
-        out.append(f"| {names[key]} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {gain:.2f}× |")
+    for key, (t1, tn, _, gain) in res.items():
+        out.append(f"| {names[key]} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {gain} |")
     share = (res["invariants()"][2] - 1) / (res["probe"][2] - 1)
     out.append(
         f"| the point's extra speed from more threads, as a share of the probe's | | | "
@@ -105,7 +107,7 @@ def table(rounds: int) -> list[str]:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--rounds", type=int, default=30, help="interleaved rounds (default 30)")
+    parser.add_argument("--rounds", type=int, default=120, help="interleaved rounds (default 120)")
     args = parser.parse_args()
     # the main thread's first call joins the pool of all cores (see timing.CallerThread)
     _core.eigh(np.eye(4, dtype=complex)[None], threads=os.cpu_count())

@@ -58,7 +58,7 @@ from timing import (  # noqa: E402
     HostSteal,
     OnOneThread,
     best_time,
-    paired_gain,
+    gain_text,
     round_times,
 )
 
@@ -141,7 +141,8 @@ def point_cases(quick: bool) -> list[tuple[str, object, int, dict | None, dict]]
 def invariants_table(repeats: int, quick: bool) -> list[str]:
     out = [
         "| model | NumPy baseline (ms/point) | toposweep 1 thread (ms) | speed-up | "
-        f"toposweep {os.cpu_count()} threads (ms) | speed-up | threads gain | host steal | "
+        f"toposweep {os.cpu_count()} threads (ms) | speed-up | threads gain (95 % interval) | "
+        "host steal | "
         "result |",
         "|---|---:|---:|---:|---:|---:|---:|---:|---|",
     ]
@@ -167,14 +168,14 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
                 min_seconds=0.035,
             )
         t_np, t1, tn = (min(column) for column in zip(*times, strict=True))
-        gain = paired_gain(times, 1, 2)
+        gain = gain_text(times, 1, 2)
         if ref["nu0"] < 0:
             result = f"undefined (reason {ref['reason']}), same on both sides"
         else:
             result = f"({ref['nu0']};{''.join(map(str, ref['nu']))})"
         out.append(
             f"| {label} | {t_np * 1e3:.1f} | {t1 * 1e3:.2f} | {t_np / t1:.1f}× | "
-            f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {gain:.2f}× | {steal.text()} | {result} |"
+            f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {gain} | {steal.text()} | {result} |"
         )
         if label.startswith("16"):
             assert (ref["nu0"], ref["nu"]) == expected_indices(4)
@@ -194,7 +195,7 @@ def core_only_table(repeats: int) -> list[str]:
     kw = s.core_kwargs()
     out = [
         "| Wilson–Dirac point, fixed 40 × 41 × 6 | 1 thread (ms) | "
-        f"{os.cpu_count()} threads (ms) | threads gain | host steal |",
+        f"{os.cpu_count()} threads (ms) | threads gain (95 % interval) | host steal |",
         "|---|---:|---:|---:|---:|",
     ]
     rows = [
@@ -235,7 +236,7 @@ def core_only_table(repeats: int) -> list[str]:
             )
         t1, tn = (min(column) for column in zip(*times, strict=True))
         out.append(
-            f"| {name} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {paired_gain(times, 0, 1):.2f}× | "
+            f"| {name} | {t1 * 1e3:.2f} | {tn * 1e3:.2f} | {gain_text(times, 0, 1)} | "
             f"{steal.text()} |"
         )
     return out
@@ -346,7 +347,9 @@ def main() -> None:
         f"with kernels compiled for {_core.INSTRUCTION_SET} "
         f"(RUSTFLAGS='{os.environ.get('RUSTFLAGS', '')}'). "
         "Times are the best of several rounds; a threads gain is the median over the rounds of "
-        "the one-thread time over the all-core time measured right after it. One-thread calls "
+        "the one-thread time over the all-core time measured right after it, with a 95 % "
+        "bootstrap interval over the rounds (how far the median of other rounds of the same "
+        "minutes could lie; the host moves it further from one run to the next). One-thread calls "
         "are made from a thread of their own and calls on all cores from the main thread. "
         "'Host steal' is the share of all CPUs' time that the hypervisor gave to other guests "
         "while a row was measured (/proc/stat): on a shared virtual machine it caps a threads "
@@ -415,7 +418,7 @@ def main() -> None:
     )
     section(
         "A call with nothing serial in it, beside the point",
-        fork_join_table(10 if args.quick else 40),
+        fork_join_table(10 if args.quick else 120),
         "Two processes never wait for each other; one call waits at its end for its last task, "
         "and on a virtual machine for a worker whose virtual CPU the host has paused. "
         "`_core.fork_join_probe` is a call of equal tasks of pure arithmetic through the same "
