@@ -18,7 +18,8 @@ Build the other extension from a worktree of the earlier commit, for instance::
 
 With ``--whole-call`` each call is a whole ``invariants()`` call — the Python around the core and
 the Python job beside it included — with the build's ``evaluate`` put in for the installed
-one's for its calls; without, the core's ``evaluate`` alone.
+one's for its calls; without, the core's ``evaluate`` alone. ``--default-sampling`` takes the
+package's default sampling (gap search and convergence certificate on) instead of table (b)'s.
 
 Prints, for each build, the threads gain (median over rounds of one-thread over all-core time)
 and the best times, and the median over rounds of the new build's all-core time over the other's.
@@ -68,13 +69,20 @@ def main() -> None:
         action="store_true",
         help="time whole invariants() calls instead of the core's evaluate alone",
     )
+    parser.add_argument(
+        "--default-sampling",
+        action="store_true",
+        help="the package's default sampling (gap search and certificate on) instead of the "
+        "fixed sampling of table (b)",
+    )
     args = parser.parse_args()
+    options = {} if args.default_sampling else POINT_OPTIONS
     other = load_other(args.other)
     cores = os.cpu_count() or 1
     wd = ts.models.wilson_dirac()
     model_new, coeffs = wd.prepare([wd.resolve({"mass": -2.0})])
     model_other = other.CoreModel.tight_binding(*wd._core_arguments())
-    keywords = ts.Sampling(**POINT_OPTIONS).core_kwargs()
+    keywords = ts.Sampling(**options).core_kwargs()
     # the main thread's first call joins the pool of all cores, in each build
     for module in (other, _core):
         module.eigh(np.eye(4, dtype=complex)[None], threads=cores)
@@ -98,7 +106,7 @@ def main() -> None:
         def run() -> object:
             _core.evaluate = evaluate
             try:
-                ds = ts.invariants(wd, 2, {"mass": -2.0}, threads=threads, **POINT_OPTIONS)
+                ds = ts.invariants(wd, 2, {"mass": -2.0}, threads=threads, **options)
             finally:
                 _core.evaluate = installed_evaluate
             return ds

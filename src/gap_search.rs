@@ -202,6 +202,7 @@ pub fn pick_starts(
     out
 }
 
+#[derive(Clone, Copy)]
 struct Walker {
     at: [f64; 3],
     gap: f64,
@@ -209,8 +210,65 @@ struct Walker {
     active: bool,
 }
 
+impl Walker {
+    fn from_starts(starts: &[(f64, [f64; 3])], set: &SearchSettings) -> Vec<Self> {
+        starts
+            .iter()
+            .map(|&(gap, at)| Walker {
+                at,
+                gap,
+                step: set.step,
+                active: gap >= set.floor,
+            })
+            .collect()
+    }
+
+    /// The walker's stencil: ±step along every axis, 2·dim κ points of `dim` coordinates.
+    fn stencil(&self, dim: usize, kappa: &mut Vec<f64>) {
+        for axis in 0..dim {
+            for sign in [-1.0, 1.0] {
+                let mut k = self.at;
+                k[axis] = (k[axis] + sign * self.step).rem_euclid(1.0);
+                kappa.extend_from_slice(&k[..dim]);
+            }
+        }
+    }
+
+    /// One step of the compass search from the gaps at the stencil (`kappa`, 2·dim points):
+    /// move to the best improvement, else halve the step (and stop once the gap no longer
+    /// changes, is below the floor, or the step is below its minimum).
+    fn advance(&mut self, trial: &[f64], kappa: &[f64], set: &SearchSettings, dim: usize) {
+        let (best, &bg) = trial
+            .iter()
+            .enumerate()
+            .min_by(|a, b| a.1.total_cmp(b.1))
+            .expect("dim ≥ 1 gives a non-empty stencil");
+        if bg < self.gap {
+            self.at[..dim].copy_from_slice(&kappa[best * dim..(best + 1) * dim]);
+            self.gap = bg;
+        } else {
+            let spread = trial
+                .iter()
+                .map(|g| (g - self.gap).abs())
+                .fold(0.0, f64::max);
+            if spread <= set.rel_tol * self.gap {
+                self.active = false;
+            }
+            self.step *= 0.5;
+        }
+        if self.gap < set.floor || self.step < set.min_step {
+            self.active = false;
+        }
+    }
+}
+
 /// Minimise the direct gap from every start (gap value known at the start) and return the
 /// smallest gap found. Trial points are merged into `stats` (they are genuine κ points).
+///
+/// A source that wants batches gets every walker's stencil of a round in one batch
+/// ([`lock_step`]); one that builds H cheaply anywhere has each walker walk on its own task
+/// ([`apart`]). Both merge the trial points into `stats` in the same order, so the result is
+/// the same on any number of workers.
 pub fn minimise(
     src: &dyn BlochSource,
     filling: usize,
@@ -218,60 +276,12 @@ pub fn minimise(
     set: &SearchSettings,
     stats: &mut BandStats,
 ) -> CoreResult<GapMinimum> {
-    let dim = src.dim();
-    let mut walkers: Vec<Walker> = starts
-        .iter()
-        .map(|&(gap, at)| Walker {
-            at,
-            gap,
-            step: set.step,
-            active: gap >= set.floor,
-        })
-        .collect();
-    let mut evaluations = 0usize;
-    for _ in 0..set.max_rounds {
-        let live: Vec<usize> = (0..walkers.len()).filter(|&w| walkers[w].active).collect();
-        if live.is_empty() {
-            break;
-        }
-        // stencil: ±step along every axis, for every live walker, in one batch
-        let mut kappa = Vec::with_capacity(live.len() * 2 * dim * dim);
-        for &w in &live {
-            let wk = &walkers[w];
-            for axis in 0..dim {
-                for sign in [-1.0, 1.0] {
-                    let mut k = wk.at;
-                    k[axis] = (k[axis] + sign * wk.step).rem_euclid(1.0);
-                    kappa.extend_from_slice(&k[..dim]);
-                }
-            }
-        }
-        let gaps = gaps_at(src, &kappa, filling, stats)?;
-        evaluations += gaps.len();
-        for (slot, &w) in live.iter().enumerate() {
-            let trial = &gaps[slot * 2 * dim..(slot + 1) * 2 * dim];
-            let wk = &mut walkers[w];
-            let (best, &bg) = trial
-                .iter()
-                .enumerate()
-                .min_by(|a, b| a.1.total_cmp(b.1))
-                .expect("dim ≥ 1 gives a non-empty stencil");
-            if bg < wk.gap {
-                let k = &kappa[(slot * 2 * dim + best) * dim..(slot * 2 * dim + best + 1) * dim];
-                wk.at[..dim].copy_from_slice(k);
-                wk.gap = bg;
-            } else {
-                let spread = trial.iter().map(|g| (g - wk.gap).abs()).fold(0.0, f64::max);
-                if spread <= set.rel_tol * wk.gap {
-                    wk.active = false;
-                }
-                wk.step *= 0.5;
-            }
-            if wk.gap < set.floor || wk.step < set.min_step {
-                wk.active = false;
-            }
-        }
-    }
+    let mut walkers = Walker::from_starts(starts, set);
+    let evaluations = if src.prefers_batches() {
+        lock_step(src, filling, &mut walkers, set, stats)?
+    } else {
+        apart(src, filling, &mut walkers, set, stats)?
+    };
     let best = walkers
         .iter()
         .min_by(|a, b| a.gap.total_cmp(&b.gap))
@@ -282,6 +292,96 @@ pub fn minimise(
         kappa: best.1,
         evaluations,
     })
+}
+
+/// All walkers advance together: each round is one batch of every live walker's stencil (a
+/// Python callback then vectorises over the whole round). Returns the Hamiltonians evaluated.
+fn lock_step(
+    src: &dyn BlochSource,
+    filling: usize,
+    walkers: &mut [Walker],
+    set: &SearchSettings,
+    stats: &mut BandStats,
+) -> CoreResult<usize> {
+    let dim = src.dim();
+    let mut evaluations = 0usize;
+    for _ in 0..set.max_rounds {
+        let live: Vec<usize> = (0..walkers.len()).filter(|&w| walkers[w].active).collect();
+        if live.is_empty() {
+            break;
+        }
+        let mut kappa = Vec::with_capacity(live.len() * 2 * dim * dim);
+        for &w in &live {
+            walkers[w].stencil(dim, &mut kappa);
+        }
+        let gaps = gaps_at(src, &kappa, filling, stats)?;
+        evaluations += gaps.len();
+        for (slot, &w) in live.iter().enumerate() {
+            let span = slot * 2 * dim..(slot + 1) * 2 * dim;
+            let k = &kappa[span.start * dim..span.end * dim];
+            walkers[w].advance(&gaps[span], k, set, dim);
+        }
+    }
+    Ok(evaluations)
+}
+
+/// Each walker walks all its rounds on a task of its own (a guided list over the walkers), on
+/// the task's thread: a round is 2·dim small eigenproblems, a few µs, too little to share
+/// between workers — handed to the pool round by round, as [`lock_step`] does, the search ran
+/// slower on two workers than on one, and the other worker idled meanwhile. The trial points
+/// are merged afterwards round by round, walkers in order: the order of [`lock_step`].
+fn apart(
+    src: &dyn BlochSource,
+    filling: usize,
+    walkers: &mut [Walker],
+    set: &SearchSettings,
+    stats: &mut BandStats,
+) -> CoreResult<usize> {
+    let (dim, n) = (src.dim(), src.norb());
+    let nn = n * n;
+    let stencil = 2 * dim;
+    // per walker: where it ended, and each round's stencil κ and eigenvalues
+    let walks = map_guided(
+        walkers.len(),
+        || {
+            (
+                vec![C64::new(0.0, 0.0); stencil * nn],
+                vec![C64::new(0.0, 0.0); nn],
+            )
+        },
+        |(h, work), w| {
+            let mut wk = walkers[w];
+            let mut rounds: Vec<(Vec<f64>, Vec<f64>)> = Vec::new();
+            while wk.active && rounds.len() < set.max_rounds {
+                let mut kappa = Vec::with_capacity(stencil * dim);
+                wk.stencil(dim, &mut kappa);
+                src.fill(&kappa, h)?;
+                let mut e = vec![0.0; stencil * n];
+                eigh_occupied_many_into(h, n, 0, &mut e, &mut [], work)?;
+                let gaps: Vec<f64> = e
+                    .chunks_exact(n)
+                    .map(|e| e[filling] - e[filling - 1])
+                    .collect();
+                wk.advance(&gaps, &kappa, set, dim);
+                rounds.push((kappa, e));
+            }
+            Ok((wk, rounds))
+        },
+    )?;
+    let mut evaluations = 0usize;
+    let longest = walks.iter().map(|(_, r)| r.len()).max().unwrap_or(0);
+    for round in 0..longest {
+        for (kappa, e) in walks.iter().filter_map(|(_, r)| r.get(round)) {
+            for (e, k) in e.chunks_exact(n).zip(kappa.chunks_exact(dim)) {
+                stats.add(e, filling, k);
+            }
+            evaluations += stencil;
+        }
+    }
+    for (wk, (end, _)) in walkers.iter_mut().zip(&walks) {
+        *wk = *end;
+    }
+    Ok(evaluations)
 }
 
 #[cfg(test)]
@@ -412,11 +512,9 @@ mod tests {
         }
     }
 
-    /// The bulk grid taken line by line (shifted line fills, eigenvalues only, four at a
-    /// time) gives the gaps and band statistics of the plain batch over the same κ list, for a
-    /// generic 4-band and a Kramers-degenerate (closed-form) 3D model, m even and odd.
-    #[test]
-    fn grid_by_lines_matches_batch() {
+    /// Two 4-band 3D models: a generic Hermitian H(κ) (random nearest-neighbour hoppings) and
+    /// the Wilson–Dirac model at m = −2 (two Kramers-degenerate levels: the closed form).
+    fn generic_and_kramers() -> (crate::bloch::Bloch, crate::bloch::Bloch) {
         use crate::bloch::Hoppings;
         let mut rng = crate::test_rng::TestRng::new(7u64);
         let mut next = || rng.uniform();
@@ -462,6 +560,15 @@ mod tests {
             .unwrap()
             .at(&[])
             .unwrap();
+        (generic, kramers)
+    }
+
+    /// The bulk grid taken line by line (shifted line fills, eigenvalues only, four at a
+    /// time) gives the gaps and band statistics of the plain batch over the same κ list, for a
+    /// generic 4-band and a Kramers-degenerate (closed-form) 3D model, m even and odd.
+    #[test]
+    fn grid_by_lines_matches_batch() {
+        let (generic, kramers) = generic_and_kramers();
         for src in [&generic as &dyn BlochSource, &kramers] {
             for m in [4usize, 5] {
                 let step = 1.0 / m as f64;
@@ -480,6 +587,42 @@ mod tests {
                 assert!((sa.min_direct - sb.min_direct).abs() < 1e-12);
                 assert!((sa.bandwidth() - sb.bandwidth()).abs() < 1e-12);
                 assert!((sa.indirect() - sb.indirect()).abs() < 1e-12);
+            }
+        }
+    }
+
+    /// Walkers on tasks of their own end where the walkers in lock step end, after as many
+    /// Hamiltonians, with the same band statistics, on one worker and on two.
+    #[test]
+    fn walkers_apart_match_lock_step() {
+        let (generic, kramers) = generic_and_kramers();
+        for src in [&generic as &dyn BlochSource, &kramers] {
+            let kappa = [0.1, 0.2, 0.3, 0.45, 0.05, 0.7, 0.9, 0.6, 0.35];
+            let gaps = gaps_at(src, &kappa, 2, &mut BandStats::default()).unwrap();
+            let starts: Vec<(f64, [f64; 3])> = gaps
+                .iter()
+                .zip(kappa.chunks_exact(3))
+                .map(|(&g, k)| (g, [k[0], k[1], k[2]]))
+                .collect();
+            let set = SearchSettings::new(0.03, 1e-9);
+            let run = |walk: bool, workers: usize| {
+                crate::guided::tests::pool(workers).install(|| {
+                    let mut walkers = Walker::from_starts(&starts, &set);
+                    let mut stats = BandStats::default();
+                    let evaluations = if walk {
+                        apart(src, 2, &mut walkers, &set, &mut stats)
+                    } else {
+                        lock_step(src, 2, &mut walkers, &set, &mut stats)
+                    }
+                    .unwrap();
+                    let ends: Vec<_> = walkers.iter().map(|w| (w.gap, w.at, w.step)).collect();
+                    (evaluations, ends, stats)
+                })
+            };
+            let want = run(false, 1);
+            assert!(want.0 > 6 * starts.len(), "the walkers moved: {}", want.0);
+            for workers in [1, 2] {
+                assert_eq!(run(true, workers), want, "{workers} workers");
             }
         }
     }
