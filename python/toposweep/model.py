@@ -38,6 +38,15 @@ def _symmetry_kappa(dim: int) -> NDArray[np.float64]:
     return kappa
 
 
+def _read_only(m: NDArray[np.complex128] | None) -> NDArray[np.complex128] | None:
+    """A read-only copy of an operator matrix (None stays None)."""
+    if m is None:
+        return None
+    out = np.array(m, dtype=complex)
+    out.setflags(write=False)
+    return out
+
+
 def matrix_to_json(m: NDArray[np.complex128] | None) -> dict[str, list[list[float]]] | None:
     """Complex matrix → ``{"re": [[...]], "im": [[...]]}`` (JSON has no complex numbers)."""
     if m is None:
@@ -87,8 +96,13 @@ class Model(ABC):
         self.norb = int(norb)
         self.lattice = self._real_matrix(lattice, (self.dim, self.dim), "lattice")
         self.positions = self._real_matrix(positions, (self.norb, self.dim), "positions")
-        self.time_reversal = as_operator(time_reversal, self.norb, "time_reversal")
-        self.inversion = as_operator(inversion, self.norb, "inversion")
+        self.time_reversal = _read_only(as_operator(time_reversal, self.norb, "time_reversal"))
+        self.inversion = _read_only(as_operator(inversion, self.norb, "inversion"))
+        #: the operators as made here; a run's checked request is reused only while both are
+        #: still these (read-only) arrays (see ``evaluation.prepare_request``)
+        self._own_operators = (self.time_reversal, self.inversion)
+        #: (filling, threads, sampling, request) of the last run prepared for this model
+        self._request_memo: tuple[Any, Any, Any, Any] | None = None
         self.energy_unit = str(energy_unit)
         self.name = str(name)
         #: default parameter values, used for every parameter a call does not set
@@ -96,6 +110,12 @@ class Model(ABC):
         #: optional ``{"long_name": ..., "units": ...}`` per parameter, for dataset coordinates
         self.parameter_info: dict[str, dict[str, str]] = {}
         self._json_cache: tuple[Any, str] | None = None
+
+    def __getstate__(self) -> dict[str, Any]:
+        # (a copy elsewhere checks its own first run: its operators may arrive writable)
+        state = self.__dict__.copy()
+        state["_request_memo"] = None
+        return state
 
     @staticmethod
     def _real_matrix(a: ArrayLike | None, shape: tuple[int, int], what: str) -> NDArray | None:

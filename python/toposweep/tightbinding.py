@@ -84,6 +84,7 @@ class TightBinding(Model):
         self._hop_count += 1
         self._reach = None
         self._core_cache = None
+        self._request_memo = None  # (the reach checked for a run may have grown)
         self._residual_cache.clear()
         return self
 
