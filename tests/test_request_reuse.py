@@ -81,3 +81,20 @@ def test_an_inversion_passed_to_the_call_is_not_the_kept_one():
     assert req is not kept and req.inversion_from_call
     assert np.array_equal(req.inversion, p)
     assert request(model) is kept  # (and the call's own matrix did not replace it)
+
+
+def test_a_model_that_has_run_can_be_sent_to_another_process():
+    """Pickling (what a process pool does with its arguments) drops what the core compiled and
+    the kept request; the copy compiles its own and gives the same results."""
+    import pickle
+
+    model = ts.models.wilson_dirac()
+    opts = {"loop_points": 12, "lines": 9, "max_lines": 9, "gap_points": 4}
+    here = ts.invariants(model, 2, {"mass": -2.0}, **opts)
+    copy = pickle.loads(pickle.dumps(model))
+    assert copy._request_memo is None
+    assert not copy.inversion.flags.writeable and copy.inversion is copy._own_operators[1]
+    there = ts.invariants(copy, 2, {"mass": -2.0}, **opts)
+    assert copy._request_memo is not None
+    for name in ("nu0", "nu", "gap_direct", "nu0_parity"):
+        assert np.array_equal(here[name], there[name]), name

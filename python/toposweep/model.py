@@ -112,10 +112,19 @@ class Model(ABC):
         self._json_cache: tuple[Any, str] | None = None
 
     def __getstate__(self) -> dict[str, Any]:
-        # (a copy elsewhere checks its own first run: its operators may arrive writable)
+        # (for pickling, e.g. to worker processes: what the core compiled is remade there on
+        # first use, and the copy checks its own first run)
         state = self.__dict__.copy()
         state["_request_memo"] = None
+        if "_core_cache" in state:
+            state["_core_cache"] = None
         return state
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        self.__dict__.update(state)
+        for op in self._own_operators:  # (they arrive writable)
+            if op is not None:
+                op.setflags(write=False)
 
     @staticmethod
     def _real_matrix(a: ArrayLike | None, shape: tuple[int, int], what: str) -> NDArray | None:
