@@ -131,7 +131,7 @@ def prepare_request(
         threads=checked_threads,
         inversion_from_call=explicit,
     )
-    if not explicit and all(o is None or not o.flags.writeable for o in model._own_operators):
+    if not explicit:  # (the model's own operators are read-only: Model.__init__, __setstate__)
         model._request_memo = (filling, threads, sampling, req)
     return req
 

@@ -112,12 +112,10 @@ class Model(ABC):
         self._json_cache: tuple[Any, str] | None = None
 
     def __getstate__(self) -> dict[str, Any]:
-        # (for pickling, e.g. to worker processes: what the core compiled is remade there on
-        # first use, and the copy checks its own first run)
+        # (for pickling, e.g. to worker processes: the copy checks its own first run; kinds
+        # that keep a compiled core model drop it here too)
         state = self.__dict__.copy()
         state["_request_memo"] = None
-        if "_core_cache" in state:
-            state["_core_cache"] = None
         return state
 
     def __setstate__(self, state: dict[str, Any]) -> None:

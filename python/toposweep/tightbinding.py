@@ -165,6 +165,12 @@ class TightBinding(Model):
             self._reach = max((abs(int(x)) for r, _, _ in self._hops for x in r), default=0)
         return self._reach
 
+    def __getstate__(self) -> dict[str, Any]:
+        # (the compiled model cannot be pickled: the copy compiles its own on first use)
+        state = super().__getstate__()
+        state["_core_cache"] = None
+        return state
+
     def _core(self) -> Any:
         if self._core_cache is None:
             self._core_cache = _core.CoreModel.tight_binding(*self._core_arguments())
