@@ -18,7 +18,7 @@ use toposweep::eigen::{
     eigh_occupied_pair_into, eigh_occupied_quad_into, eigh_pair_into, eigh_quad_into,
     eigh_reference_into, eigh_warm_into, JACOBI_MAX_N, QUAD_MAX_N, SMALL_MAX_N,
 };
-use toposweep::engine::{evaluate_point, Method, Sampling};
+use toposweep::engine::{evaluate_point, Method, ProveGap, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
 use toposweep::probe::divisible_work;
 use toposweep::wilson::{wilson_line_with, Kernels};
@@ -604,6 +604,7 @@ fn fixed_sampling() -> Sampling {
         gap_starts: 0,
         method: Method::Wilson,
         certify: false,
+        prove_gap: ProveGap::Never,
     }
 }
 

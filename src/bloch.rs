@@ -7,10 +7,12 @@
 
 use crate::error::{invalid, CoreResult};
 use crate::kept::with_kept;
+use crate::variation::VariationBound;
 use crate::{fmadd, C64};
 use rayon::prelude::*;
 use std::cell::Cell;
 use std::collections::BTreeMap;
+use std::sync::OnceLock;
 use std::f64::consts::TAU;
 
 /// Anything that yields H(κ) for a batch of κ points.
@@ -28,6 +30,12 @@ pub trait BlochSource: Sync {
     /// (`fill_line`) and no batch buffer is needed.
     fn prefers_batches(&self) -> bool {
         true
+    }
+
+    /// A bound of how far H(κ) moves over a box of κ (certified gaps, loops resolved near a
+    /// closing), or None when the source cannot give one.
+    fn variation(&self) -> Option<&VariationBound> {
+        None
     }
 
     /// H at the `points` κ points base + (s/points) e_axis, s = 0…points−1 (a Wilson loop),
@@ -172,6 +180,7 @@ impl Hoppings {
             rs,
             cos_part,
             sin_part,
+            variation: OnceLock::new(),
         })
     }
 }
@@ -186,6 +195,8 @@ pub struct Bloch {
     rs: Vec<f64>,
     cos_part: Vec<C64>,
     sin_part: Vec<C64>,
+    /// the variation bound, made the first time it is asked for
+    variation: OnceLock<Option<VariationBound>>,
 }
 
 impl Bloch {
@@ -253,6 +264,21 @@ impl BlochSource for Bloch {
 
     fn prefers_batches(&self) -> bool {
         false
+    }
+
+    fn variation(&self) -> Option<&VariationBound> {
+        self.variation
+            .get_or_init(|| {
+                VariationBound::from_folded(
+                    self.dim,
+                    self.norb,
+                    &self.rs,
+                    &self.cos_part,
+                    &self.sin_part,
+                )
+                .ok()
+            })
+            .as_ref()
     }
 
     /// Along a loop κ_axis = s/L, so φ_R(s) = φ_R⁰ + θ_m(s) with φ_R⁰ from the other

@@ -6,7 +6,7 @@
 //! point.
 
 use crate::engine::{Method, PointResult};
-use crate::indices::{agreement, phase_of};
+use crate::indices::{agreement, phase_of, with_overlap};
 
 /// The values of one column, in the type the binding gives a new array of it.
 #[derive(Clone, Debug, PartialEq)]
@@ -81,7 +81,11 @@ pub fn columns(res: &[PointResult], dim: usize, method: Method) -> Vec<Column> {
         col("nu0", &[], i8s(&|r| r.nu0)),
         col("nu", &[3], flat_i8(&|r| r.nu.to_vec())),
         col("nu0_by_axis", &[3], flat_i8(&|r| r.nu0_by_axis.to_vec())),
-        col("phase", &[], i8s(&|r| phase_of(dim, r.nu0, r.nu))),
+        col(
+            "phase",
+            &[],
+            i8s(&|r| with_overlap(phase_of(dim, r.nu0, r.nu), r.gap_indirect)),
+        ),
         col(
             "z2_plane",
             &[3, 2],
@@ -91,6 +95,7 @@ pub fn columns(res: &[PointResult], dim: usize, method: Method) -> Vec<Column> {
         col("gap_indirect", &[], f64s(&|r| r.gap_indirect)),
         col("bandwidth", &[], f64s(&|r| r.bandwidth)),
         col("gap_floor", &[], f64s(&|r| r.gap_floor)),
+        col("gap_proven", &[], f64s(&|r| r.gap_proven)),
         col("max_step", &[], f64s(&|r| r.max_step)),
         col("min_clearance", &[], f64s(&|r| r.min_clearance)),
         col(
@@ -231,6 +236,8 @@ mod tests {
             lines_used: 41,
             loop_points_used: 40,
             search_evaluations: 0,
+            gap_proven: f64::NAN,
+            proof_evaluations: 0,
             max_step: 0.1,
             min_clearance: 0.2,
             parity: None,

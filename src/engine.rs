@@ -10,12 +10,14 @@
 use crate::bloch::BlochSource;
 use crate::error::{invalid, CoreError, CoreResult};
 use crate::first_pass::{first_pass, FirstPass};
+use crate::gap_proof::{prove_gap, GapProof};
 use crate::gap_search::{minimise, pick_starts, SearchSettings};
 use crate::indices::{combine, Indices};
 use crate::lattice_z2::{lattice_planes_initial, lattice_planes_refine};
 use crate::parity::{parity_indices, reason, trims, ParityResult};
-use crate::plane_flows::{certify, line_stats, refine_lines, summarise};
+use crate::plane_flows::{certify, line_stats, refine_lines, resolve_planes, summarise};
 pub use crate::plane_flows::{plane_flow, planes, Plane, PlaneResult};
+use crate::variation::VariationBound;
 use crate::wilson::BandStats;
 use crate::C64;
 
@@ -38,6 +40,45 @@ pub struct Sampling {
     pub method: Method,
     /// recompute tight planes with doubled loop points (convergence certificate)
     pub certify: bool,
+    /// when to prove a lower bound of the direct gap over the whole zone (`gap_proof`)
+    pub prove_gap: ProveGap,
+}
+
+/// When a point's direct gap is proven over the whole zone (where the source gives a variation
+/// bound). A point whose gap cannot be proven is undefined.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ProveGap {
+    Never,
+    /// when the estimated gap is under [`AUTO_PROOF_SHARE`] of the bound's scale (the most H
+    /// can change over the zone): where sampling alone could miss a closing and the proof is
+    /// cheap
+    Auto,
+    Always,
+}
+
+/// `ProveGap::Auto` proves gaps under this share of the variation bound's scale.
+pub const AUTO_PROOF_SHARE: f64 = 0.05;
+
+impl ProveGap {
+    pub fn parse(name: &str) -> CoreResult<Self> {
+        match name {
+            "never" => Ok(Self::Never),
+            "auto" => Ok(Self::Auto),
+            "always" => Ok(Self::Always),
+            other => Err(invalid!(
+                "prove_gap must be 'never', 'auto' or 'always', got {other:?}"
+            )),
+        }
+    }
+
+    /// Whether to prove a gap estimated at `estimate` under `bound`.
+    fn wanted(self, estimate: f64, bound: &VariationBound) -> bool {
+        match self {
+            Self::Never => false,
+            Self::Always => true,
+            Self::Auto => estimate < AUTO_PROOF_SHARE * bound.within(&[0.5; 3]),
+        }
+    }
 }
 
 /// The Z2 method(s) of a run.
@@ -113,6 +154,10 @@ pub struct PointResult {
     pub loop_points_used: usize,
     /// Hamiltonians evaluated by the gap minimiser
     pub search_evaluations: usize,
+    /// proven lower bound of the direct gap over the zone (NaN: not proven)
+    pub gap_proven: f64,
+    /// Hamiltonians evaluated by the gap proof
+    pub proof_evaluations: usize,
     pub max_step: f64,
     pub min_clearance: f64,
     pub parity: Option<ParityResult>,
@@ -126,6 +171,14 @@ pub struct LatticeSummary {
     pub max_field: f64,
     pub min_link: f64,
     pub mesh: (usize, usize),
+}
+
+/// Hamiltonians the gap proof of one point may evaluate before it gives up (the point is then
+/// undefined, reason `GAP_NOT_PROVEN`): about a second of eigenvalue work at any size.
+fn proof_budget(dim: usize, n: usize) -> usize {
+    let per_matrix = (n * n * n).max(64); // ~ flops of one eigenvalue problem
+    let budget = (4usize << 30) / per_matrix; // ~4 G flop-units
+    budget.clamp(1 << 14, if dim == 3 { 1 << 21 } else { 1 << 19 })
 }
 
 /// Largest spacing between neighbouring sampled κ points (loop, pump or bulk grid), which
@@ -232,10 +285,36 @@ pub fn evaluate_point(
             stats.min_direct_at = found.kappa;
         }
     }
+    // A proven bound of the gap over the whole zone: what the search found is an estimate.
+    let mut gap_proven = f64::NAN;
+    let mut proof_evaluations = 0;
+    let mut not_proven = false;
+    if stats.min_direct >= floor_of(&stats) {
+        if let Some(bound) = src
+            .variation()
+            .filter(|b| s.prove_gap.wanted(stats.min_direct, b))
+        {
+            let floor = floor_of(&stats);
+            let budget = proof_budget(dim, n);
+            let proof = prove_gap(src, bound, filling, floor, stats.min_direct, budget, &mut stats)?;
+            proof_evaluations = proof.evaluations();
+            match proof {
+                GapProof::Proven { lower, .. } => gap_proven = lower,
+                GapProof::BelowFloor { gap, kappa, .. } => {
+                    if gap < stats.min_direct {
+                        stats.min_direct = gap;
+                        stats.min_direct_at = kappa;
+                    }
+                }
+                GapProof::Unfinished { .. } => not_proven = true,
+            }
+        }
+    }
     // Adaptive pump lines, certificates and finer lattice meshes only where the point is
     // gapped: near a closing they would be spent on a flow that has no Z2 anyway.
     let gapped = stats.min_direct >= floor_of(&stats);
     if gapped && want_wilson {
+        resolve_planes(src, &pl, &mut lines, filling, s, s.loop_points)?;
         refine_lines(src, &pl, &mut lines, filling, s, s.loop_points)?;
         line_stats(&lines, &mut stats, None);
     }
@@ -259,6 +338,8 @@ pub fn evaluate_point(
         reason::DEGENERATE_AT_TRIM
     } else if stats.min_direct < floor {
         reason::GAPLESS
+    } else if not_proven {
+        reason::GAP_NOT_PROVEN
     } else {
         reason::DEFINED
     };
@@ -320,6 +401,8 @@ pub fn evaluate_point(
         lines_used: plane_res.iter().map(|p| p.lines_used).max().unwrap_or(0),
         loop_points_used: plane_res.iter().map(|p| p.loop_points).max().unwrap_or(0),
         search_evaluations,
+        gap_proven,
+        proof_evaluations,
         max_step,
         min_clearance,
         parity,
@@ -377,6 +460,7 @@ mod tests {
             gap_starts: 3,
             method: Method::Wilson,
             certify: true,
+            prove_gap: ProveGap::Always,
         }
     }
 

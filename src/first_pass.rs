@@ -145,7 +145,7 @@ fn batched(
 mod tests {
     use super::*;
     use crate::bloch::Bloch;
-    use crate::engine::{Method, Sampling};
+    use crate::engine::{Method, ProveGap, Sampling};
     use crate::guided::tests::pool;
     use crate::plane_flows::planes;
     use crate::wilson::tests::random_model;
@@ -161,6 +161,7 @@ mod tests {
             gap_starts: 0,
             method: Method::Wilson,
             certify: false,
+            prove_gap: ProveGap::Never,
         }
     }
 

@@ -62,6 +62,9 @@ pub mod phase {
     pub const WEAK: i8 = 1;
     pub const STRONG: i8 = 2;
     pub const Z2_ODD_2D: i8 = 3;
+    /// added to the phase of the gapped band manifold when the bands overlap in energy (a
+    /// negative indirect gap): a metal whose occupied bands carry those indices
+    pub const METAL_OFFSET: i8 = 10;
 }
 
 /// The phase of indices (ν0; ν) — in 2D only ν0 counts: undefined where ν0 is; a strong
@@ -74,6 +77,17 @@ pub fn phase_of(dim: usize, nu0: i8, nu: [i8; 3]) -> i8 {
         (1, false) => phase::Z2_ODD_2D,
         (_, true) if nu.contains(&1) => phase::WEAK,
         _ => phase::TRIVIAL,
+    }
+}
+
+/// The phase with band overlap marked: a defined phase of a point whose indirect gap is
+/// negative (the occupied bands overlap the empty ones in energy, so the point is a metal
+/// although the direct gap is open everywhere) becomes `phase + METAL_OFFSET`.
+pub fn with_overlap(phase: i8, gap_indirect: f64) -> i8 {
+    if phase >= 0 && gap_indirect < 0.0 {
+        phase + phase::METAL_OFFSET
+    } else {
+        phase
     }
 }
 

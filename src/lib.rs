@@ -12,8 +12,10 @@ mod eigen_quad;
 mod eigen_small;
 pub mod engine;
 pub mod error;
+pub mod fine_line;
 pub mod first_pass;
 pub mod flow;
+pub mod gap_proof;
 pub mod gap_search;
 pub mod guided;
 pub mod indices;
@@ -26,6 +28,7 @@ pub mod pools;
 pub mod probe;
 #[cfg(test)]
 mod test_rng;
+pub mod variation;
 pub mod wilson;
 
 #[cfg(feature = "python")]

@@ -23,6 +23,8 @@ pub mod reason {
     pub const CHANGES_WITH_LOOP_POINTS: u8 = 9;
     /// the lattice field or links stayed too rough on the finest lattice mesh
     pub const LATTICE_MESH_TOO_COARSE: u8 = 10;
+    /// the direct gap could not be proven above the floor over the whole zone
+    pub const GAP_NOT_PROVEN: u8 = 11;
 }
 
 /// The 2^dim TRIMs in reduced coordinates, in binary order (bit i ↔ κ_i = 1/2).

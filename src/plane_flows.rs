@@ -9,9 +9,11 @@
 use crate::bloch::BlochSource;
 use crate::engine::Sampling;
 use crate::error::{CoreError, CoreResult};
+use crate::fine_line::{needs_resolution, resolve_line};
 use crate::flow::{inspect_with_gaps, largest_gap, z2_of_tracked_flow, Interval};
 use crate::guided::map_guided;
 use crate::lattice_z2::LatticePlane;
+use crate::variation::{turn_bound, VariationBound, TURN_LIMIT};
 use crate::wilson::{evaluate_line, evaluate_lines, BandStats, LineResult, LineSpec};
 use rayon::prelude::*;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -95,6 +97,13 @@ pub struct PlaneLines {
     centres: Vec<f64>,
     width: usize,
     line_stats: Vec<BandStats>,
+    /// each line's `LineResult::min_step_gap` (infinite once a line is resolved)
+    step_gap: Vec<f64>,
+    /// a line could not be resolved to the gap: the plane has no Z2
+    unresolved: bool,
+    /// the variation bound and the pump axis: pump lines are also inserted where the
+    /// Davis–Kahan bound lets the occupied states turn too far between neighbouring lines
+    turn: Option<(VariationBound, usize)>,
     /// all lines' statistics, merged in the order the lines were computed
     stats: BandStats,
     /// `inspect` of lines (m, m + 1), for every m
@@ -110,6 +119,7 @@ impl PlaneLines {
             centres: Vec::with_capacity(lines.len() * width),
             width,
             line_stats: Vec::with_capacity(lines.len()),
+            step_gap: Vec::with_capacity(lines.len()),
             ..Default::default()
         };
         for l in lines {
@@ -117,6 +127,8 @@ impl PlaneLines {
             pl.centres.extend_from_slice(&l.centres);
             pl.stats.merge(&l.stats);
             pl.line_stats.push(l.stats);
+            pl.step_gap.push(l.min_step_gap);
+            pl.unresolved |= !l.resolved;
         }
         pl.examine(step_limit);
         pl
@@ -141,6 +153,19 @@ impl PlaneLines {
         self.centres.splice(at * w..at * w, l.centres);
         self.stats.merge(&l.stats);
         self.line_stats.insert(at, l.stats);
+        self.step_gap.insert(at, l.min_step_gap);
+        self.unresolved |= !l.resolved;
+    }
+
+    /// Replace line `m` by the same line resolved to the gap (`fine_line`).
+    fn replace(&mut self, m: usize, l: LineResult) {
+        let w = self.width;
+        debug_assert_eq!(l.centres.len(), w, "one centre per occupied band");
+        self.centres[m * w..(m + 1) * w].copy_from_slice(&l.centres);
+        self.stats.merge(&l.stats);
+        self.line_stats[m] = l.stats;
+        self.step_gap[m] = f64::INFINITY;
+        self.unresolved |= !l.resolved;
     }
 
     /// The refinement test of every neighbouring pair, and the Z2 when none needs a line.
@@ -151,9 +176,25 @@ impl PlaneLines {
         self.checks = (1..count)
             .map(|m| {
                 let (a, b) = (self.line(m - 1), self.line(m));
-                inspect_with_gaps(a, b, gaps[m - 1], gaps[m], step_limit)
+                let mut check = inspect_with_gaps(a, b, gaps[m - 1], gaps[m], step_limit);
+                if let Some((bound, axis)) = &self.turn {
+                    // (a centre that winds a whole cell between two lines looks as if it had
+                    // not moved: the bound, not the motion, says whether the lines are close)
+                    let d = bound.along(*axis, self.pump[m] - self.pump[m - 1]);
+                    let g = self.line_stats[m - 1]
+                        .min_direct
+                        .max(self.line_stats[m].min_direct);
+                    if !(turn_bound(d, g) <= TURN_LIMIT) {
+                        check.refine = true;
+                    }
+                }
+                check
             })
             .collect();
+        if self.unresolved {
+            self.z2 = None;
+            return;
+        }
         self.z2 = self.checks.iter().all(|c| !c.refine).then(|| {
             let refs: Vec<&[f64]> = (0..count).map(|m| self.line(m)).collect();
             let mid: Vec<f64> = gaps.iter().map(|g| g.0).collect();
@@ -347,7 +388,7 @@ pub fn refine_lines(
             return Ok(());
         }
         let specs: Vec<LineSpec> = wanted.iter().map(|&(p, t)| planes[p].line(t)).collect();
-        let got = evaluate_lines(src, &specs, loop_points, filling, None)?;
+        let got = evaluate_resolved(src, &specs, loop_points, filling)?;
         let mut grown = vec![false; all.len()];
         for ((p, t), r) in wanted.into_iter().zip(got) {
             all[p].insert(t, r);
@@ -358,6 +399,73 @@ pub fn refine_lines(
             .filter(|(_, g)| *g)
             .for_each(|(pl, _)| pl.examine(s.step_limit));
     }
+}
+
+/// Lines as `evaluate_lines` gives them, each recomputed to the gap where its even loop may
+/// step over a turn of the occupied states (`fine_line`).
+fn evaluate_resolved(
+    src: &dyn BlochSource,
+    specs: &[LineSpec],
+    loop_points: usize,
+    filling: usize,
+) -> CoreResult<Vec<LineResult>> {
+    let mut got = evaluate_lines(src, specs, loop_points, filling, None)?;
+    if let Some(bound) = src.variation() {
+        let todo: Vec<usize> = (0..got.len())
+            .filter(|&i| needs_resolution(bound, specs[i].axis, loop_points, got[i].min_step_gap))
+            .collect();
+        let fine = map_guided(
+            todo.len(),
+            || (),
+            |_, j| resolve_line(src, &specs[todo[j]], loop_points, filling, None, bound),
+        )?;
+        for (i, r) in todo.into_iter().zip(fine) {
+            got[i] = r;
+        }
+    }
+    Ok(got)
+}
+
+/// Resolve to the gap every line of the planes whose even loop may step over a turn of the
+/// occupied states, and let the same bound insert pump lines from now on (`fine_line`,
+/// `variation`). Run once a point is known to be gapped: near a closing the work would be
+/// spent on a flow that has no Z2 anyway.
+pub fn resolve_planes(
+    src: &dyn BlochSource,
+    planes: &[Plane],
+    all: &mut [PlaneLines],
+    filling: usize,
+    s: &Sampling,
+    loop_points: usize,
+) -> CoreResult<()> {
+    let Some(bound) = src.variation() else {
+        return Ok(());
+    };
+    let mut todo: Vec<(usize, usize)> = Vec::new();
+    for (p, pl) in all.iter().enumerate() {
+        for m in 0..pl.pump.len() {
+            if needs_resolution(bound, planes[p].loop_axis, loop_points, pl.step_gap[m]) {
+                todo.push((p, m));
+            }
+        }
+    }
+    let fine = map_guided(
+        todo.len(),
+        || (),
+        |_, j| {
+            let (p, m) = todo[j];
+            let spec = planes[p].line(all[p].pump[m]);
+            resolve_line(src, &spec, loop_points, filling, None, bound)
+        },
+    )?;
+    for (&(p, m), r) in todo.iter().zip(fine) {
+        all[p].replace(m, r);
+    }
+    all.par_iter_mut().zip(planes).for_each(|(pl, plane)| {
+        pl.turn = Some((bound.clone(), plane.pump_axis));
+        pl.examine(s.step_limit);
+    });
+    Ok(())
 }
 
 /// Z2 and flow diagnostics of each plane from its examined lines.
@@ -420,6 +528,7 @@ pub fn certify(
     let sub: Vec<Plane> = tight.iter().map(|&i| pl[i]).collect();
     let fine = 2 * s.loop_points;
     let mut lines = initial_lines(src, &sub, filling, s, fine)?;
+    resolve_planes(src, &sub, &mut lines, filling, s, fine)?;
     refine_lines(src, &sub, &mut lines, filling, s, fine)?;
     line_stats(&lines, stats, None);
     for (&i, mut again) in tight.iter().zip(summarise(&lines, s)) {
@@ -451,7 +560,7 @@ pub fn plane_flow(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::Method;
+    use crate::engine::{Method, ProveGap};
 
     fn sampling() -> Sampling {
         Sampling {
@@ -464,6 +573,7 @@ mod tests {
             gap_starts: 0,
             method: Method::Wilson,
             certify: true,
+            prove_gap: ProveGap::Never,
         }
     }
 
@@ -496,6 +606,8 @@ mod tests {
             centres,
             stats,
             min_singular: 1.0,
+            min_step_gap: e,
+            resolved: true,
         }
     }
 

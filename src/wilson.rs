@@ -109,6 +109,12 @@ pub struct LineResult {
     pub stats: BandStats,
     /// smallest singular value of any overlap on the line (≈ 0: states change too fast)
     pub min_singular: f64,
+    /// smallest over the loop's steps of the larger direct gap at the step's two ends (what
+    /// the Davis–Kahan bound of the step's turn needs: `fine_line`)
+    pub min_step_gap: f64,
+    /// false when the loop could not be resolved to the gap (`fine_line`): its centres are
+    /// not to be trusted
+    pub resolved: bool,
 }
 
 /// Evaluate many lines in parallel. `positions` (one reduced coordinate per orbital along each
@@ -374,6 +380,7 @@ pub fn wilson_line_in(
     }
     let mut stats = BandStats::default();
     let mut min_singular = f64::INFINITY;
+    let (mut first_gap, mut prev_gap, mut min_step_gap) = (0.0, 0.0, f64::INFINITY);
     let mut step = |from: &[C64], to: &[C64], w: &mut Vec<C64>| -> CoreResult<f64> {
         if nocc == 2 && weight.is_none() && kernels != Kernels::Reference {
             return Ok(pair_step(from, to, w));
@@ -414,11 +421,15 @@ pub fn wilson_line_in(
         }
         for j in 0..g {
             let to = &ahead[j * no..(j + 1) * no];
-            stats.add(
-                &e[j * n..(j + 1) * n],
-                nocc,
-                &kappa[(s + j) * dim..(s + j + 1) * dim],
-            );
+            let ej = &e[j * n..(j + 1) * n];
+            stats.add(ej, nocc, &kappa[(s + j) * dim..(s + j + 1) * dim]);
+            let gap = ej[nocc] - ej[nocc - 1];
+            if s + j == 0 {
+                first_gap = gap;
+            } else {
+                min_step_gap = min_step_gap.min(gap.max(prev_gap));
+            }
+            prev_gap = gap;
             if s + j == 0 {
                 first.copy_from_slice(to);
             } else {
@@ -434,6 +445,7 @@ pub fn wilson_line_in(
         s += g;
     }
     min_singular = min_singular.min(step(prev, first, w)?);
+    min_step_gap = min_step_gap.min(prev_gap.max(first_gap));
     let mut centres: Vec<f64> = if min_singular > 0.0 {
         // (the phases' own vector becomes the centres: one allocation per line, not two)
         let mut phases = unitary_phases(w, nocc)?;
@@ -449,6 +461,8 @@ pub fn wilson_line_in(
         centres,
         stats,
         min_singular,
+        min_step_gap,
+        resolved: true,
     })
 }
 

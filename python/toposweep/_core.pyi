@@ -52,6 +52,7 @@ def evaluate(
     gap_starts: int = 3,
     method: str = "wilson",
     certify: bool = True,
+    prove_gap: str = "auto",
     threads: int | None = None,
     alongside: Callable[[], object] | None = None,
 ) -> dict[str, NDArray[Any]]:

@@ -35,6 +35,7 @@ def invariants(
     gap_starts: int = _DEFAULT.gap_starts,
     method: str = _DEFAULT.method,
     certify: bool = _DEFAULT.certify,
+    prove_gap: str | bool = _DEFAULT.prove_gap,
     threads: int | None = None,
 ) -> xr.Dataset:
     """Z2 indices of a time-reversal-invariant insulator at one parameter point.
@@ -58,7 +59,8 @@ def invariants(
         Parameter values; the rest come from ``model.defaults``.
     inversion : array (norb, norb), optional
         Inversion matrix for this call (overrides the model's).
-    loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts, method, certify
+    loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts, method, certify,
+    prove_gap
         Sampling options, see :class:`toposweep.Sampling`.
     threads : int, optional
         Worker threads. ``threads=1`` runs the call on the calling thread (no other thread).
@@ -97,6 +99,7 @@ def invariants(
         gap_starts=gap_starts,
         method=method,
         certify=certify,
+        prove_gap=prove_gap,
     )
     if not isinstance(model, Model):
         raise ModelError(f"expected a toposweep model, got {type(model).__name__}")

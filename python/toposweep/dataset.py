@@ -42,6 +42,10 @@ PHASES: dict[int, str] = {
     1: "weak_topological_insulator",
     2: "strong_topological_insulator",
     3: "z2_odd_2d_insulator",
+    10: "metal_with_trivial_bands",
+    11: "metal_with_weak_topological_bands",
+    12: "metal_with_strong_topological_bands",
+    13: "metal_with_z2_odd_2d_bands",
 }
 
 #: reason codes of the core → CF flag meanings
@@ -57,6 +61,7 @@ REASONS: dict[int, str] = {
     8: "time_reversal_broken_at_this_point",
     9: "changes_with_doubled_loop_points",
     10: "lattice_mesh_too_coarse",
+    11: "gap_not_proven_above_floor",
 }
 
 _METHOD_TEXT = {
@@ -156,6 +161,17 @@ def _fields(dim: int, unit: str, parity_known: bool, method: str) -> tuple[Field
                 "units": unit,
             },
             "gap_direct",
+        ),
+        Field(
+            "gap_proven",
+            (),
+            np.float64,
+            {
+                "long_name": "proven lower bound of the direct band gap at the filling over "
+                "the whole Brillouin zone (NaN: not proven)",
+                "units": unit,
+            },
+            "gap_proven",
         ),
         Field(
             "gap_indirect",

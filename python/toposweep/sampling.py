@@ -12,10 +12,13 @@ import numpy as np
 
 from .errors import SamplingError
 
-__all__ = ["MAXIMA", "METHODS", "Sampling", "check_threads", "sampling_for"]
+__all__ = ["MAXIMA", "METHODS", "PROVE_GAP", "Sampling", "check_threads", "sampling_for"]
 
 #: the Z2 methods a run can use
 METHODS = ("wilson", "lattice", "both")
+
+#: when a point's gap is proven over the whole zone
+PROVE_GAP = ("auto", "always", "never")
 
 #: Largest accepted value of each integer option. Far beyond any useful sampling; they stop a
 #: typo (an extra zero or three) from allocating more memory than the machine has instead of
@@ -77,6 +80,19 @@ class Sampling:
         only if the finer run agrees (otherwise undefined, reason
         ``changes_with_doubled_loop_points``). ``max_step`` and ``min_clearance`` then
         describe the finer run.
+    prove_gap : {"auto", "always", "never"} or bool
+        When to prove a lower bound of the direct gap over the whole Brillouin zone (``gap_proven``)
+        by branch and bound: boxes of κ around sampled points, each bounded through Weyl's
+        inequality with the hopping norms of the model. ``"auto"`` (default) proves the gap
+        where the estimate is under 5 % of the most the Hamiltonian can change over the zone
+        — where sampling alone could miss a closing and the proof is cheap —; ``"always"``
+        (or ``True``) everywhere, ``"never"`` (or ``False``) nowhere. A κ point found with a gap under the
+        floor makes the point gapless; a gap that cannot be proven above the floor within the
+        work budget makes it undefined (``gap_not_proven_above_floor``). Models given as a
+        function carry no hopping norms: their gap is not proven (``gap_proven`` is NaN).
+        Near a closing the same bound places extra κ points on the Wilson loops and extra
+        pump lines (the Davis–Kahan bound on how far the occupied states turn), whatever
+        this option says.
 
     Examples
     --------
@@ -93,6 +109,7 @@ class Sampling:
     gap_starts: int = 3
     method: str = "wilson"
     certify: bool = True
+    prove_gap: str = "auto"
 
     def __post_init__(self) -> None:
         for name in ("loop_points", "lines", "max_lines", "gap_points", "gap_starts"):
@@ -126,6 +143,14 @@ class Sampling:
         if not isinstance(self.certify, bool | np.bool_):
             raise SamplingError(f"certify must be True or False, got {self.certify!r}")
         object.__setattr__(self, "certify", bool(self.certify))
+        prove = self.prove_gap
+        if isinstance(prove, bool | np.bool_):
+            prove = "always" if prove else "never"
+        if not isinstance(prove, str) or prove not in PROVE_GAP:
+            raise SamplingError(
+                f"prove_gap must be one of {list(PROVE_GAP)} (or True/False), got {prove!r}"
+            )
+        object.__setattr__(self, "prove_gap", prove)
         if self.gap_starts < 0:
             raise SamplingError(f"gap_starts must be 0 or positive, got {self.gap_starts}")
         step = self.step_limit

@@ -17,6 +17,10 @@ PHASE_NAMES = {
     1: "weak TI",
     2: "strong TI",
     3: "Z2-odd 2D insulator",
+    10: "metal, trivial bands",
+    11: "metal, weak TI bands",
+    12: "metal, strong TI bands",
+    13: "metal, Z2-odd bands",
 }
 MAX_LISTED = 8
 

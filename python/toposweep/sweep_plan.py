@@ -30,6 +30,7 @@ RESERVED = frozenset(
     {"axis", "cut", "kappa_axis", "band", "pump", "term", "point"}
     | {"nu0", "nu", "z2_plane", "nu0_by_axis", "phase", "undefined_reason", "gap_direct"}
     | {"gap_indirect", "gap_kappa", "bandwidth", "converged", "lines_used", "max_step"}
+    | {"gap_proven"}
     | {"min_clearance", "nu0_parity", "nu_parity", "parity_agrees", "parity_undefined_reason"}
     | {"trim", "trim_kappa", "odd_parity_states"}
 )

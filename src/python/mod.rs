@@ -6,7 +6,7 @@
 
 use crate::bloch::{BlochSource, Hoppings, FILL_CHUNK};
 use crate::eigen::eigh_many_into;
-use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, Sampling};
+use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, ProveGap, Sampling};
 use crate::error::{CoreError, CoreResult};
 use crate::pools::{default_threads, help_until, mark_main_thread, run_with};
 use crate::probe::divisible_work;
@@ -268,7 +268,8 @@ fn matrix(a: &PyReadonlyArray2<C64>, n: usize, what: &str) -> PyResult<Vec<C64>>
 #[pyfunction]
 #[pyo3(signature = (model, coeffs, filling, *, inversion=None, time_reversal=None, loop_points,
                     lines, max_lines, step_limit, gap_floor, gap_points, gap_starts=3,
-                    method="wilson", certify=true, threads=None, alongside=None))]
+                    method="wilson", certify=true, prove_gap="auto", threads=None,
+                    alongside=None))]
 #[allow(clippy::too_many_arguments)]
 fn evaluate<'py>(
     py: Python<'py>,
@@ -286,6 +287,7 @@ fn evaluate<'py>(
     gap_starts: usize,
     method: &str,
     certify: bool,
+    prove_gap: &str,
     threads: Option<usize>,
     alongside: Option<Py<PyAny>>,
 ) -> PyResult<Bound<'py, PyDict>> {
@@ -307,6 +309,7 @@ fn evaluate<'py>(
         gap_starts,
         method,
         certify,
+        prove_gap: ProveGap::parse(prove_gap).map_err(to_py)?,
     };
     s.validate().map_err(to_py)?;
     let error = Arc::new(Mutex::new(None));
