@@ -50,8 +50,8 @@ pub struct Sampling {
 pub enum ProveGap {
     Never,
     /// when the estimated gap is under [`AUTO_PROOF_SHARE`] of the bound's scale (the most H
-    /// can change over the zone): where sampling alone could miss a closing and the proof is
-    /// cheap
+    /// can change over the zone): where sampling alone could miss a closing. With a small
+    /// budget: a proof that would cost more leaves the gap unproven, the point defined
     Auto,
     Always,
 }
@@ -173,12 +173,24 @@ pub struct LatticeSummary {
     pub mesh: (usize, usize),
 }
 
-/// Hamiltonians the gap proof of one point may evaluate before it gives up (the point is then
-/// undefined, reason `GAP_NOT_PROVEN`): about a second of eigenvalue work at any size.
-fn proof_budget(dim: usize, n: usize) -> usize {
-    let per_matrix = (n * n * n).max(64); // ~ flops of one eigenvalue problem
-    let budget = (4usize << 30) / per_matrix; // ~4 G flop-units
-    budget.clamp(1 << 14, if dim == 3 { 1 << 21 } else { 1 << 19 })
+/// Hamiltonians the gap proof of one point may evaluate before it gives up. With
+/// `ProveGap::Always`, about a second of eigenvalue work at any size (the point is then
+/// undefined, reason `GAP_NOT_PROVEN`). With `ProveGap::Auto`, twice the κ points of the
+/// point's first pass, so the proof at most about doubles the call (the point then simply has
+/// no proven gap).
+fn proof_budget(dim: usize, n: usize, s: &Sampling) -> usize {
+    match s.prove_gap {
+        ProveGap::Always => {
+            let per_matrix = (n * n * n).max(64); // ~ flops of one eigenvalue problem
+            let budget = (4usize << 30) / per_matrix; // ~4 G flop-units
+            budget.clamp(1 << 14, if dim == 3 { 1 << 21 } else { 1 << 19 })
+        }
+        _ => {
+            let planes = if dim == 3 { 6 } else { 1 };
+            let grid = if dim == 3 { s.gap_points.pow(3) } else { 0 };
+            (2 * (planes * s.lines * s.loop_points + grid)).max(4096)
+        }
+    }
 }
 
 /// Largest spacing between neighbouring sampled κ points (loop, pump or bulk grid), which
@@ -295,7 +307,7 @@ pub fn evaluate_point(
             .filter(|b| s.prove_gap.wanted(stats.min_direct, b))
         {
             let floor = floor_of(&stats);
-            let budget = proof_budget(dim, n);
+            let budget = proof_budget(dim, n, s);
             let proof = prove_gap(src, bound, filling, floor, stats.min_direct, budget, &mut stats)?;
             proof_evaluations = proof.evaluations();
             match proof {
@@ -306,7 +318,8 @@ pub fn evaluate_point(
                         stats.min_direct_at = kappa;
                     }
                 }
-                GapProof::Unfinished { .. } => not_proven = true,
+                // (auto: a proof too dear for its small budget is simply not given)
+                GapProof::Unfinished { .. } => not_proven = s.prove_gap == ProveGap::Always,
             }
         }
     }

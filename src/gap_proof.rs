@@ -18,6 +18,7 @@ use crate::error::CoreResult;
 use crate::gap_search::gaps_at;
 use crate::variation::VariationBound;
 use crate::wilson::BandStats;
+use std::collections::BinaryHeap;
 
 /// The proven bound aims at this share of the smallest gap seen.
 pub const TARGET_SHARE: f64 = 0.5;
@@ -60,6 +61,30 @@ struct Cell {
     half: [f64; 3],
 }
 
+/// A box waiting to be evaluated, keyed by its parent's lower bound (lowest first).
+struct Pending {
+    key: f64,
+    cell: Cell,
+}
+
+impl PartialEq for Pending {
+    fn eq(&self, other: &Self) -> bool {
+        self.key.total_cmp(&other.key).is_eq()
+    }
+}
+impl Eq for Pending {}
+impl PartialOrd for Pending {
+    fn partial_cmp(&self, other: &Self) -> Option<std::cmp::Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl Ord for Pending {
+    // (BinaryHeap pops the greatest: the lowest key is the greatest)
+    fn cmp(&self, other: &Self) -> std::cmp::Ordering {
+        other.key.total_cmp(&self.key)
+    }
+}
+
 /// Prove a lower bound of the direct gap at `filling` over the zone, given the smallest gap
 /// found so far (`estimate`), the `floor` and a `budget` of Hamiltonian evaluations. Band
 /// statistics of every box centre are merged into `stats` (they are sampled κ points).
@@ -74,17 +99,26 @@ pub fn prove_gap(
 ) -> CoreResult<GapProof> {
     let dim = src.dim();
     let slopes = bound.slopes();
-    let mut todo = first_level(dim);
+    // best first: the boxes whose parent had the lowest bound, so that a closing near the
+    // smallest gaps is found before the budget goes on boxes far from it
+    let mut todo: BinaryHeap<Pending> = first_level(dim)
+        .into_iter()
+        .map(|cell| Pending {
+            key: f64::NEG_INFINITY,
+            cell,
+        })
+        .collect();
     let mut target = (TARGET_SHARE * estimate).max(floor);
     let mut proven = f64::INFINITY;
     let mut evaluations = 0;
     let mut kappa = Vec::new();
+    let mut children = Vec::new();
     while !todo.is_empty() {
         let take = todo.len().min(BATCH);
         if evaluations + take > budget {
             return Ok(GapProof::Unfinished { evaluations });
         }
-        let batch: Vec<Cell> = todo.drain(todo.len() - take..).collect();
+        let batch: Vec<Cell> = (0..take).filter_map(|_| todo.pop()).map(|p| p.cell).collect();
         kappa.clear();
         for c in &batch {
             kappa.extend_from_slice(&c.centre[..dim]);
@@ -108,7 +142,9 @@ pub fn prove_gap(
             if lower >= target {
                 proven = proven.min(lower);
             } else {
-                split(c, dim, &slopes, &mut todo);
+                children.clear();
+                split(c, dim, &slopes, &mut children);
+                todo.extend(children.drain(..).map(|cell| Pending { key: lower, cell }));
             }
         }
     }

@@ -30,6 +30,7 @@ class CoreModel:
         dim: int,
         norb: int,
         func: Callable[[NDArray[np.float64], int], NDArray[np.complex128]],
+        lipschitz: NDArray[np.float64] | None = None,
     ) -> CoreModel: ...
     @property
     def dim(self) -> int: ...

@@ -37,6 +37,14 @@ class CallableModel(Model):
         Spatial dimension and number of orbitals.
     parameters : sequence of str, optional
         Parameter names; by default every keyword parameter of ``func`` after ``kappa``.
+    lipschitz : float, sequence of float or callable, optional
+        Constants L_i such that ‖H(κ) − H(κ′)‖₂ ≤ Σ_i L_i |κ_i − κ′_i| for all κ, κ′ (reduced
+        coordinates; spectral norm) — one number for every axis, one per axis, or a function
+        of the parameters (keywords) returning either. With it the direct gap is proven over
+        the whole zone and Wilson loops are resolved to the gap near a closing, as for a
+        :class:`TightBinding` (docs/near-closings.md); a constant that is too small can make
+        those proofs wrong. Without it ``gap_proven`` is NaN. For H = Σ_R T_R e^{2πiκ·R},
+        L_i = 2π Σ_R |R_i| ‖T_R‖₂ will do.
     **kwargs
         ``lattice``, ``positions``, ``time_reversal``, ``inversion``, ``energy_unit``, ``name``
         as for :class:`TightBinding`.
@@ -62,12 +70,16 @@ class CallableModel(Model):
         norb: int,
         *,
         parameters: Sequence[str] | None = None,
+        lipschitz: float | Sequence[float] | Callable[..., Any] | None = None,
         **kwargs: Any,
     ) -> None:
         if not callable(func):
             raise ModelError(f"func must be callable, got {type(func).__name__}")
         super().__init__(dim, norb, **kwargs)
         self.func = func
+        if lipschitz is not None and not callable(lipschitz):
+            self._lipschitz_row(lipschitz)  # (a bad constant fails here, not at the first run)
+        self.lipschitz = lipschitz
         sig_params = self._signature_parameters(func)
         if parameters is None:
             self._parameters = tuple(sig_params)
@@ -126,8 +138,27 @@ class CallableModel(Model):
                 )
             return h
 
-        core = _core.CoreModel.callable(self.dim, self.norb, evaluate)
+        bounds = None
+        if self.lipschitz is not None:
+            given = self.lipschitz
+            bounds = np.array(
+                [self._lipschitz_row(given(**p) if callable(given) else given) for p in pts],
+                dtype=np.float64,
+            ).reshape(len(pts), self.dim)
+        core = _core.CoreModel.callable(self.dim, self.norb, evaluate, bounds)
         return core, np.zeros((len(pts), 0))
+
+    def _lipschitz_row(self, value: Any) -> NDArray[np.float64]:
+        """One row of Lipschitz constants (one per axis), checked."""
+        try:
+            row = np.broadcast_to(np.asarray(value, dtype=np.float64), (self.dim,))
+        except (TypeError, ValueError):
+            raise ModelError(
+                f"lipschitz must be a number or {self.dim} numbers (one per axis), got {value!r}"
+            ) from None
+        if not np.all(np.isfinite(row)) or np.any(row < 0):
+            raise ModelError(f"lipschitz constants must be finite and non-negative, got {value!r}")
+        return np.array(row)
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-able description; the function is recorded by its import path.
@@ -143,6 +174,12 @@ class CallableModel(Model):
         qualname = getattr(self.func, "__qualname__", None)
         d["function"] = f"{module}:{qualname}" if module and qualname else repr(self.func)
         d["function_file"] = _source_file(self.func)
+        given = self.lipschitz
+        if callable(given):
+            mod, name = getattr(given, "__module__", None), getattr(given, "__qualname__", None)
+            d["lipschitz"] = f"function {mod}:{name}"
+        elif given is not None:
+            d["lipschitz"] = self._lipschitz_row(given).tolist()
         return d
 
     @classmethod
@@ -160,6 +197,8 @@ class CallableModel(Model):
                 d["dim"],
                 d["norb"],
                 parameters=d.get("parameters"),
+                # (a recorded function of the parameters is not imported again: no bound)
+                lipschitz=d["lipschitz"] if isinstance(d.get("lipschitz"), list) else None,
                 **cls._base_kwargs(d),
             )
             m.defaults.update({str(k): float(v) for k, v in d.get("defaults", {}).items()})

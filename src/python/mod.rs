@@ -10,6 +10,7 @@ use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResu
 use crate::error::{CoreError, CoreResult};
 use crate::pools::{default_threads, help_until, mark_main_thread, run_with};
 use crate::probe::divisible_work;
+use crate::variation::VariationBound;
 use crate::C64;
 use numpy::ndarray::{Array2, Array3};
 use numpy::{
@@ -89,6 +90,8 @@ struct PySource {
     point: usize,
     /// the first Python exception raised by `func`, re-raised unchanged after the run
     error: Arc<Mutex<Option<PyErr>>>,
+    /// the user's Lipschitz constants at this point, if given
+    variation: Option<VariationBound>,
 }
 
 impl BlochSource for PySource {
@@ -97,6 +100,9 @@ impl BlochSource for PySource {
     }
     fn norb(&self) -> usize {
         self.norb
+    }
+    fn variation(&self) -> Option<&VariationBound> {
+        self.variation.as_ref()
     }
     fn fill(&self, kappa: &[f64], out: &mut [C64]) -> CoreResult<()> {
         let npts = kappa.len() / self.dim;
@@ -139,7 +145,8 @@ pub struct CoreModel {
 
 enum Kind {
     Hoppings(Hoppings),
-    Callable(Py<PyAny>),
+    /// the function, and the user's Lipschitz constants per point (points × dim), if given
+    Callable(Py<PyAny>, Option<Vec<f64>>),
 }
 
 #[pymethods]
@@ -171,16 +178,41 @@ impl CoreModel {
         })
     }
 
-    /// Callable model: `func(kappa[(N, dim)], point) -> (N, norb, norb)` complex128.
+    /// Callable model: `func(kappa[(N, dim)], point) -> (N, norb, norb)` complex128;
+    /// `lipschitz` (points, dim): ‖H(κ) − H(κ′)‖₂ ≤ Σ_i L_i |κ_i − κ′_i| at each point.
     #[staticmethod]
-    fn callable(dim: usize, norb: usize, func: Py<PyAny>) -> PyResult<Self> {
+    #[pyo3(signature = (dim, norb, func, lipschitz=None))]
+    fn callable(
+        dim: usize,
+        norb: usize,
+        func: Py<PyAny>,
+        lipschitz: Option<PyReadonlyArray2<f64>>,
+    ) -> PyResult<Self> {
         if !(1..=3).contains(&dim) || norb == 0 {
             return Err(PyValueError::new_err("dim must be 1…3 and norb positive"));
         }
+        let lipschitz = match lipschitz {
+            None => None,
+            Some(a) => {
+                if a.shape()[1] != dim {
+                    return Err(PyValueError::new_err(format!(
+                        "lipschitz must have {dim} columns, got shape {:?}",
+                        a.shape()
+                    )));
+                }
+                let v: Vec<f64> = a.as_array().iter().copied().collect();
+                if v.iter().any(|x| !(x.is_finite() && *x >= 0.0)) {
+                    return Err(PyValueError::new_err(
+                        "lipschitz constants must be finite and non-negative",
+                    ));
+                }
+                Some(v)
+            }
+        };
         Ok(Self {
             dim,
             norb,
-            kind: Kind::Callable(func),
+            kind: Kind::Callable(func, lipschitz),
         })
     }
 
@@ -198,7 +230,7 @@ impl CoreModel {
     fn nterms(&self) -> usize {
         match &self.kind {
             Kind::Hoppings(h) => h.nterms,
-            Kind::Callable(_) => 0,
+            Kind::Callable(..) => 0,
         }
     }
 
@@ -212,14 +244,24 @@ impl CoreModel {
     ) -> CoreResult<T> {
         match &self.kind {
             Kind::Hoppings(h) => f(&h.at(coeff)?),
-            Kind::Callable(func) => {
+            Kind::Callable(func, lipschitz) => {
                 let func = Python::with_gil(|py| func.clone_ref(py));
+                let variation = match lipschitz {
+                    Some(l) => {
+                        let row = l.get(point * self.dim..(point + 1) * self.dim).ok_or_else(
+                            || CoreError::InvalidInput("no Lipschitz constants for a point".into()),
+                        )?;
+                        Some(VariationBound::lipschitz(row)?)
+                    }
+                    None => None,
+                };
                 f(&PySource {
                     func,
                     dim: self.dim,
                     norb: self.norb,
                     point,
                     error: error.clone(),
+                    variation,
                 })
             }
         }
