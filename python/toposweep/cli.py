@@ -40,11 +40,17 @@ def _point(items: Sequence[str] | None) -> dict[str, float]:
         try:
             if not sep or not name:
                 raise ValueError
-            out[name.strip()] = float(value)
+            number = float(value)
         except ValueError:
             raise ParameterError(
                 f"--at expects NAME=VALUE such as f_level=-0.5, got {item!r}"
             ) from None
+        key = name.strip()
+        if key in out:  # two values for one parameter: neither is silently dropped
+            raise ParameterError(
+                f"--at gives {key!r} twice ({key}={out[key]:g} and {item}); give each once"
+            )
+        out[key] = number
     return out
 
 
@@ -152,8 +158,10 @@ def _parser() -> _Parser:
     plot.add_argument(
         "--at",
         nargs="+",
+        action="extend",
         metavar="NAME=VALUE",
-        help="values of the other swept parameters (nearest grid point; default: middle)",
+        help="values of the other swept parameters (nearest grid point; default: middle); "
+        "repeat --at or list several after one",
     )
     plot.add_argument("--line", action="store_true", help="indices and gap against --x")
     plot.add_argument("--flow", action="store_true", help="HWC flow of the point given by --at")
