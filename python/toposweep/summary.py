@@ -17,6 +17,10 @@ PHASE_NAMES = {
     1: "weak TI",
     2: "strong TI",
     3: "Z2-odd 2D insulator",
+    10: "metal with trivial bands",
+    11: "metal with weak TI bands",
+    12: "metal with strong TI bands",
+    13: "metal with Z2-odd 2D bands",
 }
 MAX_LISTED = 8
 
