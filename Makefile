@@ -5,7 +5,7 @@ VENV := .venv
 PY := $(VENV)/bin/python
 export VIRTUAL_ENV := $(abspath $(VENV))
 RUST_SOURCES := $(wildcard src/*.rs src/**/*.rs) Cargo.toml
-PY_DEPS := maturin numpy xarray h5netcdf h5py matplotlib pytest hypothesis ruff scipy colorspacious
+PY_DEPS := maturin numpy xarray h5netcdf h5py matplotlib pytest hypothesis ruff scipy colorspacious tqdm
 
 # Compile for x86-64-v3 (AVX2, FMA, BMI2, ...) when the machine that builds has every feature of
 # that level, as told by rustc itself: the kernels run about a fifth faster than at the baseline
