@@ -29,11 +29,13 @@ from .errors import (  # noqa: E402
     ToposweepError,
 )
 from .model import Model  # noqa: E402
+from .phase_map import phase_map  # noqa: E402
 from .sampling import Sampling  # noqa: E402
 from .store import open_result  # noqa: E402
 from .sweep import SweepInterrupted, sweep  # noqa: E402
 from .symmetrise import symmetrise  # noqa: E402
 from .tightbinding import TightBinding  # noqa: E402
+from .transition_finder import find_transition  # noqa: E402
 
 __all__ = [
     "__version__",
@@ -50,10 +52,12 @@ __all__ = [
     "SymmetryError",
     "TightBinding",
     "ToposweepError",
+    "find_transition",
     "invariants",
     "model_from_dict",
     "models",
     "open_result",
+    "phase_map",
     "sweep",
     "symmetrise",
     "wcc_flow",
