@@ -103,15 +103,31 @@ def _coarse_axis(n: int, step: int) -> list[int]:
 
 
 def _box(cell: Cell, shape: tuple[int, ...]) -> NDArray[np.int64]:
+    """Flat indices of the points of a cell, its faces included (C order)."""
     lo, hi = cell
-    axes = [np.arange(a, b + 1) for a, b in zip(lo, hi, strict=True)]
-    return np.ravel_multi_index(np.ix_(*axes), shape).ravel()
+    return _flat(shape)[tuple(slice(a, b + 1) for a, b in zip(lo, hi, strict=True))].ravel()
 
 
-def _corners(cell: Cell, shape: tuple[int, ...]) -> NDArray[np.int64]:
-    lo, hi = cell
-    pts = set(itertools.product(*[(a, b) for a, b in zip(lo, hi, strict=True)]))
-    return np.array([np.ravel_multi_index(p, shape) for p in sorted(pts)], np.int64)
+_FLAT: dict[tuple[int, ...], NDArray[np.int64]] = {}
+
+
+def _flat(shape: tuple[int, ...]) -> NDArray[np.int64]:
+    """``arange(size).reshape(shape)``, kept for the last few shapes."""
+    found = _FLAT.get(shape)
+    if found is None:
+        if len(_FLAT) > 4:
+            _FLAT.clear()
+        found = _FLAT[shape] = np.arange(math.prod(shape), dtype=np.int64).reshape(shape)
+    return found
+
+
+def _all_corners(cells: list[Cell], shape: tuple[int, ...]) -> NDArray[np.int64]:
+    """Sorted flat indices of the corners of all ``cells`` (each once)."""
+    lo = np.array([c[0] for c in cells])
+    hi = np.array([c[1] for c in cells])
+    picks = np.array(list(itertools.product((0, 1), repeat=len(shape))), bool)
+    pts = np.where(picks[None, :, :], hi[:, None, :], lo[:, None, :]).reshape(-1, len(shape))
+    return np.unique(np.ravel_multi_index(tuple(pts.T), shape)).astype(np.int64)
 
 
 def _split(cell: Cell) -> list[Cell]:
@@ -229,7 +245,7 @@ def refine(
                 else:
                     leaves[cell] = claims
             if children:
-                new = np.unique(np.concatenate([_corners(c, shape) for c in children]))
+                new = _all_corners(children, shape)
                 new = new[table.label[new] == UNSEEN]
                 if new.size:
                     evaluate(new.astype(np.int64))

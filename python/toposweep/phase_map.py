@@ -48,6 +48,7 @@ from .store import (
 )
 from .sweep import SweepInterrupted, _InterruptFlag
 from .sweep_plan import Coefficients, SweepPlan, make_plan
+from .tightbinding import TightBinding
 from .transitions import locate_segments, probe_request, probes_of, segment_search
 from .weyl_bound import term_norm_bounds
 
@@ -64,13 +65,60 @@ TRANSITION_TOL = 1e-3
 class _Subset:
     """What :func:`toposweep.sweep._run` uses of a plan, over a list of grid points."""
 
-    def __init__(self, plan: SweepPlan, indices: NDArray[np.int64], points: list[dict]) -> None:
+    def __init__(self, plan: SweepPlan, indices: NDArray[np.int64]) -> None:
         self.request, self.dims, self.fixed = plan.request, plan.dims, plan.fixed
         self.coefficients = plan.coefficients
-        self._indices, self._points = indices, points
+        self._plan, self._indices = plan, indices
 
     def points(self, start: int, stop: int) -> list[dict[str, float]]:
-        return [self._points[i] for i in self._indices[start:stop]]
+        plan = self._plan
+        return [plan.model_point(plan.user_point(int(i))) for i in self._indices[start:stop]]
+
+
+def _coefficients(plan: SweepPlan) -> NDArray[np.float64]:
+    """Term coefficients of every grid point (rows in flat C order, columns ``model.terms``).
+
+    Straight from the grid without a coefficients mapping; through it (one call per point)
+    with one.
+    """
+    model = plan.request.model
+    if plan.coefficients is not None:
+        return np.asarray(model.prepare(plan.points(0, plan.size))[1], float)
+    mesh = np.meshgrid(*[plan.coords[d] for d in plan.dims], indexing="ij")
+    by_dim = dict(zip(plan.dims, (m.reshape(-1) for m in mesh), strict=True))
+    fixed = model.resolve(plan.user_point(0))
+    cols = [by_dim[t] if t in by_dim else np.full(plan.size, fixed[t]) for t in model.terms]
+    return np.stack(cols, axis=1) if cols else np.zeros((plan.size, 0))
+
+
+def _symmetry_breaks_everywhere(plan: SweepPlan) -> tuple[NDArray[np.bool_], NDArray[np.bool_]]:
+    """Where time reversal and inversion fail on the grid (the sweep's per-point check).
+
+    A tight-binding model whose fixed part and every term respect a symmetry on their own
+    (checked once, per term) respects it at every point: no per-point check is needed.
+    """
+    req, n = plan.request, plan.size
+    model = req.model
+    if isinstance(model, TightBinding):
+        ops = [model.time_reversal, req.inversion]
+        kinds = ["time_reversal", "inversion"]
+        exact = all(
+            op is None or _terms_respect(model, op, kind)
+            for op, kind in zip(ops, kinds, strict=True)
+        )
+        if exact:
+            return np.zeros(n, bool), np.zeros(n, bool)
+    return _symmetry_breaks(req, plan.points(0, n))
+
+
+def _terms_respect(model: TightBinding, operator: NDArray[Any], kind: str) -> bool:
+    resid, hp = model._term_residuals(operator, kind)
+    scale = np.abs(hp).reshape(len(hp), -1).max(axis=1)
+    return bool(
+        np.all(
+            np.abs(resid).reshape(len(resid), -1).max(axis=1) <= 1e-13 * np.maximum(scale, 1e-300)
+        )
+    )
 
 
 def labels_of(raw: Mapping[str, NDArray[Any]]) -> NDArray[np.int64]:
@@ -99,14 +147,13 @@ class _Evaluations:
     def __init__(
         self,
         plan: SweepPlan,
-        points: list[dict[str, float]],
         table: PointTable,
         journal: Journal | None,
         bar: ProgressBar,
         chunk_size: int | None,
         flag: _InterruptFlag,
     ) -> None:
-        self.plan, self.points, self.table, self.journal = plan, points, table, journal
+        self.plan, self.table, self.journal = plan, table, journal
         self.bar, self.chunk_size, self.flag = bar, chunk_size, flag
         self.raw: dict[str, NDArray[Any]] = {}
         self.count = 0
@@ -144,7 +191,7 @@ class _Evaluations:
         if not todo:
             return
         self.bar.total = max(self.bar.total, self.bar.done + sum(b - a for a, b in todo))
-        view = _Subset(self.plan, indices, self.points)
+        view = _Subset(self.plan, indices)
 
         def save(start: int, stop: int, raw: dict[str, NDArray[Any]]) -> None:
             if self.journal is not None:
@@ -318,15 +365,14 @@ def _compute(
     out: str | None,
 ) -> xr.Dataset:
     req = plan.request
-    points = plan.points(0, plan.size)
-    tr_broken, p_broken = _symmetry_breaks(req, points)
+    tr_broken, p_broken = _symmetry_breaks_everywhere(plan)
     bounds = term_norm_bounds(req.model)
-    coeffs = req.model.prepare(points)[1] if bounds is not None else None
+    coeffs = _coefficients(plan) if bounds is not None else None
     table = PointTable(plan.shape)
     bar = ProgressBar(1, enabled=progress)
     bar.total = 0
     with _InterruptFlag() as flag:
-        evals = _Evaluations(plan, points, table, journal, bar, chunk_size, flag)
+        evals = _Evaluations(plan, table, journal, bar, chunk_size, flag)
         try:
             how, source, bound = refine(
                 table,
@@ -339,11 +385,7 @@ def _compute(
             full = _complete(
                 evals.raw, how, source, p_broken if req.inversion is not None else None
             )
-            found = (
-                _transitions(plan, points, full, how, tol, flag)
-                if transitions
-                else _no_transitions()
-            )
+            found = _transitions(plan, full, how, tol, flag) if transitions else _no_transitions()
         except KeyboardInterrupt:
             bar.close()
             done = evals.count
@@ -363,6 +405,7 @@ def _compute(
     bar.close()
     if plan.coefficients is not None:  # the model's term values are known everywhere
         terms = req.model.parameters
+        points = plan.points(0, plan.size)
         full[_sweep.TERM_VALUES] = np.array([[p[t] for t in terms] for p in points], float)
     ds = _sweep.assemble(plan, full, plan.dims, plan.coords)
     return add_map_variables(ds, plan, how, bound, found)
@@ -405,7 +448,6 @@ def _no_transitions() -> dict[str, NDArray[Any]]:
 
 def _transitions(
     plan: SweepPlan,
-    points: list[dict[str, float]],
     full: dict[str, NDArray[Any]],
     how: NDArray[np.int8],
     tol: float,
@@ -420,7 +462,7 @@ def _transitions(
     span = np.abs(np.array(np.unravel_index(hi, shape)) - np.array(np.unravel_index(lo, shape)))
     span = span.sum(axis=0)
     searches = [
-        segment_search((ends[i], ends[j]), tol=tol / n, same_phase=False)
+        segment_search((ends[i], ends[j]), tol=tol / n, same_phase=False, interior=1)
         for i, j, n in zip(lo, hi, span, strict=True)
     ]
     dims = plan.dims

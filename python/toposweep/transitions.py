@@ -101,6 +101,25 @@ def _vfit(s: Sequence[float], g: Sequence[float], i: int) -> float | None:
     return x if s[a] <= x <= s[b] else s[b] - g[b] / kr
 
 
+def _straight_v(pts: dict[float, Probe], star: float, floor: float) -> bool:
+    """Whether the two open points nearest to ``star`` on each side lie on lines through ~0.
+
+    Then the gap closes linearly from both sides at ``star`` — a point, not an interval.
+    """
+    for side in (-1, 1):
+        open_ = sorted(
+            (x for x, p in pts.items() if (x - star) * side > 0 and p.gap >= floor),
+            key=lambda x: abs(x - star),
+        )
+        if len(open_) < 2:
+            return False
+        a, b = open_[0], open_[1]
+        at_star = pts[a].gap + (pts[b].gap - pts[a].gap) * (star - a) / (b - a)
+        if not abs(at_star) <= 2 * floor:
+            return False
+    return True
+
+
 def segment_search(
     ends: tuple[Probe, Probe], *, tol: float, same_phase: bool, interior: int = 3
 ) -> Search:
@@ -151,6 +170,9 @@ def segment_search(
     closed = g[i] < best.floor
     if not closed:
         status = 3 if same_phase else 2
+        return SegmentResult(s[i], lo, hi, g[i], best.kappa, status, asked)
+    if _straight_v(pts, s[i], best.floor):  # both branches already seen to be straight lines
+        status = 4 if same_phase else 0
         return SegmentResult(s[i], lo, hi, g[i], best.kappa, status, asked)
     # point or interval: outside the half-widths a straight V allows, the gap must be open
     kl = (g[i - 1] - g[i]) / (s[i] - s[i - 1]) if i > 0 else math.inf
