@@ -69,7 +69,15 @@ def _run(args: argparse.Namespace) -> int:
             "or --overwrite to start over"
         )
     try:
-        ds = sweep(**cfg.sweep_kwargs(), out=out, resume=args.resume, progress=not args.quiet)
+        if cfg.adaptive is not None:
+            from .phase_map import phase_map
+
+            ds = phase_map(
+                **cfg.sweep_kwargs(), **cfg.adaptive, out=out, resume=args.resume,
+                progress=not args.quiet,
+            )  # fmt: skip
+        else:
+            ds = sweep(**cfg.sweep_kwargs(), out=out, resume=args.resume, progress=not args.quiet)
     except SweepInterrupted as exc:
         raise KeyboardInterrupt(
             f"interrupted after {exc.done} of {exc.total} points; the finished chunks are kept "
@@ -109,7 +117,7 @@ def _plot(args: argparse.Namespace) -> int:
                 default = path.with_name(f"{path.stem}-{x}.png")
             else:
                 y = args.y or others[0]
-                fig = plot_phase_map(ds, x, y, at=at)
+                fig = plot_phase_map(ds, x, y, at=at, show_evaluated=args.evaluated)
                 default = path.with_suffix(".png")
     out = Path(args.out) if args.out else default
     fig.savefig(out, dpi=args.dpi)
@@ -137,7 +145,9 @@ def _parser() -> _Parser:
     )
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
 
-    run = sub.add_parser("run", help="run the sweep described by a TOML configuration")
+    run = sub.add_parser(
+        "run", help="run the sweep (or, with [adaptive], the phase map) of a TOML configuration"
+    )
     run.add_argument("config", help="configuration file (TOML)")
     mode = run.add_mutually_exclusive_group()
     mode.add_argument(
@@ -164,6 +174,9 @@ def _parser() -> _Parser:
         "repeat --at or list several after one",
     )
     plot.add_argument("--line", action="store_true", help="indices and gap against --x")
+    plot.add_argument(
+        "--evaluated", action="store_true", help="mark the points a phase map evaluated"
+    )
     plot.add_argument("--flow", action="store_true", help="HWC flow of the point given by --at")
     plot.add_argument(
         "--allow-code",

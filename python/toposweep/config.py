@@ -15,6 +15,9 @@ A configuration names the model, the grid, the filling, the sampling and the out
     [params]                        # values of parameters that are not swept (optional)
     [sampling]                      # loop_points, lines, max_lines, step_limit, gap_floor, ...
     [run]                           # threads, chunk_size (optional)
+    [adaptive]                      # optional: an adaptive phase map (toposweep.phase_map)
+    coarse_step = 16                # every key optional: coarse_step, proven_only,
+                                    # agreement_gap, transitions, transition_tol
 
 ``coefficients = "path/to/file.py:function"`` (optional) maps the grid's own variables onto
 model terms, as ``coefficients=`` of :func:`toposweep.sweep` does. Every mistake raises
@@ -51,7 +54,10 @@ TOP_KEYS = {
     "sampling",
     "run",
     "coefficients",
+    "adaptive",
 }
+#: keys of the [adaptive] table: keyword arguments of toposweep.phase_map
+ADAPTIVE_KEYS = {"coarse_step", "proven_only", "agreement_gap", "transitions", "transition_tol"}
 RUN_KEYS = {"threads", "chunk_size"}
 RANGE_KEYS = {"start", "stop", "num", "values", "long_name", "units"}
 #: values per grid axis a configuration may ask for (a typo like num = 1e9 must not eat memory)
@@ -73,6 +79,8 @@ class RunConfig:
     coefficients: Callable[[dict[str, float]], Mapping[str, float]] | None = None
     threads: int | None = None
     chunk_size: int | None = None
+    #: options of an adaptive phase map ([adaptive]); None: a uniform sweep
+    adaptive: dict[str, Any] | None = None
 
     def sweep_kwargs(self) -> dict[str, Any]:
         """Keyword arguments of :func:`toposweep.sweep` (without ``out``/``resume``)."""
@@ -261,6 +269,14 @@ def parse_config(text: str, source: str = "<config>", base: Path | None = None) 
         if not isinstance(spec, str):
             raise _fail(source, "coefficients", f"must be 'file.py:function', got {spec!r}")
         coefficients = _load_function(source, "coefficients", spec, base)
+    adaptive = None
+    if "adaptive" in doc:
+        adaptive = _table(source, "adaptive", doc["adaptive"])
+        bad = sorted(set(adaptive) - ADAPTIVE_KEYS)
+        if bad:
+            raise _fail(
+                source, f"adaptive.{bad[0]}", f"unknown key; known keys are {sorted(ADAPTIVE_KEYS)}"
+            )
     return RunConfig(
         source=source,
         model=model,
@@ -273,6 +289,7 @@ def parse_config(text: str, source: str = "<config>", base: Path | None = None) 
         coefficients=coefficients,
         threads=None if threads is None else _positive_int(source, "run.threads", threads),
         chunk_size=None if chunk is None else _positive_int(source, "run.chunk_size", chunk),
+        adaptive=adaptive,
     )
 
 

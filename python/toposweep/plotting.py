@@ -22,6 +22,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Patch
 
 from .errors import ParameterError
+from .map_report import draw_transitions
 from .phase_style import (
     METAL_HATCH,
     SHADE_FLOOR,
@@ -172,6 +173,7 @@ def plot_phase_map(
     *,
     at: Mapping[str, float] | None = None,
     region_labels: bool = True,
+    show_evaluated: bool = False,
 ) -> Figure:
     """Phase diagram over the grid dims ``x`` and ``y``, darkened where the gap is small.
 
@@ -180,6 +182,10 @@ def plot_phase_map(
     gap is at least a quarter of the map's typical gap (its 90th percentile) and darkens to
     half brightness at a closing. ``region_labels`` prints each phase's indices inside its
     largest region (so the map reads without colour too).
+
+    For a phase map (:func:`toposweep.phase_map`) the located transitions are marked instead
+    of the gap shading (its gaps are measured at the evaluated points only), and with
+    ``show_evaluated`` the points that were evaluated.
     """
     sub = select(ds, [x, y], at).transpose(y, x, ...)
     style = _PhaseStyle(sub)
@@ -188,7 +194,10 @@ def plot_phase_map(
     gap = np.where(phase >= 0, sub.gap_direct.values, np.nan)
     scale = float(np.nanpercentile(gap, 90)) if np.isfinite(gap).any() else 1.0
     scale = scale if scale > 0 else 1.0
-    rgb = rgb * gap_shade(gap, scale)[..., None]
+    # (a phase map measured gaps at its evaluated points only: no shading there, its
+    # transitions are drawn instead)
+    adaptive = "obtained" in sub
+    rgb = rgb if adaptive else rgb * gap_shade(gap, scale)[..., None]
 
     handles = style.handles()
     fig = Figure(figsize=(8.6, max(5.2, 2.3 + 0.24 * len(handles))), layout="constrained")
@@ -204,11 +213,14 @@ def plot_phase_map(
                         hatches=[METAL_HATCH])  # fmt: skip
     if region_labels:
         _label_regions(ax, xs, ys, style)
+    draw_transitions(ax, ds, sub, x, y, evaluated=show_evaluated)
     ax.set_xlabel(axis_label(sub[x]))
     ax.set_ylabel(axis_label(sub[y]))
     fixed = {str(k): float(v) for k, v in sub.coords.items() if v.ndim == 0}
     ax.set_title(_title(ds, fixed), fontsize=10)
     side.legend(handles=handles, loc="upper left", frameon=False, fontsize=9, title="phase")
+    if adaptive:
+        return fig
     # the shading scale: a small horizontal bar under the legend
     cax = side.inset_axes((0.05, 0.06, 0.85, 0.035))
     limit = SHADE_FROM * scale

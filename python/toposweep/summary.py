@@ -8,6 +8,8 @@ from collections import Counter
 import numpy as np
 import xarray as xr
 
+from .map_report import map_summary_lines
+
 __all__ = ["phase_label", "phase_labels", "summarise"]
 
 #: trade terms for the phase codes of :data:`toposweep.dataset.PHASES`
@@ -142,6 +144,7 @@ def summarise(ds: xr.Dataset, name: str = "result") -> str:
     for label, n in ordered:
         lines.append(f"  {label:{width}s}  {n:6d}  {100 * n / total:5.1f}%")
 
+    lines += map_summary_lines(ds)
     reason = ds.undefined_reason.values
     undefined = np.argwhere(reason != 0)
     if len(undefined):
