@@ -8,6 +8,7 @@
     all cores, indices and gaps asserted equal;
 (c) sweep throughput (points/s) of a 2D and a 3D model;
 (d) peak memory against the number of points (``sweep_memory.py``, fresh processes);
+(e) adaptive phase maps against the uniform sweep of the same grid (``phase_map_bench.py``);
 and what a second core gives on this machine: each core's speed alone and with all at work
 (``core_speeds.py``), and the point's threads gain beside that of a call with nothing serial in
 it (``fork_join_gain.py``).
@@ -433,6 +434,10 @@ def main() -> None:
         "Each row a fresh process (`benches/sweep_memory.py`): `bhz` over mass × hopping, "
         "`loop_points=12, lines=7`, streamed to a NetCDF file chunk by chunk.",
     )
+    from phase_map_bench import NOTE as MAP_NOTE
+    from phase_map_bench import table as map_table
+
+    section("(e) Adaptive phase maps against the uniform sweep", map_table(args.quick), MAP_NOTE)
     doc.append(f"(total benchmark time {time.perf_counter() - t_start:.0f} s; {load()} at the end)")
     if args.out:
         args.out.write_text("\n".join(doc) + "\n")

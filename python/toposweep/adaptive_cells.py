@@ -84,17 +84,19 @@ class Claims:
 
 
 def auto_coarse_step(shape: tuple[int, ...]) -> int:
-    """Largest power of two that still gives about four coarse cells along the shortest axis.
+    """Default coarse spacing: about 8 cells along the longest axis, at least 2 on the shortest.
+
+    A power of two, so that cells halve down to one spacing.
 
     Examples
     --------
-    >>> auto_coarse_step((257, 129)), auto_coarse_step((5,)), auto_coarse_step((1, 40))
-    (32, 1, 8)
+    >>> auto_coarse_step((257, 129)), auto_coarse_step((49, 25, 13)), auto_coarse_step((5,))
+    (32, 4, 1)
     """
     spans = [n - 1 for n in shape if n > 1]
     if not spans:
         return 1
-    target = max(1, min(spans) // 4)
+    target = max(1, min(max(spans) // 8, min(spans) // 2))
     return 1 << (target.bit_length() - 1)
 
 

@@ -277,7 +277,8 @@ def phase_map(
         Points per core call (default: adapted so a chunk takes about a second).
     coarse_step : int, optional
         Spacing, in grid points, of the first evaluated sub-grid (ends always included).
-        Default: the largest power of two giving about four cells along the shortest axis.
+        Default: the power of two giving about 8 cells along the longest axis and at least 2
+        along the shortest.
     proven_only : bool
         Never fill by agreement: every point is evaluated or proven by the gap bound.
     agreement_gap : float, optional
