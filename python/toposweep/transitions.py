@@ -222,6 +222,8 @@ def probe_request(req: Request) -> Request:
         )
     else:
         probe = dataclasses.replace(samp, max_lines=samp.lines, certify=False, method="wilson")
+    if "prove_gap" in {f.name for f in dataclasses.fields(Sampling)}:
+        probe = dataclasses.replace(probe, prove_gap="never")  # the estimate is what is used
     return prepare_request(req.model, req.filling, inversion=None, sampling=probe,
                            threads=req.threads)  # fmt: skip
 
