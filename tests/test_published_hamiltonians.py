@@ -33,6 +33,7 @@ periodic one by the diagonal phases e^{ik·r_i}, which is exact.
 from __future__ import annotations
 
 import itertools
+
 import numpy as np
 import pytest
 import toposweep as ts
