@@ -247,3 +247,39 @@ def test_inversion_free_random_models_are_defined():
         ds = ts.invariants(case.model, case.filling)
         assert int(ds.undefined_reason) == 0, seed
         assert "nu0_parity" not in ds
+
+
+@pytest.mark.parametrize("dim", [2, 3])
+def test_inversion_free_random_models_have_their_cores_index(dim):
+    """Without inversion the index has no parity shortcut, but it is known all the same: the
+    model is an inversion-symmetric core plus couplings that break inversion, and along
+    core + s·couplings (0 ≤ s ≤ 1) no eigenvalue moves by more than ‖couplings‖ (Weyl's
+    inequality; Horn & Johnson, Matrix Analysis, 2nd ed. (2013), chapter 4; from memory). With
+    ‖couplings‖ < gap/2 of the core the gap stays open, so the index is the core's, which the
+    NumPy parity product gives (Fu & Kane, Phys. Rev. B 76, 045302 (2007))."""
+    reached = set()
+    phases = rm.PHASES if dim == 3 else ("trivial", "strong")
+    for seed in range(6):
+        core_phase = phases[seed % len(phases)]
+        case = rm.random_model(
+            200 + seed, dim=dim, inversion=False, core_phase=core_phase, coupling=0.3
+        )
+        # the same seed with inversion kept draws the same core (and so the same P)
+        p = rm.random_model(
+            200 + seed, dim=dim, core_phase=core_phase, coupling=0.3
+        ).model.inversion
+        core = {"coupling": 0.0}
+        assert case.model.inversion is None
+        assert case.model.symmetry_residuals([case.model.resolve(core)], p, "inversion")[0] < 1e-12
+        assert case.model.symmetry_residuals([case.model.resolve()], p, "inversion")[0] > 1e-4
+        # the certificate: the couplings' norm bound against the core's gap (NumPy estimate)
+        core_gap, _ = rm.direct_gap(case.model, case.filling, core)
+        couplings = [(r, t) for r, t, term in case.model.hoppings() if term == "coupling"]
+        assert rm.norm_bound(couplings) < 0.5 * core_gap, seed
+        nu0, weak = rm.parity_indices(case.model, case.filling, core, inversion=p)
+        want = (nu0, weak if dim == 3 else ())
+        ds = ts.invariants(case.model, case.filling)
+        assert int(ds.undefined_reason) == 0, seed
+        assert indices(ds, dim) == want, (seed, core_phase)
+        reached.add(rm.phase_of(nu0, weak, dim))
+    assert reached == set(phases)
