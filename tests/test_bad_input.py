@@ -348,7 +348,7 @@ def test_numpy_scalars_are_accepted_where_python_numbers_are():
         step_limit=np.float64(0.1),
         threads=np.int64(1),
     )
-    assert int(ds.nu0) == 1
+    assert int(ds.nu0) == 1  # Fu & Kane, Phys. Rev. B 76, 045302 (2007): (1;000) at m = -2
 
 
 def test_time_reversal_broken_at_some_points_only_marks_those():
@@ -362,6 +362,8 @@ def test_time_reversal_broken_at_some_points_only_marks_those():
     m.defaults["b"] = 0.0
     req = prepare_request(m, 2, inversion=None, sampling=Sampling())
     raw = run_points(req, [m.resolve({"b": 0.0}), m.resolve({"b": 0.3})])
+    # b = 0 is the Wilson-Dirac model at m = -2: (1;000) (Fu & Kane, Phys. Rev. B 76, 045302
+    # (2007)), a strong topological insulator (phase 2) by both methods
     assert raw["nu0"].tolist() == [1, -1]
     assert raw["reason"].tolist()[1] == 8
     # the model's own inversion also fails at the broken point: parity undefined there too
@@ -484,7 +486,7 @@ def test_callable_without_default_needs_its_parameter():
     model = CallableModel(func, 3, 4, time_reversal=U_T)
     with pytest.raises(ParameterError, match="'mass'"):
         ts.invariants(model, 2)
-    assert int(ts.invariants(model, 2, {"mass": -2.0}).nu0) == 1
+    assert int(ts.invariants(model, 2, {"mass": -2.0}).nu0) == 1  # Fu & Kane 2007: (1;000)
 
 
 def test_not_callable():

@@ -46,6 +46,8 @@ def test_run_summary_plot_end_to_end(tmp_path: Path) -> None:
     run = toposweep("run", "wd.toml", cwd=tmp_path)
     assert run.returncode == 0, run.stderr
     assert run.stderr == ""  # no progress bar when stderr is not a terminal
+    # Wilson-Dirac phases (Fu & Kane, Phys. Rev. B 76, 045302 (2007)): (1;000) for
+    # -3 < m < -1, (0;111) for |m| < 1
     assert "strong TI (1;000)" in run.stdout and "weak TI (0;111)" in run.stdout
     out = tmp_path / "wd.nc"
     with xr.open_dataset(out) as ds:
@@ -164,6 +166,7 @@ def test_model_from_a_user_file(tmp_path: Path, capsys) -> None:
     )
     assert main(["run", str(tmp_path / "mine.toml"), "--quiet"]) == 0
     out = capsys.readouterr().out
+    # m = -1 is Z2-odd (Qi, Wu & Zhang, Phys. Rev. B 74, 085308 (2006): 0 < |m| < 2)
     assert "my square-lattice model" in out and "Z2-odd 2D insulator (Z2 = 1)" in out
 
 

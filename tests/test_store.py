@@ -320,5 +320,8 @@ def test_resume_refuses_a_different_filling(tmp_path: Path, monkeypatch) -> None
     with pytest.raises(StoreError, match="filling: 2 now, 4 in the file"):
         ts.sweep(model, grid, 2, out=out, resume=True, progress=False, loop_points=12, lines=7)
     ds = ts.sweep(model, grid, 4, out=out, resume=True, progress=False, loop_points=12, lines=7)
-    assert ds.nu0.values.tolist() == [0, 0]  # two copies of a Z2-odd insulator are even
+    # two copies of a Z2-odd insulator are even (Kane & Mele, Phys. Rev. Lett. 95, 146802
+    # (2005): Z2 counts Kramers pairs of edge states mod 2); one copy is odd at m = ±1 (Qi, Wu
+    # & Zhang, Phys. Rev. B 74, 085308 (2006))
+    assert ds.nu0.values.tolist() == [0, 0]
     ds.close()
