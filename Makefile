@@ -6,9 +6,10 @@ PY := $(VENV)/bin/python
 export VIRTUAL_ENV := $(abspath $(VENV))
 RUST_SOURCES := $(wildcard src/*.rs src/**/*.rs) Cargo.toml
 PY_DEPS := maturin numpy xarray h5netcdf h5py matplotlib pytest hypothesis ruff scipy colorspacious tqdm
-# needed by the tests only (netCDF4: an outside reader of our files, the netCDF-C library);
+# needed by the tests only (netCDF4: an outside reader of our files, the netCDF-C library;
+# dask, distributed: the optional extra toposweep[dask], for the executor tests);
 # a stamp of their own, so adding one installs it without rebuilding the extension
-TEST_DEPS := netCDF4
+TEST_DEPS := netCDF4 dask distributed
 
 # Compile for x86-64-v3 (AVX2, FMA, BMI2, ...) when the machine that builds has every feature of
 # that level, as told by rustc itself: the kernels run about a fifth faster than at the baseline

@@ -20,6 +20,7 @@ from .api import invariants, wcc_flow  # noqa: E402
 from .callable_model import CallableModel  # noqa: E402
 from .errors import (  # noqa: E402
     ConfigError,
+    ExecutorError,
     FillingError,
     ModelError,
     ParameterError,
@@ -41,6 +42,7 @@ __all__ = [
     "__version__",
     "CallableModel",
     "ConfigError",
+    "ExecutorError",
     "FillingError",
     "Model",
     "ModelError",

@@ -68,16 +68,19 @@ def _run(args: argparse.Namespace) -> int:
             f"{args.config}: output: {what} exists; pass --resume to continue (or reuse) it, "
             "or --overwrite to start over"
         )
+    kwargs = cfg.sweep_kwargs()
+    if args.scheduler:  # (the command line wins over the configuration)
+        kwargs["executor"] = args.scheduler
     try:
         if cfg.adaptive is not None:
             from .phase_map import phase_map
 
             ds = phase_map(
-                **cfg.sweep_kwargs(), **cfg.adaptive, out=out, resume=args.resume,
+                **kwargs, **cfg.adaptive, out=out, resume=args.resume,
                 progress=not args.quiet,
             )  # fmt: skip
         else:
-            ds = sweep(**cfg.sweep_kwargs(), out=out, resume=args.resume, progress=not args.quiet)
+            ds = sweep(**kwargs, out=out, resume=args.resume, progress=not args.quiet)
     except SweepInterrupted as exc:
         raise KeyboardInterrupt(
             f"interrupted after {exc.done} of {exc.total} points; the finished chunks are kept "
@@ -155,6 +158,13 @@ def _parser() -> _Parser:
     )
     mode.add_argument("--overwrite", action="store_true", help="replace an existing output")
     run.add_argument("--quiet", action="store_true", help="no progress bar")
+    run.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="run the chunks on a Dask cluster: its scheduler's address (tcp://host:8786), "
+        "local:N for N worker processes on this machine, or processes:N for a process pool "
+        "(default: [run] scheduler of the configuration, else this process)",
+    )
     run.set_defaults(func=_run)
 
     summ = sub.add_parser("summary", help="phases and counts, undefined points, parity checks")

@@ -14,14 +14,17 @@ A configuration names the model, the grid, the filling, the sampling and the out
 
     [params]                        # values of parameters that are not swept (optional)
     [sampling]                      # loop_points, lines, max_lines, step_limit, gap_floor, ...
-    [run]                           # threads, chunk_size (optional)
+    [run]                           # threads, chunk_size, scheduler (optional)
     [adaptive]                      # optional: an adaptive phase map (toposweep.phase_map)
     coarse_step = 16                # every key optional: coarse_step, proven_only,
                                     # agreement_gap, transitions, transition_tol
 
 ``coefficients = "path/to/file.py:function"`` (optional) maps the grid's own variables onto
-model terms, as ``coefficients=`` of :func:`toposweep.sweep` does. Every mistake raises
-:class:`~toposweep.errors.ConfigError` naming the file and the key (or the line, for TOML syntax).
+model terms, as ``coefficients=`` of :func:`toposweep.sweep` does. ``[run] scheduler`` runs the
+chunks elsewhere: ``"local:N"`` (a Dask cluster of N worker processes on this machine),
+``"processes:N"`` (a process pool) or a Dask scheduler address such as ``"tcp://host:8786"``.
+Every mistake raises :class:`~toposweep.errors.ConfigError` naming the file and the key (or the
+line, for TOML syntax).
 """
 
 from __future__ import annotations
@@ -58,7 +61,7 @@ TOP_KEYS = {
 }
 #: keys of the [adaptive] table: keyword arguments of toposweep.phase_map
 ADAPTIVE_KEYS = {"coarse_step", "proven_only", "agreement_gap", "transitions", "transition_tol"}
-RUN_KEYS = {"threads", "chunk_size"}
+RUN_KEYS = {"threads", "chunk_size", "scheduler"}
 RANGE_KEYS = {"start", "stop", "num", "values", "long_name", "units"}
 #: values per grid axis a configuration may ask for (a typo like num = 1e9 must not eat memory)
 MAX_AXIS = 10_000_000
@@ -81,10 +84,14 @@ class RunConfig:
     chunk_size: int | None = None
     #: options of an adaptive phase map ([adaptive]); None: a uniform sweep
     adaptive: dict[str, Any] | None = None
+    #: where the chunks run (``executor=`` of :func:`toposweep.sweep`); None: this process
+    scheduler: str | None = None
 
     def sweep_kwargs(self) -> dict[str, Any]:
         """Keyword arguments of :func:`toposweep.sweep` (without ``out``/``resume``)."""
+        extra = {} if self.scheduler is None else {"executor": self.scheduler}
         return {
+            **extra,
             "model": self.model,
             "grid": self.grid,
             "filling": self.filling,
@@ -263,6 +270,13 @@ def parse_config(text: str, source: str = "<config>", base: Path | None = None) 
         raise _fail(source, f"run.{bad[0]}", f"unknown key; known keys are {sorted(RUN_KEYS)}")
     threads = run.get("threads")
     chunk = run.get("chunk_size")
+    scheduler = run.get("scheduler")
+    if scheduler is not None and (not isinstance(scheduler, str) or not scheduler.strip()):
+        raise _fail(
+            source,
+            "run.scheduler",
+            f"must be 'local:N', 'processes:N' or a scheduler address, got {scheduler!r}",
+        )
     coefficients = None
     if "coefficients" in doc:
         spec = doc["coefficients"]
@@ -290,6 +304,7 @@ def parse_config(text: str, source: str = "<config>", base: Path | None = None) 
         threads=None if threads is None else _positive_int(source, "run.threads", threads),
         chunk_size=None if chunk is None else _positive_int(source, "run.chunk_size", chunk),
         adaptive=adaptive,
+        scheduler=scheduler,
     )
 
 

@@ -15,6 +15,7 @@ __all__ = [
     "FillingError",
     "StoreError",
     "ConfigError",
+    "ExecutorError",
 ]
 
 
@@ -48,3 +49,11 @@ class StoreError(ToposweepError, ValueError):
 
 class ConfigError(ToposweepError, ValueError):
     """A run configuration file is malformed or names something that does not exist."""
+
+
+class ExecutorError(ToposweepError, RuntimeError):
+    """Work sent to other processes failed.
+
+    A task failed again and again, the executor broke, or the run cannot be sent to (or loaded
+    on) the workers.
+    """
