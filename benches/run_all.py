@@ -9,6 +9,8 @@
 (c) sweep throughput (points/s) of a 2D and a 3D model;
 (d) peak memory against the number of points (``sweep_memory.py``, fresh processes);
 (e) adaptive phase maps against the uniform sweep of the same grid (``phase_map_bench.py``);
+(f) a 3D sweep on a local Dask cluster against the in-process sweep, and the per-task overhead
+    (``cluster_speed.py``);
 and what a second core gives on this machine: each core's speed alone and with all at work
 (``core_speeds.py``), and the point's threads gain beside that of a call with nothing serial in
 it (``fork_join_gain.py``).
@@ -438,6 +440,18 @@ def main() -> None:
     from phase_map_bench import table as map_table
 
     section("(e) Adaptive phase maps against the uniform sweep", map_table(args.quick), MAP_NOTE)
+
+    from cluster_speed import table as cluster_table
+
+    section(
+        "(f) A sweep on a local Dask cluster",
+        cluster_table(args.quick),
+        "`benches/cluster_speed.py`: the same 3D sweep in this process on all cores and on a "
+        "`LocalCluster` of as many one-thread worker processes (`executor=`), rounds "
+        "interleaved, Datasets asserted identical; the per-task overhead of trivial tasks; the "
+        "caller's journal write per chunk. On a shared host the cluster's extra processes and "
+        "the scheduler compete with other jobs: read the range, not one round.",
+    )
     doc.append(f"(total benchmark time {time.perf_counter() - t_start:.0f} s; {load()} at the end)")
     if args.out:
         args.out.write_text("\n".join(doc) + "\n")

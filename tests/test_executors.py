@@ -188,6 +188,25 @@ def test_job_reaches_each_worker_once(client: Any) -> None:
     assert all(n == 1 for n in loads.values()), loads
 
 
+def test_points_job_for_drivers_that_choose_their_points(client: Any) -> None:
+    from toposweep.evaluation import prepare_request
+    from toposweep.sweep_executor import PointsJob
+
+    req = prepare_request(ts.models.wilson_dirac(), 2, inversion=None, sampling=ts.Sampling())
+    batches = [[req.model.resolve({"mass": m}) for m in ms] for ms in ([-2.0, 0.5], [2.0])]
+    results = {}
+    for where in (None, client):
+        with ChunkRunner(where, PointsJob(req)) as runner:
+            got = {len(r.task): r.value for r in runner.imap_unordered(batches)}
+        results[where is None] = got
+    for n in (1, 2):
+        here, there = results[True][n], results[False][n]
+        assert here.keys() == there.keys()
+        for k in here:
+            np.testing.assert_array_equal(here[k], there[k], err_msg=k)
+    assert results[True][2]["nu0"].tolist() == [fu_kane_nu0(-2.0, 1.0), fu_kane_nu0(0.5, 1.0)]
+
+
 def test_worker_killed_mid_run_loses_nothing(
     mapping_file: Path, slow_reference: Path, tmp_path: Path
 ) -> None:
@@ -277,7 +296,7 @@ def test_command_line_scheduler_local_cluster(tmp_path: Path, capsys: Any) -> No
     (tmp_path / "map.toml").write_text(
         'model = "wilson_dirac"\nfilling = 2\noutput = "map.nc"\n'
         "[grid]\nmass = { start = -4.0, stop = 4.0, num = 9 }\nhopping = [0.5, 1.0]\n"
-        "[sampling]\nloop_points = 16\nlines = 9\n[run]\nscheduler = \"processes:2\"\n"
+        '[sampling]\nloop_points = 16\nlines = 9\n[run]\nscheduler = "processes:2"\n'
     )
     cfg = str(tmp_path / "map.toml")
     assert main(["run", cfg, "--quiet", "--scheduler", "local:2"]) == 0  # the option wins
@@ -289,8 +308,7 @@ def test_command_line_scheduler_local_cluster(tmp_path: Path, capsys: Any) -> No
         same(there, here)
     assert "phase" in capsys.readouterr().out.lower()
     (tmp_path / "bad.toml").write_text(
-        'model = "bhz"\nfilling = 2\noutput = "b.nc"\n[grid]\nmass = [1.0]\n'
-        "[run]\nscheduler = 4\n"
+        'model = "bhz"\nfilling = 2\noutput = "b.nc"\n[grid]\nmass = [1.0]\n[run]\nscheduler = 4\n'
     )
     assert main(["run", str(tmp_path / "bad.toml")]) == 2
     assert "run.scheduler" in capsys.readouterr().err

@@ -324,6 +324,8 @@ class _Dask:
         return self._count()[1]
 
     def scatter(self, blob: bytes) -> Any:
+        # a cluster that is still starting (batch jobs in a queue) is waited for
+        self.client.wait_for_workers(1)
         return self.client.scatter(blob, broadcast=True, hash=False)
 
     def submit(self, *args: Any) -> Any:
@@ -340,8 +342,9 @@ class _Dask:
         return set(done)
 
     def cancel(self, handles: list[Any]) -> None:
-        if handles:
-            self.client.cancel(handles)
+        ours = [h for h in handles if not isinstance(h, Future)]
+        if ours:
+            self.client.cancel(ours)
 
     def close(self) -> None:
         pass

@@ -309,32 +309,12 @@ def sweep(
     ):
         raise ParameterError(f"chunk_size must be a positive integer or None, got {chunk_size!r}")
     plan = make_plan(req, grid, params=params, coefficients=coefficients)
-    if isinstance(executor, str):
-        from .executors import executor_from_spec
-        from .sweep_executor import Remote
+    from .sweep_executor import remote_for  # (it imports this module)
 
-        with executor_from_spec(executor) as (ex, repair):
-            remote = Remote(ex, repair, None if out is None else os.fspath(out))
-            return _sweep_in(plan, out, resume, progress, chunk_size, remote)
-    if executor is not None:
-        from .sweep_executor import Remote
-
-        remote = Remote(executor, None, None if out is None else os.fspath(out))
-        return _sweep_in(plan, out, resume, progress, chunk_size, remote)
-    return _sweep_in(plan, out, resume, progress, chunk_size, None)
-
-
-def _sweep_in(
-    plan: SweepPlan,
-    out: str | os.PathLike[str] | None,
-    resume: bool,
-    progress: bool,
-    chunk_size: int | None,
-    remote: Any,
-) -> xr.Dataset:
-    if out is None:
-        return _sweep_in_memory(plan, progress, chunk_size, remote)
-    return _sweep_to_file(plan, os.fspath(out), resume, progress, chunk_size, remote)
+    with remote_for(executor, out) as remote:
+        if out is None:
+            return _sweep_in_memory(plan, progress, chunk_size, remote)
+        return _sweep_to_file(plan, os.fspath(out), resume, progress, chunk_size, remote)
 
 
 def _sweep_in_memory(

@@ -6,15 +6,19 @@ caller saves each range as it arrives — into the journal exactly as an in-proc
 so the file does not depend on where, in which order or in how many pieces the chunks ran.
 
 Chunk sizes adapt as in-process runs do, to the workers' own timings: about
-:data:`TASK_SECONDS` of work per task, and never so large that the end of the run leaves
-slots idle (each range is at most a share of the rest of the grid).
+:data:`TASK_SECONDS` of work per task (longer on clusters of more than
+``TASK_SECONDS × MAX_TASK_RATE`` slots, so the caller is not swamped by results), and never so
+large that the end of the run leaves slots idle (each range is at most a quarter of the rest of
+the grid per slot).
 """
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import math
-from collections.abc import Callable, Iterator
+import os
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -22,21 +26,27 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .errors import ExecutorError
-from .evaluation import run_points
-from .executors import ChunkRunner
+from .evaluation import Request, run_points
+from .executors import ChunkRunner, executor_from_spec
 from .progress import ProgressBar
 from .store import journal_path
 from .sweep import TERM_VALUES, _check_names
 from .sweep_plan import SweepPlan
 
-__all__ = ["RangeJob", "Remote", "evaluate_range"]
+__all__ = ["PointsJob", "RangeJob", "Remote", "evaluate_range", "remote_for"]
 
 #: aim for tasks of about this many seconds of work: long against the scheduler's overhead of
 #: a few ms per task, short enough that a lost task or the run's last tasks cost little
 TASK_SECONDS = 2.0
+#: most tasks finished per second that the caller is asked to take in: each costs it a journal
+#: write with an fsync (~5–20 ms here, more on a network file system) and the scheduler ~1 ms;
+#: a large cluster therefore gets longer tasks (slots / MAX_TASK_RATE seconds each)
+MAX_TASK_RATE = 50.0
 #: points of the first tasks, before the workers' timings are known
 FIRST_TASK = 8
 MAX_TASK = 4096
+#: a run of many points gets fewer, longer tasks: at most about this many journal files
+MAX_CHUNKS = 100_000
 
 
 def evaluate_range(
@@ -68,12 +78,42 @@ class RangeJob:
         return evaluate_range(self.plan, task[0], task[1], threads)
 
 
+@dataclass(frozen=True)
+class PointsJob:
+    """A checked request as a job: a task is a list of resolved parameter dicts.
+
+    For drivers that choose their points as they go (an adaptive phase map): the request
+    (model, filling, sampling) reaches each worker once, each task carries only its points.
+
+    Examples
+    --------
+    >>> import toposweep as ts
+    >>> from toposweep.evaluation import prepare_request
+    >>> from toposweep.executors import ChunkRunner
+    >>> req = prepare_request(ts.models.bhz(), 2, inversion=None, sampling=ts.Sampling())
+    >>> points = [req.model.resolve({"mass": m}) for m in (-1.0, 3.0)]
+    >>> with ChunkRunner(None, PointsJob(req)) as runner:   # or a Dask client, a pool
+    ...     [r.value["nu0"].tolist() for r in runner.imap_unordered([points])]
+    [[1, 0]]
+    """
+
+    request: Request
+
+    def __call__(self, task: Sequence[dict[str, float]], threads: int | None) -> Any:
+        """The core's flat arrays of the points ``task`` (as ``evaluation.run_points``)."""
+        req = self.request
+        if threads != req.threads:
+            req = dataclasses.replace(req, threads=threads)
+        return run_points(req, list(task))
+
+
 class _Sizer:
     """Points per task: ~TASK_SECONDS by the workers' timings, a share of what is left."""
 
-    def __init__(self, fixed: int | None) -> None:
+    def __init__(self, fixed: int | None, total: int) -> None:
         self.fixed = fixed
         self.per_point: float | None = None
+        self.least = math.ceil(total / MAX_CHUNKS)
 
     def observe(self, seconds: float, points: int) -> None:
         rate = max(seconds / max(points, 1), 1e-7)
@@ -83,7 +123,9 @@ class _Sizer:
     def size(self, left: int, slots: int) -> int:
         if self.fixed is not None:
             return self.fixed
-        want = FIRST_TASK if self.per_point is None else int(TASK_SECONDS / self.per_point)
+        seconds = max(TASK_SECONDS, slots / MAX_TASK_RATE)
+        want = FIRST_TASK if self.per_point is None else int(seconds / self.per_point)
+        want = max(want, self.least)
         share = math.ceil(left / (4 * max(slots, 1)))  # the last tasks of a run stay short
         return max(1, min(want, share, MAX_TASK))
 
@@ -108,8 +150,8 @@ class Remote:
         flag: Any,
     ) -> bool:
         """Evaluate the flat ranges ``todo`` as tasks; False if Ctrl-C stopped the run."""
-        sizer = _Sizer(chunk_size)
         total = sum(b - a for a, b in todo)
+        sizer = _Sizer(chunk_size, total)
         left = total
         saved = 0
         checked = False
@@ -152,3 +194,21 @@ class Remote:
                 )
             raise ExecutorError(f"{exc} ({kept})") from exc.__cause__
         return saved == total
+
+
+@contextlib.contextmanager
+def remote_for(executor: Any, out: str | os.PathLike[str] | None = None) -> Iterator[Remote | None]:
+    """The :class:`Remote` of an ``executor=`` argument (None: run in this process).
+
+    A spec (``"local:N"``, ``"processes:N"``, an address) is opened here and closed on exit;
+    a client or executor given as an object stays the caller's. ``_run`` of
+    :mod:`toposweep.sweep` takes the result as its ``remote`` argument.
+    """
+    where = None if out is None else os.fspath(out)
+    if executor is None:
+        yield None
+    elif isinstance(executor, str):
+        with executor_from_spec(executor) as (ex, repair):
+            yield Remote(ex, repair, where)
+    else:
+        yield Remote(executor, None, where)
