@@ -166,6 +166,18 @@ def test_local_cluster_gives_the_in_process_dataset(client: Any) -> None:
     same(ts.sweep(model, grid, 2, executor=client, **FAST), here)
 
 
+def test_phase_map_on_the_cluster_is_the_in_process_one(client: Any, tmp_path: Path) -> None:
+    model = ts.models.wilson_dirac()
+    grid = {"mass": np.linspace(-4, 4, 33) + 0.013, "hopping": np.linspace(0.6, 1.4, 5)}
+    here = ts.phase_map(model, grid, 2, progress=False, loop_points=16, lines=9)
+    there = ts.phase_map(
+        model, grid, 2, progress=False, loop_points=16, lines=9, executor=client,
+        out=tmp_path / "map.nc",
+    )  # fmt: skip
+    same(there.load(), here)
+    there.close()
+
+
 def test_function_of_a_file_loaded_by_path_travels_by_value(
     client: Any, mapping_file: Path, tmp_path: Path
 ) -> None:

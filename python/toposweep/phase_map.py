@@ -48,6 +48,7 @@ from .store import (
     read_identity,
 )
 from .sweep import SweepInterrupted, _InterruptFlag
+from .sweep_executor import remote_for
 from .sweep_plan import Coefficients, SweepPlan, make_plan
 from .tightbinding import TightBinding
 from .transitions import locate_segments, probe_request, probes_of, segment_search
@@ -156,9 +157,11 @@ class _Evaluations:
         bar: ProgressBar,
         chunk_size: int | None,
         flag: _InterruptFlag,
+        remote: Any = None,
     ) -> None:
         self.plan, self.table, self.journal = plan, table, journal
         self.bar, self.chunk_size, self.flag = bar, chunk_size, flag
+        self.remote = remote  # (sweep_executor.Remote: chunks as tasks of an executor)
         self.raw: dict[str, NDArray[Any]] = {}
         self.count = 0
         self.finished = [] if journal is None else journal.finished()
@@ -204,7 +207,7 @@ class _Evaluations:
                 )
             self._store(indices[start:stop], raw)
 
-        if not _sweep._run(view, todo, save, self.bar, self.chunk_size, self.flag):  # type: ignore[arg-type]
+        if not _sweep._run(view, todo, save, self.bar, self.chunk_size, self.flag, self.remote):  # type: ignore[arg-type]
             raise KeyboardInterrupt
 
 
@@ -242,6 +245,7 @@ def phase_map(
     progress: bool = True,
     threads: int | None = None,
     chunk_size: int | None = None,
+    executor: Any = None,
     coarse_step: int | None = None,
     proven_only: bool = False,
     agreement_gap: float | None = None,
@@ -279,6 +283,10 @@ def phase_map(
         Worker threads of the core (default: one per core).
     chunk_size : int, optional
         Points per core call (default: adapted so a chunk takes about a second).
+    executor : dask.distributed.Client, concurrent.futures.Executor or str, optional
+        Evaluate the chosen points as tasks elsewhere, as :func:`toposweep.sweep` does
+        (``"local:N"``, ``"processes:N"``, a scheduler address); transitions are located in
+        this process. See docs/cluster.md.
     coarse_step : int, optional
         Spacing, in grid points, of the first evaluated sub-grid (ends always included).
         Default: the power of two giving about 8 cells along the longest axis and at least 2
@@ -354,7 +362,10 @@ def phase_map(
             return ds
     journal = None if target is None else Journal.start(target, plan.identity, resume)
     try:
-        ds = _compute(plan, settings, journal, progress, chunk_size, transitions, tol, target)
+        with remote_for(executor, target) as remote:
+            ds = _compute(
+                plan, settings, journal, progress, chunk_size, transitions, tol, target, remote
+            )
         if journal is not None and target is not None:
             write_map(plan, ds, target)
             journal.remove()
@@ -373,6 +384,7 @@ def _compute(
     transitions: bool,
     tol: float,
     out: str | None,
+    remote: Any = None,
 ) -> xr.Dataset:
     req = plan.request
     tr_broken, p_broken = _symmetry_breaks_everywhere(plan)
@@ -382,7 +394,7 @@ def _compute(
     bar = ProgressBar(1, enabled=progress)
     bar.total = 0
     with _InterruptFlag() as flag:
-        evals = _Evaluations(plan, table, journal, bar, chunk_size, flag)
+        evals = _Evaluations(plan, table, journal, bar, chunk_size, flag, remote)
         try:
             how, source, bound = refine(
                 table,
