@@ -31,26 +31,36 @@ from toposweep.store import Journal
 from toposweep.sweep_executor import evaluate_range
 from toposweep.sweep_plan import make_plan
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from baseline_models import stacked_wilson_dirac  # noqa: E402
 
-def grid(quick: bool) -> dict[str, np.ndarray]:
-    # large enough for tasks of ~2 s (TASK_SECONDS) once the rest of the grid allows them
+
+def cases(quick: bool) -> list[tuple[str, ts.TightBinding, dict[str, np.ndarray], int]]:
+    """(label, model, grid, filling): a cheap 4-band point (~1 ms) and a 16-band one."""
     n = 16 if quick else 40
-    return {"mass": np.linspace(-4.0, 4.0, n), "hopping": np.linspace(0.5, 1.5, n)}
+    wd = {"mass": np.linspace(-4.0, 4.0, n), "hopping": np.linspace(0.5, 1.5, n)}
+    stack = {"shift": np.linspace(-0.2, 0.2, 8 if quick else 24)}
+    return [
+        ("Wilson–Dirac, 4 bands, mass × hopping", ts.models.wilson_dirac(), wd, 2),
+        ("16 coupled bands, dense, shift", stacked_wilson_dirac(4, seed=2), stack, 8),
+    ]
 
 
-def sweep_rates(client: object, rounds: int, quick: bool) -> tuple[list[float], list[float], int]:
-    model, g = ts.models.wilson_dirac(), grid(quick)
+def sweep_rates(
+    client: object, model: ts.TightBinding, g: dict[str, np.ndarray], filling: int, rounds: int
+) -> tuple[list[float], list[float], int]:
+    """Points/s in this process and on the cluster, rounds interleaved; results compared."""
     n = int(np.prod([len(v) for v in g.values()]))
-    small = {k: v[:3] for k, v in g.items()}
-    ts.sweep(model, small, 2, progress=False)  # one-off set-up costs of both, untimed
-    ts.sweep(model, small, 2, progress=False, executor=client)
+    small = {k: v[:2] for k, v in g.items()}
+    ts.sweep(model, small, filling, progress=False)  # one-off set-up costs of both, untimed
+    ts.sweep(model, small, filling, progress=False, executor=client)
     here, there = [], []
     for _ in range(rounds):
         t0 = time.perf_counter()
-        a = ts.sweep(model, g, 2, progress=False)
+        a = ts.sweep(model, g, filling, progress=False)
         here.append(n / (time.perf_counter() - t0))
         t0 = time.perf_counter()
-        b = ts.sweep(model, g, 2, progress=False, executor=client)
+        b = ts.sweep(model, g, filling, progress=False, executor=client)
         there.append(n / (time.perf_counter() - t0))
         assert a.assign_attrs(created="").identical(b.assign_attrs(created=""))
     return here, there, n
@@ -107,20 +117,20 @@ def table(quick: bool = False, rounds: int = 3) -> list[str]:
     """Markdown lines of the three measurements."""
     cores = os.cpu_count() or 1
     out = [
-        f"| 3D Wilson–Dirac sweep, default sampling | points | in-process, {cores} threads "
+        f"| 3D sweep, default sampling | points | in-process, {cores} threads "
         f"(points/s) | LocalCluster {cores} × 1 thread (points/s) | cluster / in-process |",
         "|---|---:|---:|---:|---:|",
     ]
     with executor_from_spec(f"local:{cores}") as (client, _):
-        here, there, n = sweep_rates(client, rounds, quick)
-        ratios = [b / a for a, b in zip(here, there, strict=True)]
-        for i, (a, b) in enumerate(zip(here, there, strict=True)):
-            out.append(f"| round {i + 1} | {n} | {a:.0f} | {b:.0f} | {b / a:.2f} |")
-        out.append(
-            f"| **median (range)** | | {statistics.median(here):.0f} | "
-            f"{statistics.median(there):.0f} | **{statistics.median(ratios):.2f}** "
-            f"({min(ratios):.2f}–{max(ratios):.2f}) |"
-        )
+        for label, model, g, filling in cases(quick):
+            here, there, n = sweep_rates(client, model, g, filling, rounds)
+            ratios = [b / a for a, b in zip(here, there, strict=True)]
+            rows = " / ".join(f"{r:.2f}" for r in ratios)
+            out.append(
+                f"| {label} | {n} | {statistics.median(here):.1f} | "
+                f"{statistics.median(there):.1f} | **{statistics.median(ratios):.2f}** "
+                f"(rounds: {rows}) |"
+            )
         out += [
             "",
             "| per-task overhead (trivial tasks; wall per task × slots) | ms |",
