@@ -430,6 +430,34 @@ def test_a_lambda_reaches_a_process_pool() -> None:
         assert [r.value for r in runner.imap_unordered([1])] == [2]
 
 
+WITHOUT_DASK = textwrap.dedent(
+    """
+    import sys
+    for name in ("dask", "distributed", "cloudpickle"):
+        sys.modules[name] = None  # import fails as if not installed
+    import numpy as np, toposweep as ts
+    from toposweep.errors import ExecutorError
+    grid = {"mass": np.linspace(-3.0, 3.0, 7)}
+    here = ts.sweep(ts.models.bhz(), grid, 2, progress=False, loop_points=16, lines=9)
+    there = ts.sweep(ts.models.bhz(), grid, 2, progress=False, loop_points=16, lines=9,
+                     executor="processes:2")
+    assert here.assign_attrs(created="").identical(there.assign_attrs(created=""))
+    try:
+        ts.sweep(ts.models.bhz(), grid, 2, progress=False, executor="local:2")
+    except ExecutorError as exc:
+        print(exc)
+    """
+)
+
+
+def test_runs_without_dask_installed() -> None:
+    proc = subprocess.run(
+        [sys.executable, "-c", WITHOUT_DASK], capture_output=True, text=True, timeout=180
+    )
+    assert proc.returncode == 0, proc.stderr
+    assert "pip install 'toposweep[dask]'" in proc.stdout
+
+
 def test_executor_of_the_wrong_kind_is_refused() -> None:
     with pytest.raises(ts.ParameterError, match="concurrent.futures.Executor"):
         ts.sweep(ts.models.bhz(), {"mass": [1.0]}, 2, executor=object(), **FAST)
