@@ -408,6 +408,39 @@ def test_failing_task_is_retried_then_stops_keeping_what_finished() -> None:
         assert seen == [0, 1, 2]
 
 
+BROKEN_DISK = {"on": True}
+
+
+def mapping_with_a_bad_point(p: dict[str, float]) -> dict[str, float]:
+    if BROKEN_DISK["on"] and p["m"] > 2.0:
+        raise OSError("the model's data file is unreadable")
+    return {"mass": p["m"]}
+
+
+def test_chunk_failing_every_time_stops_the_sweep_keeping_the_rest(tmp_path: Path) -> None:
+    grid = {"m": np.linspace(-3.0, 3.0, 30)}
+    kw = {"coefficients": mapping_with_a_bad_point, "chunk_size": 3, **FAST}
+    out = tmp_path / "stopped.nc"
+    with ThreadPoolExecutor(2) as pool:
+        with pytest.raises(ExecutorError, match=r"failed 3 times.*unreadable.*resume=True"):
+            ts.sweep(ts.models.bhz(), grid, 2, out=out, executor=pool, **kw)
+    kept = len(list(journal_path(out).glob("chunk-*.npz")))
+    assert kept == 8  # every chunk below m = 2: those in flight at the stop were finished too
+    BROKEN_DISK["on"] = False
+    try:
+        with ThreadPoolExecutor(2) as pool:
+            ts.sweep(ts.models.bhz(), grid, 2, out=out, resume=True, executor=pool, **kw).close()
+    finally:
+        BROKEN_DISK["on"] = True
+    ref = tmp_path / "ref.nc"
+    BROKEN_DISK["on"] = False
+    try:
+        ts.sweep(ts.models.bhz(), grid, 2, out=ref, **kw).close()
+    finally:
+        BROKEN_DISK["on"] = True
+    same_files(out, ref)
+
+
 def test_tasks_in_flight_are_bounded() -> None:
     pulled = 0
     ahead: list[int] = []

@@ -73,6 +73,8 @@ __all__ = [
 KEPT_JOBS = 4
 #: seconds between looks at the executor while waiting (Ctrl-C and worker counts are seen)
 POLL_SECONDS = 0.5
+#: longest wait for the tasks in flight when a run stops on an error (their results are kept)
+DRAIN_SECONDS = 60.0
 #: module-name prefix of files toposweep loads by path (callable_model.file_module_name)
 FILE_MODULE_PREFIX = "toposweep_user_"
 
@@ -470,8 +472,8 @@ class ChunkRunner:
         Raises
         ------
         ExecutorError
-            A task failed ``retries + 1`` times, or the executor broke; results that had
-            already finished were yielded first.
+            A task failed ``retries + 1`` times, or the executor broke; the tasks still in
+            flight are finished (up to DRAIN_SECONDS) and yielded first.
         ToposweepError
             An error of toposweep's own from a task (raised at once, as it would be inline).
         """
@@ -509,22 +511,28 @@ class ChunkRunner:
                         continue
                     yield TaskResult(p.task, value, worker, seconds, p.attempts)
                 for p, exc in failed:
-                    yield from self._finished(pending, exc)
-                    self._failed(pending, p, exc)
+                    try:
+                        self._failed(pending, p, exc)
+                    except BaseException:
+                        # the run stops: first keep what the tasks still in flight finish
+                        yield from self._drain(pending)
+                        raise
         finally:
             self._backend.cancel(list(pending))
             self.running = 0
 
-    def _finished(self, pending: dict[Any, _Pending], exc: BaseException) -> Iterator[TaskResult]:
-        """Before a failure may stop the run: yield what already finished, so it is kept."""
-        if isinstance(exc, ToposweepError) or isinstance(exc, BrokenExecutor):
-            for h in [h for h in pending if h.done()]:
+    def _drain(self, pending: dict[Any, _Pending]) -> Iterator[TaskResult]:
+        """Yield the results of the tasks in flight (bounded wait; their failures ignored)."""
+        deadline = time.monotonic() + DRAIN_SECONDS
+        while pending and time.monotonic() < deadline:
+            done = self._backend.wait_any(list(pending), POLL_SECONDS)
+            for h in [h for h in pending if h in done]:
+                p = pending.pop(h)
                 try:
                     value, worker, seconds = h.result()
                 except Exception:
                     continue
                 if not (isinstance(value, str) and value == _MISSING):
-                    p = pending.pop(h)
                     yield TaskResult(p.task, value, worker, seconds, p.attempts)
 
     def _failed(self, pending: dict[Any, _Pending], p: _Pending, exc: BaseException) -> None:
