@@ -191,6 +191,15 @@ def test_function_of_a_file_loaded_by_path_travels_by_value(
     there.close()
 
 
+def test_each_task_gets_its_share_of_the_host_cores(client: Any) -> None:
+    with ChunkRunner(client, ThreadsJob()) as runner:
+        threads = {r.value for r in runner.imap_unordered(range(4))}
+    # two one-thread workers on this host: each task gets cores // 2
+    assert threads == {max(1, len(os.sched_getaffinity(0)) // 2)}
+    with ChunkRunner(client, ThreadsJob(), threads=1) as runner:
+        assert {r.value for r in runner.imap_unordered(range(2))} == {1}
+
+
 def test_job_reaches_each_worker_once(client: Any) -> None:
     with ChunkRunner(client, CountingJob()) as runner:
         seen = [r.value for r in runner.imap_unordered(range(12))]
@@ -514,6 +523,11 @@ class CountingJob:
 
     def __call__(self, task: Any, threads: int | None) -> tuple[int, int]:
         return os.getpid(), type(self).loads
+
+
+class ThreadsJob:
+    def __call__(self, task: Any, threads: int | None) -> int | None:
+        return threads
 
 
 class FailingJob:

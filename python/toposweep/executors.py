@@ -21,8 +21,9 @@ its ``(start, stop)`` range — and runs tasks of it on an executor:
   is raised at once: it would fail the same way anywhere. A user's pool that broke (a process
   killed) cannot be repaired; the run stops with :class:`~toposweep.errors.ExecutorError`.
 - **Threads.** Every slot of an executor (a Dask worker thread, a pool process) runs one task
-  at a time, so each task runs the core on ``threads`` threads (default 1: the worker's slots
-  together use exactly its threads, never more than its cores).
+  at a time, so each task runs the core on ``threads`` threads; by default a host's cores are
+  shared among the worker threads on it (:func:`fitting_threads`; 1 for executors whose hosts
+  are unknown), so a worker never uses more than its share of the cores.
 
 ``executor=None`` runs the tasks inline in the calling process, so code that drives a
 :class:`ChunkRunner` has one path for both.
@@ -52,6 +53,7 @@ from concurrent.futures import (
     BrokenExecutor,
     Executor,
     Future,
+    ProcessPoolExecutor,
     ThreadPoolExecutor,
     wait,
 )
@@ -152,12 +154,14 @@ def _job_for(key: str, payload: bytes | None) -> Any:
         return job
 
 
-def run_task(key: str, payload: bytes | None, task: Any, threads: int | None) -> tuple[Any, ...]:
+def run_task(key: str, payload: bytes | None, task: Any, threads: Any) -> tuple[Any, ...]:
     """What a worker runs for one task: ``(value, worker, seconds)``.
 
     ``payload`` is the pickled job (on Dask: resolved from the scattered copy on this worker);
     ``None`` when the caller assumes the worker has it, and if it has not, the task returns at
-    once asking for it. ``threads=None`` runs the core on every core (only inline).
+    once asking for it. ``threads``: core threads of the task (capped at the worker's cores),
+    ``{host: worker threads on it}`` to share each host's cores (:func:`fitting_threads`), or
+    None for every core (only inline).
     """
     job = _job_for(key, payload)
     if job is None:
@@ -165,8 +169,38 @@ def run_task(key: str, payload: bytes | None, task: Any, threads: int | None) ->
     return _call(job, task, threads)
 
 
-def _call(job: Any, task: Any, threads: int | None) -> tuple[Any, str, float]:
-    if threads is not None:
+def fitting_threads(threads_on_host: int, cores: int) -> int:
+    """Core threads of one task: the host's cores shared among the worker threads on it.
+
+    Each worker thread (slot) runs one task at a time, so a host whose workers have T threads
+    in all gives each task ``cores // T`` threads: a lone one-thread worker on a 32-core node
+    uses all 32, 32 one-thread workers (or one worker of 32 threads) one each.
+
+    Examples
+    --------
+    >>> [fitting_threads(t, cores) for t, cores in [(1, 32), (32, 32), (2, 2), (3, 2)]]
+    [32, 1, 1, 1]
+    """
+    return max(1, cores // max(int(threads_on_host), 1))
+
+
+def _host(address: str) -> str:
+    """Host part of a worker address such as ``tcp://10.0.0.5:40021`` or ``host:pid``.
+
+    Examples
+    --------
+    >>> _host("tcp://10.0.0.5:40021"), _host("tls://[::1]:8786"), _host("node7:1234")
+    ('10.0.0.5', '::1', 'node7')
+    """
+    rest = address.split("://", 1)[-1]
+    return rest.rsplit(":", 1)[0].strip("[]")
+
+
+def _call(job: Any, task: Any, threads: Any) -> tuple[Any, str, float]:
+    if isinstance(threads, dict):  # {host: worker threads on it} ("*": any host)
+        here = _host(_worker_name())
+        threads = fitting_threads(threads.get(here, threads.get("*", 1)), _usable_cores())
+    elif threads is not None:
         threads = max(1, min(int(threads), _usable_cores()))
     t0 = time.perf_counter()
     value = job(task, threads)
@@ -231,7 +265,7 @@ class _Inline:
     def workers(self) -> int:
         return 1
 
-    def submit(self, key: str, payload: Any, task: Any, threads: int | None) -> Future[Any]:
+    def submit(self, key: str, payload: Any, task: Any, threads: Any) -> Future[Any]:
         fut: Future[Any] = Future()
         t0 = time.perf_counter()
         try:
@@ -276,7 +310,11 @@ class _Pool:
 
     workers = slots
 
-    def submit(self, key: str, payload: Any, task: Any, threads: int | None) -> Any:
+    def host_threads(self) -> dict[str, int] | None:
+        """A local process pool shares this machine's cores; elsewhere: unknown (None)."""
+        return {"*": self.slots()} if isinstance(self.executor, ProcessPoolExecutor) else None
+
+    def submit(self, key: str, payload: Any, task: Any, threads: Any) -> Any:
         if self.job is not None:
             return self.executor.submit(_call, self.job, task, threads)
         return self.executor.submit(run_task, key, payload, task, threads)
@@ -310,6 +348,7 @@ class _Dask:
 
         self.client, self._wait = client, distributed.wait
         self._counted = (0.0, 1, 1)
+        self._host_threads: dict[str, int] = {}
 
     def _count(self) -> tuple[int, int]:
         t, slots, workers = self._counted
@@ -317,7 +356,16 @@ class _Dask:
             threads = self.client.nthreads()
             slots, workers = max(1, sum(threads.values())), len(threads)
             self._counted = (time.monotonic(), slots, workers)
+            per_host: dict[str, int] = {}
+            for address, n in threads.items():
+                per_host[_host(address)] = per_host.get(_host(address), 0) + n
+            self._host_threads = per_host
         return slots, workers
+
+    def host_threads(self) -> dict[str, int]:
+        """Worker threads per host (each task shares its host's cores among them)."""
+        self._count()
+        return self._host_threads
 
     def slots(self) -> int:
         return self._count()[0]
@@ -370,7 +418,8 @@ class ChunkRunner:
     job : callable
         ``job(task, threads) -> value``, picklable (see the module notes on functions).
     threads : int, optional
-        Core threads per task on a worker (default 1; capped at the worker's cores). Inline,
+        Core threads per task on a worker (capped at its cores). Default: each host's cores
+        shared among the worker threads on it (Dask; a local process pool), else 1. Inline,
         ``None`` means every core.
     in_flight : int, optional
         Most tasks submitted at once (default twice the executor's slots, rechecked as a Dask
@@ -402,10 +451,10 @@ class ChunkRunner:
             self.threads = threads
         elif is_dask_client(executor):
             self._backend = _Dask(executor)
-            self.threads = 1 if threads is None else threads
+            self.threads = threads
         elif isinstance(executor, Executor):
             self._backend = _Pool(executor, repair, job)
-            self.threads = 1 if threads is None else threads
+            self.threads = threads
         else:
             raise ParameterError(
                 "executor must be a dask.distributed.Client, a concurrent.futures.Executor "
@@ -440,6 +489,12 @@ class ChunkRunner:
         """Worker processes (Dask workers, pool processes)."""
         return self._backend.workers()
 
+    def task_threads(self) -> Any:
+        """``threads`` as given, else each host's cores shared by its worker threads."""
+        if self.threads is not None or isinstance(self._backend, _Inline):
+            return self.threads
+        return self._backend.host_threads() or 1
+
     def in_flight(self) -> int:
         """Most tasks submitted at once right now."""
         return self._in_flight or 2 * self.slots
@@ -455,7 +510,7 @@ class ChunkRunner:
     def _submit(self, pending: dict[Any, _Pending], p: _Pending) -> None:
         payload = self._payload_arg(p.with_payload)
         try:
-            h = self._backend.submit(self.key, payload, p.task, self.threads)
+            h = self._backend.submit(self.key, payload, p.task, self.task_threads())
         except Exception as exc:  # a pool already known broken refuses new tasks at once
             h = Future()
             h.set_exception(exc)

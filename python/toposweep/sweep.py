@@ -279,8 +279,9 @@ def sweep(
         ``ProcessPoolExecutor``), or a spec — ``"local:N"`` (a Dask cluster of N one-thread
         worker processes on this machine), ``"processes:N"`` (a process pool toposweep
         rebuilds if a process dies), a scheduler address. The model reaches each worker once;
-        each task runs the core on ``threads`` threads (default 1 per worker thread); this
-        process keeps the journal and writes the file as without one. See docs/cluster.md.
+        each task runs the core on ``threads`` threads (default: its share of its host's
+        cores); this process keeps the journal and writes the file as without one. See
+        docs/cluster.md.
     **sampling
         ``loop_points``, ``lines``, ``max_lines``, ``step_limit``, ``gap_floor``,
         ``gap_points``; see :class:`toposweep.Sampling`.
