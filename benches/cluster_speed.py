@@ -7,7 +7,9 @@
 (b) the per-task overhead: the round trip of trivial tasks (no work) through the cluster and
     through a process pool — submission, scheduling, transfer of the result, the caller's
     bookkeeping — as the wall time per task times the slots (what one slot loses per task);
-(c) what the caller does per finished chunk: the journal write (``.npz``, fsync, rename).
+(c) what the caller does per finished chunk: the journal write (``.npz``, fsync, rename);
+(d) the caller's peak memory (``ru_maxrss``, a fresh process each) for a 2D sweep to a file on
+    a ``LocalCluster`` of 2 workers, against the number of points (full run only).
 
 Usage::
 
@@ -113,6 +115,40 @@ def journal_write(points: int, repeats: int = 20) -> tuple[float, int]:
     return statistics.median(times), size
 
 
+CALLER = r"""
+import json, resource, sys, tempfile, time
+import numpy as np, toposweep as ts
+from toposweep.executors import executor_from_spec
+if __name__ == "__main__":
+    n = int(sys.argv[1])
+    rows = int(np.sqrt(n)); cols = n // rows
+    grid = {"mass": np.linspace(-3, 3, rows), "hopping": np.linspace(0.2, 2, cols)}
+    with executor_from_spec("local:2") as (client, _), tempfile.TemporaryDirectory() as tmp:
+        ts.sweep(ts.models.bhz(), {"mass": [1.0]}, 2, progress=False, executor=client)
+        before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+        t0 = time.perf_counter()
+        ts.sweep(ts.models.bhz(), grid, 2, out=tmp + "/m.nc", progress=False, executor=client,
+                 loop_points=12, lines=7).close()
+        peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+        print(json.dumps({"points": rows * cols, "before": before, "peak": peak,
+                          "seconds": time.perf_counter() - t0}))
+"""
+
+
+def caller_memory(points: int) -> dict[str, float]:
+    """Peak RSS (KiB) of a fresh caller before and after a sweep of ``points`` on a cluster."""
+    import json
+    import subprocess
+
+    with tempfile.TemporaryDirectory() as tmp:
+        script = Path(tmp) / "caller.py"  # (a file: the workers import the caller's main)
+        script.write_text(CALLER)
+        proc = subprocess.run(
+            [sys.executable, str(script), str(points)], capture_output=True, text=True, check=True
+        )
+    return json.loads(proc.stdout.strip().splitlines()[-1])
+
+
 def table(quick: bool = False, rounds: int = 3) -> list[str]:
     """Markdown lines of the three measurements."""
     cores = os.cpu_count() or 1
@@ -156,6 +192,19 @@ def table(quick: bool = False, rounds: int = 3) -> list[str]:
         seconds, size = journal_write(points)
         kib, ms = size / 1024, 1e3 * seconds
         out.append(f"| .npz + fsync + rename | {points} | {kib:.0f} | {ms:.1f} |")
+    if not quick:
+        out += [
+            "",
+            "| caller on a LocalCluster, 2D sweep to a file | points | peak RSS before "
+            "the sweep (MiB) | peak RSS after (MiB) | time (s) |",
+            "|---|---:|---:|---:|---:|",
+        ]
+        for points in (2_000, 40_000):
+            r = caller_memory(points)
+            out.append(
+                f"| bhz, `loop_points=12, lines=7` | {r['points']:,} | {r['before'] / 1024:.0f} "
+                f"| {r['peak'] / 1024:.0f} | {r['seconds']:.1f} |"
+            )
     return out
 
 
