@@ -27,7 +27,7 @@ import numpy as np
 import pytest
 import toposweep as ts
 import xarray as xr
-from toposweep import executors
+from toposweep import executor_backends, executors
 from toposweep.callable_model import load_file_module
 from toposweep.errors import ExecutorError, ModelError
 from toposweep.executors import ChunkRunner, ScaledSum
@@ -377,13 +377,13 @@ def test_pool_of_our_own_is_rebuilt_after_a_kill(
     mapping_file: Path, slow_reference: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     made: list[ProcessPoolExecutor] = []
-    make = executors._process_pool
+    make = executor_backends._process_pool
 
     def recording(n: int) -> Any:
         made.append(make(n))
         return made[-1]
 
-    monkeypatch.setattr(executors, "_process_pool", recording)
+    monkeypatch.setattr(executor_backends, "_process_pool", recording)
     kw = {"coefficients": slow_mapping(mapping_file), "params": SLOW_PARAMS, "chunk_size": 5}
     out = tmp_path / "own.nc"
     t, box = in_thread(
