@@ -9,6 +9,7 @@ thread pools half-made). A watchdog ends the test process instead of letting CI 
 
 from __future__ import annotations
 
+import contextlib
 import faulthandler
 import os
 import signal
@@ -260,20 +261,21 @@ CALLER_SCRIPT = textwrap.dedent(
     from toposweep.callable_model import load_file_module
     mapping = load_file_module(Path(sys.argv[2])).slow_mass
     ts.sweep(ts.models.bhz(), {"m": np.linspace(-3.0, 3.0, 90)}, 2, out=sys.argv[1],
-             coefficients=mapping, params={"nap": 0.03}, chunk_size=5, executor="local:2",
+             coefficients=mapping, params={"nap": 0.03}, chunk_size=5, executor=sys.argv[3],
              loop_points=16, lines=9, progress=False)
     """
 )
 
 
+@pytest.mark.parametrize("spec", ["local:2", "processes:2"])
 def test_caller_killed_then_resumed_on_a_fresh_cluster(
-    client: Any, mapping_file: Path, slow_reference: Path, tmp_path: Path
+    spec: str, client: Any, mapping_file: Path, slow_reference: Path, tmp_path: Path
 ) -> None:
     kw = {"coefficients": slow_mapping(mapping_file), "params": SLOW_PARAMS, "chunk_size": 5}
     out = tmp_path / "caller.nc"
-    # its own session: the caller and the cluster it started die together, as on a lost node
+    # its own session: the caller and the workers it started die together, as on a lost node
     proc = subprocess.Popen(
-        [sys.executable, "-c", CALLER_SCRIPT, str(out), str(mapping_file)],
+        [sys.executable, "-c", CALLER_SCRIPT, str(out), str(mapping_file), spec],
         start_new_session=True,
     )
     try:
@@ -284,9 +286,12 @@ def test_caller_killed_then_resumed_on_a_fresh_cluster(
             os.killpg(proc.pid, signal.SIGKILL)
         proc.wait(30)
     assert not out.exists() and kept < 18
-    resumed = ts.sweep(
-        ts.models.bhz(), SLOW_GRID, 2, out=out, resume=True, executor=client, **kw, **FAST
-    )
+    # resumed on the other kind: the journal does not care where chunks ran
+    with contextlib.ExitStack() as stack:
+        where = client if spec.startswith("processes") else stack.enter_context(forkserver_pool())
+        resumed = ts.sweep(
+            ts.models.bhz(), SLOW_GRID, 2, out=out, resume=True, executor=where, **kw, **FAST
+        )
     resumed.close()
     same_but_the_nap(out, slow_reference)
 
