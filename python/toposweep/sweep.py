@@ -212,7 +212,7 @@ def _run(
                 terms = plan.request.model.parameters
                 raw[TERM_VALUES] = np.array([[p[t] for t in terms] for p in points], float)
             save(start, stop, raw)
-            bar.update(stop - start)
+            bar.update(stop - start, undefined=int(np.count_nonzero(raw["nu0"] < 0)))
             if chunk_size is None:  # next chunk sized to last about CHUNK_SECONDS
                 per_point = max((time.perf_counter() - t0) / (stop - start), 1e-7)
                 size = int(min(MAX_CHUNK, max(workers, CHUNK_SECONDS / per_point)))
@@ -379,6 +379,10 @@ def _sweep_to_file(
         todo = missing_ranges(finished, plan.size)
         done = plan.size - sum(b - a for a, b in todo)
         bar = ProgressBar(plan.size, done=done, enabled=progress)
+        if bar.shown:  # the undefined points of the chunks a resumed run already has
+            bar.undefined = sum(
+                int(np.count_nonzero(journal.load(a, b)["nu0"] < 0)) for a, b in finished
+            )
 
         def save(start: int, stop: int, raw: Mapping[str, NDArray[Any]]) -> None:
             journal.save(start, stop, raw)
