@@ -369,8 +369,8 @@ def test_result_reader_on_random_bytes(data, tmp_path_factory):
 
 def test_complex_lattice_vectors_and_kappa_are_rejected_not_truncated():
     """Found by fuzzing: numpy casts complex to float with only a warning."""
-    m = ts.TightBinding(1, 2)
+    m = ts.TightBinding(2, 2)
     with pytest.raises(ts.ModelError, match="R must be"):
-        m.add(np.array([1 + 0.5j]), np.eye(2))
+        m.add(np.array([1 + 0.5j, 0]), np.eye(2))
     with pytest.raises(ts.ModelError, match="kappa must be real"):
         ts.models.bhz().hamiltonian(np.array([[0.1 + 0.3j, 0.2]]))

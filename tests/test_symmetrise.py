@@ -93,7 +93,7 @@ def test_wrong_operator_and_wrong_input_are_refused():
         wrong.add(r, t, term)
     with pytest.raises(ts.ModelError, match="operator is likely wrong"):
         ts.symmetrise(wrong)
-    no_op = ts.TightBinding(1, 2).add((1,), np.eye(2))
+    no_op = ts.TightBinding(2, 2).add((1, 0), np.eye(2))
     with pytest.raises(ts.ModelError, match="no time_reversal operator"):
         ts.symmetrise(no_op)
     with pytest.raises(ts.ModelError, match="nothing to do"):

@@ -34,7 +34,7 @@ class CallableModel(Model):
         The vectorised Hamiltonian. Keyword parameters with defaults in its signature become
         the model's :attr:`defaults`.
     dim, norb : int
-        Spatial dimension and number of orbitals.
+        Spatial dimension (2 or 3) and number of orbitals.
     parameters : sequence of str, optional
         Parameter names; by default every keyword parameter of ``func`` after ``kappa``.
     **kwargs
@@ -45,12 +45,12 @@ class CallableModel(Model):
     --------
     >>> import numpy as np
     >>> from toposweep import CallableModel
-    >>> def chain(kappa, m=0.5):
-    ...     k = 2 * np.pi * kappa[:, 0]
-    ...     h = np.zeros((len(k), 2, 2), complex)
-    ...     h[:, 0, 0], h[:, 1, 1] = m + np.cos(k), -m - np.cos(k)
+    >>> def square(kappa, m=0.5):
+    ...     d = m + np.cos(2 * np.pi * kappa).sum(axis=1)
+    ...     h = np.zeros((len(kappa), 2, 2), complex)
+    ...     h[:, 0, 0], h[:, 1, 1] = d, -d
     ...     return h
-    >>> model = CallableModel(chain, dim=1, norb=2)
+    >>> model = CallableModel(square, dim=2, norb=2)
     >>> model.parameters, model.defaults
     (('m',), {'m': 0.5})
     """
