@@ -15,7 +15,6 @@ import pytest
 import toposweep as ts
 from toposweep import _core
 from toposweep.dataset import ResultLayout, build_dataset, plan_dataset
-from toposweep.errors import SymmetryError
 from toposweep.evaluation import prepare_request, run_points
 from toposweep.sampling import Sampling
 
@@ -107,15 +106,16 @@ def test_callable_error_wins_over_the_core_error(wd_core, threads):
 
 
 @pytest.mark.parametrize("threads", [1, 2])
-def test_symmetry_errors_of_one_point_still_raise(threads):
-    """invariants() checks time reversal beside the core; a point without it is refused."""
+def test_symmetry_breaks_of_one_point_still_warn(threads):
+    """invariants() checks time reversal beside the core; a point without it is undefined."""
     m = ts.models.wilson_dirac()
     m.add((1, 0, 0), 1j * np.eye(4), term="b")  # i·1 hopping: odd under Θ = iσ_y K
     m.defaults["b"] = 0.0
     # b = 0: the Wilson-Dirac model at m = -2, (1;000) (Fu & Kane, Phys. Rev. B 76, 045302 (2007))
     assert int(ts.invariants(m, 2, {"b": 0.0}, threads=threads, **SMALL).nu0) == 1
-    with pytest.raises(SymmetryError, match="time.reversal"):
-        ts.invariants(m, 2, {"b": 0.3}, threads=threads, **SMALL)
+    with pytest.warns(ts.SymmetryWarning, match="time.reversal"):
+        ds = ts.invariants(m, 2, {"b": 0.3}, threads=threads, **SMALL)
+    assert int(ds.nu0) == -1 and int(ds.undefined_reason) == 8
 
 
 def test_layout_equals_the_dataset_built_afterwards():

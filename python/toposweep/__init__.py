@@ -27,6 +27,7 @@ from .errors import (  # noqa: E402
     SamplingError,
     StoreError,
     SymmetryError,
+    SymmetryWarning,
     ToposweepError,
 )
 from .model import Model  # noqa: E402
@@ -52,6 +53,7 @@ __all__ = [
     "StoreError",
     "SweepInterrupted",
     "SymmetryError",
+    "SymmetryWarning",
     "TightBinding",
     "ToposweepError",
     "find_transition",

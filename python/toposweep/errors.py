@@ -16,6 +16,7 @@ __all__ = [
     "StoreError",
     "ConfigError",
     "ExecutorError",
+    "SymmetryWarning",
 ]
 
 
@@ -56,4 +57,14 @@ class ExecutorError(ToposweepError, RuntimeError):
 
     A task failed again and again, the executor broke, or the run cannot be sent to (or loaded
     on) the workers.
+    """
+
+
+class SymmetryWarning(UserWarning):
+    """The declared time reversal does not hold at the points of a call: they are undefined.
+
+    Such points are results, not errors: their indices are −1 with reason 8
+    (``time_reversal_broken_at_this_point``), in :func:`toposweep.invariants` and in sweeps
+    alike. The warning carries the residual and how to fix a model that is only nearly
+    symmetric.
     """

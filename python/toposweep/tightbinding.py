@@ -25,8 +25,9 @@ class TightBinding(Model):
     κ are reduced coordinates. Each call to :meth:`add` puts a hopping matrix T on the bond to
     lattice vector R ≠ 0; its Hermitian conjugate at −R is implied, so add every bond once
     (adding both R and −R counts the bond twice). The on-site block T_0 (R = 0) is counted
-    once, with no conjugate added, and must itself be Hermitian. ``term=None`` adds to the fixed part; ``term="x"`` scales the hopping by
-    the parameter ``x``, so a parameter point costs only a linear combination.
+    once, with no conjugate added, and must itself be Hermitian. ``term=None`` adds to the
+    fixed part; ``term="x"`` scales the hopping by the parameter ``x``, so a parameter point
+    costs only a linear combination.
 
     Parameters
     ----------
