@@ -31,6 +31,7 @@ from .errors import (  # noqa: E402
     ToposweepError,
 )
 from .model import Model  # noqa: E402
+from .model_files import load_model, save_model  # noqa: E402
 from .phase_map import phase_map  # noqa: E402
 from .sampling import Sampling  # noqa: E402
 from .store import open_result  # noqa: E402
@@ -58,10 +59,12 @@ __all__ = [
     "ToposweepError",
     "find_transition",
     "invariants",
+    "load_model",
     "model_from_dict",
     "models",
     "open_result",
     "phase_map",
+    "save_model",
     "sweep",
     "symmetrise",
     "wcc_flow",

@@ -141,6 +141,17 @@ class TightBinding(Model):
         t.setflags(write=False)
         return t
 
+    @classmethod
+    def from_hoppings(cls, R: ArrayLike, T: ArrayLike, **kwargs: Any) -> TightBinding:
+        """A model from lattice vectors R (nR, dim) and matrices T (nR, norb, norb).
+
+        Half or full lists (full ones checked for Hermitian pairs); see
+        :func:`toposweep.model_files.from_hoppings` for the options.
+        """
+        from .model_files import from_hoppings
+
+        return from_hoppings(R, T, **kwargs)
+
     # -- model interface --------------------------------------------------------------------------
     @property
     def terms(self) -> tuple[str, ...]:
