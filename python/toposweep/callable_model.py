@@ -117,10 +117,15 @@ class CallableModel(Model):
                 raise ModelError(
                     f"{self.name}: func must return complex numbers, got dtype {h.dtype} ({exc})"
                 ) from None
-            if not np.all(np.isfinite(h)):
+            # (on the float view: no complex modulus, no temporary for isfinite; one pass for
+            # the scale, which is NaN or infinite exactly when an entry is; see
+            # benches/callable_cost.py and docs/callable-models.md)
+            scale = float(np.max(np.abs(h.view(np.float64)), initial=0.0))
+            if not np.isfinite(scale):
                 raise ModelError(f"{self.name}: func returned NaN or infinity at {pts[point]}")
-            herm = np.abs(h - h.conj().transpose(0, 2, 1)).max(initial=0.0)
-            if herm > 1e-8 * max(1.0, float(np.abs(h).max(initial=0.0))):
+            diff = (h - h.conj().swapaxes(1, 2)).view(np.float64)
+            herm = float(np.max(np.abs(diff), initial=0.0))  # (largest |Re| or |Im| of H − H†)
+            if herm > 1e-8 * max(1.0, scale):
                 raise ModelError(
                     f"{self.name}: func returned non-Hermitian matrices (max |H − H†| = {herm:.2e})"
                 )
