@@ -16,8 +16,9 @@ check_cpu()  # before the extension is loaded: a clear error instead of "illegal
 
 from . import models  # noqa: E402
 from ._version import __version__  # noqa: E402
-from .api import invariants, wcc_flow  # noqa: E402
+from .api import invariants  # noqa: E402
 from .callable_model import CallableModel  # noqa: E402
+from .centre_flow import centre_flow, wcc_flow  # noqa: E402
 from .errors import (  # noqa: E402
     ConfigError,
     ExecutorError,
@@ -57,6 +58,7 @@ __all__ = [
     "SymmetryWarning",
     "TightBinding",
     "ToposweepError",
+    "centre_flow",
     "find_transition",
     "invariants",
     "load_model",

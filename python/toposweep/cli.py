@@ -111,7 +111,7 @@ def _plot(args: argparse.Namespace) -> int:
             fig = flow_figure(ds, at, allow_code=args.allow_code)
             default = path.with_name(path.stem + "-flow.png")
         elif not dims:
-            raise ParameterError(f"{path} holds a single point; use --flow to draw its HWC flow")
+            raise ParameterError(f"{path} holds a single point; use --flow to draw its centre flow")
         else:
             x = args.x or dims[0]
             others = [d for d in dims if d != x and d not in at]
@@ -171,7 +171,7 @@ def _parser() -> _Parser:
     summ.add_argument("file", help="result file (.nc)")
     summ.set_defaults(func=_summary)
 
-    plot = sub.add_parser("plot", help="phase diagram, index/gap line, or HWC flow as PNG")
+    plot = sub.add_parser("plot", help="phase diagram, index/gap line, or centre flow as PNG")
     plot.add_argument("file", help="result file (.nc)")
     plot.add_argument("--x", help="swept parameter along the horizontal axis")
     plot.add_argument("--y", help="swept parameter along the vertical axis (phase diagram)")
@@ -187,7 +187,11 @@ def _parser() -> _Parser:
     plot.add_argument(
         "--evaluated", action="store_true", help="mark the points a phase map evaluated"
     )
-    plot.add_argument("--flow", action="store_true", help="HWC flow of the point given by --at")
+    plot.add_argument(
+        "--flow",
+        action="store_true",
+        help="centre flow (hybrid Wannier centres) of the point given by --at",
+    )
     plot.add_argument(
         "--allow-code",
         action="store_true",

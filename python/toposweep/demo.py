@@ -45,7 +45,7 @@ WEIGHT = xr.DataArray(
     dims="weight",
     attrs={"long_name": "f quasiparticle factor z", "units": "1"},
 )
-#: a point in the strong-TI region whose Wannier centre flow the demo draws
+#: a point in the strong-TI region whose centre flow (hybrid Wannier centres) the demo draws
 FLOW_POINT = {"f_level": -1.5, "weight": 0.8}
 #: the cut drawn with its gaps (a uniform sweep along f_level at this z)
 CUT_WEIGHT = 0.6

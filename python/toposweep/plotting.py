@@ -1,4 +1,4 @@
-"""Pictures of results (matplotlib): phase diagrams, index/gap lines, Wannier centre flow.
+"""Pictures of results (matplotlib): phase diagrams, index/gap lines, centre flows.
 
 Every phase has one fixed colour, the same in every figure (:mod:`toposweep.phase_style`:
 a colour per set of indices (ν0; ν1ν2ν3), chosen to stay apart under colour-blind vision;
@@ -296,19 +296,54 @@ def plot_line(ds: xr.Dataset, x: str, *, at: Mapping[str, float] | None = None) 
     return fig
 
 
-def plot_flow(flows: Sequence[xr.Dataset], z2: Sequence[int], title: str) -> Figure:
-    """Hybrid Wannier centres against the pump coordinate, one panel per plane."""
+#: centre flow markers: the evenly spaced initial lines and the lines inserted between them
+#: (Tol's vibrant blue and orange, told apart in colour-blind vision too)
+FLOW_INITIAL, FLOW_INSERTED = "#0077BB", "#EE7733"
+
+
+def plot_flow(
+    flows: Sequence[xr.Dataset],
+    z2: Sequence[int] | None = None,
+    title: str | None = None,
+) -> Figure:
+    """Centre flows — hybrid Wannier centres against the pump coordinate — one panel per plane.
+
+    Each flow is a :func:`toposweep.centre_flow` result. A panel shows the centres of every
+    pump line the index came from, the lines inserted where the centres moved fast in orange
+    (with a tick above the panel), and its plane's Z2 in the panel title. ``z2`` overrides the
+    flows' own values; ``title`` defaults to the model's name and the parameters.
+
+    Examples
+    --------
+    >>> import toposweep as ts
+    >>> flow = ts.centre_flow(ts.models.bhz(), 2, {"mass": -1.0})
+    >>> plot_flow([flow]).axes[0].get_title()
+    '2D model: Z2 = 1'
+    """
     n = len(flows)
+    if n == 0:
+        raise ParameterError("plot_flow needs at least one centre flow")
+    if z2 is None:
+        z2 = [int(f.z2) if "z2" in f else -1 for f in flows]
     cols = 3 if n == 6 else n
     rows = 2 if n == 6 else 1
-    size = (3.0 * cols + 0.6, 2.9 * rows + 0.6) if n > 1 else (6.4, 4.6)
+    size = (3.0 * cols + 0.6, 2.9 * rows + 0.9) if n > 1 else (6.4, 4.8)
     fig = Figure(figsize=size, layout="constrained")
     axes = fig.subplots(rows, cols, squeeze=False, sharey=True)
     for i, (flow, z) in enumerate(zip(flows, z2, strict=True)):
         ax = axes[i % rows][i // rows] if n == 6 else axes[0][i]
         pump = flow.pump.values
-        for band in range(flow.sizes["band"]):
-            ax.plot(pump, flow.centre.values[:, band], ".", ms=2.5, color="#2d5f94")
+        centres = flow.centre.values
+        inserted = flow.inserted.values if "inserted" in flow else np.zeros(len(pump), bool)
+        for mask, colour, label in ((~inserted, FLOW_INITIAL, "initial line"),
+                                    (inserted, FLOW_INSERTED, "inserted line")):  # fmt: skip
+            if mask.any():
+                xs = np.repeat(pump[mask], centres.shape[1])
+                ax.plot(xs, centres[mask].ravel(), ".", ms=3, color=colour, label=label)
+        if inserted.any():  # where lines were inserted, above the panel
+            top = ax.get_xaxis_transform()  # (x in data, y in axes fractions)
+            ax.plot(pump[inserted], np.ones(int(inserted.sum())), "v", ms=3.5,
+                    color=FLOW_INSERTED, clip_on=False, transform=top)  # fmt: skip
         ax.set_xlim(0, 0.5)
         ax.set_ylim(0, 1)
         if "plane_axis" in flow.attrs:
@@ -317,7 +352,16 @@ def plot_flow(flows: Sequence[xr.Dataset], z2: Sequence[int], title: str) -> Fig
             plane = "2D model"
         z_text = "undefined" if z < 0 else str(z)
         ax.set_title(f"{plane}: Z2 = {z_text}", fontsize=9)
-        ax.set_xlabel(axis_label(flow.pump))
-        ax.set_ylabel(axis_label(flow.centre).replace("hybrid Wannier centre", "HWC"))
+        ax.set_xlabel(f"pump coordinate κ{flow.attrs.get('pump_axis', 2)}")
+        ax.set_ylabel(f"centre along κ{flow.attrs.get('loop_axis', 1)}")
+        if i == 0 and inserted.any():
+            ax.legend(loc="lower right", fontsize=7, framealpha=0.8, markerscale=2)
+    if title is None:
+        first = flows[0]
+        params = {str(k): float(v) for k, v in first.coords.items() if v.ndim == 0}
+        where = ", ".join(f"{k} = {v:.4g}" for k, v in params.items())
+        name = str(first.attrs.get("model_name", ""))
+        title = "centre flow (hybrid Wannier centres)" + (f", {name}" if name else "")
+        title += f"\n{where}" if where else ""
     fig.suptitle(title, fontsize=10)
     return fig
