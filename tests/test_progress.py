@@ -93,3 +93,14 @@ def test_resumed_sweep_counts_the_undefined_points_it_already_had(tmp_path, monk
     assert "9/9" in last_line(term.getvalue())
     assert f"{int((ds.nu0 < 0).sum())} undefined" in last_line(term.getvalue())
     ds.close()
+
+
+def test_a_run_that_learns_its_size_can_raise_the_total() -> None:
+    # (phase maps learn how many points they evaluate as they refine)
+    term = Terminal()
+    bar = ProgressBar(1, stream=term)
+    bar.total = 0
+    bar.total = 12
+    bar.update(12, undefined=2)
+    bar.close()
+    assert "12/12" in last_line(term.getvalue()) and "2 undefined" in last_line(term.getvalue())

@@ -113,7 +113,8 @@ def _symmetry_breaks_everywhere(plan: SweepPlan) -> tuple[NDArray[np.bool_], NDA
         )
         if exact:
             return np.zeros(n, bool), np.zeros(n, bool)
-    return _symmetry_breaks(req, plan.points(0, n))
+    tr_broken, p_broken, _ = _symmetry_breaks(req, plan.points(0, n))  # (reason 8 is marked)
+    return tr_broken, p_broken
 
 
 def _terms_respect(model: TightBinding, operator: NDArray[Any], kind: str) -> bool:

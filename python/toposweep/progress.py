@@ -52,12 +52,12 @@ class ProgressBar:
         self.stream = sys.stderr if stream is None else stream
         isatty = getattr(self.stream, "isatty", lambda: False)
         self.shown = bool(enabled) and bool(isatty())
-        self.total = max(int(total), 1)
+        self._total = max(int(total), 1)
         self.done = int(done)
         self.undefined = int(undefined)
         self._bar = (
             tqdm(
-                total=self.total,
+                total=self._total,
                 initial=self.done,
                 desc="sweep",
                 unit=" points",
@@ -70,6 +70,18 @@ class ProgressBar:
             if self.shown
             else None
         )
+
+    @property
+    def total(self) -> int:
+        """Points of the whole run; a run that learns its size as it goes may raise it."""
+        return self._total
+
+    @total.setter
+    def total(self, value: int) -> None:
+        self._total = int(value)
+        if self._bar is not None:
+            self._bar.total = self._total or None  # (None: not known yet)
+            self._bar.refresh()
 
     def _postfix(self) -> str:
         return f"{self.undefined} undefined"
