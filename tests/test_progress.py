@@ -104,3 +104,15 @@ def test_a_run_that_learns_its_size_can_raise_the_total() -> None:
     bar.update(12, undefined=2)
     bar.close()
     assert "12/12" in last_line(term.getvalue()) and "2 undefined" in last_line(term.getvalue())
+
+
+def test_sweep_through_an_executor_counts_undefined_points_too(monkeypatch) -> None:
+    from concurrent.futures import ThreadPoolExecutor
+
+    term = Terminal()
+    monkeypatch.setattr(sys, "stderr", term)
+    with ThreadPoolExecutor(2) as pool:
+        ds = ts.sweep(ts.models.wilson_dirac(), {"mass": MASS}, 2, chunk_size=3, executor=pool,
+                      **FAST)  # fmt: skip
+    assert "9/9" in last_line(term.getvalue())
+    assert f"{int((ds.nu0 < 0).sum())} undefined" in last_line(term.getvalue())

@@ -183,7 +183,7 @@ class Remote:
                     save(start, stop, res.value)
                     saved += stop - start
                     sizer.observe(res.seconds, stop - start)
-                    bar.update(stop - start)
+                    bar.update(stop - start, undefined=int(np.count_nonzero(res.value["nu0"] < 0)))
         except ExecutorError as exc:
             if self.out is None:
                 kept = "without out= nothing is kept"
