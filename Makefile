@@ -5,7 +5,11 @@ VENV := .venv
 PY := $(VENV)/bin/python
 export VIRTUAL_ENV := $(abspath $(VENV))
 RUST_SOURCES := $(wildcard src/*.rs src/**/*.rs) Cargo.toml
-PY_DEPS := maturin numpy xarray h5netcdf h5py matplotlib pytest hypothesis ruff scipy
+PY_DEPS := maturin numpy xarray h5netcdf h5py matplotlib pytest hypothesis ruff scipy colorspacious tqdm
+# needed by the tests only (netCDF4: an outside reader of our files, the netCDF-C library;
+# dask, distributed: the optional extra toposweep[dask], for the executor tests);
+# a stamp of their own, so adding one installs it without rebuilding the extension
+TEST_DEPS := netCDF4 dask distributed
 
 # Compile for x86-64-v3 (AVX2, FMA, BMI2, ...) when the machine that builds has every feature of
 # that level, as told by rustc itself: the kernels run about a fifth faster than at the baseline
@@ -46,6 +50,10 @@ $(VENV)/.built: $(VENV)/.deps $(VENV)/.rustflags $(RUST_SOURCES) pyproject.toml
 	cp $(VENV)/.rustflags python/toposweep/_build_flags.txt
 	touch $@
 
+$(VENV)/.test-deps: FORCE | $(VENV)/.deps
+	@echo '$(TEST_DEPS)' | cmp -s - $@ \
+		|| { $(PY) -m pip install --quiet $(TEST_DEPS) && echo '$(TEST_DEPS)' > $@; }
+
 build: $(VENV)/.built ## build the Rust extension (release) into .venv
 	@echo "toposweep extension built with RUSTFLAGS='$(RUSTFLAGS)'"
 
@@ -57,7 +65,7 @@ test: test-rust test-python ## run cargo test and pytest (what CI runs)
 test-rust: ## Rust unit tests of the numerical kernels
 	cargo test --no-default-features --quiet
 
-test-python: build ## pytest, doctests included
+test-python: build $(VENV)/.test-deps ## pytest, doctests included
 	$(PY) -m pytest -q tests python/toposweep --doctest-modules
 
 bench: build ## benchmarks against a plain NumPy implementation; writes benches/RESULTS.md

@@ -8,6 +8,9 @@
     all cores, indices and gaps asserted equal;
 (c) sweep throughput (points/s) of a 2D and a 3D model;
 (d) peak memory against the number of points (``sweep_memory.py``, fresh processes);
+(e) adaptive phase maps against the uniform sweep of the same grid (``phase_map_bench.py``);
+(f) a 3D sweep on a local Dask cluster against the in-process sweep, and the per-task overhead
+    (``cluster_speed.py``);
 and what a second core gives on this machine: each core's speed alone and with all at work
 (``core_speeds.py``), and the point's threads gain beside that of a call with nothing serial in
 it (``fork_join_gain.py``).
@@ -433,6 +436,22 @@ def main() -> None:
         "Each row a fresh process (`benches/sweep_memory.py`): `bhz` over mass × hopping, "
         "`loop_points=12, lines=7`, streamed to a NetCDF file chunk by chunk.",
     )
+    from phase_map_bench import NOTE as MAP_NOTE
+    from phase_map_bench import table as map_table
+
+    section("(e) Adaptive phase maps against the uniform sweep", map_table(args.quick), MAP_NOTE)
+
+    from cluster_speed import table as cluster_table
+
+    section(
+        "(f) A sweep on a local Dask cluster",
+        cluster_table(args.quick),
+        "`benches/cluster_speed.py`: the same 3D sweep in this process on all cores and on a "
+        "`LocalCluster` of as many one-thread worker processes (`executor=`), rounds "
+        "interleaved, Datasets asserted identical; the per-task overhead of trivial tasks; the "
+        "caller's journal write per chunk. On a shared host the cluster's extra processes and "
+        "the scheduler compete with other jobs: read the range, not one round.",
+    )
     from near_closing_cost import table as near_closing_table
 
     section(
@@ -440,7 +459,7 @@ def main() -> None:
         near_closing_table(2 if args.quick else 3),
         "`benches/near_closing_cost.py`: default sampling, all cores, `prove_gap` never / auto "
         "(the default) / always, interleaved rounds; the last rows sit 0.1 % from the "
-        "Kane–Mele transition (λ_SO = 0.06), where loops and pump lines crowd toward K.",
+        "Kane–Mele transition (λ_SO = 0.06), where the loops' κ points crowd toward K.",
     )
     doc.append(f"(total benchmark time {time.perf_counter() - t_start:.0f} s; {load()} at the end)")
     if args.out:

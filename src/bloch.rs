@@ -12,8 +12,8 @@ use crate::{fmadd, C64};
 use rayon::prelude::*;
 use std::cell::Cell;
 use std::collections::BTreeMap;
-use std::sync::OnceLock;
 use std::f64::consts::TAU;
+use std::sync::OnceLock;
 
 /// Anything that yields H(κ) for a batch of κ points.
 ///

@@ -308,7 +308,15 @@ pub fn evaluate_point(
         {
             let floor = floor_of(&stats);
             let budget = proof_budget(dim, n, s);
-            let proof = prove_gap(src, bound, filling, floor, stats.min_direct, budget, &mut stats)?;
+            let proof = prove_gap(
+                src,
+                bound,
+                filling,
+                floor,
+                stats.min_direct,
+                budget,
+                &mut stats,
+            )?;
             proof_evaluations = proof.evaluations();
             match proof {
                 GapProof::Proven { lower, .. } => gap_proven = lower,

@@ -52,12 +52,7 @@ impl Sample {
 }
 
 /// Solve H at loop coordinates `ts` of line `l`.
-fn solve(
-    src: &dyn BlochSource,
-    l: &LineSpec,
-    ts: &[f64],
-    nocc: usize,
-) -> CoreResult<Vec<Sample>> {
+fn solve(src: &dyn BlochSource, l: &LineSpec, ts: &[f64], nocc: usize) -> CoreResult<Vec<Sample>> {
     let (dim, n) = (src.dim(), src.norb());
     let nn = n * n;
     let mut kappa = Vec::with_capacity(ts.len() * dim);

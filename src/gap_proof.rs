@@ -118,7 +118,10 @@ pub fn prove_gap(
         if evaluations + take > budget {
             return Ok(GapProof::Unfinished { evaluations });
         }
-        let batch: Vec<Cell> = (0..take).filter_map(|_| todo.pop()).map(|p| p.cell).collect();
+        let batch: Vec<Cell> = (0..take)
+            .filter_map(|_| todo.pop())
+            .map(|p| p.cell)
+            .collect();
         kappa.clear();
         for c in &batch {
             kappa.extend_from_slice(&c.centre[..dim]);
@@ -221,7 +224,10 @@ mod tests {
             [c(0.5, 0.0), c(-0.5, 0.0), c(0.5, 0.0), c(-0.5, 0.0)],
             [c(0.5, 0.0), c(-0.5, 0.0), c(0.5, 0.0), c(-0.5, 0.0)],
         );
-        let sz = block([c(1.0, 0.0), z, z, c(-1.0, 0.0)], [c(1.0, 0.0), z, z, c(-1.0, 0.0)]);
+        let sz = block(
+            [c(1.0, 0.0), z, z, c(-1.0, 0.0)],
+            [c(1.0, 0.0), z, z, c(-1.0, 0.0)],
+        );
         let mut t = sz;
         t.extend(tx);
         t.extend(ty);
@@ -274,7 +280,10 @@ mod tests {
         let mut stats = BandStats::default();
         let got = prove_gap(&src, &b, 2, 1e-6, 1.0, 1 << 22, &mut stats).unwrap();
         assert!(
-            matches!(got, GapProof::BelowFloor { .. } | GapProof::Unfinished { .. }),
+            matches!(
+                got,
+                GapProof::BelowFloor { .. } | GapProof::Unfinished { .. }
+            ),
             "{got:?}"
         );
         // never a proof of a gap that is not there

@@ -6,6 +6,7 @@
 
 pub mod bloch;
 pub mod columns;
+pub mod decided_flow;
 pub mod dense;
 pub mod eigen;
 mod eigen_quad;

@@ -130,10 +130,14 @@ impl PlaneLines {
         pl
     }
 
-    /// Every line's centres, line after line (for tests that compare planes to a tolerance).
-    #[cfg(test)]
+    /// Every line's centres, line after line (`filling` per line).
     pub(crate) fn centres(&self) -> &[f64] {
         &self.centres
+    }
+
+    /// The lines' pump coordinates, ascending.
+    pub(crate) fn pump(&self) -> &[f64] {
+        &self.pump
     }
 
     fn line(&self, m: usize) -> &[f64] {

@@ -197,7 +197,11 @@ mod tests {
                 src.fill(&k, &mut hk).unwrap();
                 let diff: Vec<C64> = hk.iter().zip(&hc).map(|(a, b)| a - b).collect();
                 let d = b.within(&h);
-                assert!(norm2(&diff, n) <= d * (1.0 + 1e-12), "{} > {d}", norm2(&diff, n));
+                assert!(
+                    norm2(&diff, n) <= d * (1.0 + 1e-12),
+                    "{} > {d}",
+                    norm2(&diff, n)
+                );
             }
         }
     }

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import os
 import subprocess
 import sys
@@ -9,6 +10,7 @@ import textwrap
 from pathlib import Path
 
 import matplotlib.image as mpimg
+import numpy as np
 import pytest
 import xarray as xr
 from toposweep.cli import main
@@ -44,6 +46,8 @@ def test_run_summary_plot_end_to_end(tmp_path: Path) -> None:
     run = toposweep("run", "wd.toml", cwd=tmp_path)
     assert run.returncode == 0, run.stderr
     assert run.stderr == ""  # no progress bar when stderr is not a terminal
+    # Wilson-Dirac phases (Fu & Kane, Phys. Rev. B 76, 045302 (2007)): (1;000) for
+    # -3 < m < -1, (0;111) for |m| < 1
     assert "strong TI (1;000)" in run.stdout and "weak TI (0;111)" in run.stdout
     out = tmp_path / "wd.nc"
     with xr.open_dataset(out) as ds:
@@ -162,6 +166,7 @@ def test_model_from_a_user_file(tmp_path: Path, capsys) -> None:
     )
     assert main(["run", str(tmp_path / "mine.toml"), "--quiet"]) == 0
     out = capsys.readouterr().out
+    # m = -1 is Z2-odd (Qi, Wu & Zhang, Phys. Rev. B 74, 085308 (2006): 0 < |m| < 2)
     assert "my square-lattice model" in out and "Z2-odd 2D insulator (Z2 = 1)" in out
 
 
@@ -202,11 +207,40 @@ def test_demo_writes_its_files_and_prints_the_summary(tmp_path: Path, capsys) ->
     # parity counting): inversion at X only → (1;111), at X and Γ → (0;111)
     assert "strong TI (1;111)" in out and "weak TI (0;111)" in out
     assert "0 disagree" in out
+    # an adaptive map: the share evaluated is printed, the transitions listed
+    share = float(out.split("\nevaluated ")[1].split("%")[0])
+    assert 0 < share < 40
+    assert "transitions located: " in out and "gap_closes_at_a_point" in out
     for name in ("tessarine.nc", "tessarine-phases.png", "tessarine-cut.png", "tessarine-flow.png"):
         assert (tmp_path / "demo" / name).stat().st_size > 10_000, name
     with xr.open_dataset(tmp_path / "demo" / "tessarine.nc") as ds:
         assert ds.f_level.attrs["units"] == "eV"
         assert int((ds.phase == 2).sum()) > 0
+        assert ds.sizes["transition"] > 0 and int(ds.attrs["points_evaluated"]) < ds.phase.size
+
+
+def test_adaptive_run_from_a_config_and_its_summary(tmp_path: Path, capsys) -> None:
+    (tmp_path / "a.toml").write_text(
+        'model = "bhz"\nfilling = 2\noutput = "a.nc"\n'
+        "[grid]\nmass = { start = -3.0, stop = 3.0, num = 40 }\n"
+        "[adaptive]\ncoarse_step = 8\ntransition_tol = 1e-4\n"
+    )
+    assert main(["run", str(tmp_path / "a.toml"), "--quiet"]) == 0
+    out = capsys.readouterr().out
+    assert "points obtained:" in out and "transitions located: 2" in out
+    with xr.open_dataset(tmp_path / "a.nc") as ds:
+        assert json.loads(ds.attrs["phase_map"])["coarse_step"] == 8
+        # BHZ: Z2 changes at m/t = -2 and 2 (Bernevig, Hughes & Zhang, Science 314, 1757 (2006))
+        np.testing.assert_allclose(ds.transition_mass.values, [-2.0, 2.0], atol=1e-5)
+    assert main(["summary", str(tmp_path / "a.nc")]) == 0
+    assert "filled by agreement" in capsys.readouterr().out
+    assert main(["plot", str(tmp_path / "a.nc")]) == 0
+    (tmp_path / "b.toml").write_text(
+        'model = "bhz"\nfilling = 2\noutput = "b.nc"\n[grid]\nmass = [0.0, 1.0]\n'
+        "[adaptive]\ncoarse = 8\n"
+    )
+    assert main(["run", str(tmp_path / "b.toml")]) == 2
+    assert "adaptive.coarse: unknown key" in capsys.readouterr().err
 
 
 def test_ctrl_c_keeps_finished_chunks_and_resume_finishes(tmp_path: Path) -> None:

@@ -74,4 +74,6 @@ def test_the_intact_file_works(good_file, tmp_path, capsys):
     path.write_bytes(good_file)
     assert main(["summary", str(path)]) == 0
     out = capsys.readouterr().out
-    assert re.search(r"Z2-odd 2D insulator \(Z2 = 1\)\s+2\b", out)  # m = −1, 1 odd; −3 trivial
+    # Qi, Wu & Zhang, Phys. Rev. B 74, 085308 (2006): Z2-odd for 0 < |m| < 2, so m = −1, 1 odd
+    # and −3 trivial
+    assert re.search(r"Z2-odd 2D insulator \(Z2 = 1\)\s+2\b", out)

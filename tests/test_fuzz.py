@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import string
+from collections import Counter
 from datetime import timedelta
 from pathlib import Path
 
@@ -21,6 +22,7 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 from toposweep.config import load_config, parse_config
+from toposweep.dataset import PHASES, REASONS
 from toposweep.store import open_result
 
 FUZZ = settings(
@@ -67,39 +69,95 @@ arrays = hnp.arrays(
 U_T = {2: np.array([[0, 1], [-1, 0]], complex), 4: np.kron(np.array([[0, 1], [-1, 0]]), np.eye(2))}
 
 
-@FUZZ
-@given(
-    dim=st.one_of(st.sampled_from([2, 3]), st.integers(-1, 4), junk),
-    norb=st.one_of(st.sampled_from([2, 4]), st.sampled_from([2, 4]), junk),
-    hops=st.lists(
-        st.tuples(
-            st.one_of(st.lists(st.integers(-2, 2), max_size=4), junk, arrays),
-            st.one_of(arrays, junk),
-            st.one_of(st.none(), st.text(max_size=4), junk),
-        ),
-        max_size=4,
-    ),
-    kappa=st.one_of(arrays, junk),
-    filling=st.one_of(st.just(2), st.integers(-1, 5), junk),
-)
-def test_model_builder_and_a_small_run(dim, norb, hops, kappa, filling):
-    tr = U_T.get(norb) if isinstance(norb, int) and not isinstance(norb, bool) else None
-    model = survives(ts.TightBinding, dim, norb, time_reversal=tr)
-    if model is None:
-        return
-    for r, t, term in hops:
-        survives(model.add, r, t, term)
-    survives(model.hamiltonian, kappa)
-    survives(
-        ts.invariants,
-        model,
-        filling,
-        loop_points=8,
-        lines=3,
-        max_lines=6,
-        gap_points=2,
-        method="both",
-    )
+def _symmetric_hopping(r, t, u):
+    """T projected onto time reversal (U_T T* U_T† = T) and, on site, onto Hermitian matrices:
+    the two projections commute, so the result is exactly symmetric."""
+    t = 0.5 * (t + u @ t.conj() @ u.conj().T)
+    return 0.5 * (t + t.conj().T) if not any(r) else t
+
+
+def _drawn_model(data):
+    """A model drawn in one of three ways: symmetric (valid hoppings, so the run reaches the
+    core), raw (valid shapes, random values: mostly refused as not symmetric) or junk."""
+    how = data.draw(st.sampled_from(["symmetric", "symmetric", "raw", "junk"]), label="how")
+    if how == "junk":
+        dim = data.draw(st.one_of(st.sampled_from([2, 3]), st.integers(-1, 4), junk))
+        norb = data.draw(st.one_of(st.sampled_from([2, 4]), junk))
+        hops = data.draw(
+            st.lists(
+                st.tuples(
+                    st.one_of(st.lists(st.integers(-2, 2), max_size=4), junk, arrays),
+                    st.one_of(arrays, junk),
+                    st.one_of(st.none(), st.text(max_size=4), junk),
+                ),
+                max_size=4,
+            )
+        )
+        return how, dim, norb, hops, data.draw(st.one_of(st.just(2), st.integers(-1, 5), junk))
+    dim = data.draw(st.sampled_from([2, 3]), label="dim")
+    norb = 4
+    u = U_T[norb]
+    entries = st.complex_numbers(max_magnitude=4.0, allow_nan=False, allow_infinity=False)
+    hops = []
+    for _ in range(data.draw(st.integers(1, 5), label="bonds")):
+        r = tuple(data.draw(st.lists(st.integers(-1, 1), min_size=dim, max_size=dim)))
+        t = data.draw(hnp.arrays(np.complex128, (norb, norb), elements=entries))
+        if how == "symmetric":
+            t = _symmetric_hopping(r, t, u)
+        hops.append((r, t, data.draw(st.sampled_from([None, "x", "y"]))))
+    return how, dim, norb, hops, data.draw(st.sampled_from([2, 2, 2, 1, 3]), label="filling")
+
+
+def test_model_builder_and_a_small_run():
+    """Build models from drawn input and run them at small sampling. A share of the examples
+    must reach the core and come back with a result whose codes are in range: a builder that
+    refused everything, or a core that always raised, would fail here."""
+    seen = Counter()
+
+    @FUZZ
+    @given(data=st.data())
+    def run(data):
+        how, dim, norb, hops, filling = _drawn_model(data)
+        seen["examples", how] += 1
+        tr = U_T.get(norb) if isinstance(norb, int) and not isinstance(norb, bool) else None
+        model = survives(ts.TightBinding, dim, norb, time_reversal=tr)
+        if model is None:
+            return
+        for r, t, term in hops:
+            survives(model.add, r, t, term)
+        survives(model.hamiltonian, data.draw(st.one_of(arrays, junk), label="kappa"))
+        values = data.draw(st.floats(-2.0, 2.0), label="value")
+        ds = survives(
+            ts.invariants,
+            model,
+            filling,
+            {p: values for p in model.parameters},
+            loop_points=8,
+            lines=3,
+            max_lines=6,
+            gap_points=2,
+            method="both",
+        )
+        if ds is None:
+            return
+        seen["results", how] += 1
+        assert int(ds.nu0) in (-1, 0, 1) and int(ds.nu0_lattice) in (-1, 0, 1)
+        reason = int(ds.undefined_reason)
+        assert reason in REASONS and (reason == 0) == (int(ds.nu0) >= 0)
+        assert int(ds.phase) in PHASES
+        gap = float(ds.gap_direct)
+        assert np.isnan(gap) or gap >= 0.0
+        if reason == 0:
+            seen["defined"] += 1
+
+    run()
+    print("fuzzed runs:", dict(seen))
+    examples = sum(v for k, v in seen.items() if k[0] == "examples")
+    results = sum(v for k, v in seen.items() if k[0] == "results")
+    # symmetric draws are about half of the examples; most of them must be run by the core
+    assert results >= 0.3 * examples, dict(seen)
+    assert seen["results", "symmetric"] >= 0.6 * seen["examples", "symmetric"], dict(seen)
+    assert seen["defined"] >= 5, dict(seen)  # some gapped models get an index, too
 
 
 @FUZZ
@@ -311,8 +369,8 @@ def test_result_reader_on_random_bytes(data, tmp_path_factory):
 
 def test_complex_lattice_vectors_and_kappa_are_rejected_not_truncated():
     """Found by fuzzing: numpy casts complex to float with only a warning."""
-    m = ts.TightBinding(1, 2)
+    m = ts.TightBinding(2, 2)
     with pytest.raises(ts.ModelError, match="R must be"):
-        m.add(np.array([1 + 0.5j]), np.eye(2))
+        m.add(np.array([1 + 0.5j, 0]), np.eye(2))
     with pytest.raises(ts.ModelError, match="kappa must be real"):
         ts.models.bhz().hamiltonian(np.array([[0.1 + 0.3j, 0.2]]))

@@ -16,7 +16,12 @@ import pytest
 import toposweep as ts
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from random_models import change_basis, random_model, random_unitary  # noqa: E402
+from random_models import (  # noqa: E402
+    change_basis,
+    parity_indices,
+    random_model,
+    random_unitary,
+)
 
 SQRT3 = np.sqrt(3.0)
 
@@ -69,14 +74,18 @@ def test_diamond_by_lattice(dimer, nu0):
 
 def test_random_models_both_methods_agree_with_parity():
     """Random TR+I models (tests/random_models.py) in a random orbital basis: the lattice Z2
-    equals the Fu–Kane parity result (Fu & Kane, PRB 76, 045302 (2007)) and the Wilson loop."""
+    equals the Fu–Kane parity result (Fu & Kane, PRB 76, 045302 (2007)), computed with NumPy at
+    the TRIMs of the rotated model (``random_models.parity_indices``), and the Wilson loop."""
     rng = np.random.default_rng(5)
     for seed in range(6):
         case = random_model(seed, dim=2 + seed % 2)
         model = change_basis(case.model, random_unitary(rng, case.model.norb))
+        nu0, weak = parity_indices(model, case.filling)
         ds = ts.invariants(model, case.filling, inversion=model.inversion, method="both")
         assert int(ds.methods_agree) == 1, f"seed {seed}"
-        assert int(ds.nu0_lattice) == int(ds.nu0_parity), f"seed {seed}"
+        assert int(ds.nu0_lattice) == nu0 == int(ds.nu0), f"seed {seed}"
+        if model.dim == 3:
+            assert ds.nu_lattice.values.tolist() == list(weak) == ds.nu.values.tolist()
 
 
 def test_gapless_point_is_undefined_for_the_lattice_too():

@@ -58,7 +58,7 @@ def test_operators_cannot_be_changed_in_place():
     with pytest.raises(ValueError, match="read-only"):
         model.time_reversal[0, 0] = 2.0
     given = np.eye(4, dtype=complex)
-    own = ts.TightBinding(1, 4, inversion=given).inversion
+    own = ts.TightBinding(2, 4, inversion=given).inversion
     given[0, 0] = -1.0  # (the model holds a copy: the caller's array stays the caller's)
     assert own[0, 0] == 1.0 and given.flags.writeable
 

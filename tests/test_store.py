@@ -256,9 +256,27 @@ def test_flat_ranges_map_onto_the_grid_like_numpy_ravel() -> None:
         assert len(flat_boxes(a, b, shape)) <= 2 * len(shape) - 1
 
 
-@pytest.mark.skipif(shutil.which("ncdump") is None, reason="ncdump (Debian netcdf-bin) absent")
 def test_the_netcdf_c_library_reads_the_file(tmp_path: Path) -> None:
-    # an outside reader: ncdump of the reference netCDF-C library, not h5py/xarray
+    # an outside reader: the reference netCDF-C library through netCDF4-python (installed by
+    # `make test`, Makefile TEST_DEPS), not h5py/xarray, which wrote the file
+    import netCDF4
+
+    out = tmp_path / "map.nc"
+    ds = resume_run(out, [])
+    with netCDF4.Dataset(out) as f:
+        assert len(f.dimensions["m"]) == 60
+        nu0 = f.variables["nu0"]
+        assert nu0.dtype == np.int8 and nu0.dimensions == ("m",)
+        assert "flag_meanings" in f.variables["phase"].ncattrs()
+        nu0.set_auto_mask(False)
+        assert nu0[:].tolist() == ds.nu0.values.tolist()
+    ds.close()
+
+
+@pytest.mark.skipif(shutil.which("ncdump") is None, reason="ncdump (Debian netcdf-bin) absent")
+def test_ncdump_reads_the_file(tmp_path: Path) -> None:
+    # a second outside reader where installed (.ci/run installs netcdf-bin with apt-get):
+    # the text dump of netCDF-C's own command-line tool
     out = tmp_path / "map.nc"
     ds = resume_run(out, [])
     header = subprocess.run(
@@ -302,5 +320,8 @@ def test_resume_refuses_a_different_filling(tmp_path: Path, monkeypatch) -> None
     with pytest.raises(StoreError, match="filling: 2 now, 4 in the file"):
         ts.sweep(model, grid, 2, out=out, resume=True, progress=False, loop_points=12, lines=7)
     ds = ts.sweep(model, grid, 4, out=out, resume=True, progress=False, loop_points=12, lines=7)
-    assert ds.nu0.values.tolist() == [0, 0]  # two copies of a Z2-odd insulator are even
+    # two copies of a Z2-odd insulator are even (Kane & Mele, Phys. Rev. Lett. 95, 146802
+    # (2005): Z2 counts Kramers pairs of edge states mod 2); one copy is odd at m = ±1 (Qi, Wu
+    # & Zhang, Phys. Rev. B 74, 085308 (2006))
+    assert ds.nu0.values.tolist() == [0, 0]
     ds.close()

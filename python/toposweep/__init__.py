@@ -16,29 +16,36 @@ check_cpu()  # before the extension is loaded: a clear error instead of "illegal
 
 from . import models  # noqa: E402
 from ._version import __version__  # noqa: E402
-from .api import invariants, wcc_flow  # noqa: E402
+from .api import invariants  # noqa: E402
 from .callable_model import CallableModel  # noqa: E402
+from .centre_flow import centre_flow, wcc_flow  # noqa: E402
 from .errors import (  # noqa: E402
     ConfigError,
+    ExecutorError,
     FillingError,
     ModelError,
     ParameterError,
     SamplingError,
     StoreError,
     SymmetryError,
+    SymmetryWarning,
     ToposweepError,
 )
 from .model import Model  # noqa: E402
+from .model_files import load_model, save_model  # noqa: E402
+from .phase_map import phase_map  # noqa: E402
 from .sampling import Sampling  # noqa: E402
 from .store import open_result  # noqa: E402
 from .sweep import SweepInterrupted, sweep  # noqa: E402
 from .symmetrise import symmetrise  # noqa: E402
 from .tightbinding import TightBinding  # noqa: E402
+from .transition_finder import find_transition  # noqa: E402
 
 __all__ = [
     "__version__",
     "CallableModel",
     "ConfigError",
+    "ExecutorError",
     "FillingError",
     "Model",
     "ModelError",
@@ -48,12 +55,18 @@ __all__ = [
     "StoreError",
     "SweepInterrupted",
     "SymmetryError",
+    "SymmetryWarning",
     "TightBinding",
     "ToposweepError",
+    "centre_flow",
+    "find_transition",
     "invariants",
+    "load_model",
     "model_from_dict",
     "models",
     "open_result",
+    "phase_map",
+    "save_model",
     "sweep",
     "symmetrise",
     "wcc_flow",

@@ -91,3 +91,16 @@ def flow(
     positions: NDArray[np.float64] | None = None,
     threads: int | None = None,
 ) -> NDArray[np.float64]: ...
+def decided_flow(
+    model: CoreModel,
+    coeff: NDArray[np.float64],
+    filling: int,
+    plane: int,
+    *,
+    loop_points: int,
+    lines: int,
+    max_lines: int,
+    step_limit: float,
+    certify: bool = True,
+    threads: int | None = None,
+) -> tuple[NDArray[np.float64], NDArray[np.float64], int, int]: ...

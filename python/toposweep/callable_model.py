@@ -34,7 +34,7 @@ class CallableModel(Model):
         The vectorised Hamiltonian. Keyword parameters with defaults in its signature become
         the model's :attr:`defaults`.
     dim, norb : int
-        Spatial dimension and number of orbitals.
+        Spatial dimension (2 or 3) and number of orbitals.
     parameters : sequence of str, optional
         Parameter names; by default every keyword parameter of ``func`` after ``kappa``.
     lipschitz : float, sequence of float or callable, optional
@@ -53,12 +53,12 @@ class CallableModel(Model):
     --------
     >>> import numpy as np
     >>> from toposweep import CallableModel
-    >>> def chain(kappa, m=0.5):
-    ...     k = 2 * np.pi * kappa[:, 0]
-    ...     h = np.zeros((len(k), 2, 2), complex)
-    ...     h[:, 0, 0], h[:, 1, 1] = m + np.cos(k), -m - np.cos(k)
+    >>> def square(kappa, m=0.5):
+    ...     d = m + np.cos(2 * np.pi * kappa).sum(axis=1)
+    ...     h = np.zeros((len(kappa), 2, 2), complex)
+    ...     h[:, 0, 0], h[:, 1, 1] = d, -d
     ...     return h
-    >>> model = CallableModel(chain, dim=1, norb=2)
+    >>> model = CallableModel(square, dim=2, norb=2)
     >>> model.parameters, model.defaults
     (('m',), {'m': 0.5})
     """
@@ -129,10 +129,15 @@ class CallableModel(Model):
                 raise ModelError(
                     f"{self.name}: func must return complex numbers, got dtype {h.dtype} ({exc})"
                 ) from None
-            if not np.all(np.isfinite(h)):
+            # (on the float view: no complex modulus, no temporary for isfinite; one pass for
+            # the scale, which is NaN or infinite exactly when an entry is; see
+            # benches/callable_cost.py and docs/callable-models.md)
+            scale = float(np.max(np.abs(h.view(np.float64)), initial=0.0))
+            if not np.isfinite(scale):
                 raise ModelError(f"{self.name}: func returned NaN or infinity at {pts[point]}")
-            herm = np.abs(h - h.conj().transpose(0, 2, 1)).max(initial=0.0)
-            if herm > 1e-8 * max(1.0, float(np.abs(h).max(initial=0.0))):
+            diff = (h - h.conj().swapaxes(1, 2)).view(np.float64)
+            herm = float(np.max(np.abs(diff), initial=0.0))  # (largest |Re| or |Im| of H − H†)
+            if herm > 1e-8 * max(1.0, scale):
                 raise ModelError(
                     f"{self.name}: func returned non-Hermitian matrices (max |H − H†| = {herm:.2e})"
                 )

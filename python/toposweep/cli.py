@@ -40,11 +40,17 @@ def _point(items: Sequence[str] | None) -> dict[str, float]:
         try:
             if not sep or not name:
                 raise ValueError
-            out[name.strip()] = float(value)
+            number = float(value)
         except ValueError:
             raise ParameterError(
                 f"--at expects NAME=VALUE such as f_level=-0.5, got {item!r}"
             ) from None
+        key = name.strip()
+        if key in out:  # two values for one parameter: neither is silently dropped
+            raise ParameterError(
+                f"--at gives {key!r} twice ({key}={out[key]:g} and {item}); give each once"
+            )
+        out[key] = number
     return out
 
 
@@ -62,8 +68,19 @@ def _run(args: argparse.Namespace) -> int:
             f"{args.config}: output: {what} exists; pass --resume to continue (or reuse) it, "
             "or --overwrite to start over"
         )
+    kwargs = cfg.sweep_kwargs()
+    if args.scheduler:  # (the command line wins over the configuration)
+        kwargs["executor"] = args.scheduler
     try:
-        ds = sweep(**cfg.sweep_kwargs(), out=out, resume=args.resume, progress=not args.quiet)
+        if cfg.adaptive is not None:
+            from .phase_map import phase_map
+
+            ds = phase_map(
+                **kwargs, **cfg.adaptive, out=out, resume=args.resume,
+                progress=not args.quiet,
+            )  # fmt: skip
+        else:
+            ds = sweep(**kwargs, out=out, resume=args.resume, progress=not args.quiet)
     except SweepInterrupted as exc:
         raise KeyboardInterrupt(
             f"interrupted after {exc.done} of {exc.total} points; the finished chunks are kept "
@@ -94,7 +111,7 @@ def _plot(args: argparse.Namespace) -> int:
             fig = flow_figure(ds, at, allow_code=args.allow_code)
             default = path.with_name(path.stem + "-flow.png")
         elif not dims:
-            raise ParameterError(f"{path} holds a single point; use --flow to draw its HWC flow")
+            raise ParameterError(f"{path} holds a single point; use --flow to draw its centre flow")
         else:
             x = args.x or dims[0]
             others = [d for d in dims if d != x and d not in at]
@@ -103,7 +120,7 @@ def _plot(args: argparse.Namespace) -> int:
                 default = path.with_name(f"{path.stem}-{x}.png")
             else:
                 y = args.y or others[0]
-                fig = plot_phase_map(ds, x, y, at=at)
+                fig = plot_phase_map(ds, x, y, at=at, show_evaluated=args.evaluated)
                 default = path.with_suffix(".png")
     out = Path(args.out) if args.out else default
     fig.savefig(out, dpi=args.dpi)
@@ -131,7 +148,9 @@ def _parser() -> _Parser:
     )
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
 
-    run = sub.add_parser("run", help="run the sweep described by a TOML configuration")
+    run = sub.add_parser(
+        "run", help="run the sweep (or, with [adaptive], the phase map) of a TOML configuration"
+    )
     run.add_argument("config", help="configuration file (TOML)")
     mode = run.add_mutually_exclusive_group()
     mode.add_argument(
@@ -139,24 +158,40 @@ def _parser() -> _Parser:
     )
     mode.add_argument("--overwrite", action="store_true", help="replace an existing output")
     run.add_argument("--quiet", action="store_true", help="no progress bar")
+    run.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="run the chunks on a Dask cluster: its scheduler's address (tcp://host:8786), "
+        "local:N for N worker processes on this machine, or processes:N for a process pool "
+        "(default: [run] scheduler of the configuration, else this process)",
+    )
     run.set_defaults(func=_run)
 
     summ = sub.add_parser("summary", help="phases and counts, undefined points, parity checks")
     summ.add_argument("file", help="result file (.nc)")
     summ.set_defaults(func=_summary)
 
-    plot = sub.add_parser("plot", help="phase diagram, index/gap line, or HWC flow as PNG")
+    plot = sub.add_parser("plot", help="phase diagram, index/gap line, or centre flow as PNG")
     plot.add_argument("file", help="result file (.nc)")
     plot.add_argument("--x", help="swept parameter along the horizontal axis")
     plot.add_argument("--y", help="swept parameter along the vertical axis (phase diagram)")
     plot.add_argument(
         "--at",
         nargs="+",
+        action="extend",
         metavar="NAME=VALUE",
-        help="values of the other swept parameters (nearest grid point; default: middle)",
+        help="values of the other swept parameters (nearest grid point; default: middle); "
+        "repeat --at or list several after one",
     )
     plot.add_argument("--line", action="store_true", help="indices and gap against --x")
-    plot.add_argument("--flow", action="store_true", help="HWC flow of the point given by --at")
+    plot.add_argument(
+        "--evaluated", action="store_true", help="mark the points a phase map evaluated"
+    )
+    plot.add_argument(
+        "--flow",
+        action="store_true",
+        help="centre flow (hybrid Wannier centres) of the point given by --at",
+    )
     plot.add_argument(
         "--allow-code",
         action="store_true",

@@ -14,11 +14,17 @@ A configuration names the model, the grid, the filling, the sampling and the out
 
     [params]                        # values of parameters that are not swept (optional)
     [sampling]                      # loop_points, lines, max_lines, step_limit, gap_floor, ...
-    [run]                           # threads, chunk_size (optional)
+    [run]                           # threads, chunk_size, scheduler (optional)
+    [adaptive]                      # optional: an adaptive phase map (toposweep.phase_map)
+    coarse_step = 16                # every key optional: coarse_step, proven_only,
+                                    # agreement_gap, transitions, transition_tol
 
 ``coefficients = "path/to/file.py:function"`` (optional) maps the grid's own variables onto
-model terms, as ``coefficients=`` of :func:`toposweep.sweep` does. Every mistake raises
-:class:`~toposweep.errors.ConfigError` naming the file and the key (or the line, for TOML syntax).
+model terms, as ``coefficients=`` of :func:`toposweep.sweep` does. ``[run] scheduler`` runs the
+chunks elsewhere: ``"local:N"`` (a Dask cluster of N worker processes on this machine),
+``"processes:N"`` (a process pool) or a Dask scheduler address such as ``"tcp://host:8786"``.
+Every mistake raises :class:`~toposweep.errors.ConfigError` naming the file and the key (or the
+line, for TOML syntax).
 """
 
 from __future__ import annotations
@@ -51,8 +57,11 @@ TOP_KEYS = {
     "sampling",
     "run",
     "coefficients",
+    "adaptive",
 }
-RUN_KEYS = {"threads", "chunk_size"}
+#: keys of the [adaptive] table: keyword arguments of toposweep.phase_map
+ADAPTIVE_KEYS = {"coarse_step", "proven_only", "agreement_gap", "transitions", "transition_tol"}
+RUN_KEYS = {"threads", "chunk_size", "scheduler"}
 RANGE_KEYS = {"start", "stop", "num", "values", "long_name", "units"}
 #: values per grid axis a configuration may ask for (a typo like num = 1e9 must not eat memory)
 MAX_AXIS = 10_000_000
@@ -73,10 +82,16 @@ class RunConfig:
     coefficients: Callable[[dict[str, float]], Mapping[str, float]] | None = None
     threads: int | None = None
     chunk_size: int | None = None
+    #: options of an adaptive phase map ([adaptive]); None: a uniform sweep
+    adaptive: dict[str, Any] | None = None
+    #: where the chunks run (``executor=`` of :func:`toposweep.sweep`); None: this process
+    scheduler: str | None = None
 
     def sweep_kwargs(self) -> dict[str, Any]:
         """Keyword arguments of :func:`toposweep.sweep` (without ``out``/``resume``)."""
+        extra = {} if self.scheduler is None else {"executor": self.scheduler}
         return {
+            **extra,
             "model": self.model,
             "grid": self.grid,
             "filling": self.filling,
@@ -255,12 +270,27 @@ def parse_config(text: str, source: str = "<config>", base: Path | None = None) 
         raise _fail(source, f"run.{bad[0]}", f"unknown key; known keys are {sorted(RUN_KEYS)}")
     threads = run.get("threads")
     chunk = run.get("chunk_size")
+    scheduler = run.get("scheduler")
+    if scheduler is not None and (not isinstance(scheduler, str) or not scheduler.strip()):
+        raise _fail(
+            source,
+            "run.scheduler",
+            f"must be 'local:N', 'processes:N' or a scheduler address, got {scheduler!r}",
+        )
     coefficients = None
     if "coefficients" in doc:
         spec = doc["coefficients"]
         if not isinstance(spec, str):
             raise _fail(source, "coefficients", f"must be 'file.py:function', got {spec!r}")
         coefficients = _load_function(source, "coefficients", spec, base)
+    adaptive = None
+    if "adaptive" in doc:
+        adaptive = _table(source, "adaptive", doc["adaptive"])
+        bad = sorted(set(adaptive) - ADAPTIVE_KEYS)
+        if bad:
+            raise _fail(
+                source, f"adaptive.{bad[0]}", f"unknown key; known keys are {sorted(ADAPTIVE_KEYS)}"
+            )
     return RunConfig(
         source=source,
         model=model,
@@ -273,6 +303,8 @@ def parse_config(text: str, source: str = "<config>", base: Path | None = None) 
         coefficients=coefficients,
         threads=None if threads is None else _positive_int(source, "run.threads", threads),
         chunk_size=None if chunk is None else _positive_int(source, "run.chunk_size", chunk),
+        adaptive=adaptive,
+        scheduler=scheduler,
     )
 
 

@@ -15,6 +15,8 @@ __all__ = [
     "FillingError",
     "StoreError",
     "ConfigError",
+    "ExecutorError",
+    "SymmetryWarning",
 ]
 
 
@@ -48,3 +50,21 @@ class StoreError(ToposweepError, ValueError):
 
 class ConfigError(ToposweepError, ValueError):
     """A run configuration file is malformed or names something that does not exist."""
+
+
+class ExecutorError(ToposweepError, RuntimeError):
+    """Work sent to other processes failed.
+
+    A task failed again and again, the executor broke, or the run cannot be sent to (or loaded
+    on) the workers.
+    """
+
+
+class SymmetryWarning(UserWarning):
+    """The declared time reversal does not hold at the points of a call: they are undefined.
+
+    Such points are results, not errors: their indices are −1 with reason 8
+    (``time_reversal_broken_at_this_point``), in :func:`toposweep.invariants` and in sweeps
+    alike. The warning carries the residual and how to fix a model that is only nearly
+    symmetric.
+    """

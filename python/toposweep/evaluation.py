@@ -6,6 +6,7 @@ validates filling, symmetry operators and parameters once, then calls the core i
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -14,7 +15,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from . import _core
-from .errors import FillingError, ModelError, SamplingError
+from .errors import FillingError, ModelError, SamplingError, SymmetryWarning
 from .model import Model
 from .sampling import Sampling, check_threads
 from .symmetry import TOLERANCE, as_operator, normalised_inversion, symmetry_error
@@ -164,22 +165,32 @@ def _mark(raw: dict[str, NDArray], mask: NDArray[np.bool_], reason: int, *, pari
 
 def _symmetry_breaks(
     req: Request, points: Sequence[dict[str, float]]
-) -> tuple[NDArray[np.bool_], NDArray[np.bool_]]:
-    """Points where time reversal and where inversion fail; raises where the run is invalid.
+) -> tuple[NDArray[np.bool_], NDArray[np.bool_], str | None]:
+    """Points where time reversal and where inversion fail, and a warning's text (or None).
 
-    Time reversal broken at a point makes its indices undefined (reason 8); broken everywhere
-    is an error. Inversion declared by the model but broken at a point leaves only the parity
-    result undefined there (reason 7); an inversion matrix passed to the call must hold at
-    every point.
+    The rule (docs/symmetry.md): time reversal broken at a point makes its indices undefined
+    (reason 8) — a result, never an error, in :func:`toposweep.invariants` and in sweeps
+    alike; when it fails at every point of the call, the text of a :class:`SymmetryWarning`
+    is returned too (for one point with the residual and the fix; for a chunk of a sweep the
+    same text every time, so Python shows it once). Inversion declared by the model but broken
+    at a point leaves only the parity result undefined there (reason 7); an inversion matrix
+    passed to the call is part of the call and must hold at every point (SymmetryError).
     """
     model = req.model
     u_t = model.time_reversal
     assert u_t is not None  # checked in prepare_request
     tr_res = model.symmetry_residuals(points, u_t, "time_reversal")
     tr_broken = ~(tr_res <= TOLERANCE)  # NaN (overflowing H) counts as broken
+    warning = None
     if tr_broken.all():
-        where = "at this parameter point" if len(points) == 1 else "at any requested point"
-        raise symmetry_error("time_reversal", float(tr_res.min()), where)
+        if len(points) == 1:
+            text = str(symmetry_error("time_reversal", float(tr_res.min()), "at this point"))
+            warning = text + " The point's indices are undefined (reason 8)."
+        else:
+            warning = (
+                "time reversal does not hold at any point of a chunk of this sweep: check U_T, "
+                "or the parameters that break it; those points are undefined (reason 8)"
+            )
     p_broken = np.zeros(len(points), bool)
     if req.inversion is not None:
         p_res = model.symmetry_residuals(points, req.inversion, "inversion")
@@ -187,7 +198,7 @@ def _symmetry_breaks(
         if req.inversion_from_call and p_broken.any():
             i = int(np.argmax(p_res))
             raise symmetry_error("inversion", float(p_res[i]), f"at parameters {points[i]}")
-    return tr_broken, p_broken
+    return tr_broken, p_broken, warning
 
 
 def run_points(
@@ -208,12 +219,12 @@ def run_points(
     returns a dict of arrays (:meth:`toposweep.dataset.ResultLayout.core_targets`), the core
     writes the results of those keys into them and returns those very arrays.
     """
-    breaks: list[tuple[NDArray[np.bool_], NDArray[np.bool_], bool, bool]] = []
+    breaks: list[tuple[NDArray[np.bool_], NDArray[np.bool_], bool, bool, str | None]] = []
 
     def python_side() -> object:
-        tr_broken, p_broken = _symmetry_breaks(req, points)
+        tr_broken, p_broken, warning = _symmetry_breaks(req, points)
         # (whether any point is broken, found here: beside the core, not after it)
-        breaks.append((tr_broken, p_broken, bool(tr_broken.any()), bool(p_broken.any())))
+        breaks.append((tr_broken, p_broken, bool(tr_broken.any()), bool(p_broken.any()), warning))
         return None if alongside is None else alongside()
 
     if alongside is None:
@@ -231,7 +242,9 @@ def run_points(
         alongside=None if alongside is None else python_side,
         **req.sampling.core_kwargs(),
     )
-    tr_broken, p_broken, any_tr_broken, any_p_broken = breaks[0]
+    tr_broken, p_broken, any_tr_broken, any_p_broken, warning = breaks[0]
+    if warning is not None:  # (warned here, on the calling thread, not in the core's worker)
+        warnings.warn(warning, SymmetryWarning, stacklevel=3)
     if any_tr_broken:
         _mark(raw, tr_broken, REASON_TIME_REVERSAL_BROKEN, parity=False)
     if req.inversion is not None and (any_tr_broken or any_p_broken):

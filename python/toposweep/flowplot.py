@@ -1,4 +1,4 @@
-"""Hybrid Wannier centre flow of one point of a result file, recomputed from its model."""
+"""Centre flow (hybrid Wannier centres) of one point of a result file, from its model."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ from collections.abc import Mapping
 import xarray as xr
 from matplotlib.figure import Figure
 
-from .api import wcc_flow
+from .centre_flow import centre_flow
 from .errors import StoreError
 from .model import Model
 from .plotting import plot_flow, select
@@ -43,25 +43,17 @@ def point_of(
 
 
 def flow_figure(ds: xr.Dataset, at: Mapping[str, float], *, allow_code: bool = False) -> Figure:
-    """HWC flow on every time-reversal-invariant plane at the grid point nearest to ``at``.
+    """Centre flow of every time-reversal-invariant plane at the grid point nearest to ``at``.
 
-    Grid dims not in ``at`` are taken at their middle value. ``allow_code`` as in
-    :func:`point_of`.
+    The flows are recomputed with the file's sampling, so they are the flows its indices came
+    from (inserted lines marked). Grid dims not in ``at`` are taken at their middle value.
+    ``allow_code`` as in :func:`point_of`.
     """
     model, point, params = point_of(ds, at, allow_code=allow_code)
     filling = int(ds.attrs["filling"])
-    loop_points = int(json.loads(ds.attrs["sampling"]).get("loop_points", 32))
-    flows, z2 = [], []
-    if model.dim == 3:
-        for axis in (1, 2, 3):
-            for k, cut in enumerate((0.0, 0.5)):
-                flows.append(
-                    wcc_flow(model, filling, params, axis=axis, cut=cut, loop_points=loop_points)
-                )
-                z2.append(int(point.z2_plane.values[axis - 1, k]))
-    else:
-        flows.append(wcc_flow(model, filling, params, loop_points=loop_points))
-        z2.append(int(point.nu0))
+    sampling = json.loads(ds.attrs["sampling"])
+    planes = [(a, c) for a in (1, 2, 3) for c in (0.0, 0.5)] if model.dim == 3 else [(None, 0.0)]
+    flows = [centre_flow(model, filling, params, axis=a, cut=c, **sampling) for a, c in planes]
     where = ", ".join(f"{k} = {v:.4g}" for k, v in params.items())
-    title = f"hybrid Wannier centre flow, {model.name}\n{where}"
-    return plot_flow(flows, z2, title)
+    title = f"centre flow (hybrid Wannier centres), {model.name}\n{where}"
+    return plot_flow(flows, title=title)

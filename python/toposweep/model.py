@@ -88,8 +88,11 @@ class Model(ABC):
         energy_unit: str = "1",
         name: str = "",
     ) -> None:
-        if isinstance(dim, bool) or not isinstance(dim, int | np.integer) or dim not in (1, 2, 3):
-            raise ModelError(f"dim must be 1, 2 or 3, got {dim!r}")
+        if isinstance(dim, bool) or not isinstance(dim, int | np.integer) or dim not in (2, 3):
+            raise ModelError(
+                f"dim must be 2 or 3, got {dim!r}: Z2 indices are defined for two- and "
+                "three-dimensional models (a 1D chain has no Z2 index of this kind)"
+            )
         if isinstance(norb, bool) or not isinstance(norb, int | np.integer) or norb < 1:
             raise ModelError(f"norb must be a positive integer, got {norb!r}")
         self.dim = int(dim)

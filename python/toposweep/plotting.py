@@ -1,10 +1,11 @@
-"""Pictures of results (matplotlib): phase diagrams, index/gap lines, Wannier centre flow.
+"""Pictures of results (matplotlib): phase diagrams, index/gap lines, centre flows.
 
-Phases get discrete colours by class — trivial insulator, weak TI, strong TI, Z2-odd 2D
-insulator, undefined — with a shade per set of indices inside a class, so (1;000) and (1;111)
-are told apart. In phase diagrams the colour is darkened where the direct gap is small, so gap
-closings show as dark lines; a grey bar gives the scale. Figures are built without pyplot, so
-importing this module changes no global matplotlib state (notebooks keep their backend).
+Every phase has one fixed colour, the same in every figure (:mod:`toposweep.phase_style`:
+a colour per set of indices (ν0; ν1ν2ν3), chosen to stay apart under colour-blind vision;
+metals hatched over their bands' colour; undefined points white). In phase diagrams the colour
+is darkened near gap closings, so they show as dark lines, and each region is labelled with its
+indices. Figures are built without pyplot, so importing this module changes no global
+matplotlib state (notebooks keep their backend).
 """
 
 from __future__ import annotations
@@ -14,24 +15,29 @@ from typing import Any
 
 import numpy as np
 import xarray as xr
+from matplotlib import patheffects, rc_context
 from matplotlib.cm import ScalarMappable
 from matplotlib.colors import LinearSegmentedColormap, PowerNorm, to_rgb
 from matplotlib.figure import Figure
 from matplotlib.patches import Patch
 
 from .errors import ParameterError
+from .map_report import draw_transitions
+from .phase_style import (
+    METAL_HATCH,
+    SHADE_FLOOR,
+    SHADE_FROM,
+    gap_shade,
+    is_metal,
+    phase_colour,
+    phase_short_label,
+)
 from .summary import phase_labels
 
 __all__ = ["axis_label", "phase_colours", "plot_flow", "plot_line", "plot_phase_map", "select"]
 
-#: colour families per phase code: the first colour for the most common index set, and so on
-FAMILIES: dict[int, list[str]] = {
-    0: ["#e9dfc7", "#d8cba8", "#f4eedf"],  # trivial insulator: sand
-    1: ["#4f8fcf", "#8cb8e3", "#2d5f94"],  # weak TI: blues
-    2: ["#c8384f", "#f08a5d", "#8a1c33"],  # strong TI: reds/orange
-    3: ["#7b5ab5", "#b49ee0", "#4b2f7f"],  # Z2-odd 2D insulator: purples
-}
-UNDEFINED = "#7f7f7f"
+#: legend order: strong, weak, 2D Z2-odd, trivial, then metals, then undefined
+_LEGEND_RANK = ("strong", "weak", "Z2-odd", "trivial", "metal", "undefined")
 
 
 def axis_label(var: xr.DataArray) -> str:
@@ -65,32 +71,88 @@ def select(ds: xr.Dataset, keep: Sequence[str], at: Mapping[str, float] | None) 
     return ds.sel(pick, method="nearest") if pick else ds
 
 
-def phase_colours(labels: np.ndarray, phase: np.ndarray) -> dict[str, str]:
-    """A colour per distinct label: by phase class, then by how common the label is."""
-    counts: dict[str, tuple[int, int]] = {}
-    for lab, ph in zip(labels.ravel(), phase.ravel(), strict=True):
-        n, _ = counts.get(lab, (0, int(ph)))
-        counts[lab] = (n + 1, int(ph))
-    colours: dict[str, str] = {}
-    used: dict[int, int] = {}
-    for lab, (_, ph) in sorted(counts.items(), key=lambda kv: -kv[1][0]):
-        if ph < 0:
-            colours[lab] = UNDEFINED
-            continue
-        family = FAMILIES.get(ph, ["#999999"])
-        colours[lab] = family[used.get(ph, 0) % len(family)]
-        used[ph] = used.get(ph, 0) + 1
-    return colours
+class _PhaseStyle:
+    """Label, colour and metal flag of every point of a selection, and the legend entries."""
+
+    def __init__(self, sub: xr.Dataset) -> None:
+        self.labels = phase_labels(sub)
+        phase, nu0 = sub.phase.values, sub.nu0.values
+        nu = sub.nu.values if "nu" in sub else None
+        self.colours = np.empty(phase.shape, dtype=object)
+        self.short = np.empty(phase.shape, dtype=object)
+        self.metal = np.zeros(phase.shape, dtype=bool)
+        #: colour → label of every colour present: the insulator's label where an insulating
+        #: point has it, else the first metal's (metals add one "hatched" entry besides)
+        self.legend: dict[str, str] = {}
+        for idx in np.ndindex(phase.shape):
+            args = (int(phase[idx]), int(nu0[idx]), None if nu is None else tuple(nu[idx]))
+            colour = phase_colour(*args)
+            self.colours[idx] = colour
+            self.short[idx] = phase_short_label(*args)
+            self.metal[idx] = is_metal(args[0])
+            if colour not in self.legend or (
+                not self.metal[idx] and self.legend[colour].startswith("metal")
+            ):
+                self.legend[colour] = self.labels[idx]
+
+    def handles(self, alpha: float = 1.0) -> list[Patch]:
+        """Legend patches: one per colour present (strong phases first), then metals' hatching."""
+
+        def key(lab: str) -> tuple[int, str]:
+            for rank, word in enumerate(_LEGEND_RANK):
+                if lab.startswith(word):
+                    return rank, lab
+            return len(_LEGEND_RANK), lab
+
+        entries = sorted(self.legend.items(), key=lambda kv: key(kv[1]))
+        out = [
+            Patch(facecolor=c, edgecolor="0.35", linewidth=0.6, alpha=alpha, label=lab)
+            for c, lab in entries
+        ]
+        if self.metal.any():
+            label = "hatched: metal (bands' indices)"
+            out.append(Patch(facecolor="white", edgecolor="0.35", hatch=METAL_HATCH, label=label))
+        return out
 
 
-def _legend_order(colours: Mapping[str, str]) -> list[str]:
-    def key(lab: str) -> tuple[int, str]:
-        for rank, word in enumerate(("strong", "weak", "Z2-odd", "trivial", "undefined")):
-            if lab.startswith(word):
-                return rank, lab
-        return 9, lab
+def phase_colours(ds: xr.Dataset) -> dict[str, str]:
+    """The fixed colour of every phase label present in ``ds`` (metals: their bands' colour).
 
-    return sorted(colours, key=key)
+    Examples
+    --------
+    >>> import toposweep as ts
+    >>> ds = ts.sweep(ts.models.bhz(), {"mass": [-3.0, -1.0]}, 2, progress=False)
+    >>> phase_colours(ds)
+    {'trivial insulator (Z2 = 0)': '#DDDDDD', 'Z2-odd 2D insulator (Z2 = 1)': '#CC3311'}
+    """
+    style = _PhaseStyle(ds)
+    pairs = zip(style.labels.ravel(), style.colours.ravel(), strict=True)
+    return {str(lab): str(c) for lab, c in pairs}
+
+
+def _deepest_cells(labels: np.ndarray) -> dict[str, tuple[int, int, int]]:
+    """For each label of a 2-D array: (row, column, depth) of its cell farthest from an edge.
+
+    Regions are eroded one 4-neighbour step at a time; the last cells left are the deepest and
+    ``depth`` counts the steps. Where a label has several regions, the deepest is kept.
+    """
+    out: dict[str, tuple[int, int, int]] = {}
+    for lab in {str(v) for v in labels.ravel()}:
+        mask = np.pad(labels == lab, 1)  # (the map's border counts as an edge: text stays in)
+        depth = 0
+        while True:
+            inner = mask.copy()
+            inner[1:, :] &= mask[:-1, :]
+            inner[:-1, :] &= mask[1:, :]
+            inner[:, 1:] &= mask[:, :-1]
+            inner[:, :-1] &= mask[:, 1:]
+            if not inner.any():
+                break
+            mask, depth = inner, depth + 1
+        cells = np.argwhere(mask)  # the deepest cells; take the one nearest their centre
+        row, col = cells[np.argmin(((cells - cells.mean(axis=0)) ** 2).sum(axis=1))]
+        out[lab] = (int(row) - 1, int(col) - 1, depth)
+    return out
 
 
 def _title(ds: xr.Dataset, fixed: Mapping[str, Any]) -> str:
@@ -105,53 +167,97 @@ def _title(ds: xr.Dataset, fixed: Mapping[str, Any]) -> str:
 
 
 def plot_phase_map(
-    ds: xr.Dataset, x: str, y: str, *, at: Mapping[str, float] | None = None
+    ds: xr.Dataset,
+    x: str,
+    y: str,
+    *,
+    at: Mapping[str, float] | None = None,
+    region_labels: bool = True,
+    show_evaluated: bool = False,
 ) -> Figure:
-    """Phase diagram over the grid dims ``x`` and ``y``, darkened where the gap is small."""
+    """Phase diagram over the grid dims ``x`` and ``y``, darkened where the gap is small.
+
+    Each phase has its fixed colour (:mod:`toposweep.phase_style`); metals are hatched over
+    their bands' colour, undefined points left white. The colour is exact where the direct
+    gap is at least a quarter of the map's typical gap (its 90th percentile) and darkens to
+    half brightness at a closing. ``region_labels`` prints each phase's indices inside its
+    largest region (so the map reads without colour too).
+
+    For a phase map (:func:`toposweep.phase_map`) the located transitions are marked instead
+    of the gap shading (its gaps are measured at the evaluated points only), and with
+    ``show_evaluated`` the points that were evaluated.
+    """
     sub = select(ds, [x, y], at).transpose(y, x, ...)
-    labels = phase_labels(sub)
+    style = _PhaseStyle(sub)
     phase = sub.phase.values
-    colours = phase_colours(labels, phase)
-    rgb = np.array([[to_rgb(colours[lab]) for lab in row] for row in labels])
+    rgb = np.array([[to_rgb(c) for c in row] for row in style.colours])
     gap = np.where(phase >= 0, sub.gap_direct.values, np.nan)
     scale = float(np.nanpercentile(gap, 90)) if np.isfinite(gap).any() else 1.0
     scale = scale if scale > 0 else 1.0
-    # brightness 0.3 … 1 with the square root of the gap: closings become dark valleys
-    shade = 0.3 + 0.7 * np.sqrt(np.clip(np.nan_to_num(gap, nan=scale) / scale, 0, 1))
-    rgb = rgb * shade[..., None]
+    # (a phase map measured gaps at its evaluated points only: no shading there, its
+    # transitions are drawn instead)
+    adaptive = "obtained" in sub
+    rgb = rgb if adaptive else rgb * gap_shade(gap, scale)[..., None]
 
-    fig = Figure(figsize=(8.4, 5.2), layout="constrained")
-    grid = fig.add_gridspec(1, 2, width_ratios=[3.2, 1.25])
+    handles = style.handles()
+    fig = Figure(figsize=(8.6, max(5.2, 2.3 + 0.24 * len(handles))), layout="constrained")
+    grid = fig.add_gridspec(1, 2, width_ratios=[3.2, 1.45])
     ax = fig.add_subplot(grid[0, 0])
     side = fig.add_subplot(grid[0, 1])
     side.axis("off")
-    ax.pcolormesh(sub[x].values, sub[y].values, rgb, shading="nearest")
+    xs, ys = sub[x].values, sub[y].values
+    ax.pcolormesh(xs, ys, rgb, shading="nearest")
+    if style.metal.any() and len(xs) > 1 and len(ys) > 1:
+        with rc_context({"hatch.color": "0.15", "hatch.linewidth": 0.7}):
+            ax.contourf(xs, ys, style.metal.astype(float), levels=[0.5, 1.5], colors="none",
+                        hatches=[METAL_HATCH])  # fmt: skip
+    if region_labels:
+        _label_regions(ax, xs, ys, style)
+    draw_transitions(ax, ds, sub, x, y, evaluated=show_evaluated)
     ax.set_xlabel(axis_label(sub[x]))
     ax.set_ylabel(axis_label(sub[y]))
     fixed = {str(k): float(v) for k, v in sub.coords.items() if v.ndim == 0}
     ax.set_title(_title(ds, fixed), fontsize=10)
-    handles = [Patch(color=colours[lab], label=lab) for lab in _legend_order(colours)]
     side.legend(handles=handles, loc="upper left", frameon=False, fontsize=9, title="phase")
+    if adaptive:
+        return fig
     # the shading scale: a small horizontal bar under the legend
-    cax = side.inset_axes((0.05, 0.12, 0.85, 0.05))
+    cax = side.inset_axes((0.05, 0.06, 0.85, 0.035))
+    limit = SHADE_FROM * scale
     mappable = ScalarMappable(
-        cmap=LinearSegmentedColormap.from_list("shade", [(0.3, 0.3, 0.3), (1, 1, 1)]),
-        norm=PowerNorm(0.5, vmin=0, vmax=scale),
+        cmap=LinearSegmentedColormap.from_list("shade", [(SHADE_FLOOR,) * 3, (1, 1, 1)]),
+        norm=PowerNorm(0.5, vmin=0, vmax=limit),
     )
     bar = fig.colorbar(mappable, cax=cax, orientation="horizontal")
     unit = str(sub.gap_direct.attrs.get("units", ""))
     bar.set_label("shading: direct gap" + ("" if unit in ("", "1") else f" ({unit})"), fontsize=8)
-    bar.set_ticks([0, scale / 4, scale], labels=[f"{t:.2g}" for t in (0, scale / 4, scale)])
+    bar.set_ticks([0, limit / 4, limit], labels=[f"{t:.2g}" for t in (0, limit / 4, limit)])
     bar.ax.tick_params(labelsize=7)
     return fig
+
+
+def _label_regions(ax: Any, xs: np.ndarray, ys: np.ndarray, style: _PhaseStyle) -> None:
+    """Print each phase's indices at the deepest cell of its largest region.
+
+    Skipped for labels whose regions are all less than five cells thick (lines, isolated
+    points: the text would cover their neighbours) and for undefined points.
+    """
+    for row, col, depth in _deepest_cells(style.labels).values():
+        text = style.short[row, col]
+        if depth < 2 or text == "undefined":
+            continue
+        r, g, b = to_rgb(style.colours[row, col])
+        dark = 0.2126 * r + 0.7152 * g + 0.0722 * b < 0.45  # (relative luminance, sRGB weights)
+        ax.text(xs[col], ys[row], text, ha="center", va="center", fontsize=8,
+                color="white" if dark else "black",
+                path_effects=[patheffects.withStroke(linewidth=2, foreground="black" if dark
+                                                     else "white", alpha=0.6)])  # fmt: skip
 
 
 def plot_line(ds: xr.Dataset, x: str, *, at: Mapping[str, float] | None = None) -> Figure:
     """Indices (top) and gaps (bottom) against one grid dim, on the phase colours."""
     sub = select(ds, [x], at)
-    labels = phase_labels(sub)
-    phase = sub.phase.values
-    colours = phase_colours(labels, phase)
+    style = _PhaseStyle(sub)
     xs = sub[x].values
     edges = np.concatenate(
         [[xs[0] - (xs[1] - xs[0]) / 2 if len(xs) > 1 else xs[0] - 0.5],
@@ -161,15 +267,16 @@ def plot_line(ds: xr.Dataset, x: str, *, at: Mapping[str, float] | None = None) 
     fig = Figure(figsize=(7.8, 5.2), layout="constrained")
     top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[1, 1.4])
     for axis in (top, bottom):
-        for i, lab in enumerate(labels):
-            axis.axvspan(edges[i], edges[i + 1], color=colours[lab], alpha=0.55, lw=0)
+        for i in range(len(xs)):
+            axis.axvspan(edges[i], edges[i + 1], facecolor=style.colours[i], alpha=0.55, lw=0,
+                         hatch=METAL_HATCH if style.metal[i] else None)  # fmt: skip
     nu0 = np.where(sub.nu0.values >= 0, sub.nu0.values, np.nan)
     top.step(xs, nu0, where="mid", color="k", lw=2, label="ν0" if "nu" in sub else "Z2")
     if "nu" in sub:
-        for k, style in zip(range(3), ("--", "-.", ":"), strict=True):
+        for k, style_ in zip(range(3), ("--", "-.", ":"), strict=True):
             weak = sub.nu.values[:, k].astype(float)
             weak[weak < 0] = np.nan
-            top.step(xs, weak + 0.04 * (k + 1), where="mid", ls=style, lw=1.2,
+            top.step(xs, weak + 0.04 * (k + 1), where="mid", ls=style_, lw=1.2,
                      label=f"ν{k + 1}")  # fmt: skip
     top.set_yticks([0, 1])
     top.set_ylim(-0.3, 1.4)
@@ -181,7 +288,7 @@ def plot_line(ds: xr.Dataset, x: str, *, at: Mapping[str, float] | None = None) 
     bottom.axhline(0, color="0.5", lw=0.8)
     bottom.set_ylabel("gap" + ("" if unit in ("", "1") else f" ({unit})"))
     bottom.set_xlabel(axis_label(sub[x]))
-    handles = [Patch(color=colours[lab], alpha=0.55, label=lab) for lab in _legend_order(colours)]
+    handles = style.handles(alpha=0.55)
     bottom.legend(handles=[*bottom.get_legend_handles_labels()[0], *handles], fontsize=8,
                   loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)  # fmt: skip
     fixed = {str(k): float(v) for k, v in sub.coords.items() if v.ndim == 0}
@@ -189,19 +296,54 @@ def plot_line(ds: xr.Dataset, x: str, *, at: Mapping[str, float] | None = None) 
     return fig
 
 
-def plot_flow(flows: Sequence[xr.Dataset], z2: Sequence[int], title: str) -> Figure:
-    """Hybrid Wannier centres against the pump coordinate, one panel per plane."""
+#: centre flow markers: the evenly spaced initial lines and the lines inserted between them
+#: (Tol's vibrant blue and orange, told apart in colour-blind vision too)
+FLOW_INITIAL, FLOW_INSERTED = "#0077BB", "#EE7733"
+
+
+def plot_flow(
+    flows: Sequence[xr.Dataset],
+    z2: Sequence[int] | None = None,
+    title: str | None = None,
+) -> Figure:
+    """Centre flows — hybrid Wannier centres against the pump coordinate — one panel per plane.
+
+    Each flow is a :func:`toposweep.centre_flow` result. A panel shows the centres of every
+    pump line the index came from, the lines inserted where the centres moved fast in orange
+    (with a tick above the panel), and its plane's Z2 in the panel title. ``z2`` overrides the
+    flows' own values; ``title`` defaults to the model's name and the parameters.
+
+    Examples
+    --------
+    >>> import toposweep as ts
+    >>> flow = ts.centre_flow(ts.models.bhz(), 2, {"mass": -1.0})
+    >>> plot_flow([flow]).axes[0].get_title()
+    '2D model: Z2 = 1'
+    """
     n = len(flows)
+    if n == 0:
+        raise ParameterError("plot_flow needs at least one centre flow")
+    if z2 is None:
+        z2 = [int(f.z2) if "z2" in f else -1 for f in flows]
     cols = 3 if n == 6 else n
     rows = 2 if n == 6 else 1
-    size = (3.0 * cols + 0.6, 2.9 * rows + 0.6) if n > 1 else (6.4, 4.6)
+    size = (3.0 * cols + 0.6, 2.9 * rows + 0.9) if n > 1 else (6.4, 4.8)
     fig = Figure(figsize=size, layout="constrained")
     axes = fig.subplots(rows, cols, squeeze=False, sharey=True)
     for i, (flow, z) in enumerate(zip(flows, z2, strict=True)):
         ax = axes[i % rows][i // rows] if n == 6 else axes[0][i]
         pump = flow.pump.values
-        for band in range(flow.sizes["band"]):
-            ax.plot(pump, flow.centre.values[:, band], ".", ms=2.5, color="#2d5f94")
+        centres = flow.centre.values
+        inserted = flow.inserted.values if "inserted" in flow else np.zeros(len(pump), bool)
+        for mask, colour, label in ((~inserted, FLOW_INITIAL, "initial line"),
+                                    (inserted, FLOW_INSERTED, "inserted line")):  # fmt: skip
+            if mask.any():
+                xs = np.repeat(pump[mask], centres.shape[1])
+                ax.plot(xs, centres[mask].ravel(), ".", ms=3, color=colour, label=label)
+        if inserted.any():  # where lines were inserted, above the panel
+            top = ax.get_xaxis_transform()  # (x in data, y in axes fractions)
+            ax.plot(pump[inserted], np.ones(int(inserted.sum())), "v", ms=3.5,
+                    color=FLOW_INSERTED, clip_on=False, transform=top)  # fmt: skip
         ax.set_xlim(0, 0.5)
         ax.set_ylim(0, 1)
         if "plane_axis" in flow.attrs:
@@ -210,7 +352,16 @@ def plot_flow(flows: Sequence[xr.Dataset], z2: Sequence[int], title: str) -> Fig
             plane = "2D model"
         z_text = "undefined" if z < 0 else str(z)
         ax.set_title(f"{plane}: Z2 = {z_text}", fontsize=9)
-        ax.set_xlabel(axis_label(flow.pump))
-        ax.set_ylabel(axis_label(flow.centre).replace("hybrid Wannier centre", "HWC"))
+        ax.set_xlabel(f"pump coordinate κ{flow.attrs.get('pump_axis', 2)}")
+        ax.set_ylabel(f"centre along κ{flow.attrs.get('loop_axis', 1)}")
+        if i == 0 and inserted.any():
+            ax.legend(loc="lower right", fontsize=7, framealpha=0.8, markerscale=2)
+    if title is None:
+        first = flows[0]
+        params = {str(k): float(v) for k, v in first.coords.items() if v.ndim == 0}
+        where = ", ".join(f"{k} = {v:.4g}" for k, v in params.items())
+        name = str(first.attrs.get("model_name", ""))
+        title = "centre flow (hybrid Wannier centres)" + (f", {name}" if name else "")
+        title += f"\n{where}" if where else ""
     fig.suptitle(title, fontsize=10)
     return fig

@@ -1,32 +1,23 @@
-"""A one-line progress bar on stderr for long sweeps, silent when stderr is not a terminal."""
+"""The progress bar of long sweeps (tqdm), silent when its stream is not a terminal.
+
+tqdm draws the bar, rate and time left; this wrapper keeps the sweep's rules: shown only when
+asked for *and* drawing to a terminal (a log file or a pipe gets no carriage-return litter),
+resumed runs start at the points already done, and the count of undefined points so far is
+shown beside the rate.
+"""
 
 from __future__ import annotations
 
 import sys
-import time
 from typing import TextIO
+
+from tqdm import tqdm
 
 __all__ = ["ProgressBar"]
 
 
-def _duration(seconds: float) -> str:
-    """Compact duration, e.g. ``'42s'``, ``'3m05s'``, ``'1h02m'``.
-
-    Examples
-    --------
-    >>> _duration(42.4), _duration(185), _duration(3720)
-    ('42s', '3m05s', '1h02m')
-    """
-    s = int(round(seconds))
-    if s < 60:
-        return f"{s}s"
-    if s < 3600:
-        return f"{s // 60}m{s % 60:02d}s"
-    return f"{s // 3600}h{s % 3600 // 60:02d}m"
-
-
 class ProgressBar:
-    """Points done out of a total, with rate and time left; redrawn at most 10 times a second.
+    """Points done out of a total, with rate, time left and undefined points so far.
 
     Parameters
     ----------
@@ -34,6 +25,8 @@ class ProgressBar:
         Number of points of the whole run.
     done : int
         Points already finished (a resumed run starts there).
+    undefined : int
+        Undefined points among those already finished.
     enabled : bool
         False silences the bar; True shows it only if ``stream`` is a terminal.
     stream : file, optional
@@ -42,54 +35,70 @@ class ProgressBar:
     Examples
     --------
     >>> bar = ProgressBar(100, enabled=True)   # doctest output is not a terminal: silent
-    >>> bar.update(50); bar.close()
-    >>> bar.shown
-    False
+    >>> bar.update(50, undefined=3); bar.close()
+    >>> bar.shown, bar.done, bar.undefined
+    (False, 50, 3)
     """
 
     def __init__(
-        self, total: int, *, done: int = 0, enabled: bool = True, stream: TextIO | None = None
+        self,
+        total: int,
+        *,
+        done: int = 0,
+        undefined: int = 0,
+        enabled: bool = True,
+        stream: TextIO | None = None,
     ) -> None:
         self.stream = sys.stderr if stream is None else stream
         isatty = getattr(self.stream, "isatty", lambda: False)
         self.shown = bool(enabled) and bool(isatty())
-        self.total = max(int(total), 1)
+        self._total = max(int(total), 1)
         self.done = int(done)
-        self._start_done = self.done
-        self._t0 = time.monotonic()
-        self._last = 0.0
-        self._drawn = -1
-
-    def update(self, n: int) -> None:
-        """Count ``n`` more finished points."""
-        self.done += int(n)
-        now = time.monotonic()
-        if self.shown and (now - self._last > 0.1 or self.done >= self.total):
-            self._last = now
-            self._draw(now)
-
-    def _draw(self, now: float) -> None:
-        self._drawn = self.done
-        frac = min(self.done / self.total, 1.0)
-        width = 28
-        filled = int(round(frac * width))
-        elapsed = now - self._t0
-        new = self.done - self._start_done
-        rate = new / elapsed if elapsed > 0 else 0.0
-        left = (self.total - self.done) / rate if rate > 0 else float("nan")
-        eta = _duration(left) if left == left else "?"
-        line = (
-            f"\rsweep {frac:4.0%} [{'#' * filled}{'.' * (width - filled)}] "
-            f"{self.done}/{self.total} points  {rate:,.0f}/s  {eta} left "
+        self.undefined = int(undefined)
+        self._bar = (
+            tqdm(
+                total=self._total,
+                initial=self.done,
+                desc="sweep",
+                unit=" points",
+                file=self.stream,
+                mininterval=0.1,
+                dynamic_ncols=True,
+                leave=True,
+                postfix=self._postfix(),
+            )
+            if self.shown
+            else None
         )
-        self.stream.write(line)
-        self.stream.flush()
+
+    @property
+    def total(self) -> int:
+        """Points of the whole run; a run that learns its size as it goes may raise it."""
+        return self._total
+
+    @total.setter
+    def total(self, value: int) -> None:
+        self._total = int(value)
+        if self._bar is not None:
+            self._bar.total = self._total or None  # (None: not known yet)
+            self._bar.refresh()
+
+    def _postfix(self) -> str:
+        return f"{self.undefined} undefined"
+
+    def update(self, n: int, *, undefined: int = 0) -> None:
+        """Count ``n`` more finished points, ``undefined`` of them undefined."""
+        self.done += int(n)
+        self.undefined += int(undefined)
+        if self._bar is not None:
+            if undefined:
+                self._bar.set_postfix_str(self._postfix(), refresh=False)
+            self._bar.update(int(n))
 
     def close(self) -> None:
         """End the bar's line."""
-        if self.shown:
-            if self._drawn != self.done:
-                self._draw(time.monotonic())
-            self.stream.write("\n")
-            self.stream.flush()
+        if self._bar is not None:
+            self._bar.set_postfix_str(self._postfix(), refresh=False)
+            self._bar.close()
+            self._bar = None
             self.shown = False

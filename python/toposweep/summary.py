@@ -8,6 +8,8 @@ from collections import Counter
 import numpy as np
 import xarray as xr
 
+from .map_report import map_summary_lines
+
 __all__ = ["phase_label", "phase_labels", "summarise"]
 
 #: trade terms for the phase codes of :data:`toposweep.dataset.PHASES`
@@ -17,10 +19,10 @@ PHASE_NAMES = {
     1: "weak TI",
     2: "strong TI",
     3: "Z2-odd 2D insulator",
-    10: "metal, trivial bands",
-    11: "metal, weak TI bands",
-    12: "metal, strong TI bands",
-    13: "metal, Z2-odd bands",
+    10: "metal with trivial bands",
+    11: "metal with weak TI bands",
+    12: "metal with strong TI bands",
+    13: "metal with Z2-odd 2D bands",
 }
 MAX_LISTED = 8
 
@@ -142,6 +144,7 @@ def summarise(ds: xr.Dataset, name: str = "result") -> str:
     for label, n in ordered:
         lines.append(f"  {label:{width}s}  {n:6d}  {100 * n / total:5.1f}%")
 
+    lines += map_summary_lines(ds)
     reason = ds.undefined_reason.values
     undefined = np.argwhere(reason != 0)
     if len(undefined):

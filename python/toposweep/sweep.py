@@ -190,8 +190,11 @@ def _run(
     bar: ProgressBar,
     chunk_size: int | None,
     flag: _InterruptFlag,
+    remote: Any = None,
 ) -> bool:
     """Evaluate the flat ranges ``todo`` chunk by chunk; False if Ctrl-C stopped it."""
+    if remote is not None:  # chunks as tasks of an executor (sweep_executor.Remote)
+        return bool(remote.run(plan, todo, save, bar, chunk_size, flag))
     workers = plan.request.threads or os.cpu_count() or 1
     size = chunk_size or max(8, 4 * workers)
     first = True
@@ -209,7 +212,7 @@ def _run(
                 terms = plan.request.model.parameters
                 raw[TERM_VALUES] = np.array([[p[t] for t in terms] for p in points], float)
             save(start, stop, raw)
-            bar.update(stop - start)
+            bar.update(stop - start, undefined=int(np.count_nonzero(raw["nu0"] < 0)))
             if chunk_size is None:  # next chunk sized to last about CHUNK_SECONDS
                 per_point = max((time.perf_counter() - t0) / (stop - start), 1e-7)
                 size = int(min(MAX_CHUNK, max(workers, CHUNK_SECONDS / per_point)))
@@ -232,6 +235,7 @@ def sweep(
     progress: bool = True,
     threads: int | None = None,
     chunk_size: int | None = None,
+    executor: Any = None,
     **sampling: Any,
 ) -> xr.Dataset:
     """Z2 indices, gaps and diagnostics at every point of a parameter grid.
@@ -268,7 +272,16 @@ def sweep(
         Worker threads of the core, as for :func:`toposweep.invariants` (default: one per
         core). ``threads=1`` runs on the calling thread: give it to each process of a pool.
     chunk_size : int, optional
-        Points per core call (default: adapted so a chunk takes about a second).
+        Points per core call (default: adapted so a chunk takes about a second, or about two
+        seconds per task on an executor).
+    executor : dask.distributed.Client, concurrent.futures.Executor or str, optional
+        Run the chunks as tasks elsewhere: a Dask client, any ``Executor`` (e.g. a
+        ``ProcessPoolExecutor``), or a spec — ``"local:N"`` (a Dask cluster of N one-thread
+        worker processes on this machine), ``"processes:N"`` (a process pool toposweep
+        rebuilds if a process dies), a scheduler address. The model reaches each worker once;
+        each task runs the core on ``threads`` threads (default: its share of its host's
+        cores); this process keeps the journal and writes the file as without one. See
+        docs/cluster.md.
     **sampling
         ``loop_points``, ``lines``, ``max_lines``, ``step_limit``, ``gap_floor``,
         ``gap_points``; see :class:`toposweep.Sampling`.
@@ -297,25 +310,38 @@ def sweep(
     ):
         raise ParameterError(f"chunk_size must be a positive integer or None, got {chunk_size!r}")
     plan = make_plan(req, grid, params=params, coefficients=coefficients)
-    if out is None:
-        return _sweep_in_memory(plan, progress, chunk_size)
-    return _sweep_to_file(plan, os.fspath(out), resume, progress, chunk_size)
+    from .sweep_executor import remote_for  # (it imports this module)
+
+    with remote_for(executor, out) as remote:
+        if out is None:
+            return _sweep_in_memory(plan, progress, chunk_size, remote)
+        return _sweep_to_file(plan, os.fspath(out), resume, progress, chunk_size, remote)
 
 
-def _sweep_in_memory(plan: SweepPlan, progress: bool, chunk_size: int | None) -> xr.Dataset:
-    raws: list[dict[str, NDArray[Any]]] = []
+def _sweep_in_memory(
+    plan: SweepPlan, progress: bool, chunk_size: int | None, remote: Any = None
+) -> xr.Dataset:
+    parts: list[tuple[int, dict[str, NDArray[Any]]]] = []
     bar = ProgressBar(plan.size, enabled=progress)
     with _InterruptFlag() as flag:
         complete = _run(
-            plan, [(0, plan.size)], lambda s, e, raw: raws.append(raw), bar, chunk_size, flag
+            plan,
+            [(0, plan.size)],
+            lambda s, e, raw: parts.append((s, raw)),
+            bar,
+            chunk_size,
+            flag,
+            remote,
         )
     bar.close()
-    raw = _concat(raws)
+    parts.sort(key=lambda part: part[0])  # (an executor's chunks arrive in any order)
+    raw = _concat([r for _, r in parts])
     if not complete:
-        done = len(raw["nu0"])
-        partial = _flat_chunk(plan, 0, raw)
+        index = np.concatenate([np.arange(s, s + len(r["nu0"])) for s, r in parts])
+        done = len(index)
+        partial = _flat_chunk(plan, 0, raw).assign_coords({FLAT_DIM: index})
         for d in plan.dims:
-            values = [plan.user_point(i)[d] for i in range(done)]
+            values = [plan.user_point(int(i))[d] for i in index]
             partial = partial.assign_coords({d: (FLAT_DIM, values, plan.coord_attrs[d])})
         raise SweepInterrupted(
             f"sweep interrupted after {done} of {plan.size} points; "
@@ -329,7 +355,12 @@ def _sweep_in_memory(plan: SweepPlan, progress: bool, chunk_size: int | None) ->
 
 
 def _sweep_to_file(
-    plan: SweepPlan, out: str, resume: bool, progress: bool, chunk_size: int | None
+    plan: SweepPlan,
+    out: str,
+    resume: bool,
+    progress: bool,
+    chunk_size: int | None,
+    remote: Any = None,
 ) -> xr.Dataset:
     if resume and os.path.isfile(out) and not journal_path(out).is_dir():
         ds = open_result(out)
@@ -348,13 +379,17 @@ def _sweep_to_file(
         todo = missing_ranges(finished, plan.size)
         done = plan.size - sum(b - a for a, b in todo)
         bar = ProgressBar(plan.size, done=done, enabled=progress)
+        if bar.shown:  # the undefined points of the chunks a resumed run already has
+            bar.undefined = sum(
+                int(np.count_nonzero(journal.load(a, b)["nu0"] < 0)) for a, b in finished
+            )
 
         def save(start: int, stop: int, raw: Mapping[str, NDArray[Any]]) -> None:
             journal.save(start, stop, raw)
             finished.append((start, stop))
 
         with _InterruptFlag() as flag:
-            complete = _run(plan, todo, save, bar, chunk_size, flag)
+            complete = _run(plan, todo, save, bar, chunk_size, flag, remote)
         bar.close()
         if not complete:
             done = sum(b - a for a, b in finished)

@@ -194,7 +194,10 @@ def make_plan(
                 f"{model.name or type(model).__name__!r}; its parameters are "
                 f"{list(model.parameters)} (or pass coefficients= to map your own names)"
             )
-        fixed = {k: v for k, v in model.resolve(given).items() if k not in dims}
+        # the grid's own parameters take their first value here, so a model without
+        # defaults is checked whole; they are dropped again: only the others are fixed
+        first = {name: float(values[0]) for name, values, _ in axes}
+        fixed = {k: v for k, v in model.resolve({**given, **first}).items() if k not in dims}
     else:
         fixed = {}
         for k, v in given.items():

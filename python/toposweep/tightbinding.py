@@ -20,17 +20,19 @@ MAX_BOND = 1_000_000
 
 
 class TightBinding(Model):
-    r"""A lattice model H(κ) = Σ_term c_term Σ_R [T e^{2πiκ·R} + h.c.] in reduced coordinates.
+    r"""A lattice model H(κ) = Σ_term c_term [T_0 + Σ_{R≠0} (T_R e^{2πiκ·R} + T_R† e^{−2πiκ·R})].
 
-    Each call to :meth:`add` puts a hopping matrix T on the bond to lattice vector R; its
-    Hermitian conjugate at −R is implied, so add every bond once. An on-site piece (R = 0) must
-    itself be Hermitian. ``term=None`` adds to the fixed part; ``term="x"`` scales the hopping by
-    the parameter ``x``, so a parameter point costs only a linear combination.
+    κ are reduced coordinates. Each call to :meth:`add` puts a hopping matrix T on the bond to
+    lattice vector R ≠ 0; its Hermitian conjugate at −R is implied, so add every bond once
+    (adding both R and −R counts the bond twice). The on-site block T_0 (R = 0) is counted
+    once, with no conjugate added, and must itself be Hermitian. ``term=None`` adds to the
+    fixed part; ``term="x"`` scales the hopping by the parameter ``x``, so a parameter point
+    costs only a linear combination.
 
     Parameters
     ----------
     dim, norb : int
-        Spatial dimension (1–3) and number of orbitals (spin included).
+        Spatial dimension (2 or 3) and number of orbitals (spin included).
     lattice : array (dim, dim), optional
         Real-space lattice vectors as rows (only reported, never needed).
     positions : array (norb, dim), optional
@@ -46,14 +48,16 @@ class TightBinding(Model):
 
     Examples
     --------
-    A one-dimensional two-band chain with a scalable mass:
+    A two-band square lattice with a scalable mass; the on-site block counts once, each bond
+    twice (T and its conjugate), so at κ = 0 the diagonal is m + 2·(0.5 + 0.5):
 
     >>> import numpy as np
     >>> from toposweep import TightBinding
     >>> sz = np.diag([1.0, -1.0])
-    >>> chain = TightBinding(1, 2).add((0,), sz, term="m").add((1,), 0.5 * sz)
-    >>> chain.hamiltonian([[0.0]], {"m": 0.5}).real.round(3).tolist()
-    [[[1.5, 0.0], [0.0, -1.5]]]
+    >>> sq = TightBinding(2, 2).add((0, 0), sz, term="m")
+    >>> sq = sq.add((1, 0), 0.5 * sz).add((0, 1), 0.5 * sz)
+    >>> sq.hamiltonian([[0.0, 0.0]], {"m": 0.5}).real.round(3).tolist()
+    [[[2.5, 0.0], [0.0, -2.5]]]
     """
 
     def __init__(self, dim: int, norb: int, **kwargs: Any) -> None:
@@ -127,14 +131,26 @@ class TightBinding(Model):
             if err > 1e-12 * max(1.0, np.abs(t).max()):
                 raise ModelError(
                     f"the on-site block (R = 0) must be Hermitian; max |T − T†| = {err:.2e}. "
-                    "Put a non-Hermitian intra-cell coupling on one side only, e.g. T = "
-                    "[[0, v], [0, 0]] at R = 0 is wrong; use [[0, v], [conj(v), 0]]."
+                    "It is added once, with no conjugate implied: give the whole block, e.g. "
+                    "a coupling v between orbitals 0 and 1 of one cell is "
+                    "[[0, v], [conj(v), 0]], not [[0, v], [0, 0]]"
                 )
         t = t.copy()
         # read-only: the core model, the JSON text and the residual blocks are cached until the
         # next add(); a matrix changed in place through hoppings() would silently leave them stale
         t.setflags(write=False)
         return t
+
+    @classmethod
+    def from_hoppings(cls, R: ArrayLike, T: ArrayLike, **kwargs: Any) -> TightBinding:
+        """A model from lattice vectors R (nR, dim) and matrices T (nR, norb, norb).
+
+        Half or full lists (full ones checked for Hermitian pairs); see
+        :func:`toposweep.model_files.from_hoppings` for the options.
+        """
+        from .model_files import from_hoppings
+
+        return from_hoppings(R, T, **kwargs)
 
     # -- model interface --------------------------------------------------------------------------
     @property

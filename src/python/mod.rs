@@ -6,7 +6,9 @@
 
 use crate::bloch::{BlochSource, Hoppings, FILL_CHUNK};
 use crate::eigen::eigh_many_into;
-use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, ProveGap, Sampling};
+use crate::engine::{
+    evaluate_point, plane_flow, planes, Method, Plane, PointResult, ProveGap, Sampling,
+};
 use crate::error::{CoreError, CoreResult};
 use crate::pools::{default_threads, help_until, mark_main_thread, run_with};
 use crate::probe::divisible_work;
@@ -248,9 +250,13 @@ impl CoreModel {
                 let func = Python::with_gil(|py| func.clone_ref(py));
                 let variation = match lipschitz {
                     Some(l) => {
-                        let row = l.get(point * self.dim..(point + 1) * self.dim).ok_or_else(
-                            || CoreError::InvalidInput("no Lipschitz constants for a point".into()),
-                        )?;
+                        let row =
+                            l.get(point * self.dim..(point + 1) * self.dim)
+                                .ok_or_else(|| {
+                                    CoreError::InvalidInput(
+                                        "no Lipschitz constants for a point".into(),
+                                    )
+                                })?;
                         Some(VariationBound::lipschitz(row)?)
                     }
                     None => None,
@@ -558,6 +564,72 @@ fn flow<'py>(
     Ok(arr.into_pyarray(py))
 }
 
+/// The flow that decided one plane's Z2 (see [`crate::decided_flow`]): pump coordinates
+/// (nlines,), centres (nlines, filling), the plane's Z2 from these lines (−1: undefined) and
+/// the loop points they used. `plane` as for [`flow`].
+#[pyfunction]
+#[pyo3(signature = (model, coeff, filling, plane, *, loop_points, lines, max_lines, step_limit,
+                    certify=true, threads=None))]
+#[allow(clippy::too_many_arguments)]
+fn decided_flow<'py>(
+    py: Python<'py>,
+    model: &CoreModel,
+    coeff: PyReadonlyArray1<f64>,
+    filling: usize,
+    plane: usize,
+    loop_points: usize,
+    lines: usize,
+    max_lines: usize,
+    step_limit: f64,
+    certify: bool,
+    threads: Option<usize>,
+) -> PyResult<DecidedOut<'py>> {
+    let all: Vec<Plane> = planes(model.dim);
+    let pl = *all
+        .get(plane)
+        .ok_or_else(|| PyValueError::new_err(format!("plane must be < {}", all.len())))?;
+    if filling == 0 || filling >= model.norb {
+        return Err(PyValueError::new_err("filling out of range"));
+    }
+    let s = Sampling {
+        loop_points,
+        lines,
+        max_lines,
+        step_limit,
+        gap_floor: 0.0,
+        gap_points: 0,
+        gap_starts: 0,
+        method: Method::Wilson,
+        certify,
+    };
+    s.validate().map_err(to_py)?;
+    let c: Vec<f64> = coeff.as_array().to_vec();
+    let error = Arc::new(Mutex::new(None));
+    let run = detached(py, Workers::Pool(threads), || {
+        model.with_source(&c, 0, &error, |src| {
+            crate::decided_flow::decided_flow(src, filling, pl, &s)
+        })
+    });
+    let f = finish(py, run, &error)?;
+    let n = f.pump.len();
+    let centres = Array2::from_shape_vec((n, filling), f.centres)
+        .map_err(|e| PyRuntimeError::new_err(e.to_string()))?;
+    Ok((
+        f.pump.into_pyarray(py),
+        centres.into_pyarray(py),
+        f.z2,
+        f.loop_points,
+    ))
+}
+
+/// What [`decided_flow`] returns to Python.
+type DecidedOut<'py> = (
+    Bound<'py, numpy::PyArray1<f64>>,
+    Bound<'py, numpy::PyArray2<f64>>,
+    i8,
+    usize,
+);
+
 /// The instruction-set level the kernels were compiled for (`RUSTFLAGS` of the build; the
 /// Makefile picks x86-64-v3 where the building machine has it).
 fn instruction_set() -> &'static str {
@@ -589,6 +661,7 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(hamiltonian, m)?)?;
     m.add_function(wrap_pyfunction!(eigh, m)?)?;
     m.add_function(wrap_pyfunction!(flow, m)?)?;
+    m.add_function(wrap_pyfunction!(decided_flow, m)?)?;
     m.add_function(wrap_pyfunction!(fork_join_probe, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     m.add("INSTRUCTION_SET", instruction_set())?;

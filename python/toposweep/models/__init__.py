@@ -21,12 +21,12 @@ All have four orbitals (filling 2). At their defaults (the README table comes fr
 ...     ds = ts.invariants(getattr(ts.models, name)(), filling=2)
 ...     weak = "".join(str(v) for v in ds.nu.values) if "nu" in ds else "-"
 ...     print(f"{name:13s} nu0={int(ds.nu0)} nu={weak:3s} phase={int(ds.phase)} "
-...           f"gap={float(ds.gap_direct):.1f} bandwidth={float(ds.bandwidth):.1f}")
-bhz           nu0=1 nu=-   phase=3 gap=2.0 bandwidth=6.0
-df_lattice    nu0=1 nu=111 phase=2 gap=0.3 bandwidth=3.9
-fu_kane_mele  nu0=1 nu=111 phase=2 gap=0.8 bandwidth=8.8
-kane_mele     nu0=1 nu=-   phase=3 gap=1.0 bandwidth=6.0
-wilson_dirac  nu0=1 nu=000 phase=2 gap=2.0 bandwidth=10.0
+...           f"gap={float(ds.gap_direct):.3f} bandwidth={float(ds.bandwidth):.3f}")
+bhz           nu0=1 nu=-   phase=3 gap=2.000 bandwidth=6.000
+df_lattice    nu0=1 nu=111 phase=2 gap=0.300 bandwidth=3.900
+fu_kane_mele  nu0=1 nu=111 phase=2 gap=0.800 bandwidth=8.800
+kane_mele     nu0=1 nu=-   phase=3 gap=1.039 bandwidth=6.000
+wilson_dirac  nu0=1 nu=000 phase=2 gap=2.000 bandwidth=10.000
 """
 
 from __future__ import annotations

@@ -1,0 +1,310 @@
+"""Which points of a grid an adaptive phase map evaluates, and how it vouches for the rest.
+
+The grid is covered by cells — boxes of grid points, first every ``coarse_step``-th point per
+axis (ends included), split at their midpoints until they are one spacing wide. A cell whose
+evaluated points all have the same defined indices is *settled*: each point of it that was not
+evaluated is
+
+* **proven** when some evaluated point q of the cell has a proven gap (``gap_proven``) larger
+  than twice the band-shift bound δ(p, q) of :mod:`toposweep.weyl_bound` — then the gap cannot
+  close between q and p, and p has q's indices;
+* else **filled by agreement** (unless forbidden): for tight-binding models when the same test
+  passes with the measured gap (``gap_direct``, a minimum found by search, not a proof); for
+  other models when every evaluated point's gap exceeds ``agreement_gap``.
+
+Any other cell is split and the corners of its children are evaluated in the next round, so
+boundaries end up between evaluated neighbours one spacing apart. Everything here is plain
+NumPy over flat C-order point indices; the caller evaluates the points (``evaluate``), which
+keeps the order of the work deterministic — a resumed run asks for the same points in the same
+order.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .weyl_bound import band_shift_bounds
+
+__all__ = ["EVALUATED", "FILLED", "PROVEN", "PointTable", "auto_coarse_step", "refine"]
+
+#: how a point of a phase map was obtained (the values of the ``obtained`` flag variable)
+EVALUATED, PROVEN, FILLED = 0, 1, 2
+#: label of a point that was not evaluated (yet); defined labels are ≥ 0, undefined −1
+UNSEEN = -2
+#: default agreement threshold for models without a band-shift bound, relative to the largest
+#: bandwidth among the cell's evaluated points
+AGREEMENT_SHARE = 0.02
+
+Cell = tuple[tuple[int, ...], tuple[int, ...]]
+
+
+@dataclass
+class PointTable:
+    """Per-point state over the flat grid, updated by the caller as points are evaluated."""
+
+    shape: tuple[int, ...]
+    label: NDArray[np.int64] = field(init=False)
+    gap_direct: NDArray[np.float64] = field(init=False)
+    gap_proven: NDArray[np.float64] = field(init=False)
+    bandwidth: NDArray[np.float64] = field(init=False)
+
+    def __post_init__(self) -> None:
+        n = math.prod(self.shape)
+        self.label = np.full(n, UNSEEN, np.int64)
+        self.gap_direct = np.full(n, np.nan)
+        self.gap_proven = np.full(n, np.nan)
+        self.bandwidth = np.full(n, np.nan)
+
+    @property
+    def evaluated(self) -> NDArray[np.bool_]:
+        """Which points have been evaluated."""
+        return self.label != UNSEEN
+
+
+@dataclass
+class Claims:
+    """What a settled cell says about its points that were not evaluated."""
+
+    points: NDArray[np.int64]
+    how: NDArray[np.int8]
+    source: NDArray[np.int64]
+    bound: NDArray[np.float64]
+    seen: int  # evaluated points in the cell when it was settled
+
+    @staticmethod
+    def none(seen: int) -> Claims:
+        e = np.zeros(0, np.int64)
+        return Claims(e, np.zeros(0, np.int8), e, np.zeros(0), seen)
+
+
+def auto_coarse_step(shape: tuple[int, ...]) -> int:
+    """Default coarse spacing: about 8 cells along the longest axis, at least 2 on the shortest.
+
+    A power of two, so that cells halve down to one spacing.
+
+    Examples
+    --------
+    >>> auto_coarse_step((257, 129)), auto_coarse_step((49, 25, 13)), auto_coarse_step((5,))
+    (32, 4, 1)
+    """
+    spans = [n - 1 for n in shape if n > 1]
+    if not spans:
+        return 1
+    target = max(1, min(max(spans) // 8, min(spans) // 2))
+    return 1 << (target.bit_length() - 1)
+
+
+def _coarse_axis(n: int, step: int) -> list[int]:
+    return sorted(set(range(0, n, step)) | {n - 1})
+
+
+def _box(cell: Cell, shape: tuple[int, ...]) -> NDArray[np.int64]:
+    """Flat indices of the points of a cell, its faces included (C order)."""
+    lo, hi = cell
+    return _flat(shape)[tuple(slice(a, b + 1) for a, b in zip(lo, hi, strict=True))].ravel()
+
+
+_FLAT: dict[tuple[int, ...], NDArray[np.int64]] = {}
+
+
+def _flat(shape: tuple[int, ...]) -> NDArray[np.int64]:
+    """``arange(size).reshape(shape)``, kept for the last few shapes."""
+    found = _FLAT.get(shape)
+    if found is None:
+        if len(_FLAT) > 4:
+            _FLAT.clear()
+        found = _FLAT[shape] = np.arange(math.prod(shape), dtype=np.int64).reshape(shape)
+    return found
+
+
+def _all_corners(cells: list[Cell], shape: tuple[int, ...]) -> NDArray[np.int64]:
+    """Sorted flat indices of the corners of all ``cells`` (each once)."""
+    lo = np.array([c[0] for c in cells])
+    hi = np.array([c[1] for c in cells])
+    picks = np.array(list(itertools.product((0, 1), repeat=len(shape))), bool)
+    pts = np.where(picks[None, :, :], hi[:, None, :], lo[:, None, :]).reshape(-1, len(shape))
+    return np.unique(np.ravel_multi_index(tuple(pts.T), shape)).astype(np.int64)
+
+
+def _split(cell: Cell) -> list[Cell]:
+    lo, hi = cell
+    parts = []
+    for a, b in zip(lo, hi, strict=True):
+        parts.append([(a, b)] if b - a <= 1 else [(a, (a + b) // 2), ((a + b) // 2, b)])
+    return [
+        (tuple(p[0] for p in combo), tuple(p[1] for p in combo))
+        for combo in itertools.product(*parts)
+    ]
+
+
+@dataclass
+class RefineSettings:
+    """Options of :func:`refine` (see :func:`toposweep.phase_map`)."""
+
+    coarse_step: int
+    proven_only: bool = False
+    agreement_gap: float | None = None
+
+
+def _decide(
+    cell: Cell,
+    table: PointTable,
+    coeffs: NDArray[np.float64] | None,
+    bounds: NDArray[np.float64] | None,
+    settings: RefineSettings,
+) -> Claims | None:
+    """Claims of a settled cell, or None when it must be split."""
+    idx = _box(cell, table.shape)
+    ev = table.label[idx] != UNSEEN
+    seen = int(ev.sum())
+    if seen == idx.size:
+        return Claims.none(seen)
+    src = idx[ev]
+    labels = table.label[src]
+    if labels.size == 0 or labels.min() < 0 or labels.min() != labels.max():
+        return None
+    todo = idx[~ev]
+    nt, ns = todo.size, src.size
+    best = np.zeros(nt, np.int64)
+    margin = np.full(nt, -np.inf)
+    estimate_ok = np.zeros(nt, bool)
+    if bounds is not None and coeffs is not None:
+        delta = band_shift_bounds(coeffs[todo][:, None, :], coeffs[src][None, :, :], bounds)
+        proven_gap = np.where(np.isfinite(table.gap_proven[src]), table.gap_proven[src], -np.inf)
+        m = proven_gap[None, :] - 2.0 * delta
+        best = np.argmax(m, axis=1)
+        margin = m[np.arange(nt), best]
+        estimate_ok = (np.nan_to_num(table.gap_direct[src], nan=-np.inf) - 2.0 * delta > 0).any(1)
+    proven = margin > 0
+    if not proven.all():
+        if settings.proven_only:
+            return None
+        if bounds is not None and settings.agreement_gap is None:
+            agree = bool(estimate_ok[~proven].all())
+        else:
+            threshold = settings.agreement_gap
+            if threshold is None:
+                threshold = AGREEMENT_SHARE * float(np.nanmax(table.bandwidth[src]))
+            gaps = table.gap_direct[src]
+            agree = bool(np.all(np.isfinite(gaps)) and gaps.min() > threshold)
+        if not agree:
+            return None
+    how = np.where(proven, PROVEN, FILLED).astype(np.int8)
+    # filled points copy the nearest evaluated point of the cell (index distance)
+    pt = np.array(np.unravel_index(todo, table.shape)).T
+    ps = np.array(np.unravel_index(src, table.shape)).T
+    nearest = np.abs(pt[:, None, :] - ps[None, :, :]).sum(-1).argmin(1) if ns else best
+    source = np.where(proven, src[best], src[nearest])
+    bound = np.where(proven, margin, np.nan)
+    return Claims(todo.astype(np.int64), how, source.astype(np.int64), bound, seen)
+
+
+def refine(
+    table: PointTable,
+    evaluate: Callable[[NDArray[np.int64]], None],
+    settings: RefineSettings,
+    *,
+    coeffs: NDArray[np.float64] | None = None,
+    bounds: NDArray[np.float64] | None = None,
+    forced: NDArray[np.int64] | None = None,
+) -> tuple[NDArray[np.int8], NDArray[np.int64], NDArray[np.float64]]:
+    """Evaluate a grid adaptively; returns per point ``(how, source, bound)``.
+
+    ``evaluate(indices)`` must evaluate the given flat indices (sorted, none evaluated before)
+    and set their ``label``, ``gap_direct``, ``gap_proven`` and ``bandwidth`` in ``table``.
+    ``coeffs`` (points × terms) and ``bounds`` (terms) enable the proof; ``forced`` points
+    are evaluated in the first round whatever happens. ``how`` is EVALUATED/PROVEN/FILLED,
+    ``source`` the evaluated point whose indices a point carries (itself if evaluated),
+    ``bound`` the proven lower bound of the gap at PROVEN points (NaN elsewhere).
+    """
+    shape = table.shape
+    step = max(1, int(settings.coarse_step))
+    axes = [_coarse_axis(n, step) for n in shape]
+    cells: list[Cell] = [
+        (tuple(c[0] for c in combo), tuple(c[1] for c in combo))
+        for combo in itertools.product(
+            *[list(zip(a[:-1], a[1:], strict=True)) if len(a) > 1 else [(0, 0)] for a in axes]
+        )
+    ]
+    first = np.ravel_multi_index(np.ix_(*[np.array(a) for a in axes]), shape).ravel()
+    if forced is not None and forced.size:
+        first = np.union1d(first, forced)
+    evaluate(np.unique(first).astype(np.int64))
+
+    def run(pending: list[Cell]) -> None:
+        while pending:
+            children: list[Cell] = []
+            for cell in pending:
+                claims = _decide(cell, table, coeffs, bounds, settings)
+                if claims is None:
+                    children += _split(cell)
+                else:
+                    leaves[cell] = claims
+            if children:
+                new = _all_corners(children, shape)
+                new = new[table.label[new] == UNSEEN]
+                if new.size:
+                    evaluate(new.astype(np.int64))
+            pending = children
+
+    leaves: dict[Cell, Claims] = {}
+    run(cells)
+    while True:
+        # a settled cell whose points were evaluated since (by a neighbour's split) is decided
+        # again with what is known now; then claims that disagree on a point are settled by
+        # evaluating that point
+        stale = [
+            c for c, cl in leaves.items() if int(table.evaluated[_box(c, shape)].sum()) != cl.seen
+        ]
+        for c in stale:
+            del leaves[c]
+        if stale:
+            run(stale)
+            continue
+        how, source, bound, conflicts = _merge(leaves, table)
+        if conflicts.size == 0:
+            return how, source, bound
+        evaluate(conflicts)
+
+
+def _merge(
+    leaves: dict[Cell, Claims], table: PointTable
+) -> tuple[NDArray[np.int8], NDArray[np.int64], NDArray[np.float64], NDArray[np.int64]]:
+    n = table.label.size
+    how = np.full(n, EVALUATED, np.int8)
+    source = np.arange(n, dtype=np.int64)
+    bound = np.full(n, np.nan)
+    parts = [c for c in leaves.values() if c.points.size]
+    if not parts:
+        return how, source, bound, np.zeros(0, np.int64)
+    pts = np.concatenate([c.points for c in parts])
+    hw = np.concatenate([c.how for c in parts])
+    src = np.concatenate([c.source for c in parts])
+    bd = np.concatenate([c.bound for c in parts])
+    keep = table.label[pts] == UNSEEN
+    pts, hw, src, bd = pts[keep], hw[keep], src[keep], bd[keep]
+    lab = table.label[src]
+    lo = np.full(n, np.iinfo(np.int64).max)
+    hi = np.full(n, np.iinfo(np.int64).min)
+    np.minimum.at(lo, pts, lab)
+    np.maximum.at(hi, pts, lab)
+    claimed = np.zeros(n, bool)
+    claimed[pts] = True
+    conflicts = np.flatnonzero(claimed & (lo != hi))
+    # per point: a proof before a fill, the largest proven bound first
+    order = np.lexsort((-np.nan_to_num(bd, nan=-np.inf), hw, pts))
+    pts, hw, src, bd = pts[order], hw[order], src[order], bd[order]
+    first = np.unique(pts, return_index=True)[1]
+    how[pts[first]] = hw[first]
+    source[pts[first]] = src[first]
+    bound[pts[first]] = bd[first]
+    unclaimed = np.flatnonzero(~table.evaluated & ~claimed)
+    if unclaimed.size:  # cannot happen: every cell is settled or split down to its corners
+        raise RuntimeError(f"{unclaimed.size} grid points were neither evaluated nor settled")
+    return how, source, bound, conflicts.astype(np.int64)

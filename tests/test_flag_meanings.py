@@ -1,0 +1,123 @@
+"""Flag meanings checked by name: every code a result carries must read as what the point is.
+
+A file is read by people and by other programs through ``flag_values``/``flag_meanings`` (CF
+conventions, section 3.5; common practice). Counting the flags proves nothing — a swap of two
+names keeps the count — so each check here takes a point whose answer is known from a
+published phase diagram, reads the code the package wrote, looks that code up in the
+variable's own flags and compares the *name*:
+
+- Wilson–Dirac model (Fu & Kane, Phys. Rev. B 76, 045302 (2007)): (0;000) for |m| > 3,
+  (1;000) for −3 < m < −1, (0;111) for |m| < 1; the gap closes at TRIMs for m = ±1, ±3.
+- BHZ-type model (Qi, Wu & Zhang, Phys. Rev. B 74, 085308 (2006); Bernevig, Hughes & Zhang,
+  Science 314, 1757 (2006)): Z2-odd for 0 < |m| < 2, even for |m| > 2.
+- Kane–Mele model (Kane & Mele, Phys. Rev. Lett. 95, 226801 (2005)): Z2-odd below
+  λ_v = 3√3 λ_SO; the staggered potential breaks inversion.
+- d–f lattice without hybridisation: its bands cross away from the TRIMs (module docstring;
+  ``test_parity_independent.py`` checks the crossing), so it is gapless.
+
+The same is read back from a written file with netCDF4-python (the netCDF-C library), an
+outside reader.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import toposweep as ts
+
+THREE_LINES = {"lines": 3, "max_lines": 3}  # Wilson loop not resolved: undefined
+
+
+def meaning(var) -> str:
+    """The flag meaning of a scalar flag variable's value, by the variable's own attributes."""
+    names = var.attrs["flag_meanings"].split()
+    values = [int(v) for v in np.asarray(var.attrs["flag_values"])]
+    assert len(names) == len(values) == len(set(values)) == len(set(names))
+    return dict(zip(values, names, strict=True))[int(var)]
+
+
+# (model, params, sampling) → the phase name the published diagram gives
+PHASE_CASES = [
+    ("wilson_dirac", {"mass": -3.5}, {}, "trivial_insulator"),
+    ("wilson_dirac", {"mass": -2.0}, {}, "strong_topological_insulator"),
+    ("wilson_dirac", {"mass": -0.5}, {}, "weak_topological_insulator"),
+    ("wilson_dirac", {"mass": 0.5}, {}, "weak_topological_insulator"),
+    ("wilson_dirac", {"mass": 2.0}, {}, "strong_topological_insulator"),
+    ("wilson_dirac", {"mass": -2.0}, THREE_LINES, "undefined"),
+    ("bhz", {"mass": -1.0}, {}, "z2_odd_2d_insulator"),
+    ("bhz", {"mass": 3.0}, {}, "trivial_insulator"),
+    ("kane_mele", {"staggered": 0.45}, {}, "z2_odd_2d_insulator"),
+    ("kane_mele", {"staggered": 0.7}, {}, "trivial_insulator"),
+]
+
+
+@pytest.mark.parametrize(("name", "params", "sampling", "want"), PHASE_CASES)
+def test_phase_reads_as_the_published_phase(name, params, sampling, want):
+    ds = ts.invariants(getattr(ts.models, name)(), 2, params, **sampling)
+    assert meaning(ds.phase) == want
+
+
+def test_index_flags_read_as_even_and_odd():
+    # (1;000) at m = −2: ν0 odd, every weak index even, by both methods
+    ds = ts.invariants(ts.models.wilson_dirac(), 2, {"mass": -2.0})
+    assert meaning(ds.nu0) == "odd" == meaning(ds.nu0_parity)
+    for i in range(3):
+        assert meaning(ds.nu[i]) == "even" == meaning(ds.nu_parity[i])
+    assert meaning(ds.parity_agrees) == "agree"
+    assert meaning(ds.converged) == "yes"
+    assert meaning(ds.undefined_reason) == "defined" == meaning(ds.parity_undefined_reason)
+    weak = ts.invariants(ts.models.wilson_dirac(), 2, {"mass": -0.5})  # (0;111)
+    assert meaning(weak.nu0) == "even" and meaning(weak.nu[0]) == "odd"
+
+
+# (model, params, sampling, variable) → the reason name that says why
+REASON_CASES = [
+    ("wilson_dirac", {"mass": -2.0}, THREE_LINES, "undefined_reason", "not_converged"),
+    ("df_lattice", {"hybridisation": 0.0}, {}, "undefined_reason", "gapless_direct"),
+    ("wilson_dirac", {"mass": 1.0}, {}, "parity_undefined_reason", "degenerate_at_filling"),
+    ("kane_mele", {"staggered": 0.45}, {}, "parity_undefined_reason", "inversion_not_a_symm"),
+]
+
+
+@pytest.mark.parametrize(("name", "params", "sampling", "var", "want"), REASON_CASES)
+def test_reason_reads_as_why(name, params, sampling, var, want):
+    ds = ts.invariants(getattr(ts.models, name)(), 2, params, **sampling)
+    assert meaning(ds[var]).startswith(want), meaning(ds[var])
+
+
+def test_gapless_point_reads_as_undefined_with_a_gap_reason():
+    # m = 1: the Wilson–Dirac gap closes at the TRIMs (Fu & Kane 2007)
+    ds = ts.invariants(ts.models.wilson_dirac(), 2, {"mass": 1.0})
+    assert meaning(ds.nu0) == "undefined" == meaning(ds.phase)
+    assert meaning(ds.undefined_reason) in (
+        "gapless_direct_gap_below_floor",
+        "degenerate_at_filling_at_trim",
+    )
+    assert meaning(ds.parity_agrees) == "not_comparable"
+
+
+def test_file_flags_read_by_the_netcdf_c_library(tmp_path):
+    """A sweep written to disk, read with netCDF4-python: every phase code names its phase."""
+    import netCDF4  # installed by `make test` (Makefile TEST_DEPS)
+
+    masses = np.array([-3.5, -2.0, -0.5, 1.0])
+    want = [
+        "trivial_insulator",
+        "strong_topological_insulator",
+        "weak_topological_insulator",
+        "undefined",
+    ]
+    out = tmp_path / "map.nc"
+    ts.sweep(ts.models.wilson_dirac(), {"mass": masses}, 2, out=out, progress=False).close()
+    with netCDF4.Dataset(out) as f:
+        var = f.variables["phase"]
+        table = dict(
+            zip(
+                [int(v) for v in np.atleast_1d(var.getncattr("flag_values"))],
+                var.getncattr("flag_meanings").split(),
+                strict=True,
+            )
+        )
+        codes = [int(v) for v in np.ma.filled(var[:], -99)]
+        np.testing.assert_allclose(f.variables["mass"][:], masses)
+    assert [table[c] for c in codes] == want
