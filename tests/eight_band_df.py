@@ -13,11 +13,16 @@ band, a narrow odd band, an odd-in-k hybridisation — is common practice, no so
 
 Symmetries: time reversal Θ = 1 ⊗ iσ_y K (real orbital matrices, sin k odd), inversion
 P = diag(+1, +1, −1, −1) ⊗ 1 (d even, f odd; the hybridisation is odd in k). P and Θ together
-make every band a Kramers pair at every κ, so a touching of two pairs at a κ that is not a
-TRIM takes five conditions (Murakami, New J. Phys. 9, 356 (2007), from memory): it shows up at
-isolated points of (κ, f level, V) space, which ``GENERIC_TOUCHING`` records (found with
-scipy, checked again by the tests that use it).
+make every band a Kramers pair at every κ.
 
+Why bands 4 and 5 touch at generic κ (on lines): the hoppings depend on κ only through
+c = Σ_i cos k_i, and a spin rotation R turns Σ_i sin k_i s_i into |sin k| s_z (it acts on
+the spin of every orbital alike, so it leaves the spin-independent blocks alone). The
+spectrum therefore depends on (c, |sin k|) only, and there H splits into two real symmetric
+4×4 blocks (spin up and down along the rotated axis). Two eigenvalues of a real symmetric
+matrix meet where two conditions hold (von Neumann & Wigner, Phys. Z. 30, 467 (1929), from
+memory): at isolated points of the (c, |sin k|) plane, i.e. on closed lines in κ, for a whole
+range of f levels — no fine tuning. ``tests/test_gapless_generic.py`` finds them with scipy.
 Terms: ``f_level`` (ε_f) and ``hybridisation`` (V); everything else is fixed.
 """
 

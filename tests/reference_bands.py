@@ -36,6 +36,7 @@ __all__ = [
     "kane_mele_h",
     "locate_closing",
     "min_direct_gap",
+    "path_stays_gapped",
     "tight_binding_h",
     "trims",
     "wilson_dirac_h",
@@ -137,7 +138,7 @@ def tight_binding_h(model, params: Mapping[str, float]) -> HamiltonianFn:  # noq
     return lambda kappa: bloch_hamiltonian(model, np.atleast_2d(kappa), params)
 
 
-# -- gaps --------------------------------------------------------------------------------------------
+# -- gaps ------------------------------------------------------------------------------------------
 def trims(dim: int) -> Floats:
     """The 2^dim time-reversal-invariant momenta (entries 0 or 1/2)."""
     return 0.5 * np.array(list(itertools.product((0, 1), repeat=dim)), dtype=float)
@@ -188,9 +189,10 @@ def pattern_search(
 
     A pattern search with the 3^d − 1 cube neighbours as its stencil, every start advanced
     in lock step so that each round is one batch: move to the best neighbour if it is lower
-    (and double the step, up to its start value, to stride along valleys), else halve it, until the step is under ``smallest_step``. The direct gap is smooth
-    except where it vanishes, and near a closing it is a cone |A x| (convex, with a half-space
-    of descent directions at every other point), so the search converges to the closing
+    (and double the step, up to its start value, to stride along valleys), else halve the
+    step, until it is under ``smallest_step``. The direct gap is smooth except where it
+    vanishes, and near a closing it is a cone |A x| (convex, with a half-space of descent
+    directions at every other point), so the search converges to the closing
     (common practice, no source). Returns the points and their values.
     """
     x = np.array(starts, dtype=float, ndmin=2)
@@ -291,6 +293,42 @@ def locate_closing(
     x, fx = pattern_search(gaps, starts, 0.5 / (scan - 1), smallest_step=1e-14)
     i = int(np.argmin(fx))
     return Closing(float(bracket[0] + x[i, -1] * width), np.mod(x[i, :-1], 1.0), float(fx[i]))
+
+
+def path_stays_gapped(
+    h_along: Callable[[float], HamiltonianFn],
+    dim: int,
+    filling: int,
+    lipschitz: float,
+    *,
+    max_points: int = 400,
+) -> tuple[bool, float, int]:
+    """Whether the direct gap stays open along a path t ∈ [0, 1] of Hamiltonians.
+
+    ``lipschitz`` bounds how fast the gap can change: by Weyl's inequality each eigenvalue
+    moves by at most ‖ΔH‖, so the gap by at most 2 max_κ ‖dH/dt‖ per unit t. A segment
+    [a, b] counts as open when g(a) + g(b) > L (b − a) (the gap cannot reach zero inside);
+    otherwise it is split in two. The gaps are NumPy minima over κ (upper bounds of the true
+    minima), so this is a sampled check, dense where the gap is small, not a proof. Returns
+    (open, smallest gap sampled, points used).
+    """
+
+    def gap(t: float) -> float:
+        return min_direct_gap(h_along(t), dim, filling, points=36, starts=4).gap
+
+    todo = [(0.0, 1.0, gap(0.0), gap(1.0))]
+    smallest, used = min(todo[0][2:]), 2
+    while todo:
+        a, b, ga, gb = todo.pop()
+        if ga + gb > lipschitz * (b - a):
+            continue
+        if used >= max_points or ga <= 0 or gb <= 0:
+            return False, smallest, used
+        mid = 0.5 * (a + b)
+        gm = gap(mid)
+        smallest, used = min(smallest, gm), used + 1
+        todo += [(a, mid, ga, gm), (mid, b, gm, gb)]
+    return True, smallest, used
 
 
 # -- Fu–Kane parity --------------------------------------------------------------------------------
