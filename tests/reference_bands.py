@@ -302,7 +302,7 @@ def path_stays_gapped(
     lipschitz: float,
     *,
     max_points: int = 400,
-) -> tuple[bool, float, int]:
+) -> tuple[bool, tuple[float, float], int]:
     """Whether the direct gap stays open along a path t ∈ [0, 1] of Hamiltonians.
 
     ``lipschitz`` bounds how fast the gap can change: by Weyl's inequality each eigenvalue
@@ -310,14 +310,15 @@ def path_stays_gapped(
     [a, b] counts as open when g(a) + g(b) > L (b − a) (the gap cannot reach zero inside);
     otherwise it is split in two. The gaps are NumPy minima over κ (upper bounds of the true
     minima), so this is a sampled check, dense where the gap is small, not a proof. Returns
-    (open, smallest gap sampled, points used).
+    (open, (smallest gap sampled, its t), points used).
     """
 
     def gap(t: float) -> float:
-        return min_direct_gap(h_along(t), dim, filling, points=36, starts=4).gap
+        points = 36 if dim == 2 else 10
+        return min_direct_gap(h_along(t), dim, filling, points=points, starts=4).gap
 
     todo = [(0.0, 1.0, gap(0.0), gap(1.0))]
-    smallest, used = min(todo[0][2:]), 2
+    smallest, used = (min(todo[0][2:]), 0.0 if todo[0][2] < todo[0][3] else 1.0), 2
     while todo:
         a, b, ga, gb = todo.pop()
         if ga + gb > lipschitz * (b - a):
@@ -326,7 +327,7 @@ def path_stays_gapped(
             return False, smallest, used
         mid = 0.5 * (a + b)
         gm = gap(mid)
-        smallest, used = min(smallest, gm), used + 1
+        smallest, used = min(smallest, (gm, mid)), used + 1
         todo += [(a, mid, ga, gm), (mid, b, gm, gb)]
     return True, smallest, used
 

@@ -27,7 +27,8 @@ import pytest
 import reference_bands as rb
 import toposweep as ts
 from eight_band_df import eight_band_df, numpy_hamiltonian
-from random_models import random_model
+from near_checks import check_point
+from random_models import norm_bound, random_model
 from scipy.optimize import minimize
 
 #: a gap under this fraction of the bandwidth is a touching
@@ -122,3 +123,66 @@ def test_random_model_weyl_points_are_gapless(seed, coupling):
     assert touching.relative < TOUCHING, f"no touching found: {touching}"
     ds = ts.invariants(case.model, case.filling, params)
     assert_no_indices(ds, touching, f"random model seed {seed}, coupling {coupling}")
+
+
+# The edge of a Weyl range at generic κ: the seed-8 random model (4 bands, no inversion) is an
+# insulator for small coupling and gapless (Weyl points off every TRIM plane) above ~4.2. The
+# value below came from a bisection of reference_bands.min_direct_gap (gapless when the gap
+# found was under 1e-8 of the bandwidth); close to it the gap falls faster than linearly (to
+# ~1e-5 of the bandwidth 1e-3 below it), so the continuity reference covers the points down to
+# 1e-2 below, and the nearer ones must be — and are checked to be — under the gap floor.
+WEYL_EDGE_SEED, WEYL_EDGE = 8, 4.208984377
+#: inversion of the uncoupled Dirac block of a 4-band random model (random_models._DIRAC_P)
+CORE_INVERSION = np.kron(rb.SZ, rb.S0)
+EDGE_DISTANCES = (1e-1, 1e-2, 1e-3, 1e-4)
+CONTINUITY_TO = 1e-2  # relative distance below the edge down to which the path is checked
+
+
+@pytest.fixture(scope="module")
+def weyl_edge():
+    """The model and the indices of its insulating side, by continuity from coupling 0.
+
+    At coupling 0 only the inversion-symmetric core is left: its Fu–Kane parity indices (Fu &
+    Kane, Phys. Rev. B 76, 045302 (2007)) hold along any path on which the gap stays open, here
+    up to 1e-2 below the edge (``path_stays_gapped``, the coupling's norm bound as Lipschitz
+    constant by Weyl's inequality).
+    """
+    case = random_model(WEYL_EDGE_SEED, dim=3, inversion=False, norb=4)
+    h0 = rb.tight_binding_h(case.model, {"coupling": 0.0})
+    kappa = np.random.default_rng(5).random((20, 3))
+    p = CORE_INVERSION
+    np.testing.assert_allclose(p @ h0(kappa) @ p.conj().T, h0(-kappa), atol=1e-12)
+    want = rb.fu_kane_indices(h0, p, 3, case.filling)
+    end = WEYL_EDGE * (1 - CONTINUITY_TO)
+    coupling = [(r, t) for r, t, term in case.model.hoppings() if term == "coupling"]
+    ok, smallest, used = rb.path_stays_gapped(
+        lambda t: rb.tight_binding_h(case.model, {"coupling": t * end}),
+        3,
+        case.filling,
+        2 * end * norm_bound(coupling),
+    )
+    assert ok, f"gap not shown open from coupling 0 to {end} ({used} points, min {smallest})"
+    return case, want
+
+
+EDGE_CASES = [
+    pytest.param(d, side, id=f"{d:.0e}-{'insulator' if side < 0 else 'weyl'}")
+    for d in EDGE_DISTANCES
+    for side in (-1, 1)
+]
+
+
+@pytest.mark.parametrize(("distance", "side"), EDGE_CASES)
+def test_random_model_weyl_edge(weyl_edge, distance, side):
+    """Both sides of a gap closing at generic κ: the insulating side's indices where its gap
+    is above the floor, undefined where it is not and on the Weyl side."""
+    case, insulator = weyl_edge
+    coupling = WEYL_EDGE * (1 + side * distance)
+    h = rb.tight_binding_h(case.model, {"coupling": coupling})
+    gap = rb.min_direct_gap(h, 3, case.filling)
+    gapless = side > 0 or distance < CONTINUITY_TO
+    if gapless:  # premise: gapless by the default floor (1e-5 of the bandwidth), so only
+        assert gap.relative < 0.5e-5, gap  # "undefined" is right there
+    ds = ts.invariants(case.model, case.filling, {"coupling": coupling})
+    want = None if gapless else insulator
+    check_point(ds, want, gap, f"random model seed {WEYL_EDGE_SEED}, coupling {coupling!r}")

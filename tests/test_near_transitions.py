@@ -4,17 +4,12 @@ For each transition below the critical value is located independently (NumPy eig
 Bloch Hamiltonian typed in from the paper, or summed with NumPy from the model's hopping list,
 minimised jointly over κ and the parameter; ``reference_bands.py``) and compared with the
 published value where one exists. Then points at relative distances 1e-1 … 1e-4 on both sides
-are evaluated with the DEFAULT sampling of ``ts.invariants`` and must be
-
-- right (the expected indices come from the published phase or from an independent NumPy
-  Fu–Kane parity product at the TRIMs where inversion holds — Fu & Kane, Phys. Rev. B 76,
-  045302 (2007) — and both must agree where both exist), or
-- undefined, which is allowed only where the independently computed direct gap is under
-  ``GAP_THRESHOLD`` times the bandwidth, or where the point says its gap could not be proven
-  above the floor (reason 11, ``gap_not_proven_above_floor``).
-
-Where the result carries ``gap_proven`` (a proven lower bound of the direct gap), it must not
-exceed the gap NumPy finds at an actual κ. docs/near-transitions.md describes the family.
+are evaluated with the DEFAULT sampling of ``ts.invariants`` and must obey the rule of
+``near_checks.py``: right (the expected indices come from the published phase or from an
+independent NumPy Fu–Kane parity product at the TRIMs where inversion holds — Fu & Kane, Phys.
+Rev. B 76, 045302 (2007) — and both must agree where both exist), or undefined only where the
+independent direct gap is under ``GAP_THRESHOLD`` (1e-4) of the bandwidth or the point carries
+reason 11. docs/near-transitions.md describes the family.
 """
 
 from __future__ import annotations
@@ -30,17 +25,10 @@ import reference_bands as rb
 import toposweep as ts
 from eight_band_df import INVERSION as EIGHT_BAND_P
 from eight_band_df import eight_band_df, numpy_hamiltonian
+from near_checks import Indices, check_point
 
-#: Undefined answers are accepted only below this direct gap, relative to the bandwidth (both
-#: computed independently with NumPy), unless the point carries reason 11. The issue asks for
-#: 1e-4 or lower; the core's default gap floor is 1e-5 of the bandwidth.
-GAP_THRESHOLD = 1e-4
-#: reason code 11 of issue 18: the gap could not be proven above the floor
-REASON_GAP_NOT_PROVEN = 11
 DISTANCES = (1e-1, 1e-2, 1e-3, 1e-4)
 SQRT3 = math.sqrt(3.0)
-
-Indices = tuple[int, tuple[int, ...]]
 
 
 @dataclass(frozen=True)
@@ -296,6 +284,10 @@ def test_critical_values(name):
         assert found.value == pytest.approx(t.published, rel=1e-9, abs=1e-11)
     if name == "fu_kane_mele":  # δt* = 0 (Fu, Kane & Mele 2007), at the X points
         assert abs(found.value) < 1e-10
+    if name.startswith("df_lattice"):  # d and f levels cross at X (−3.5) or Γ (−1.5): with
+        # g(TRIM) from the hoppings, ε_f* = g (t_d − t_f) (common practice, no source)
+        g = -3.5 if name == "df_lattice_low" else -1.5
+        assert found.value == pytest.approx(g * (0.25 - -0.05), rel=1e-9)
     if name == "kane_mele_rashba":  # the issue quotes λ_v ≈ 0.16297
         assert found.value == pytest.approx(0.16297, abs=5e-6)
     # both sides open: the gap grows linearly away from the closing
@@ -313,29 +305,6 @@ CASES = [
 ]
 
 
-def check_point(t: Transition, value: float, want: Indices, ds, gap: rb.GapMinimum) -> None:
-    """Right, or undefined only with a tiny independent gap or reason 11."""
-    nu0 = int(ds.nu0)
-    got = (nu0, tuple(int(v) for v in ds.nu.values) if t.dim == 3 else ())
-    reason = int(ds.undefined_reason)
-    where = (
-        f"{t.name} {t.param}={value!r}: got {got} (reason {reason}, converged "
-        f"{int(ds.converged)}, gap_direct {float(ds.gap_direct):.3e}), want {want}; NumPy gap "
-        f"{gap.gap:.3e} = {gap.relative:.2e} of the bandwidth at κ={np.round(gap.kappa, 6)}"
-    )
-    if nu0 != -1:
-        assert got == want, "WRONG ANSWER: " + where
-    else:
-        assert reason != 0, "undefined without a reason: " + where
-        assert gap.relative < GAP_THRESHOLD or reason == REASON_GAP_NOT_PROVEN, (
-            "undefined although the gap is open: " + where
-        )
-    if "gap_proven" in ds:
-        proven = float(ds.gap_proven)
-        if not math.isnan(proven):  # a proven lower bound cannot exceed a gap that exists
-            assert proven <= gap.gap * (1 + 1e-9) + 1e-12 * gap.bandwidth, where
-
-
 @pytest.mark.parametrize(("name", "distance", "side"), CASES)
 def test_near_transition(name, distance, side):
     t = BY_NAME[name]
@@ -347,4 +316,4 @@ def test_near_transition(name, distance, side):
         t.reference(value), t.dim, t.filling, extra_starts=[closing.kappa, -closing.kappa]
     )
     ds = ts.invariants(built_model(name), t.filling, {**t.fixed, t.param: value})
-    check_point(t, value, want, ds, gap)
+    check_point(ds, want, gap, f"{t.name} {t.param}={value!r}")
