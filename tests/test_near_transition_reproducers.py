@@ -48,7 +48,8 @@ def gapped_leg(start: tuple[float, float], end: tuple[float, float]) -> tuple[bo
         lr, lv = r0 + t * (r1 - r0), v0 + t * (v1 - v0)
         return lambda k: rb.kane_mele_h(k, lso=LSO, lr=lr, lv=lv)
 
-    return rb.path_stays_gapped(h_along, 2, 2, lipschitz)
+    ok, (smallest, _), used = rb.path_stays_gapped(h_along, 2, 2, lipschitz)
+    return ok, smallest, used
 
 
 def test_rashba_norm_bound():
