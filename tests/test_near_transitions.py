@@ -293,11 +293,18 @@ def test_critical_values(name):
         assert found.value == pytest.approx(g * (0.25 - -0.05), rel=1e-9)
     if name == "kane_mele_rashba":  # the issue quotes λ_v ≈ 0.16297
         assert found.value == pytest.approx(0.16297, abs=5e-6)
-    # both sides open: the gap grows linearly away from the closing
+    # both sides open, the gap growing linearly away from the closing (a Dirac cone in the
+    # parameter): 1e-3 away it is ten times what it is 1e-4 away, which also shows that the
+    # located value is far more precise than the smallest distance tested
     for side in (-1, 1):
-        near = point_value(t, 1e-4, side)
-        g = rb.min_direct_gap(t.reference(near), t.dim, t.filling, extra_starts=[found.kappa])
-        assert g.gap > 0
+        gaps = [
+            rb.min_direct_gap(
+                t.reference(point_value(t, d, side)), t.dim, t.filling, extra_starts=[found.kappa]
+            ).gap
+            for d in (1e-4, 1e-3)
+        ]
+        assert gaps[0] > 0
+        assert gaps[1] / gaps[0] == pytest.approx(10, rel=0.05), (side, gaps)
 
 
 CASES = [
