@@ -601,6 +601,7 @@ fn decided_flow<'py>(
         gap_starts: 0,
         method: Method::Wilson,
         certify,
+        prove_gap: ProveGap::Never,
     };
     s.validate().map_err(to_py)?;
     let c: Vec<f64> = coeff.as_array().to_vec();
