@@ -59,6 +59,13 @@ pub enum ProveGap {
 /// `ProveGap::Auto` proves gaps under this share of the variation bound's scale.
 pub const AUTO_PROOF_SHARE: f64 = 0.05;
 
+/// Under `ProveGap::Auto`, a point whose smallest gap found is below this many floors must
+/// have its gap proven, or it is undefined (`GAP_NOT_PROVEN`): 100 floors = 10⁻³ of the
+/// bandwidth with the default floor. (At 10 floors, points 10⁻⁴ of a coupling from the edge
+/// of a range of Weyl points kept an estimate 2·10⁻⁴ of the bandwidth, twenty floors, while
+/// the true gap was 10⁻⁷: they were reported with indices.)
+pub const NEAR_FLOOR: f64 = 100.0;
+
 impl ProveGap {
     pub fn parse(name: &str) -> CoreResult<Self> {
         match name {
@@ -300,7 +307,7 @@ pub fn evaluate_point(
     // A proven bound of the gap over the whole zone: what the search found is an estimate.
     let mut gap_proven = f64::NAN;
     let mut proof_evaluations = 0;
-    let mut not_proven = false;
+    let mut unfinished = false;
     if stats.min_direct >= floor_of(&stats) {
         if let Some(bound) = src
             .variation()
@@ -326,8 +333,7 @@ pub fn evaluate_point(
                         stats.min_direct_at = kappa;
                     }
                 }
-                // (auto: a proof too dear for its small budget is simply not given)
-                GapProof::Unfinished { .. } => not_proven = s.prove_gap == ProveGap::Always,
+                GapProof::Unfinished { .. } => unfinished = true,
             }
         }
     }
@@ -348,6 +354,12 @@ pub fn evaluate_point(
         lattice_planes_refine(src, &lp, filling, u, &mut lat, &mut stats)?;
     }
     let floor = floor_of(&stats);
+    // An unfinished proof makes the point undefined with `ProveGap::Always`; with `Auto` only
+    // when the smallest gap found (by now: loops and lines too) is within NEAR_FLOOR floors —
+    // there no cheap proof can succeed (boxes must shrink to (gap − floor)/slope) and a closing
+    // between the sampled κ is most likely; elsewhere the point simply has no proven gap.
+    let not_proven = unfinished
+        && (s.prove_gap == ProveGap::Always || stats.min_direct < NEAR_FLOOR * floor);
 
     let parity = match inversion {
         Some(p) => Some(parity_indices(

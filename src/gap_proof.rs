@@ -26,8 +26,10 @@ pub const TARGET_SHARE: f64 = 0.5;
 /// Boxes per axis of the first level.
 const FIRST_LEVEL: usize = 4;
 
-/// Box centres evaluated in one batch (bounds the memory of a round: batch × norb² complex).
-const BATCH: usize = 4096;
+/// Box centres evaluated in one batch: small enough that the smallest-gap-first order holds
+/// (a batch of thousands took the whole frontier, level by level), large enough to keep the
+/// workers busy.
+const BATCH: usize = 256;
 
 /// Outcome of [`prove_gap`].
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -61,7 +63,7 @@ struct Cell {
     half: [f64; 3],
 }
 
-/// A box waiting to be evaluated, keyed by its parent's lower bound (lowest first).
+/// A box waiting to be evaluated, keyed by the gap at its parent's centre (lowest first).
 struct Pending {
     key: f64,
     cell: Cell,
@@ -99,8 +101,10 @@ pub fn prove_gap(
 ) -> CoreResult<GapProof> {
     let dim = src.dim();
     let slopes = bound.slopes();
-    // best first: the boxes whose parent had the lowest bound, so that a closing near the
-    // smallest gaps is found before the budget goes on boxes far from it
+    // smallest gap first: the boxes whose parent's centre had the smallest gap, so the proof
+    // dives toward a closing (found in a few boxes per halving of the box) before the budget
+    // goes on boxes far from it; keyed by the bound instead, it went level by level and spent
+    // a small budget before reaching a nodal line between the sampled κ
     let mut todo: BinaryHeap<Pending> = first_level(dim)
         .into_iter()
         .map(|cell| Pending {
@@ -147,7 +151,7 @@ pub fn prove_gap(
             } else {
                 children.clear();
                 split(c, dim, &slopes, &mut children);
-                todo.extend(children.drain(..).map(|cell| Pending { key: lower, cell }));
+                todo.extend(children.drain(..).map(|cell| Pending { key: g, cell }));
             }
         }
     }
