@@ -358,8 +358,8 @@ pub fn evaluate_point(
     // when the smallest gap found (by now: loops and lines too) is within NEAR_FLOOR floors —
     // there no cheap proof can succeed (boxes must shrink to (gap − floor)/slope) and a closing
     // between the sampled κ is most likely; elsewhere the point simply has no proven gap.
-    let not_proven = unfinished
-        && (s.prove_gap == ProveGap::Always || stats.min_direct < NEAR_FLOOR * floor);
+    let not_proven =
+        unfinished && (s.prove_gap == ProveGap::Always || stats.min_direct < NEAR_FLOOR * floor);
 
     let parity = match inversion {
         Some(p) => Some(parity_indices(

@@ -55,9 +55,11 @@ def invariants(
         Parameter values; the rest come from ``model.defaults``.
     inversion : array (norb, norb), optional
         Inversion matrix for this call (overrides the model's).
-    loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts, method, certify,
-    prove_gap
+    loop_points, lines, max_lines, step_limit, gap_floor, gap_points, gap_starts, method, certify
         Sampling options, see :class:`toposweep.Sampling`.
+    prove_gap : {"auto", "always", "never"} or bool
+        When the direct gap is proven over the whole zone (``gap_proven``), see
+        :class:`toposweep.Sampling`.
     threads : int, optional
         Worker threads. ``threads=1`` runs the call on the calling thread (no other thread).
         Larger values: called from the main thread, that thread and ``threads - 1`` helpers;

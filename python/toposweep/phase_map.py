@@ -15,7 +15,6 @@ ones the journal holds are read back instead of evaluated.
 
 from __future__ import annotations
 
-import dataclasses
 import math
 import os
 from collections.abc import Mapping
@@ -60,9 +59,6 @@ __all__ = ["labels_of", "phase_map"]
 GRID_INDEX = "grid_index"
 #: flat results that say how the work went, not what the point is: 0 where not evaluated
 WORK_COUNTERS = ("lines_used", "loop_points_used", "lattice_loop_points")
-#: the core's sampling option that decides where gaps are proven (issue 18); a phase map asks
-#: for proofs everywhere unless told otherwise
-PROVE_GAP = "prove_gap"
 #: default transition_tol, as a fraction of a grid spacing
 TRANSITION_TOL = 1e-3
 
@@ -304,9 +300,11 @@ def phase_map(
     transition_tol : float, optional
         Tolerance of a transition's position, as a fraction of the grid spacing (default 1e-3).
     **sampling
-        Sampling options, as for :func:`toposweep.sweep`; where the core can prove gaps
-        (``prove_gap``), a phase map proves them at every evaluated point unless told
-        otherwise.
+        Sampling options, as for :func:`toposweep.sweep`. With ``prove_gap="always"`` every
+        evaluated point of a tight-binding model carries a proven gap, so more of the cells
+        around it are proven rather than filled by agreement; the proof costs 1.5–2× a call
+        for small 2D models and far more for wide-band 3D ones (docs/near-closings.md), so the
+        default stays the sweep's ``"auto"``.
 
     Returns
     -------
@@ -321,9 +319,6 @@ def phase_map(
     >>> ds.transition_mass.values.round(6).tolist()  # Z2 changes at m/t = -2 and 2
     [-2.0, 2.0]
     """
-    if PROVE_GAP in {f.name for f in dataclasses.fields(Sampling)}:
-        # the proof needs proven gaps deep inside phases too, where a sweep skips them
-        sampling.setdefault(PROVE_GAP, "always")
     samp = Sampling.from_options(**sampling)
     req = prepare_request(model, filling, inversion=inversion, sampling=samp, threads=threads)
     if chunk_size is not None and (

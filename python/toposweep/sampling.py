@@ -81,18 +81,18 @@ class Sampling:
         ``changes_with_doubled_loop_points``). ``max_step`` and ``min_clearance`` then
         describe the finer run.
     prove_gap : {"auto", "always", "never"} or bool
-        When to prove a lower bound of the direct gap over the whole Brillouin zone (``gap_proven``)
-        by branch and bound: boxes of κ around sampled points, each bounded through Weyl's
-        inequality with the hopping norms of the model. ``"auto"`` (default) proves the gap
-        where the estimate is under 5 % of the most the Hamiltonian can change over the zone
-        — where sampling alone could miss a closing and the proof is cheap —; ``"always"``
-        (or ``True``) everywhere, ``"never"`` (or ``False``) nowhere. A κ point found with a gap under the
-        floor makes the point gapless; a gap that cannot be proven above the floor within the
-        work budget makes it undefined (``gap_not_proven_above_floor``). Models given as a
-        function carry no hopping norms: their gap is not proven (``gap_proven`` is NaN).
-        Near a closing the same bound places extra κ points on the Wilson loops and extra
-        pump lines (the Davis–Kahan bound on how far the occupied states turn), whatever
-        this option says.
+        When to prove a lower bound of the direct gap over the whole Brillouin zone
+        (``gap_proven``), by branch and bound over boxes of κ, each bounded through Weyl's
+        inequality with the hopping norms of the model. A box centre with a gap under the
+        floor makes the point gapless. ``"always"`` (or ``True``): every point, about a second
+        of work at most; a point that cannot be proven is undefined
+        (``gap_not_proven_above_floor``). ``"auto"`` (default): where the estimated gap is
+        under 5 % of the most the Hamiltonian can change over the zone, with a budget of twice
+        the point's first-pass κ points; unproven, the point is undefined only when its
+        smallest gap found is under 100 floors. ``"never"`` (or ``False``). A
+        :class:`CallableModel` needs ``lipschitz=`` for the proof. Whatever this option says,
+        Wilson loops get extra κ points where the Davis–Kahan bound says the occupied states
+        may turn too far between neighbours (docs/near-closings.md).
 
     Examples
     --------
