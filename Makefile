@@ -13,7 +13,7 @@ TEST_DEPS := netCDF4 dask distributed
 
 # Compile for x86-64-v3 (AVX2, FMA, BMI2, ...) when the machine that builds has every feature of
 # that level, as told by rustc itself: the kernels run about a fifth faster than at the baseline
-# x86-64 level (DEVELOPERS.md, "Instruction set"), and the build then runs only on such CPUs.
+# x86-64 level (DEVELOPERS.md, "Performance facts"), and the build then runs only on such CPUs.
 # RUSTFLAGS set by the caller wins: `RUSTFLAGS= make build` gives a portable build.
 # (rustc's names; python/toposweep/_cpu_check.py lists the same features by /proc/cpuinfo's names)
 V3_FEATURES := avx avx2 bmi1 bmi2 f16c fma lzcnt movbe
@@ -68,8 +68,8 @@ test-rust: ## Rust unit tests of the numerical kernels
 test-python: build $(VENV)/.test-deps ## pytest, doctests included
 	$(PY) -m pytest -q tests python/toposweep --doctest-modules
 
-bench: build ## benchmarks against a plain NumPy implementation; writes benches/RESULTS.md
-	$(PY) benches/run_all.py --out benches/RESULTS.md
+bench: build ## benchmarks against plain NumPy; writes benches/RESULTS.md and the README table
+	$(PY) benches/run_all.py --out benches/RESULTS.md --readme README.md
 
 lint: venv ## cargo fmt --check, clippy -D warnings, ruff
 	cargo fmt --check

@@ -6,7 +6,7 @@
 //! Why not nested `rayon::join`/`par_iter`: a point's TRIMs, bulk grid rows and pump lines were
 //! three nested parallel phases. Rayon splits a slice into a few long runs and splits further
 //! only when a run is stolen, so at the end of each nested phase one worker waited for the
-//! other's run of several lines; timed leaf by leaf (a scratch build, DEVELOPERS.md), two
+//! other's run of several lines; timed leaf by leaf (a scratch build, benches/RESULTS.md), two
 //! workers stood idle ~9 % of a 4-band point, one ~3.5 %. One list ends with one wait, for one
 //! task, and costs a shared counter update per chunk (a few dozen per point) instead of a
 //! deque operation per split.

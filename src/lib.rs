@@ -24,7 +24,6 @@ pub mod matrix;
 pub mod parity;
 pub mod plane_flows;
 pub mod pools;
-pub mod probe;
 #[cfg(test)]
 mod test_rng;
 pub mod wilson;

@@ -9,7 +9,6 @@ use crate::eigen::eigh_many_into;
 use crate::engine::{evaluate_point, plane_flow, planes, Method, Plane, PointResult, Sampling};
 use crate::error::{CoreError, CoreResult};
 use crate::pools::{default_threads, help_until, mark_main_thread, run_with};
-use crate::probe::divisible_work;
 use crate::C64;
 use numpy::ndarray::{Array2, Array3};
 use numpy::{
@@ -461,21 +460,6 @@ fn eigh<'py>(
     Ok((e.into_pyarray(py), v.into_pyarray(py)))
 }
 
-/// Benchmark probe: `tasks` equal chains of `iterations` multiply–adds over the pool, nothing
-/// serial (see [`crate::probe`]); returns their checksum.
-#[pyfunction]
-#[pyo3(signature = (tasks, iterations, *, threads=None))]
-fn fork_join_probe(
-    py: Python<'_>,
-    tasks: u64,
-    iterations: u64,
-    threads: Option<usize>,
-) -> PyResult<u64> {
-    detached(py, Workers::Pool(threads), || {
-        Ok(divisible_work(tasks, iterations))
-    })
-}
-
 /// Hybrid Wannier centres (npump, filling) of one plane at fixed pump coordinates. `plane` is
 /// the index into the planes of the model (3D: 2·axis + (cut == 1/2); 2D: 0).
 #[pyfunction]
@@ -611,7 +595,6 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(eigh, m)?)?;
     m.add_function(wrap_pyfunction!(flow, m)?)?;
     m.add_function(wrap_pyfunction!(decided_flow, m)?)?;
-    m.add_function(wrap_pyfunction!(fork_join_probe, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     m.add("INSTRUCTION_SET", instruction_set())?;
     Ok(())
