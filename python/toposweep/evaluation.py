@@ -95,7 +95,7 @@ def prepare_request(
     The request is kept on the model and given again for the same filling, threads and
     sampling (the same objects) while the model's hoppings and operators are unchanged: a loop
     of :func:`toposweep.invariants` calls asks for the same one each time, and making it again
-    cost ~10 µs of serial Python per call, cold after the last call's core (DEVELOPERS.md).
+    cost ~10 µs of serial Python per call, cold after the last call's core (benches/RESULTS.md).
     The operators count as unchanged while they are the read-only arrays the model was made
     with; a model whose operators were replaced is checked every time.
     """
