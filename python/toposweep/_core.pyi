@@ -74,7 +74,6 @@ def hamiltonian(
 def eigh(
     h: NDArray[np.complex128], *, threads: int | None = None
 ) -> tuple[NDArray[np.float64], NDArray[np.complex128]]: ...
-
 def flow(
     model: CoreModel,
     coeff: NDArray[np.float64],
