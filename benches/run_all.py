@@ -410,6 +410,7 @@ def main() -> None:
     # from ONE_THREAD, see CallerThread)
     _core.eigh(np.eye(4, dtype=complex)[None], threads=os.cpu_count())
     t_start = time.perf_counter()
+    load_at_start = load()
     doc = [
         "# toposweep benchmarks",
         "",
@@ -427,7 +428,7 @@ def main() -> None:
         "while a row was measured (/proc/stat): on a shared virtual machine it caps a threads "
         "gain, and it changes from minute to minute. "
         "Other jobs were sharing the machine "
-        f"({load()} at the start).",
+        f"({load_at_start} at the start).",
         "",
     ]
 
@@ -515,8 +516,9 @@ def main() -> None:
         print(f"wrote {args.out}", file=sys.stderr)
     if args.readme:
         stamp = (
-            f"{datetime.now(timezone.utc):%Y-%m-%d}, {os.cpu_count()} cores, "
-            f"kernels for {_core.INSTRUCTION_SET.split(' (')[0]}"
+            f"{datetime.now(timezone.utc):%Y-%m-%d}, kernels for "
+            f"{_core.INSTRUCTION_SET.split(' (')[0]}, {load_at_start} at the start — the "
+            "threads columns mean little when the load exceeds the cores"
         )
         replace_between(args.readme, README_START, README_END, summary_table(stamp))
         print(f"rewrote the summary table of {args.readme}", file=sys.stderr)
