@@ -148,6 +148,40 @@ mod tests {
         }
     }
 
+    /// A plane without an answer leaves its axis undefined (−1) in every array the point
+    /// reports (`nu0_by_axis`, `z2_plane`), not only in ν0, whatever the other plane of that
+    /// axis says; the other axes keep theirs.
+    #[test]
+    fn unresolved_plane_leaves_its_axis_undefined() {
+        let r = combine(
+            3,
+            &[1, 0, -1, 1, 0, -1],
+            reason::DEFINED,
+            reason::NOT_CONVERGED,
+        );
+        assert_eq!(r.nu0_by_axis, [1, -1, -1]);
+        assert_eq!(r.z2_plane, [[1, 0], [-1, 1], [0, -1]]);
+        assert_eq!(
+            (r.nu0, r.nu, r.reason),
+            (-1, [-1; 3], reason::NOT_CONVERGED)
+        );
+    }
+
+    /// z(i, 0) = 0 and z(i, ½) = 1 on every axis: (1;111) — the order of the two planes in
+    /// ν0 = z(i, 0) + z(i, ½) mod 2 and ν_i = z(i, ½) matters (Fu & Kane, Phys. Rev. B 76,
+    /// 045302 (2007): the Wilson–Dirac model for 1 < m < 3).
+    #[test]
+    fn odd_top_planes_give_the_strong_phase_with_odd_weak_indices() {
+        let r = combine(
+            3,
+            &[0, 1, 0, 1, 0, 1],
+            reason::DEFINED,
+            reason::NOT_CONVERGED,
+        );
+        assert_eq!((r.nu0, r.nu, r.nu0_by_axis), (1, [1, 1, 1], [1, 1, 1]));
+        assert_eq!(r.reason, reason::DEFINED);
+    }
+
     #[test]
     fn strong_weak_and_undefined() {
         // z(1,0)=1, z(1,½)=0 for every axis: (1;000)
