@@ -82,6 +82,7 @@ PYTHON_GROUPS = [
             "python/toposweep/models/_bonds.py",
         ],
         ["tests/test_published_hamiltonians.py", "tests/test_physics_catalogue.py"],
+        definitions=["", "kane_mele", "fu_kane_mele", "add_spin_bond"],
         why="Kane–Mele and diamond models, built from bonds found from the geometry",
     ),
     PythonGroup(
@@ -93,6 +94,7 @@ PYTHON_GROUPS = [
             "python/toposweep/models/_matrices.py",
         ],
         ["tests/test_published_hamiltonians.py", "tests/test_physics_catalogue.py"],
+        definitions=["", "wilson_dirac", "bhz", "df_lattice", "_band_hoppings", "kron"],
         why="Wilson–Dirac, BHZ and d–f models, hoppings written by hand",
     ),
     PythonGroup(
@@ -166,6 +168,7 @@ class Survivor:
     what: str
     key: str
     reason: str | None = None
+    name: str = ""  # the tool's own name of the mutant (cargo-mutants: with line and column)
 
 
 @dataclass
@@ -261,7 +264,26 @@ def run_python_group(g: PythonGroup, work: Path) -> GroupResult:
 
 
 # -- Rust: cargo-mutants --------------------------------------------------------------------------
-def run_rust_group(g: RustGroup, work: Path) -> GroupResult:
+def recheck_rust_group(g: RustGroup, work: Path) -> GroupResult:
+    """Run again only the group's last survivors (after new tests).
+
+    The caught ones count as killed from then on; the rest of the last run's counts stand.
+    """
+    state = json.loads(STATE.read_text())[g.name]
+    names = [entry[3] for entry in state["survivors"]]
+    again = run_rust_group(g, work, only=names)
+    still = {s.name for s in again.survivors}
+    counts = dict(state["counts"])
+    caught = len(names) - len(still)
+    counts["survived"] = counts.get("survived", 0) - caught
+    counts["killed"] = counts.get("killed", 0) + caught
+    survivors = list(again.survivors)
+    return GroupResult(
+        g.name, "cargo-mutants", g.why, counts, survivors, state["seconds"] + again.seconds
+    )
+
+
+def run_rust_group(g: RustGroup, work: Path, only: list[str] | None = None) -> GroupResult:
     """Run cargo-mutants on the group's files with the kernels' unit tests."""
     start = time.monotonic()
     out = work / g.name
@@ -270,7 +292,7 @@ def run_rust_group(g: RustGroup, work: Path) -> GroupResult:
         "mutants",
         "--no-shuffle",
         "--jobs",
-        "1",
+        "2",
         "--timeout",
         "300",
         "--output",
@@ -279,6 +301,8 @@ def run_rust_group(g: RustGroup, work: Path) -> GroupResult:
     ]
     for f in g.files:
         cmd += ["--file", f]
+    for name in only or []:
+        cmd += ["--re", "^" + re.escape(name) + "$"]
     cmd += ["--", "--lib"]
     if g.test_filter:
         cmd += ["--", *g.test_filter]
@@ -301,17 +325,20 @@ def run_rust_group(g: RustGroup, work: Path) -> GroupResult:
         counts[summary] = counts.get(summary, 0) + 1
         if summary == "survived":
             mutant = o["scenario"]["Mutant"]
-            span = mutant.get("span", {}).get("start", {})
+            line = mutant.get("span", {}).get("start", {}).get("line", "?")
             func = (mutant.get("function") or {}).get("function_name", "")
-            text = f"replace {mutant.get('name') or ''}".strip()
-            desc = mutant.get("genre", "")
-            what = _rust_description(mutant) or f"{desc} {text}"
+            what = _rust_description(mutant)
+            diff = (out / "mutants.out" / o["diff_path"]).read_text().splitlines()
+            was = [d[1:].strip() for d in diff if d.startswith("-") and not d.startswith("--")]
+            now = [d[1:].strip() for d in diff if d.startswith("+") and not d.startswith("++")]
+            was_now = f"`{was[0] if was else ''}` → `{now[0] if now else ''}`"
             survivors.append(
                 Survivor(
                     g.name,
-                    f"{mutant['file']}:{span.get('line', '?')} ({func})",
-                    what,
-                    f"{mutant['file']}|{func}|{what}",
+                    f"{mutant['file']}:{line} ({func})",
+                    f"{what}: {was_now}",
+                    f"{mutant['file']}|{func}|{what}|{was[0] if was else ''}",
+                    name=mutant["name"],
                 )
             )
     return GroupResult(g.name, "cargo-mutants", g.why, counts, survivors, time.monotonic() - start)
@@ -344,12 +371,12 @@ def remember(results: list[GroupResult], argv: list[str]) -> list[GroupResult]:
             "seconds": round(r.seconds),
             "finished": stamp,
             "command": " ".join(["python", "mutation/run.py", *argv]),
-            "survivors": [[s.where, s.what, s.key] for s in r.survivors],
+            "survivors": [[s.where, s.what, s.key, s.name] for s in r.survivors],
         }
     STATE.write_text(json.dumps(state, indent=1, sort_keys=True, ensure_ascii=False) + "\n")
     out = []
     for name, g in state.items():
-        survivors = [Survivor(name, w, what, key) for w, what, key in g["survivors"]]
+        survivors = [Survivor(name, *entry[:3], name=entry[3]) for entry in g["survivors"]]
         out.append(GroupResult(name, g["tool"], g["why"], g["counts"], survivors, g["seconds"]))
         out[-1].finished = g["finished"]
     return out
@@ -406,6 +433,11 @@ def main(argv: list[str]) -> int:
     ap.add_argument("--only", choices=["python", "rust"])
     ap.add_argument("--group", action="append", help="run only these groups (by name)")
     ap.add_argument(
+        "--recheck",
+        action="store_true",
+        help="Rust groups: run only the last run's survivors again (after adding tests)",
+    )
+    ap.add_argument(
         "--report", action="store_true", help="only rewrite docs/mutants.md from the last runs"
     )
     ap.add_argument(
@@ -443,7 +475,8 @@ def main(argv: list[str]) -> int:
         for g in chosen_rust:
             if shutil.which("cargo-mutants") is None:
                 raise SystemExit("cargo-mutants missing: cargo install --locked cargo-mutants")
-            results.append(run_rust_group(g, work))
+            run = recheck_rust_group if args.recheck else run_rust_group
+            results.append(run(g, work))
     return 1 if write_report(results, argv) else 0
 
 

@@ -167,6 +167,17 @@ mod tests {
         );
     }
 
+    /// Any one of the three ν0 estimates differing from the others makes the point undefined,
+    /// with every index −1 (not only ν0).
+    #[test]
+    fn any_odd_one_out_among_the_nu0_estimates_is_refused() {
+        for planes in [[1, 0, 1, 0, 0, 0], [0, 0, 1, 0, 1, 0], [1, 0, 0, 0, 1, 0]] {
+            let r = combine(3, &planes, reason::DEFINED, reason::NOT_CONVERGED);
+            assert_eq!(r.reason, reason::NU0_ESTIMATES_DISAGREE, "{planes:?}");
+            assert_eq!((r.nu0, r.nu), (-1, [-1; 3]), "{planes:?}");
+        }
+    }
+
     /// z(i, 0) = 0 and z(i, ½) = 1 on every axis: (1;111) — the order of the two planes in
     /// ν0 = z(i, 0) + z(i, ½) mod 2 and ν_i = z(i, ½) matters (Fu & Kane, Phys. Rev. B 76,
     /// 045302 (2007): the Wilson–Dirac model for 1 < m < 3).
