@@ -151,10 +151,16 @@ RUST_GROUPS = [
         why="plane Z2s → (ν0; ν1ν2ν3) and reason; phase and agreement codes",
     ),
     RustGroup(
-        "rust-parity-flow",
-        ["src/parity.rs", "src/flow.rs"],
-        ["parity::", "flow::"],
-        why="Fu–Kane parity at the TRIMs and its reasons; largest-gap Z2 count, refinement test",
+        "rust-parity",
+        ["src/parity.rs"],
+        ["parity::"],
+        why="Fu–Kane parity indices at the TRIMs and their reason codes",
+    ),
+    RustGroup(
+        "rust-flow",
+        ["src/flow.rs"],
+        ["flow::"],
+        why="largest-gap tracking: the Z2 count of a flow, the refinement test",
     ),
 ]
 
