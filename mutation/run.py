@@ -382,7 +382,10 @@ def remember(results: list[GroupResult], argv: list[str]) -> list[GroupResult]:
     STATE.write_text(json.dumps(state, indent=1, sort_keys=True, ensure_ascii=False) + "\n")
     out = []
     for name, g in state.items():
-        survivors = [Survivor(name, *entry[:3], name=entry[3]) for entry in g["survivors"]]
+        survivors = [
+            Survivor(name, *entry[:3], name=entry[3] if len(entry) > 3 else "")
+            for entry in g["survivors"]
+        ]
         out.append(GroupResult(name, g["tool"], g["why"], g["counts"], survivors, g["seconds"]))
         out[-1].finished = g["finished"]
     return out
