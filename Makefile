@@ -76,7 +76,7 @@ $(VENV)/.mutants-deps: | $(VENV)/.deps
 	$(PY) -m pip install --quiet $(MUTANTS_PY_TOOL)
 	touch $@
 
-mutants: build $(VENV)/.test-deps $(VENV)/.mutants-deps ## mutation testing of indices, parity, flow, flags, models (~40 min, nice); writes docs/mutants.md
+mutants: build $(VENV)/.test-deps $(VENV)/.mutants-deps ## mutation testing of indices, parity, flow, flags, models (long; niced; times per group in docs/mutants.md)
 	@command -v cargo-mutants >/dev/null || cargo install --locked $(MUTANTS_RUST_TOOL)
 	$(PY) mutation/run.py
 

@@ -188,6 +188,7 @@ class GroupResult:
     survivors: list[Survivor]
     seconds: float
     finished: str = ""
+    command: str = ""
 
 
 def nice(cmd: list[str]) -> list[str]:
@@ -388,6 +389,7 @@ def remember(results: list[GroupResult], argv: list[str]) -> list[GroupResult]:
         ]
         out.append(GroupResult(name, g["tool"], g["why"], g["counts"], survivors, g["seconds"]))
         out[-1].finished = g["finished"]
+        out[-1].command = g.get("command", "")
     return out
 
 
@@ -416,8 +418,13 @@ def write_report(results: list[GroupResult], argv: list[str]) -> int:
             f"| {r.name} | {r.tool} | {r.why} | {run} | {r.counts.get('killed', 0)} | "
             f"{r.counts.get('survived', 0)} | "
             f"{', '.join(f'{k} {v}' for k, v in sorted(other.items())) or '–'} | "
-            f"{r.seconds / 60:.1f} | {r.finished} |"
+            f"{r.seconds / 60:.1f} | {r.finished}, `{r.command}` |"
         )
+    done = {r.name for r in results}
+    for g in [*PYTHON_GROUPS, *RUST_GROUPS]:
+        if g.name not in done:
+            tool = "cosmic-ray" if isinstance(g, PythonGroup) else "cargo-mutants"
+            lines.append(f"| {g.name} | {tool} | {g.why} | not run yet | | | | | |")
     lines += ["", "## Survivors", ""]
     any_survivor = False
     for r in results:
