@@ -5,6 +5,7 @@
 //! unit-tested with `cargo test --no-default-features` and benchmarked on its own.
 
 pub mod bloch;
+pub mod cancel;
 pub mod columns;
 pub mod decided_flow;
 pub mod dense;

@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from .limits import check_point_memory
 from . import _core
 from .errors import FillingError, ModelError, SamplingError, SymmetryWarning
 from .model import Model
@@ -122,6 +123,7 @@ def prepare_request(
     f = check_filling(model, filling)
     checked_threads = check_threads(threads)
     check_loop_resolution(model, sampling)
+    check_point_memory(model, sampling, checked_threads)  # a huge model: refused, not aborted
     explicit = inversion is not None
     p = as_operator(inversion, model.norb, "inversion") if explicit else model.inversion
     req = Request(
