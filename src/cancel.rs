@@ -144,7 +144,12 @@ mod tests {
             inner: &model,
             watch: &watch,
         };
-        let s = sampling();
+        let s = Sampling {
+            loop_points: 12,
+            lines: 7,
+            max_lines: 13,
+            ..sampling()
+        };
         let plain = evaluate_point(&model, 2, None, None, &s).unwrap();
         let seen = evaluate_point(&watched, 2, None, None, &s).unwrap();
         assert_eq!(format!("{plain:?}"), format!("{seen:?}"));

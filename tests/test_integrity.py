@@ -392,7 +392,9 @@ def test_damaged_but_readable_journal_chunks_are_recomputed(tmp_path: Path, monk
     resumed = ts.sweep(ts.models.bhz(), grid, 2, out=out, resume=True, chunk_size=3, **FAST)
     assert sum(calls) == 9  # the three damaged chunks, nothing else
     xr_ = import_module("xarray")
-    xr_.testing.assert_identical(resumed.assign_attrs(created=""), reference.assign_attrs(created=""))
+    xr_.testing.assert_identical(
+        resumed.assign_attrs(created=""), reference.assign_attrs(created="")
+    )
 
 
 def test_every_damaged_byte_is_refused_and_plain_tools_still_read(tmp_path, result_bytes):

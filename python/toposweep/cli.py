@@ -257,9 +257,7 @@ def _parser() -> _Parser:
         "(only for files you trust)",
     )
     plot.add_argument("--out", help="PNG file to write (default: next to the result file)")
-    plot.add_argument(
-        "--dpi", type=_dpi, default=130, help="resolution, 10 … 2000 (default 130)"
-    )
+    plot.add_argument("--dpi", type=_dpi, default=130, help="resolution, 10 … 2000 (default 130)")
     plot.set_defaults(func=_plot)
 
     demo = sub.add_parser("demo", help="sweep a fictional mixed-valence compound")

@@ -178,17 +178,13 @@ def _import_user_file(source: str, key: str, path: Path) -> Any:
     try:
         module = load_file_module(path)  # same module name in every process (resume, plots)
     except SyntaxError as exc:
-        raise _fail(
-            source, key, f"{path}, line {exc.lineno}: syntax error: {exc.msg}"
-        ) from None
+        raise _fail(source, key, f"{path}, line {exc.lineno}: syntax error: {exc.msg}") from None
     except SystemExit as exc:
         raise _fail(
             source, key, f"{path} calls sys.exit({exc.code!r}) when imported; remove that call"
         ) from None
     except Exception as exc:  # noqa: BLE001 - the user's code may raise anything
-        raise _fail(
-            source, key, f"importing {path} raised {type(exc).__name__}: {exc}"
-        ) from None
+        raise _fail(source, key, f"importing {path} raised {type(exc).__name__}: {exc}") from None
     if module is None:
         raise _fail(source, key, f"cannot import {path} as Python")
     return module

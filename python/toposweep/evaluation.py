@@ -14,9 +14,9 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .limits import check_point_memory
 from . import _core
 from .errors import FillingError, ModelError, SamplingError, SymmetryWarning
+from .limits import check_point_memory
 from .model import Model
 from .sampling import Sampling, check_threads
 from .symmetry import TOLERANCE, as_operator, normalised_inversion, symmetry_error

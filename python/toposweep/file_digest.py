@@ -1,11 +1,11 @@
-"""A digest of a whole result file, kept in a short trailer after the HDF5 data.
+r"""A digest of a whole result file, kept in a short trailer after the HDF5 data.
 
 Why: HDF5's own Fletcher-32 checksums cover the chunks of the arrays only — not the file's
 metadata (attributes, dimension scales, object headers), which HDF5 parses with little
 checking: a flipped byte there can change an attribute silently or make the library loop.
 So toposweep appends, once the file is complete, ::
 
-    \\n%toposweep-digest sha256=<64 hex digits> length=<bytes before the trailer>\\n
+    \n%toposweep-digest sha256=<64 hex digits> length=<bytes before the trailer>\n
 
 (a fixed 112-byte line) and :func:`verify` checks it before HDF5 sees the file. HDF5 (and so
 netCDF-C, h5py, xarray) ignores bytes after the end of the file it recorded in its superblock,

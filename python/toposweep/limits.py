@@ -120,9 +120,7 @@ def check_point_memory(model: Any, sampling: Any, threads: int | None) -> None:
     have = available_memory()
     if have is None or need <= MEMORY_SHARE * have:
         return
-    hint = (
-        "lower gap_points (the bulk gap grid)" if "gap grid" in what else "lower loop_points"
-    )
+    hint = "lower gap_points (the bulk gap grid)" if "gap grid" in what else "lower loop_points"
     raise ParameterError(
         f"a point of this {model.norb}-orbital model needs about {_size(need)} at once "
         f"({what}; {COPIES} n×n complex matrices per κ point), but {_size(have)} of memory "

@@ -350,7 +350,7 @@ def check_output(out: str | os.PathLike[str], *, resume: bool, overwrite: bool) 
     ... # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    toposweep.errors.StoreError: the folder no/such/folder of out=... does not exist; create it first
+    toposweep.errors.StoreError: the folder no/such/folder of out=... does not exist; ...
     """
     if resume and overwrite:
         raise StoreError("give resume=True or overwrite=True, not both")
@@ -374,8 +374,7 @@ def check_output(out: str | os.PathLike[str], *, resume: bool, overwrite: bool) 
         )
     if p.exists():
         raise StoreError(
-            f"{p} exists; resume=True returns it (if it is this run's), overwrite=True "
-            "replaces it"
+            f"{p} exists; resume=True returns it (if it is this run's), overwrite=True replaces it"
         )
 
 
