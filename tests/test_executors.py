@@ -428,7 +428,9 @@ BROKEN_DISK = {"on": True}
 
 
 def mapping_with_a_bad_point(p: dict[str, float]) -> dict[str, float]:
-    if BROKEN_DISK["on"] and p["m"] > 2.0:
+    # (not at the grid's first, middle and last points, which the run's fingerprint maps
+    # before any chunk: a mapping failing there stops the sweep before it starts)
+    if BROKEN_DISK["on"] and 2.0 < p["m"] < 2.9:
         raise OSError("the model's data file is unreadable")
     return {"mass": p["m"]}
 

@@ -181,6 +181,14 @@ def test_huge_callable_model_is_refused_with_what_to_change(monkeypatch) -> None
         ts.invariants(model, n // 2)
 
 
+def test_a_slow_point_is_announced_before_it_starts() -> None:
+    limits = import_module("toposweep.limits")
+    n = 600  # a tight-binding model of 600 orbitals: hours per point on a workstation
+    model = ts.TightBinding(2, n, time_reversal=np.kron([[0, 1], [-1, 0]], np.eye(n // 2)))
+    with pytest.warns(limits.SlowPointWarning, match="600-orbital model will take about"):
+        limits.check_point_memory(model, ts.Sampling(), 2)
+
+
 def test_astronomical_grid_is_refused_with_how_to_split_it(tmp_path: Path) -> None:
     axis = np.linspace(-3, 3, 10**7)
     with pytest.raises(ts.errors.ParameterError, match=r"100,000,000,000,000 points .* Split"):
@@ -274,7 +282,7 @@ def test_disk_full_during_the_final_write_is_one_line(
         ("def model(:\n    pass\n", "line 1: syntax error"),
         ("raise RuntimeError('no licence file')\n", "raised RuntimeError: no licence file"),
         ("import sys\nsys.exit(0)\n", "calls sys.exit(0) when imported"),
-        ("def model():\n    raise KeyError('f_level')\n", "raised KeyError: 'f_level'"),
+        ("def model():\n    raise KeyError('f_level')\n", "KeyError: 'f_level'"),
         ("import sys\ndef model():\n    sys.exit(0)\n", "sys.exit(0)"),
     ],
 )
@@ -289,7 +297,8 @@ def test_broken_model_or_coefficients_file_is_one_line(tmp_path, capsys, code, w
         config = bhz_config(tmp_path, extra='coefficients = "user.py:model"')
     code_ = main(["run", str(config), "--quiet"])
     out, err = capsys.readouterr()
-    assert code_ == 2, err
+    # an error of the user's function while it runs is not a usage mistake: exit code 1
+    assert code_ == (1 if "KeyError" in code and key == "coefficients" else 2), err
     assert len(err.strip().splitlines()) == 1, err
     assert words in err and "Traceback" not in err
     assert not (tmp_path / "map.nc").exists()

@@ -22,12 +22,19 @@ from __future__ import annotations
 import math
 import os
 import shutil
+import warnings
 from pathlib import Path
 from typing import Any
 
 from .errors import ParameterError
 
-__all__ = ["available_memory", "check_point_memory", "check_grid", "point_estimate"]
+__all__ = [
+    "SlowPointWarning",
+    "available_memory",
+    "check_grid",
+    "check_point_memory",
+    "point_estimate",
+]
 
 #: bytes of a point's results (indices, gaps, plane Z2s, diagnostics; ~30 variables)
 BYTES_PER_POINT = 400
@@ -107,14 +114,31 @@ def point_estimate(model: Any, sampling: Any, workers: int) -> tuple[float, floa
     return need, seconds, what
 
 
+class SlowPointWarning(UserWarning):
+    """One parameter point will take long (a model of many orbitals): said before it starts."""
+
+
+#: a point estimated to take longer than this is announced (SlowPointWarning)
+SLOW_POINT_SECONDS = 60.0
+
+
 def check_point_memory(model: Any, sampling: Any, threads: int | None) -> None:
-    """Refuse a model and sampling whose one point cannot fit in memory.
+    """Refuse a model and sampling whose one point cannot fit in memory; warn if it is slow.
 
     Reads the system's memory only when the estimate is above 256 MiB (so small models pay
     nothing but the arithmetic).
     """
     workers = threads or os.cpu_count() or 1
-    need, _, what = point_estimate(model, sampling, workers)
+    need, seconds, what = point_estimate(model, sampling, workers)
+    if seconds > SLOW_POINT_SECONDS:
+        warnings.warn(
+            f"one point of this {model.norb}-orbital model will take about "
+            f"{_duration(seconds)} on {workers} thread(s) (thousands of eigendecompositions "
+            f"of {model.norb}×{model.norb} matrices); lower loop_points and lines for a "
+            "first look",
+            SlowPointWarning,
+            stacklevel=4,
+        )
     if need < (256 << 20):
         return
     have = available_memory()

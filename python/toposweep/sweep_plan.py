@@ -139,13 +139,8 @@ class SweepPlan:
         model = self.request.model
         if self.coefficients is None:
             return model.resolve(user)
-        try:
-            terms = self.coefficients(dict(user))
-        except Exception as exc:  # the user's code: say whose and where, in one line
-            raise ParameterError(
-                f"coefficients {callable_name(self.coefficients)} raised "
-                f"{type(exc).__name__}: {exc} at {user!r}"
-            ) from exc
+        terms = self.coefficients(dict(user))  # (its own errors pass unchanged: executors
+        # retry them, and the command line reports them in one line)
         if not isinstance(terms, Mapping):
             raise ParameterError(
                 f"coefficients {callable_name(self.coefficients)} must return a dict "
