@@ -13,7 +13,7 @@ TEST_DEPS := netCDF4 dask distributed
 
 # Compile for x86-64-v3 (AVX2, FMA, BMI2, ...) when the machine that builds has every feature of
 # that level, as told by rustc itself: the kernels run about a fifth faster than at the baseline
-# x86-64 level (DEVELOPERS.md, "Instruction set"), and the build then runs only on such CPUs.
+# x86-64 level (DEVELOPERS.md, "Performance facts"), and the build then runs only on such CPUs.
 # RUSTFLAGS set by the caller wins: `RUSTFLAGS= make build` gives a portable build.
 # (rustc's names; python/toposweep/_cpu_check.py lists the same features by /proc/cpuinfo's names)
 V3_FEATURES := avx avx2 bmi1 bmi2 f16c fma lzcnt movbe
@@ -26,7 +26,7 @@ ifeq ($(origin RUSTFLAGS),undefined)
 endif
 
 .DEFAULT_GOAL := help
-.PHONY: FORCE help venv build demo test test-rust test-python bench lint fmt clean
+.PHONY: FORCE help venv build demo test test-rust test-python bench lint fmt clean mutants
 
 help: ## list the targets
 	@grep -E '^[a-z-]+:.*## ' $(MAKEFILE_LIST) | awk -F':.*## ' '{printf "  make %-12s %s\n", $$1, $$2}'
@@ -68,20 +68,32 @@ test-rust: ## Rust unit tests of the numerical kernels
 test-python: build $(VENV)/.test-deps ## pytest, doctests included
 	$(PY) -m pytest -q tests python/toposweep --doctest-modules
 
-bench: build ## benchmarks against a plain NumPy implementation; writes benches/RESULTS.md
-	$(PY) benches/run_all.py --out benches/RESULTS.md
+# mutation testing tools, pinned (mutation/run.py says why these two)
+MUTANTS_PY_TOOL := cosmic-ray==8.7.0
+MUTANTS_RUST_TOOL := cargo-mutants
+
+$(VENV)/.mutants-deps: | $(VENV)/.deps
+	$(PY) -m pip install --quiet $(MUTANTS_PY_TOOL)
+	touch $@
+
+mutants: build $(VENV)/.test-deps $(VENV)/.mutants-deps ## mutation testing of indices, parity, flow, flags, models (long; niced; times per group in docs/mutants.md)
+	@command -v cargo-mutants >/dev/null || cargo install --locked $(MUTANTS_RUST_TOOL)
+	$(PY) mutation/run.py
+
+bench: build ## benchmarks against plain NumPy; writes benches/RESULTS.md and the README table
+	$(PY) benches/run_all.py --out benches/RESULTS.md --readme README.md
 
 lint: venv ## cargo fmt --check, clippy -D warnings, ruff
 	cargo fmt --check
 	cargo clippy --all-targets --no-default-features -- -D warnings
 	cargo clippy --all-targets -- -D warnings
-	$(VENV)/bin/ruff check python tests benches
-	$(VENV)/bin/ruff format --check python tests benches
+	$(VENV)/bin/ruff check python tests benches mutation
+	$(VENV)/bin/ruff format --check python tests benches mutation
 
 fmt: venv ## format Rust and Python sources
 	cargo fmt
-	$(VENV)/bin/ruff format python tests benches
-	$(VENV)/bin/ruff check --fix python tests benches
+	$(VENV)/bin/ruff format python tests benches mutation
+	$(VENV)/bin/ruff check --fix python tests benches mutation
 
 clean: ## remove build products and the virtual environment
 	cargo clean

@@ -5,8 +5,8 @@ shared virtual machine the gain itself moves by more than that from one minute t
 Run one after the other, two builds cannot be told apart. Here the installed extension and
 another build of it (``--other``: the ``_core`` shared library of, say, an earlier commit) are
 loaded into one process and called in alternate rounds on the Wilson–Dirac point of table (b) —
-one thread, then all cores, for each build — beside the fork–join probe, so all see the same
-moments. The results of both builds are asserted equal first.
+one thread, then all cores, for each build — so both see the same moments. The results of
+both builds are asserted equal first.
 
 Build the other extension from a worktree of the earlier commit, for instance::
 
@@ -44,7 +44,6 @@ import toposweep as ts  # noqa: E402
 from toposweep import _core  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from fork_join_gain import TASKS  # noqa: E402
 from point_sampling import POINT_OPTIONS  # noqa: E402
 from timing import ONE_THREAD, HostSteal, OnOneThread, gain_text, round_times  # noqa: E402
 
@@ -116,7 +115,6 @@ def main() -> None:
     a, b = call(other, model_other, cores)(), call(_core, model_new, cores)()
     for key in a:  # (dict keys, or a Dataset's variables)
         assert np.array_equal(a[key], b[key], equal_nan=True), f"the builds differ in {key}"
-    iterations = 3000  # (the probe only reports what the machine gives; its length matters little)
     with HostSteal() as steal:
         times = round_times(
             [
@@ -124,8 +122,6 @@ def main() -> None:
                 call(other, model_other, cores),
                 OnOneThread(call(_core, model_new, 1)),
                 call(_core, model_new, cores),
-                OnOneThread(lambda: _core.fork_join_probe(TASKS, iterations, threads=1)),
-                lambda: _core.fork_join_probe(TASKS, iterations, threads=cores),
             ],
             args.rounds,
             min_seconds=0.035,
@@ -136,7 +132,6 @@ def main() -> None:
     print("|---|---:|---:|---:|")
     print(f"| other | {best[0]:.3f} | {best[1]:.3f} | {gain_text(times, 0, 1)} |")
     print(f"| installed | {best[2]:.3f} | {best[3]:.3f} | {gain_text(times, 2, 3)} |")
-    print(f"| probe | {best[4]:.3f} | {best[5]:.3f} | {gain_text(times, 4, 5)} |")
     print(f"\ninstalled over other, {cores} threads, median over rounds: {ratio:.3f}")
     print(f"CPU time the host took away during the rounds (steal): {steal.text()}")
 

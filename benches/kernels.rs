@@ -10,6 +10,7 @@
 //! jobs share the machine); use `valgrind --tool=callgrind` on `--bench kernels -- ONLY` for
 //! instruction counts when comparing kernels A/B.
 
+use rayon::prelude::*;
 use std::hint::black_box;
 use std::time::Instant;
 use toposweep::bloch::{BlochSource, Hoppings};
@@ -20,7 +21,6 @@ use toposweep::eigen::{
 };
 use toposweep::engine::{evaluate_point, Method, ProveGap, Sampling};
 use toposweep::matrix::{unitarise, unitarise_reference};
-use toposweep::probe::divisible_work;
 use toposweep::wilson::{wilson_line_with, Kernels};
 use toposweep::C64;
 
@@ -508,8 +508,31 @@ fn main() {
     }
 }
 
+/// One task of the probe: a chain of fused multiply–adds, each on the result of the one before.
+/// (An integer chain would not do: the compiler folds a linear congruential loop into far
+/// fewer steps; it may not reassociate floating-point arithmetic.)
+fn chain(seed: u64, iterations: u64) -> u64 {
+    let mut x = seed as f64;
+    for _ in 0..iterations {
+        x = x.mul_add(0.999_999_9, 1e-7);
+    }
+    x.to_bits()
+}
+
+/// A call of known, perfectly divisible work: `tasks` chains of `iterations` steps on the
+/// current pool, like the lines of a point but with nothing serial in it. Returns their XOR —
+/// the same for any number of workers (checked in [`paired_with_probe`]), so the work cannot
+/// be skipped. Its gain from a second thread is the most any fork–join call of that length can
+/// expect on this machine at that moment.
+fn divisible_work(tasks: u64, iterations: u64) -> u64 {
+    (0..tasks)
+        .into_par_iter()
+        .map(|t| chain(t, iterations))
+        .reduce(|| 0, |a, b| a ^ b)
+}
+
 /// The point's threads gain beside that of a call with nothing serial in it
-/// (`probe::divisible_work`: 246 equal tasks of arithmetic, as long on one thread as the
+/// (`divisible_work`: 246 equal tasks of arithmetic, as long on one thread as the
 /// point), in paired rounds — one thread, then two, `calls` calls each — through the same
 /// pools: the share of what this machine gives a fork–join call that the core gets, without
 /// Python.
@@ -530,6 +553,12 @@ fn paired_with_probe(
         })
     });
     let iterations = ((1000.0 * t_point / t_unit).round() as u64).max(1);
+    // the probe does its work: one answer on any number of workers, another for more work
+    let serial = (0..246).map(|t| chain(t, iterations)).fold(0, |a, b| a ^ b);
+    assert!(pools
+        .iter()
+        .all(|p| p.install(|| divisible_work(246, iterations)) == serial));
+    assert_ne!(divisible_work(246, iterations + 1), serial);
     let probe = || {
         black_box(divisible_work(246, iterations));
     };
@@ -550,7 +579,7 @@ fn paired_with_probe(
     println!(
         "Paired rounds (one thread, then two; {calls} calls each; median of {rounds}): \
          Wilson–Dirac point {:.2}×, 246 equal tasks of pure arithmetic as long on one thread \
-         (`probe::divisible_work`) {:.2}×\n",
+         (`divisible_work`) {:.2}×\n",
         median(&mut gp),
         median(&mut gq)
     );

@@ -11,9 +11,12 @@
 (e) adaptive phase maps against the uniform sweep of the same grid (``phase_map_bench.py``);
 (f) a 3D sweep on a local Dask cluster against the in-process sweep, and the per-task overhead
     (``cluster_speed.py``);
-and what a second core gives on this machine: each core's speed alone and with all at work
-(``core_speeds.py``), and the point's threads gain beside that of a call with nothing serial in
-it (``fork_join_gain.py``).
+and what the self-checks cost per point (``check_costs.py``).
+
+``--readme README.md`` also rewrites the short summary table of the README, between the lines
+``<!-- bench-summary:start -->`` and ``<!-- bench-summary:end -->``. In the report, everything
+from the line ``<!-- history: kept by run_all.py -->`` on (the dated measurement history) is
+kept as it is.
 
 Timings are the best of several repeats, measured side by side in one run and interleaved
 round by round (NumPy, one thread, all cores) so that all see the same load; other jobs on the
@@ -22,7 +25,8 @@ one thread so "one thread" means one thread on both sides.
 
 Usage::
 
-    .venv/bin/python benches/run_all.py --out benches/RESULTS.md [--quick] [--no-cargo]
+    .venv/bin/python benches/run_all.py --out benches/RESULTS.md [--readme README.md]
+                                         [--quick] [--no-cargo]
 """
 
 from __future__ import annotations
@@ -53,7 +57,10 @@ from baseline_models import (  # noqa: E402
     stacked_wilson_dirac,
     wilson_dirac_without_inversion,
 )
-from fork_join_gain import table as fork_join_table  # noqa: E402
+from check_costs import CASES as CHECK_CASES  # noqa: E402
+from check_costs import VARIANTS as CHECK_VARIANTS  # noqa: E402
+from check_costs import best_time as check_time  # noqa: E402
+from check_costs import kappa_points  # noqa: E402
 from numpy_baseline import compare, invariants_numpy  # noqa: E402
 from point_sampling import POINT_OPTIONS  # noqa: E402
 from timing import (  # noqa: E402
@@ -71,6 +78,11 @@ FIXED = {k: POINT_OPTIONS[k] for k in ("loop_points", "lines")}
 #: engine options that would sample more κ than the baseline: gap minimiser and convergence
 #: certificate (finer loops) off, as in numpy_baseline.compare
 ENGINE_FIXED = {k: POINT_OPTIONS[k] for k in ("gap_starts", "certify")}
+
+#: figures for the README's summary table, filled in by the tables as they are measured
+SUMMARY: dict[str, tuple[float, ...]] = {}
+README_START, README_END = "<!-- bench-summary:start -->", "<!-- bench-summary:end -->"
+HISTORY = "<!-- history: kept by run_all.py -->"
 
 
 def load() -> str:
@@ -93,6 +105,8 @@ def eigensolver_table(repeats: int) -> list[str]:
         e_ts, _ = ONE_THREAD.run(lambda h=h: _core.eigh(h, threads=1))
         np.testing.assert_allclose(e_ts, np.linalg.eigh(h)[0], atol=1e-10 * n)
         out.append(f"| {n} | {t_np * 1e6:.2f} | {t_ts * 1e6:.2f} | {t_np / t_ts:.1f}× |")
+        if n == 4:
+            SUMMARY["eigh4"] = (t_np * 1e6, t_ts * 1e6)
     return out
 
 
@@ -180,7 +194,10 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
             f"| {label} | {t_np * 1e3:.1f} | {t1 * 1e3:.2f} | {t_np / t1:.1f}× | "
             f"{tn * 1e3:.2f} | {t_np / tn:.1f}× | {gain} | {steal.text()} | {result} |"
         )
+        if label.startswith("Wilson–Dirac, 4"):
+            SUMMARY["point4"] = (t_np * 1e3, t1 * 1e3, tn * 1e3)
         if label.startswith("16"):
+            SUMMARY["point16"] = (t_np * 1e3, t1 * 1e3, tn * 1e3)
             assert (ref["nu0"], ref["nu"]) == expected_indices(4)
     return out
 
@@ -245,30 +262,6 @@ def core_only_table(repeats: int) -> list[str]:
     return out
 
 
-def core_speed_table(seconds: float) -> list[str]:
-    """Each core's speed, the first alone and all at once (``core_speeds.py``), summarised."""
-    from core_speeds import ceilings, measure
-
-    with HostSteal() as steal:
-        cores, rates = measure(seconds)
-    out = [
-        "| core | calls/s, median | slowest half second | fastest half second |",
-        "|---|---:|---:|---:|",
-    ]
-    alone = rates[0][0::2]
-    rows = [(f"{cores[0]}, alone", alone)]
-    rows += [(f"{c}, all cores at work", r[1::2]) for c, r in zip(cores, rates, strict=True)]
-    for name, r in rows:
-        out.append(f"| {name} | {np.median(r):.0f} | {min(r):.0f} | {max(r):.0f} |")
-    c = ceilings(rates)
-    out.append(
-        "| all at work over the first alone in the half second before | "
-        f"{np.median(c):.2f} | {min(c):.2f} | {max(c):.2f} |"
-    )
-    out.append(f"| CPU time the host took away meanwhile (steal) | {steal.text()} | | |")
-    return out
-
-
 def sweep_table(quick: bool) -> list[str]:
     cores = os.cpu_count() or 1
     out = [
@@ -306,6 +299,7 @@ def sweep_table(quick: bool) -> list[str]:
                 best[threads] = min(best[threads], dt)
         rate = [n / best[1], n / best[cores]]
         undefined = int((ds.phase.values < 0).sum())
+        SUMMARY[f"sweep{model.dim}d"] = (rate[0], rate[1])
         out.append(
             f"| {label} ({undefined} undefined) | {n} | {rate[0]:.0f} | {rate[1]:.0f} | "
             f"{rate[1] / rate[0]:.2f}× |"
@@ -327,7 +321,81 @@ def memory_table(quick: bool) -> list[str]:
             f"| {r['points']:,} | {r['peak_kib'] / 1024:.1f} | {r['import_kib'] / 1024:.1f} | "
             f"{r['seconds']:.1f} |"
         )
+        SUMMARY.setdefault("memory", ())
+        SUMMARY["memory"] += (r["points"], r["peak_kib"] / 1024)
     return out
+
+
+def check_cost_table() -> list[str]:
+    """κ points diagonalised (exact) and one-thread time (best of 9) per self-check variant."""
+    out = [
+        "| model | " + " | ".join(CHECK_VARIANTS) + " |",
+        "|---|" + "---:|" * len(CHECK_VARIANTS),
+    ]
+    for label, model, params in CHECK_CASES:
+        cells = []
+        for kw in CHECK_VARIANTS.values():
+            seconds = ONE_THREAD.run(lambda m=model, p=params, kw=kw: check_time(m, p, **kw))
+            cells.append(f"{kappa_points(model, params, **kw)} κ, {1e3 * seconds:.1f} ms")
+        out.append(f"| {label} | " + " | ".join(cells) + " |")
+    return out
+
+
+def summary_table(stamp: str) -> list[str]:
+    """The README's table: the headline figures of this run, each with the table it comes from."""
+    cores = os.cpu_count()
+    rows = [
+        f"Measured by `make bench` ({stamp}); details and the other tables in "
+        "[benches/RESULTS.md](benches/RESULTS.md).",
+        "",
+        f"| | plain NumPy | toposweep, 1 thread | toposweep, {cores} threads |",
+        "|---|---:|---:|---:|",
+    ]
+
+    def cell(t: float, ref: float, digits: int) -> str:
+        return (
+            f"{t:.{digits}f} ({ref / t:.0f}×)"
+            if ref / t >= 10
+            else f"{t:.{digits}f} ({ref / t:.1f}×)"
+        )
+
+    if "point4" in SUMMARY:
+        t_np, t1, tn = SUMMARY["point4"]
+        rows.append(
+            f"| 3D Wilson–Dirac point, 4 bands, fixed sampling (ms) | {t_np:.1f} | "
+            f"{cell(t1, t_np, 2)} | {cell(tn, t_np, 2)} |"
+        )
+    if "point16" in SUMMARY:
+        t_np, t1, tn = SUMMARY["point16"]
+        rows.append(
+            f"| 3D point, 16 dense bands, fixed sampling (ms) | {t_np:.0f} | "
+            f"{cell(t1, t_np, 0)} | {cell(tn, t_np, 0)} |"
+        )
+    if "eigh4" in SUMMARY:
+        t_np, t1 = SUMMARY["eigh4"]
+        rows.append(
+            f"| 4×4 Hermitian eigensolver (µs per matrix) | {t_np:.2f} | {cell(t1, t_np, 2)} | |"
+        )
+    for key, label in (("sweep2d", "2D"), ("sweep3d", "3D")):
+        if key in SUMMARY:
+            r1, rn = SUMMARY[key]
+            rows.append(f"| {label} sweep, default sampling (points/s) | | {r1:,.0f} | {rn:,.0f} |")
+    if "memory" in SUMMARY:
+        m = SUMMARY["memory"]
+        rows.append(
+            f"| peak memory of a 2D sweep streamed to disk, {m[0]:,.0f} → {m[-2]:,.0f} points "
+            f"(MiB) | | | {m[1]:.0f} → {m[-1]:.0f} |"
+        )
+    return rows
+
+
+def replace_between(path: Path, start: str, end: str, lines: list[str]) -> None:
+    text = path.read_text()
+    if start not in text or end not in text:
+        raise SystemExit(f"{path}: the lines {start} and {end} are missing")
+    head, rest = text.split(start, 1)
+    _, tail = rest.split(end, 1)
+    path.write_text(head + start + "\n" + "\n".join(lines) + "\n" + end + tail)
 
 
 def main() -> None:
@@ -335,12 +403,14 @@ def main() -> None:
     parser.add_argument("--out", type=Path, help="write the markdown report here")
     parser.add_argument("--quick", action="store_true", help="fewer repeats, smaller cases")
     parser.add_argument("--no-cargo", action="store_true", help="skip the Rust kernel harness")
+    parser.add_argument("--readme", type=Path, help="rewrite the summary table of this README")
     args = parser.parse_args()
     repeats = 2 if args.quick else 5
     # the main thread's first call: it joins the pool of all cores (one-thread calls are made
     # from ONE_THREAD, see CallerThread)
     _core.eigh(np.eye(4, dtype=complex)[None], threads=os.cpu_count())
     t_start = time.perf_counter()
+    load_at_start = load()
     doc = [
         "# toposweep benchmarks",
         "",
@@ -358,7 +428,7 @@ def main() -> None:
         "while a row was measured (/proc/stat): on a shared virtual machine it caps a threads "
         "gain, and it changes from minute to minute. "
         "Other jobs were sharing the machine "
-        f"({load()} at the start).",
+        f"({load_at_start} at the start).",
         "",
     ]
 
@@ -385,9 +455,7 @@ def main() -> None:
         "The Rust core alone; with the Python-side symmetry checks first; with those, then "
         "the xarray Dataset after the core (one step after the other); and the public call, "
         "which makes the checks and the Dataset's layout while the core computes (on the "
-        "calling thread, while a second worker starts on the points). The most the machine's "
-        "second core can give is measured "
-        'below, in "What a second core gives on this machine".',
+        "calling thread, while a second worker starts on the points).",
     )
     section(
         "(a) Hermitian eigensolver per matrix",
@@ -408,27 +476,6 @@ def main() -> None:
             "from a nearby matrix's eigenvectors, nalgebra's Householder, faer), polar factors, "
             "one Wilson line and one full point on one thread.",
         )
-    section(
-        "What a second core gives on this machine",
-        core_speed_table(4.0 if args.quick else 10.0),
-        "One process per core, pinned, each evaluating the Wilson–Dirac point of the table "
-        "above on one thread and counting the calls it finishes per half second; the first "
-        "core works all the time, the others every other half second, so half seconds of the "
-        "first core alone alternate with half seconds of all at work "
-        "(`benches/core_speeds.py` prints every half second). A threads gain of one call "
-        "cannot exceed the cores' summed speed while all work over one core's speed alone "
-        "(the one-thread call has the machine to itself).",
-    )
-    section(
-        "A call with nothing serial in it, beside the point",
-        fork_join_table(10 if args.quick else 120),
-        "Two processes never wait for each other; one call waits at its end for its last task, "
-        "and on a virtual machine for a worker whose virtual CPU the host has paused. "
-        "`_core.fork_join_probe` is a call of equal tasks of pure arithmetic through the same "
-        "pools, as long on one thread as the point: its threads gain is what this machine "
-        "gives any call of that length. Rounds of the four calls are interleaved "
-        "(`benches/fork_join_gain.py`).",
-    )
     section("(c) Sweep throughput", sweep_table(args.quick))
     section(
         "(d) Peak memory against the number of points",
@@ -452,10 +499,18 @@ def main() -> None:
         "caller's journal write per chunk. On a shared host the cluster's extra processes and "
         "the scheduler compete with other jobs: read the range, not one round.",
     )
+    section(
+        "What the self-checks cost per point",
+        check_cost_table(),
+        "κ points whose Hamiltonian is diagonalised (exact, independent of the machine's load: "
+        "the model is wrapped in a counting `CallableModel`) and the time of one `invariants()` "
+        "call on one thread (best of 9), with each check of the default sampling switched off "
+        "or on in turn (`benches/check_costs.py`).",
+    )
     from near_closing_cost import table as near_closing_table
 
     section(
-        "(g) Proven gaps and loops resolved to the gap: cost per default call",
+        "Proven gaps and loops resolved to the gap: cost per default call",
         near_closing_table(2 if args.quick else 3),
         "`benches/near_closing_cost.py`: default sampling, all cores, `prove_gap` never / auto "
         "(the default) / always, interleaved rounds; the last rows sit 0.1 % from the "
@@ -463,8 +518,19 @@ def main() -> None:
     )
     doc.append(f"(total benchmark time {time.perf_counter() - t_start:.0f} s; {load()} at the end)")
     if args.out:
-        args.out.write_text("\n".join(doc) + "\n")
+        kept = ""
+        if args.out.exists() and HISTORY in args.out.read_text():
+            kept = "\n" + HISTORY + args.out.read_text().split(HISTORY, 1)[1]
+        args.out.write_text("\n".join(doc) + "\n" + kept)
         print(f"wrote {args.out}", file=sys.stderr)
+    if args.readme:
+        stamp = (
+            f"{datetime.now(timezone.utc):%Y-%m-%d}, kernels for "
+            f"{_core.INSTRUCTION_SET.split(' (')[0]}, {load_at_start} at the start — the "
+            "threads columns mean little when the load exceeds the cores"
+        )
+        replace_between(args.readme, README_START, README_END, summary_table(stamp))
+        print(f"rewrote the summary table of {args.readme}", file=sys.stderr)
 
 
 if __name__ == "__main__":

@@ -6,7 +6,7 @@
 //! Why not nested `rayon::join`/`par_iter`: a point's TRIMs, bulk grid rows and pump lines were
 //! three nested parallel phases. Rayon splits a slice into a few long runs and splits further
 //! only when a run is stolen, so at the end of each nested phase one worker waited for the
-//! other's run of several lines; timed leaf by leaf (a scratch build, DEVELOPERS.md), two
+//! other's run of several lines; timed leaf by leaf (a scratch build, benches/RESULTS.md), two
 //! workers stood idle ~9 % of a 4-band point, one ~3.5 %. One list ends with one wait, for one
 //! task, and costs a shared counter update per chunk (a few dozen per point) instead of a
 //! deque operation per split.
@@ -32,6 +32,11 @@ pub fn map_guided<S, T: Send + Sync>(
 ) -> CoreResult<Vec<T>> {
     let slots: Vec<OnceLock<CoreResult<T>>> = (0..count).map(|_| OnceLock::new()).collect();
     let next = AtomicUsize::new(0);
+    // the smallest index of a task that failed: tasks above it are skipped, since the list's
+    // result is that error whatever they give (a stopped call — Ctrl-C, src/cancel.rs — then
+    // ends at once instead of preparing every remaining task); every task below it runs, so
+    // the error reported is still the first by index
+    let failed = AtomicUsize::new(usize::MAX);
     let workers = rayon::current_num_threads().clamp(1, count.max(1));
     let work = || {
         let mut scratch: Option<S> = None;
@@ -56,8 +61,15 @@ pub fn map_guided<S, T: Send + Sync>(
                 .take(count.min(start + chunk))
                 .skip(start)
             {
+                if i > failed.load(Ordering::Relaxed) {
+                    return;
+                }
+                let r = f(s, i);
+                if r.is_err() {
+                    failed.fetch_min(i, Ordering::Relaxed);
+                }
                 // (each index is taken once, so the slot is empty)
-                let _ = slot.set(f(s, i));
+                let _ = slot.set(r);
             }
         }
     };
@@ -67,8 +79,10 @@ pub fn map_guided<S, T: Send + Sync>(
         }
         work();
     });
+    let first_failed = failed.into_inner();
     slots
         .into_iter()
+        .take(first_failed.saturating_add(1))
         .map(|s| {
             s.into_inner().unwrap_or_else(|| {
                 Err(CoreError::Internal("a task of the list was not run".into()))
@@ -163,6 +177,28 @@ pub(crate) mod tests {
             Err(CoreError::InvalidInput(m)) => assert_eq!(m, "task 17"),
             other => panic!("expected the error of task 17, got {other:?}"),
         }
+    }
+
+    #[test]
+    fn tasks_after_a_failed_one_are_skipped() {
+        // one worker: tasks run in order, so exactly those up to the failed one run
+        let ran = std::sync::atomic::AtomicUsize::new(0);
+        let out: CoreResult<Vec<usize>> = pool(1).install(|| {
+            map_guided(
+                1000,
+                || (),
+                |_, i| {
+                    ran.fetch_add(1, Ordering::Relaxed);
+                    if i == 3 {
+                        Err(CoreError::Interrupted)
+                    } else {
+                        Ok(i)
+                    }
+                },
+            )
+        });
+        assert!(matches!(out, Err(CoreError::Interrupted)));
+        assert_eq!(ran.load(Ordering::Relaxed), 4);
     }
 
     #[test]

@@ -162,6 +162,51 @@ mod tests {
         }
     }
 
+    /// A plane without an answer leaves its axis undefined (−1) in every array the point
+    /// reports (`nu0_by_axis`, `z2_plane`), not only in ν0, whatever the other plane of that
+    /// axis says; the other axes keep theirs.
+    #[test]
+    fn unresolved_plane_leaves_its_axis_undefined() {
+        let r = combine(
+            3,
+            &[1, 0, -1, 1, 0, -1],
+            reason::DEFINED,
+            reason::NOT_CONVERGED,
+        );
+        assert_eq!(r.nu0_by_axis, [1, -1, -1]);
+        assert_eq!(r.z2_plane, [[1, 0], [-1, 1], [0, -1]]);
+        assert_eq!(
+            (r.nu0, r.nu, r.reason),
+            (-1, [-1; 3], reason::NOT_CONVERGED)
+        );
+    }
+
+    /// Any one of the three ν0 estimates differing from the others makes the point undefined,
+    /// with every index −1 (not only ν0).
+    #[test]
+    fn any_odd_one_out_among_the_nu0_estimates_is_refused() {
+        for planes in [[1, 0, 1, 0, 0, 0], [0, 0, 1, 0, 1, 0], [1, 0, 0, 0, 1, 0]] {
+            let r = combine(3, &planes, reason::DEFINED, reason::NOT_CONVERGED);
+            assert_eq!(r.reason, reason::NU0_ESTIMATES_DISAGREE, "{planes:?}");
+            assert_eq!((r.nu0, r.nu), (-1, [-1; 3]), "{planes:?}");
+        }
+    }
+
+    /// z(i, 0) = 0 and z(i, ½) = 1 on every axis: (1;111) — the order of the two planes in
+    /// ν0 = z(i, 0) + z(i, ½) mod 2 and ν_i = z(i, ½) matters (Fu & Kane, Phys. Rev. B 76,
+    /// 045302 (2007): the Wilson–Dirac model for 1 < m < 3).
+    #[test]
+    fn odd_top_planes_give_the_strong_phase_with_odd_weak_indices() {
+        let r = combine(
+            3,
+            &[0, 1, 0, 1, 0, 1],
+            reason::DEFINED,
+            reason::NOT_CONVERGED,
+        );
+        assert_eq!((r.nu0, r.nu, r.nu0_by_axis), (1, [1, 1, 1], [1, 1, 1]));
+        assert_eq!(r.reason, reason::DEFINED);
+    }
+
     #[test]
     fn strong_weak_and_undefined() {
         // z(1,0)=1, z(1,½)=0 for every axis: (1;000)

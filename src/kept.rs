@@ -1,6 +1,6 @@
 //! Scratch a thread keeps from one line to the next (a Wilson line's buffers, a folded line):
 //! allocating it per line, or per rayon split, cost the most with both cores at work
-//! (DEVELOPERS.md, "Python work beside the core").
+//! (benches/RESULTS.md, measurement history).
 
 use std::cell::Cell;
 use std::thread::LocalKey;

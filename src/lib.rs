@@ -5,6 +5,7 @@
 //! unit-tested with `cargo test --no-default-features` and benchmarked on its own.
 
 pub mod bloch;
+pub mod cancel;
 pub mod columns;
 pub mod decided_flow;
 pub mod dense;
@@ -26,7 +27,6 @@ pub mod matrix;
 pub mod parity;
 pub mod plane_flows;
 pub mod pools;
-pub mod probe;
 #[cfg(test)]
 mod test_rng;
 pub mod variation;

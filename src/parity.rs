@@ -153,7 +153,49 @@ mod tests {
         occ[0] = odd;
         let r = parity_indices(&occ, &[1.0; 8], &p, n, 2, 3, 1e-9).unwrap();
         assert_eq!((r.nu0, r.nu), (1, [0, 0, 0]));
+        // the odd-parity count is reported per TRIM as counted (the `odd_parity_states` variable)
+        assert_eq!(r.odd_count, vec![2, 0, 0, 0, 0, 0, 0, 0]);
         let r = parity_indices(&occ, &[0.0; 8], &p, n, 2, 3, 1e-9).unwrap();
         assert_eq!(r.reason, reason::DEGENERATE_AT_TRIM);
+    }
+
+    /// Odd pairs at the TRIM κ = (0, ½, ½) only: ν0 = 1 and the weak indices are the parities
+    /// of the TRIMs with κ_i = ½, so (1;011) — each axis reads its own bit of the TRIM order.
+    #[test]
+    fn weak_indices_read_the_trims_of_their_own_axis() {
+        let n = 4;
+        let z = C64::new(0.0, 0.0);
+        let one = C64::new(1.0, 0.0);
+        let mut p = vec![z; 16];
+        for (i, s) in [1.0, 1.0, -1.0, -1.0].iter().enumerate() {
+            p[i * n + i] = C64::new(*s, 0.0);
+        }
+        let even: Vec<C64> = vec![one, z, z, one, z, z, z, z];
+        let odd: Vec<C64> = vec![z, z, z, z, one, z, z, one];
+        for (inverted, nu) in [(6, [0, 1, 1]), (1, [1, 0, 0]), (4, [0, 0, 1])] {
+            let mut occ = vec![even.clone(); 8];
+            occ[inverted] = odd.clone();
+            let r = parity_indices(&occ, &[1.0; 8], &p, n, 2, 3, 1e-9).unwrap();
+            assert_eq!((r.nu0, r.nu), (1, nu), "TRIM {inverted} inverted");
+        }
+    }
+
+    /// Occupied states that are not parity eigenstates — (even + odd)/√2 — give ⟨P⟩ = 0, not
+    /// ±1: the inversion mixes occupied and empty states, and the parity result is undefined.
+    #[test]
+    fn states_of_mixed_parity_are_refused() {
+        let n = 4;
+        let z = C64::new(0.0, 0.0);
+        let h = C64::new(std::f64::consts::FRAC_1_SQRT_2, 0.0);
+        let mut p = vec![z; 16];
+        for (i, s) in [1.0, 1.0, -1.0, -1.0].iter().enumerate() {
+            p[i * n + i] = C64::new(*s, 0.0);
+        }
+        // column 0 = (e0 + e2)/√2, column 1 = (e1 + e3)/√2 (n × 2, row-major)
+        let mixed: Vec<C64> = vec![h, z, z, h, h, z, z, h];
+        let occ = vec![mixed; 8];
+        let r = parity_indices(&occ, &[1.0; 8], &p, n, 2, 3, 1e-9).unwrap();
+        assert_eq!(r.reason, reason::INVERSION_MIXES_FILLING);
+        assert_eq!((r.nu0, r.nu), (-1, [-1; 3]));
     }
 }

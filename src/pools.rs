@@ -14,6 +14,14 @@
 //!
 //! A thread can be a worker of one pool only (rayon), so the calling thread joins the pool of
 //! the first size it asks for; later calls of another size use the shared pools.
+//!
+//! **Fork.** A child started by `fork()` (Python's `os.fork`, multiprocessing's fork start
+//! method) inherits the memory of every pool but none of its threads: work handed to such a
+//! pool waits forever. So each pool is tagged with the process that built it, and a call in
+//! another process builds its pools anew ([`process`]). The inherited pools are never used or
+//! dropped (dropping one would signal threads that do not exist); the calling thread stays
+//! registered as worker 0 of its inherited pool — rayon has no way to leave one — so in the
+//! child it hands every call to the shared pools, rebuilt there.
 
 use crate::error::{CoreError, CoreResult};
 use std::cell::RefCell;
@@ -50,14 +58,24 @@ pub fn default_threads() -> usize {
     })
 }
 
+/// The id of this process: pools built by another (the parent of a fork) have no threads here.
+/// (`getpid`, a system call of well under a microsecond, once per call.)
+fn process() -> u32 {
+    std::process::id()
+}
+
 /// The pool of `n` workers shared by the calls that cannot use their own thread.
 fn shared(n: usize) -> CoreResult<Arc<rayon::ThreadPool>> {
-    static POOLS: OnceLock<Mutex<HashMap<usize, Arc<rayon::ThreadPool>>>> = OnceLock::new();
+    // keyed by (process, size): a forked child finds none of its parent's pools (whose
+    // threads it lacks) and builds its own; the parent's stay in the map, never dropped
+    type Pools = HashMap<(u32, usize), Arc<rayon::ThreadPool>>;
+    static POOLS: OnceLock<Mutex<Pools>> = OnceLock::new();
+    let key = (process(), n);
     let mut map = POOLS
         .get_or_init(|| Mutex::new(HashMap::new()))
         .lock()
         .map_err(|_| CoreError::Internal("thread pool cache poisoned".into()))?;
-    if let Some(p) = map.get(&n) {
+    if let Some(p) = map.get(&key) {
         return Ok(p.clone());
     }
     let p = rayon::ThreadPoolBuilder::new()
@@ -65,21 +83,25 @@ fn shared(n: usize) -> CoreResult<Arc<rayon::ThreadPool>> {
         .build()
         .map_err(|e| CoreError::Internal(format!("cannot start {n} threads: {e}")))?;
     let p = Arc::new(p);
-    map.insert(n, p.clone());
+    map.insert(key, p.clone());
     Ok(p)
 }
 
+/// A thread's own pool: the process that built it, its size, the pool.
+type Own = (u32, usize, Rc<rayon::ThreadPool>);
+
 thread_local! {
-    /// The pool this thread is worker 0 of, with its size (built on the first call that may).
-    static OWN: RefCell<Option<(usize, Rc<rayon::ThreadPool>)>> = const { RefCell::new(None) };
+    /// The pool this thread is worker 0 of (built on the first call that may).
+    static OWN: RefCell<Option<Own>> = const { RefCell::new(None) };
 }
 
 /// This thread's own pool of `n` workers, if it has or may build one.
 fn own(n: usize) -> Option<Rc<rayon::ThreadPool>> {
     // (not borrowed while work runs: the work may call back into Python and here again)
     OWN.with(|cell| {
-        if let Some((size, p)) = &*cell.borrow() {
-            return (*size == n).then(|| p.clone());
+        if let Some((pid, size, p)) = &*cell.borrow() {
+            // inherited through a fork, its other workers do not exist: the shared pools then
+            return (*pid == process() && *size == n).then(|| p.clone());
         }
         if n > 1 && !on_main_thread() {
             return None;
@@ -92,7 +114,7 @@ fn own(n: usize) -> Option<Rc<rayon::ThreadPool>> {
             .build()
             .ok()?;
         let p = Rc::new(built);
-        *cell.borrow_mut() = Some((n, p.clone()));
+        *cell.borrow_mut() = Some((process(), n, p.clone()));
         Some(p)
     })
 }

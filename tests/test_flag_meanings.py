@@ -21,6 +21,9 @@ outside reader.
 
 from __future__ import annotations
 
+import re
+from pathlib import Path
+
 import numpy as np
 import pytest
 import toposweep as ts
@@ -121,3 +124,62 @@ def test_file_flags_read_by_the_netcdf_c_library(tmp_path):
         codes = [int(v) for v in np.ma.filled(var[:], -99)]
         np.testing.assert_allclose(f.variables["mass"][:], masses)
     assert [table[c] for c in codes] == want
+
+
+def test_more_reasons_read_as_why():
+    from test_certificate import COARSE, as_callable, stretched_bhz
+
+    # the spinful square lattice conserves s_z, so s_z ⊗ σ_z is an inversion of it as well,
+    # but one that anticommutes with time reversal: Kramers partners get opposite parities and
+    # the Fu–Kane product is undefined (Fu & Kane, Phys. Rev. B 76, 045302 (2007), where
+    # partners share the parity because P and Θ commute)
+    s_z = np.diag([1.0, -1.0]).astype(complex)
+    ds = ts.invariants(ts.models.bhz(), 2, inversion=np.kron(s_z, s_z))
+    assert meaning(ds.parity_undefined_reason) == "odd_count_of_odd_parity_kramers_states"
+    assert meaning(ds.nu0) == "odd"  # Qi, Wu & Zhang (2006): m = −1 is Z2-odd
+    # loops of 7 points alias bonds that reach 5 cells (test_certificate.py): the certificate
+    # finds the answer changes with doubled loop points, so the point is not converged
+    ds = ts.invariants(as_callable(stretched_bhz(5)), 2, **COARSE)
+    assert meaning(ds.undefined_reason) == "changes_with_doubled_loop_points"
+    assert meaning(ds.converged) == "no"
+    # a lattice mesh of four points per loop is too coarse near the Kane–Mele boundary
+    ds = ts.invariants(
+        ts.models.kane_mele(), 2, {"staggered": 0.45}, method="lattice", loop_points=4, lines=3
+    )
+    assert meaning(ds.lattice_undefined_reason) == "lattice_mesh_too_coarse"
+    # an i·1 hopping is odd under Θ = iσ_y K: time reversal broken at b ≠ 0 only
+    model = ts.models.wilson_dirac()
+    model.add((1, 0, 0), 1j * np.eye(4), term="b")
+    model.defaults["b"] = 0.0
+    swept = ts.sweep(model, {"b": [0.0, 0.3]}, 2, progress=False)
+    assert meaning(swept.undefined_reason[1]) == "time_reversal_broken_at_this_point"
+    assert meaning(swept.undefined_reason[0]) == "defined"
+
+
+def test_reason_names_are_the_cores_constants():
+    """Codes that no outside input can provoke reliably (estimates that disagree, an inversion
+    that mixes occupied and empty states) are pinned to the core's own constants by name: the
+    constant names in src/parity.rs and evaluation.py, read from the source."""
+    from toposweep import evaluation
+    from toposweep.dataset import REASONS
+
+    source = (Path(__file__).resolve().parent.parent / "src" / "parity.rs").read_text()
+    consts = {m[0]: int(m[1]) for m in re.findall(r"pub const (\w+): u8 = (\d+);", source)}
+    consts["INVERSION_BROKEN"] = evaluation.REASON_INVERSION_BROKEN
+    consts["TIME_REVERSAL_BROKEN"] = evaluation.REASON_TIME_REVERSAL_BROKEN
+    want = {
+        "DEFINED": "defined",
+        "GAPLESS": "gapless_direct_gap_below_floor",
+        "DEGENERATE_AT_TRIM": "degenerate_at_filling_at_trim",
+        "NU0_ESTIMATES_DISAGREE": "nu0_estimates_disagree",
+        "NOT_CONVERGED": "not_converged_within_max_lines",
+        "INVERSION_MIXES_FILLING": "inversion_mixes_occupied_and_empty_states",
+        "ODD_KRAMERS_COUNT": "odd_count_of_odd_parity_kramers_states",
+        "INVERSION_BROKEN": "inversion_not_a_symmetry_at_this_point",
+        "TIME_REVERSAL_BROKEN": "time_reversal_broken_at_this_point",
+        "CHANGES_WITH_LOOP_POINTS": "changes_with_doubled_loop_points",
+        "LATTICE_MESH_TOO_COARSE": "lattice_mesh_too_coarse",
+    }
+    assert set(want) <= set(consts), sorted(consts)
+    for name, meaning_ in want.items():
+        assert REASONS[consts[name]] == meaning_, name

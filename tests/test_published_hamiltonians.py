@@ -237,3 +237,19 @@ def test_typed_neighbour_vectors_are_the_lattices_own(rng):
         for leg in legs:
             n = np.linalg.solve(lattice.T, sites[1] - sites[0] - leg)  # integer cell offset
             np.testing.assert_allclose(n, np.round(n), atol=1e-12)
+
+
+# the defaults each builder documents (its docstring; the README table of the catalogue and the
+# models module's doctest are computed at them)
+DOCUMENTED_DEFAULTS = {
+    "bhz": {"mass": -1.0, "hopping": 1.0},
+    "df_lattice": {"d_hopping": 0.25, "f_hopping": -0.05, "f_level": -0.75, "hybridisation": 0.25},
+    "fu_kane_mele": {"hopping": 1.0, "spin_orbit": 0.1, "dimerisation": 0.4},
+    "kane_mele": {"hopping": 1.0, "spin_orbit": 0.1, "rashba": 0.0, "staggered": 0.0},
+    "wilson_dirac": {"mass": -2.0, "hopping": 1.0},
+}
+
+
+@pytest.mark.parametrize("name", sorted(DOCUMENTED_DEFAULTS))
+def test_defaults_are_the_documented_ones(name):
+    assert getattr(ts.models, name)().defaults == DOCUMENTED_DEFAULTS[name]

@@ -136,9 +136,9 @@ def test_torn_and_damaged_chunks_are_recomputed_and_nothing_else(tmp_path: Path)
     calls: list[float] = []
     resumed = resume_run(out, calls, resume=True)
     same(resumed, reference)
-    # the first point is mapped once to validate the mapping; then only the damaged chunk
-    # (10 points) and the 30 never computed are evaluated
-    assert len(calls) == 1 + 10 + 30
+    # three grid points are mapped for the run's fingerprint (the first validates the
+    # mapping); then only the damaged chunk (10 points) and the 30 never computed are evaluated
+    assert len(calls) == 3 + 10 + 30
     resumed.close()
     reference.close()
 
@@ -158,7 +158,7 @@ def test_kill_while_writing_the_file_is_harmless(tmp_path: Path, monkeypatch) ->
     assert not out.exists() and journal_path(out).is_dir()
     calls: list[float] = []
     resumed = resume_run(out, calls, resume=True)
-    assert len(calls) == 1  # nothing recomputed: only the file was written
+    assert len(calls) == 3  # the fingerprint's three points; only the file was written
     same(resumed, reference)
     assert not (tmp_path / "map.nc.writing").exists()
     resumed.close()
@@ -199,7 +199,7 @@ def test_resume_of_a_finished_file(tmp_path: Path) -> None:
     first = resume_run(out, [])
     calls: list[float] = []
     again = resume_run(out, calls, resume=True)
-    assert len(calls) == 1  # returned from the file, nothing evaluated
+    assert len(calls) == 3  # the fingerprint's three points; returned from the file
     same(again, first)
     with pytest.raises(StoreError, match="different run"):
         resume_run(out, [], resume=True, lines=7)

@@ -196,7 +196,8 @@ def test_ctrl_c_stops_between_chunks_and_keeps_finished_points() -> None:
 
     def mapping(p: dict[str, float]) -> dict[str, float]:
         calls.append(p["mass"])
-        if len(calls) == 7:  # Ctrl-C while the second chunk is being prepared
+        # (calls 1-3: the run's fingerprint; 4-8: the first chunk)
+        if len(calls) == 9:  # Ctrl-C while the second chunk is being prepared
             os.kill(os.getpid(), signal.SIGINT)
         return {"mass": p["mass"]}
 

@@ -76,10 +76,6 @@ def hamiltonian(
 def eigh(
     h: NDArray[np.complex128], *, threads: int | None = None
 ) -> tuple[NDArray[np.float64], NDArray[np.complex128]]: ...
-def fork_join_probe(tasks: int, iterations: int, *, threads: int | None = None) -> int:
-    """Benchmark probe: ``tasks`` equal chains of ``iterations`` multiply–adds, nothing serial."""
-    ...
-
 def flow(
     model: CoreModel,
     coeff: NDArray[np.float64],

@@ -10,18 +10,20 @@ from __future__ import annotations
 import argparse
 import os
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import NoReturn
 
 from . import _core
 from ._version import __version__
-from .errors import ConfigError, ParameterError, ToposweepError
+from .errors import ConfigError, ParameterError, StoreError, ToposweepError
 from .store import journal_path, open_result
 
 __all__ = ["main"]
 
 EXIT_USAGE = 2
+#: an unexpected error (a model function that raised, say): one line, this code
+EXIT_FAILED = 1
 EXIT_INTERRUPTED = 130
 
 
@@ -31,6 +33,48 @@ class _Parser(argparse.ArgumentParser):
     def error(self, message: str) -> NoReturn:
         sys.stderr.write(f"{self.prog}: error: {message} (see {self.prog} --help)\n")
         raise SystemExit(EXIT_USAGE)
+
+
+#: resolutions `plot --dpi` accepts (a figure of 20 000 dpi is gigabytes of pixels)
+DPI_RANGE = (10, 2000)
+
+
+def _dpi(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    low, high = DPI_RANGE
+    if not low <= value <= high:
+        raise argparse.ArgumentTypeError(f"must lie in {low} … {high}, got {value}")
+    return value
+
+
+def _image_path(out: Path, fig: object) -> Path:
+    """Refuse an output name whose suffix matplotlib cannot write, before writing."""
+    known = fig.canvas.get_supported_filetypes()  # type: ignore[attr-defined]
+    kind = out.suffix.lower().lstrip(".")
+    if kind not in known:
+        raise ParameterError(
+            f"--out {out}: cannot write a {out.suffix or 'suffix-less'} file; end the name "
+            f"with one of {', '.join('.' + k for k in sorted(known))}"
+        )
+    if not out.parent.is_dir():
+        raise ParameterError(f"--out {out}: the folder {out.parent} does not exist")
+    return out
+
+
+def _reading(path: object, read: Callable[[], int]) -> int:
+    """Run ``read``; an unexpected error while reading a result file is one line."""
+    try:
+        return read()
+    except (ToposweepError, OSError, KeyboardInterrupt):
+        raise
+    except Exception as exc:  # noqa: BLE001 - an attribute or variable not as we wrote it
+        raise StoreError(
+            f"{path}: not a valid toposweep result file ({type(exc).__name__}: {exc}); "
+            "it may have been changed by another program — recompute it"
+        ) from None
 
 
 def _point(items: Sequence[str] | None) -> dict[str, float]:
@@ -80,7 +124,13 @@ def _run(args: argparse.Namespace) -> int:
                 progress=not args.quiet,
             )  # fmt: skip
         else:
-            ds = sweep(**kwargs, out=out, resume=args.resume, progress=not args.quiet)
+            ds = sweep(
+                **kwargs,
+                out=out,
+                resume=args.resume,
+                overwrite=args.overwrite,
+                progress=not args.quiet,
+            )
     except SweepInterrupted as exc:
         raise KeyboardInterrupt(
             f"interrupted after {exc.done} of {exc.total} points; the finished chunks are kept "
@@ -94,12 +144,20 @@ def _run(args: argparse.Namespace) -> int:
 def _summary(args: argparse.Namespace) -> int:
     from .summary import summarise
 
-    with open_result(args.file, load=True) as ds:
-        print(summarise(ds, str(args.file)))
-    return 0
+    def read() -> int:
+        with open_result(args.file, load=True) as ds:
+            text = summarise(ds, str(args.file))
+        print(text)
+        return 0
+
+    return _reading(args.file, read)
 
 
 def _plot(args: argparse.Namespace) -> int:
+    return _reading(args.file, lambda: _draw(args))
+
+
+def _draw(args: argparse.Namespace) -> int:
     from .flowplot import flow_figure
     from .plotting import plot_line, plot_phase_map
 
@@ -122,7 +180,7 @@ def _plot(args: argparse.Namespace) -> int:
                 y = args.y or others[0]
                 fig = plot_phase_map(ds, x, y, at=at, show_evaluated=args.evaluated)
                 default = path.with_suffix(".png")
-    out = Path(args.out) if args.out else default
+    out = _image_path(Path(args.out), fig) if args.out else default
     fig.savefig(out, dpi=args.dpi)
     print(f"wrote {out}")
     return 0
@@ -199,7 +257,7 @@ def _parser() -> _Parser:
         "(only for files you trust)",
     )
     plot.add_argument("--out", help="PNG file to write (default: next to the result file)")
-    plot.add_argument("--dpi", type=int, default=130, help="resolution (default 130)")
+    plot.add_argument("--dpi", type=_dpi, default=130, help="resolution, 10 … 2000 (default 130)")
     plot.set_defaults(func=_plot)
 
     demo = sub.add_parser("demo", help="sweep a fictional mixed-valence compound")
@@ -229,6 +287,20 @@ def main(argv: Sequence[str] | None = None) -> int:
     except (ToposweepError, OSError) as exc:
         sys.stderr.write(f"toposweep: error: {_one_line(exc)}\n")
         return EXIT_USAGE
+    except SystemExit as exc:  # raised by a model's or mapping's code while it ran
+        sys.stderr.write(
+            f"toposweep: error: the model's code called sys.exit({exc.code!r}); "
+            "no result was written\n"
+        )
+        return EXIT_USAGE
+    except Exception as exc:  # noqa: BLE001 - e.g. a model function that raised
+        if os.environ.get("TOPOSWEEP_TRACEBACK"):
+            raise
+        sys.stderr.write(
+            f"toposweep: error: {type(exc).__name__}: {_one_line(exc)} "
+            "(TOPOSWEEP_TRACEBACK=1 shows where)\n"
+        )
+        return EXIT_FAILED
 
 
 def _one_line(exc: BaseException) -> str:

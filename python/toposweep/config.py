@@ -169,6 +169,27 @@ def _grid_axis(source: str, name: str, spec: Any) -> Any:
     return xr.DataArray(np.array(floats), dims=name, attrs=attrs) if attrs else np.array(floats)
 
 
+def _import_user_file(source: str, key: str, path: Path) -> Any:
+    """Import a model or coefficients file; whatever its code does wrong becomes one line.
+
+    A syntax error, an exception at import, even ``sys.exit()`` in the file is a
+    :class:`ConfigError` naming the file (and the line, where Python gives one).
+    """
+    try:
+        module = load_file_module(path)  # same module name in every process (resume, plots)
+    except SyntaxError as exc:
+        raise _fail(source, key, f"{path}, line {exc.lineno}: syntax error: {exc.msg}") from None
+    except SystemExit as exc:
+        raise _fail(
+            source, key, f"{path} calls sys.exit({exc.code!r}) when imported; remove that call"
+        ) from None
+    except Exception as exc:  # noqa: BLE001 - the user's code may raise anything
+        raise _fail(source, key, f"importing {path} raised {type(exc).__name__}: {exc}") from None
+    if module is None:
+        raise _fail(source, key, f"cannot import {path} as Python")
+    return module
+
+
 def _load_function(source: str, key: str, spec: str, base: Path) -> Callable[..., Any]:
     """Import ``function`` from ``path/to/file.py`` (relative to the configuration's folder)."""
     path_text, _, func_name = spec.rpartition(":")
@@ -177,9 +198,7 @@ def _load_function(source: str, key: str, spec: str, base: Path) -> Callable[...
     path = (base / path_text).resolve()
     if not path.is_file():
         raise _fail(source, key, f"no such file {path}")
-    module = load_file_module(path)  # same module name in every process (resume, plots)
-    if module is None:
-        raise _fail(source, key, f"cannot import {path} as Python")
+    module = _import_user_file(source, key, path)
     func = getattr(module, func_name, None)
     if not callable(func):
         raise _fail(source, key, f"{path} has no function {func_name!r}")
@@ -205,6 +224,10 @@ def _model(source: str, spec: Any, options: dict[str, Any], base: Path) -> Model
         raise
     except (TypeError, ValueError) as exc:  # bad option names or values
         raise _fail(source, "model_options", f"{spec}: {exc}") from None
+    except SystemExit as exc:
+        raise _fail(source, "model", f"{spec} calls sys.exit({exc.code!r})") from None
+    except Exception as exc:  # noqa: BLE001 - the user's model code may raise anything
+        raise _fail(source, "model", f"{spec} raised {type(exc).__name__}: {exc}") from None
     if not isinstance(model, Model):
         raise _fail(
             source, "model", f"{spec} returned {type(model).__name__}, not a toposweep model"

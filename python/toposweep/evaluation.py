@@ -16,6 +16,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from . import _core
 from .errors import FillingError, ModelError, SamplingError, SymmetryWarning
+from .limits import check_point_memory
 from .model import Model
 from .sampling import Sampling, check_threads
 from .symmetry import TOLERANCE, as_operator, normalised_inversion, symmetry_error
@@ -95,7 +96,7 @@ def prepare_request(
     The request is kept on the model and given again for the same filling, threads and
     sampling (the same objects) while the model's hoppings and operators are unchanged: a loop
     of :func:`toposweep.invariants` calls asks for the same one each time, and making it again
-    cost ~10 µs of serial Python per call, cold after the last call's core (DEVELOPERS.md).
+    cost ~10 µs of serial Python per call, cold after the last call's core (benches/RESULTS.md).
     The operators count as unchanged while they are the read-only arrays the model was made
     with; a model whose operators were replaced is checked every time.
     """
@@ -122,6 +123,7 @@ def prepare_request(
     f = check_filling(model, filling)
     checked_threads = check_threads(threads)
     check_loop_resolution(model, sampling)
+    check_point_memory(model, sampling, checked_threads)  # a huge model: refused, not aborted
     explicit = inversion is not None
     p = as_operator(inversion, model.norb, "inversion") if explicit else model.inversion
     req = Request(

@@ -257,6 +257,7 @@ class ChunkRunner:
                         p.with_payload = True  # (not a failure: the worker lacked the job)
                         self._submit(pending, p)
                         continue
+                    self.running = len(pending)
                     yield TaskResult(p.task, value, worker, seconds, p.attempts)
                 for p, exc in failed:
                     try:

@@ -21,6 +21,7 @@ from numpy.typing import NDArray
 
 from .adaptive_cells import EVALUATED, FILLED, PROVEN
 from .dataset import PHASES
+from .file_digest import append_digest
 from .store import FLAT_DIM, _create, _fsync_dir, write_result
 from .sweep_plan import SweepPlan
 from .transitions import STATUS
@@ -193,6 +194,7 @@ def write_map(plan: SweepPlan, ds: xr.Dataset, out: str) -> None:
             var = _create(f, str(k), v.dims, v.dtype, v.attrs, v.shape)
             if v.size:
                 var[...] = v.values
+    append_digest(tmp)  # (HDF5's append replaced write_result's: the whole file again)
     with open(tmp, "rb") as fh:
         os.fsync(fh.fileno())
     os.replace(tmp, out)

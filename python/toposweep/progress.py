@@ -55,6 +55,8 @@ class ProgressBar:
         self._total = max(int(total), 1)
         self.done = int(done)
         self.undefined = int(undefined)
+        #: where the work runs, e.g. "2 workers, 4 tasks" (set by runs on an executor)
+        self.status = ""
         self._bar = (
             tqdm(
                 total=self._total,
@@ -84,7 +86,15 @@ class ProgressBar:
             self._bar.refresh()
 
     def _postfix(self) -> str:
-        return f"{self.undefined} undefined"
+        undefined = f"{self.undefined} undefined"
+        return f"{self.status}, {undefined}" if self.status else undefined
+
+    def set_status(self, text: str) -> None:
+        """Show ``text`` beside the counts (drawn with the next update)."""
+        if text != self.status:
+            self.status = text
+            if self._bar is not None:
+                self._bar.set_postfix_str(self._postfix(), refresh=False)
 
     def update(self, n: int, *, undefined: int = 0) -> None:
         """Count ``n`` more finished points, ``undefined`` of them undefined."""

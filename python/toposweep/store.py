@@ -16,11 +16,14 @@ layout xarray itself writes, so ``xarray.open_dataset`` and any NetCDF4 tool rea
 
 from __future__ import annotations
 
+import errno
+import gc
 import itertools
 import json
 import math
 import os
 import shutil
+import sys
 from collections.abc import Callable, Iterator, Mapping
 from pathlib import Path
 from typing import Any
@@ -37,9 +40,11 @@ import xarray as xr
 from numpy.typing import NDArray
 
 from .errors import StoreError
+from .file_digest import DigestError, append_digest, verify
 
 __all__ = [
     "Journal",
+    "check_output",
     "identity_differences",
     "journal_path",
     "missing_ranges",
@@ -48,6 +53,8 @@ __all__ = [
 ]
 
 IDENTITY_FILE = "run.json"
+#: names, dtypes and per-point shapes of a chunk's arrays, written with the first chunk
+SCHEMA_FILE = "schema.json"
 LOCK_FILE = "lock"
 #: bytes per HDF5 chunk of a result variable (compressed and checksummed chunk by chunk)
 CHUNK_BYTES = 1 << 18
@@ -88,33 +95,68 @@ def identity_differences(expected: Mapping[str, Any], found: Mapping[str, Any]) 
 
     Examples
     --------
-    >>> identity_differences({"filling": 2, "grid": {"m": [5, "a"]}},
-    ...                      {"filling": 4, "grid": {"m": [5, "a"]}})
-    ['filling: 2 now, 4 in the file']
+    >>> identity_differences({"filling": 2, "grid": [["m", 5, "a"], ["t", 3, "b"]]},
+    ...                      {"filling": 4, "grid": [["t", 3, "b"], ["m", 5, "a"]]})
+    ... # doctest: +NORMALIZE_WHITESPACE
+    ['filling: 2 now, 4 in the file', "grid order: ['m', 't'] now, ['t', 'm'] in the file
+    (the same parameters in another order lay the points out differently; give the grid in
+    the file's order)"]
     """
     out = []
     for key in sorted(set(expected) | set(found)):
         a, b = expected.get(key), found.get(key)
         if a == b:
             continue
-        if key == "grid" and isinstance(a, dict) and isinstance(b, dict):
-            if list(a) != list(b):
-                out.append(f"grid parameters: {list(a)} now, {list(b)} in the file")
-            else:
-                for d in a:
-                    if a[d] != b[d]:
-                        out.append(
-                            f"grid values of {d!r}: {a[d][0]} values now, {b[d][0]} in the file"
-                            + (" (same count, different values)" if a[d][0] == b[d][0] else "")
-                        )
+        if key == "grid":
+            out.extend(_grid_differences(a, b))
         elif key == "sampling" and isinstance(a, dict) and isinstance(b, dict):
             for opt in sorted(set(a) | set(b)):
                 if a.get(opt) != b.get(opt):
                     out.append(f"sampling {opt}: {a.get(opt)!r} now, {b.get(opt)!r} in the file")
         elif key == "model":
             out.append("model: a different model (terms, hoppings, symmetry or defaults)")
+        elif key == "numbers":
+            out.append(
+                "model numbers: H(κ) or the coefficients mapping now give other values at the "
+                "same grid points (its code or a file it reads changed, though its name did "
+                "not); restore the original code, or start over (resume=False; command line: "
+                "--overwrite)"
+            )
         else:
             out.append(f"{key}: {a!r} now, {b!r} in the file")
+    return out
+
+
+def _grid_axes(grid: Any) -> list[tuple[str, Any, Any]] | None:
+    """``[(name, count, digest), ...]`` of a recorded grid, in its order (None: unreadable)."""
+    if isinstance(grid, dict):  # written before the order was recorded: order unknown
+        return None
+    try:
+        return [(str(d), n, h) for d, n, h in grid]
+    except (TypeError, ValueError):
+        return None
+
+
+def _grid_differences(now: Any, found: Any) -> list[str]:
+    """What differs between two recorded grids, axis order included."""
+    a, b = _grid_axes(now), _grid_axes(found)
+    if a is None or b is None:
+        return ["grid: recorded in an older form without the order of its axes"]
+    names_a, names_b = [x[0] for x in a], [x[0] for x in b]
+    if names_a != names_b:
+        if sorted(names_a) == sorted(names_b):
+            return [
+                f"grid order: {names_a} now, {names_b} in the file (the same parameters in "
+                "another order lay the points out differently; give the grid in the file's order)"
+            ]
+        return [f"grid parameters: {names_a} now, {names_b} in the file"]
+    out = []
+    for (d, n, h), (_, m, g) in zip(a, b, strict=True):
+        if (n, h) != (m, g):
+            out.append(
+                f"grid values of {d!r}: {n} values now, {m} in the file"
+                + (" (same count, different values)" if n == m else "")
+            )
     return out
 
 
@@ -207,9 +249,21 @@ class Journal:
     def _name(start: int, stop: int) -> str:
         return f"chunk-{start:012d}-{stop:012d}.npz"
 
+    @staticmethod
+    def _schema(arrays: Mapping[str, NDArray[Any]]) -> dict[str, list[Any]]:
+        """``{name: [dtype, per-point shape]}`` of a chunk's arrays."""
+        return {k: [np.asarray(v).dtype.str, list(np.shape(v)[1:])] for k, v in arrays.items()}
+
     def save(self, start: int, stop: int, raw: Mapping[str, NDArray[Any]]) -> None:
-        """Store the core's flat arrays of points ``start … stop-1`` (atomic)."""
+        """Store the core's flat arrays of points ``start … stop-1`` (atomic).
+
+        The first chunk also records the run's schema (array names, dtypes, per-point shapes),
+        before the chunk itself, so no chunk exists without a schema to check it against.
+        """
         arrays = {k: np.asarray(v) for k, v in raw.items()}
+        if not (self.path / SCHEMA_FILE).is_file():
+            text = json.dumps(self._schema(arrays), sort_keys=True).encode()
+            _atomic_write(self.path / SCHEMA_FILE, lambda fh: fh.write(text))
         _atomic_write(self.path / self._name(start, stop), lambda fh: np.savez(fh, **arrays))
 
     def load(self, start: int, stop: int) -> dict[str, NDArray[Any]]:
@@ -217,26 +271,56 @@ class Journal:
         with np.load(self.path / self._name(start, stop)) as z:
             return {k: z[k] for k in z.files}
 
-    def finished(self) -> list[tuple[int, int]]:
-        """Sorted, disjoint ranges of finished chunks; unreadable or stray files are removed."""
+    def _read_schema(self) -> dict[str, list[Any]] | None:
+        try:
+            found = json.loads((self.path / SCHEMA_FILE).read_text())
+        except (OSError, ValueError):
+            return None
+        return found if isinstance(found, dict) else None
+
+    def _chunk_ok(self, p: Path, start: int, stop: int, total: int, schema: Any) -> bool:
+        """Whether chunk file ``p`` holds points ``start … stop-1`` as the run's schema says."""
+        if not (0 <= start < stop <= total) or not p.is_file() or schema is None:
+            return False
+        try:
+            with np.load(p, allow_pickle=False) as z:
+                if sorted(z.files) != sorted(schema):
+                    return False
+                for k in z.files:
+                    a = z[k]
+                    dtype, shape = schema[k]
+                    if a.dtype.str != dtype or list(a.shape) != [stop - start, *shape]:
+                        return False
+        except Exception:  # truncated zip, garbage bytes, pickled objects, a bad schema, ...
+            return False
+        return True
+
+    def finished(self, total: int | None = None) -> list[tuple[int, int]]:
+        """Sorted, disjoint ranges of finished chunks of a grid of ``total`` points.
+
+        Every chunk is checked against the run's schema (the arrays, dtypes and per-point
+        shapes of the first chunk saved): a chunk that fails — unreadable, an array missing or
+        of the wrong shape, a range beyond the grid, a directory in its place — is removed and
+        so computed again; so are stray temporary files.
+        """
+        total = (1 << 62) if total is None else total
+        schema = self._read_schema()
         ranges = []
         for p in self.path.iterdir():
             if p.name.endswith(".tmp"):
-                p.unlink()  # a write that a kill interrupted
+                _remove(p)  # a write that a kill interrupted
                 continue
-            if p.name in (LOCK_FILE, IDENTITY_FILE):
+            if p.name in (LOCK_FILE, IDENTITY_FILE, SCHEMA_FILE):
                 continue
             parts = p.name.removeprefix("chunk-").removesuffix(".npz").split("-")
             if not p.name.startswith("chunk-") or len(parts) != 2:
                 continue
             try:
                 start, stop = int(parts[0]), int(parts[1])
-                with np.load(p) as z:
-                    ok = len(z.files) > 0 and all(len(z[k]) == stop - start for k in z.files)
-            except Exception:  # truncated zip, garbage bytes, ... (a bad chunk is recomputed)
-                ok = False
-            if not ok:
-                p.unlink()  # cannot happen with atomic renames, but never trust a bad chunk
+            except ValueError:
+                start = stop = -1
+            if not self._chunk_ok(p, start, stop, total, schema):
+                _remove(p)  # cannot happen with atomic renames, but never trust a bad chunk
                 continue
             ranges.append((start, stop))
         ranges.sort()
@@ -252,6 +336,54 @@ class Journal:
         """Delete the journal (after the result file is complete) and release the lock."""
         shutil.rmtree(self.path, ignore_errors=True)
         self.close()
+
+
+def check_output(out: str | os.PathLike[str], *, resume: bool, overwrite: bool) -> None:
+    """Refuse an output path that cannot work, before any point is computed.
+
+    A directory, a file in a folder that does not exist, or — without ``resume`` or
+    ``overwrite`` — an existing file or an interrupted run's journal.
+
+    Examples
+    --------
+    >>> check_output("no/such/folder/map.nc", resume=False, overwrite=False)
+    ... # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    toposweep.errors.StoreError: the folder no/such/folder of out=... does not exist; ...
+    """
+    if resume and overwrite:
+        raise StoreError("give resume=True or overwrite=True, not both")
+    p = Path(os.fspath(out))
+    if p.is_dir():
+        raise StoreError(
+            f"out={os.fspath(out)!r} is a directory; give a file name such as {p / 'map.nc'}"
+        )
+    folder = p.parent
+    if not folder.is_dir():
+        raise StoreError(
+            f"the folder {folder} of out={os.fspath(out)!r} does not exist; create it first"
+        )
+    if resume or overwrite:
+        return
+    journal = journal_path(p)
+    if journal.is_dir():
+        raise StoreError(
+            f"an interrupted run's journal {journal} exists; resume=True continues it, "
+            "overwrite=True starts over"
+        )
+    if p.exists():
+        raise StoreError(
+            f"{p} exists; resume=True returns it (if it is this run's), overwrite=True replaces it"
+        )
+
+
+def _remove(p: Path) -> None:
+    """Delete a file or a directory tree (whatever a damaged journal holds under a name)."""
+    if p.is_dir() and not p.is_symlink():
+        shutil.rmtree(p, ignore_errors=True)
+    else:
+        p.unlink(missing_ok=True)
 
 
 def flat_boxes(
@@ -335,7 +467,7 @@ def _create(
 ) -> Any:
     # floats get a NaN _FillValue, as xarray writes them
     fill = np.nan if np.issubdtype(dtype, np.floating) else None
-    if shape is None or 0 in shape:
+    if shape is None or 0 in shape or len(shape) == 0 or np.dtype(dtype).kind not in "biuf":
         var = f.create_variable(name, dims, dtype=dtype, fillvalue=fill)
     else:
         # result arrays: compressed, and Fletcher-32 checksummed so that a damaged file is
@@ -372,18 +504,186 @@ def write_result(
     """
     path = Path(out)
     tmp = path.with_name(path.name + ".writing")
+    why = None
+    hook = sys.unraisablehook
+    # HDF5 objects that fail to write report it as they are released, one traceback each:
+    # the failure is reported once, below
+    sys.unraisablehook = _quiet_about_hdf5(hook)
+    excepthook = sys.excepthook
+    sys.excepthook = _quiet_about_hdf5_errors(excepthook)
+    try:
+        _write_file(tmp, dims=dims, coords=coords, chunks=chunks, attrs=attrs)
+        append_digest(tmp)  # the whole file's digest, checked before HDF5 reads it
+        with open(tmp, "rb") as fh:
+            os.fsync(fh.fileno())
+    except (OSError, RuntimeError) as exc:  # disk full, size limit, quota, I/O error
+        why = _reason(exc)
+    except BaseException:
+        _discard(tmp)
+        raise
+    finally:
+        gc.collect()  # (the failed writer's objects, while their reports are quiet)
+        sys.unraisablehook = hook
+        sys.excepthook = excepthook
+    if why is not None:
+        _discard(tmp)
+        raise StoreError(
+            f"cannot write {path}: {why}; nothing was written under its name, and an "
+            "interrupted run's finished chunks stay in its journal — free space (or raise the "
+            "file size limit) and run again with resume=True (command line: run --resume)"
+        )
+    os.replace(tmp, path)
+    _fsync_dir(path.parent)
+
+
+def _quiet_about_hdf5(hook: Callable[[Any], None]) -> Callable[[Any], None]:
+    """An unraisable-exception hook that passes on everything but h5py's own objects."""
+
+    def quiet(unraisable: Any) -> None:
+        if "h5py" not in repr(getattr(unraisable, "object", None)):
+            hook(unraisable)
+
+    return quiet
+
+
+def _discard(tmp: Path) -> None:
+    """Delete the temporary file of a failed write."""
+    try:
+        tmp.unlink(missing_ok=True)
+    except OSError:  # pragma: no cover - nothing more to do
+        pass
+
+
+def _quiet_about_hdf5_errors(hook: Callable[..., Any]) -> Callable[..., Any]:
+    """An excepthook that passes on everything but h5py's failures to release an object.
+
+    (h5py prints those through the excepthook before it reports them as unraisable.)
+    """
+
+    def quiet(kind: type[BaseException], value: BaseException, tb: Any) -> None:
+        if not (kind is RuntimeError and "id ref count" in str(value)):
+            hook(kind, value, tb)
+
+    return quiet
+
+
+def _reason(exc: BaseException) -> str:
+    """The operating system's reason for a failed write, in a few words.
+
+    HDF5's messages are long (a time stamp, buffer addresses); the errno they carry says it.
+
+    Examples
+    --------
+    >>> _reason(RuntimeError("Can't write image (file write failed: errno = 28, ...)"))
+    'No space left on device'
+    """
+    import re
+
+    text = str(exc)
+    found = re.search(r"errno = (\d+)", text)
+    if isinstance(exc, OSError) and exc.strerror and not found:
+        return f"{exc.strerror}" + (f" ({exc.filename})" if exc.filename else "")
+    return os.strerror(int(found.group(1))) if found else text
+
+
+def _reserve(tmp: Path, size: int) -> None:
+    """Make sure a file of ``size`` bytes fits before HDF5 writes one, or refuse clearly.
+
+    HDF5 does not recover from a write the disk refuses: it leaves objects it cannot close,
+    and crashes when the interpreter exits. So the room is checked first: against the file
+    size limit (``ulimit -f``), and on disk by allocating ``size`` bytes to ``tmp`` (which
+    HDF5 then truncates and rewrites). ``size`` is the uncompressed size, an upper bound.
+    """
+    import resource
+
+    limit = resource.getrlimit(resource.RLIMIT_FSIZE)[0]
+    if limit != resource.RLIM_INFINITY and size > limit:
+        raise OSError(
+            errno.EFBIG,
+            f"the file may need up to {size / 1e6:.1f} MB, more than the file size limit "
+            f"(ulimit -f) of {limit / 1e6:.1f} MB",
+        )
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
+    try:
+        os.posix_fallocate(fd, 0, size)
+    except OSError as exc:
+        if exc.errno in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG):
+            free = shutil.disk_usage(tmp.parent).free
+            raise OSError(
+                exc.errno,
+                f"the file may need up to {size / 1e6:.1f} MB, {free / 1e6:.1f} MB are free",
+            ) from None
+        # (a file system without allocation: HDF5's own errors are the only check)
+    finally:
+        os.close(fd)
+
+
+def _descriptor(h5: Any) -> int | None:
+    """The operating system's descriptor of an open h5py file (None if HDF5 does not say)."""
+    try:
+        return int(h5.id.get_vfd_handle())
+    except Exception:  # noqa: BLE001 - another HDF5 driver
+        return None
+
+
+def _abandon(f: Any, fd: int | None) -> None:
+    """Let go of an h5netcdf or h5py file whose write failed, without another write.
+
+    After a failed write (a full disk) h5netcdf's ``close`` writes again, fails again, and
+    stays open; when the object is collected later, or at exit, it tries once more on a file
+    HDF5 no longer handles, and the interpreter crashes. So it is marked closed here, and the
+    HDF5 file under it closed while it still can be.
+    """
+    h5 = getattr(f, "_File__h5file", f)  # (h5netcdf keeps its h5py file under this name)
+    if isinstance(f, h5netcdf.File):
+        f._closed = True
+    if h5 is None:
+        return
+    if fd is not None:
+        # HDF5 still holds data it must write before it lets the file go, and the disk
+        # refuses it: its file descriptor (taken while the file was sound) is pointed at
+        # /dev/null, so the close succeeds, and HDF5 does not try again, and crash, at exit;
+        # the file is deleted anyway
+        sink = os.open(os.devnull, os.O_RDWR)
+        try:
+            os.dup2(sink, fd)
+        finally:
+            os.close(sink)
+    try:
+        h5.close()
+    except Exception:  # noqa: BLE001 - the file is being given up anyway
+        pass
+
+
+def _write_file(
+    tmp: Path,
+    *,
+    dims: tuple[str, ...],
+    coords: Mapping[str, xr.Variable],
+    chunks: Iterator[tuple[int, xr.Dataset]],
+    attrs: Mapping[str, Any],
+) -> None:
+    """The HDF5 part of :func:`write_result`: layout by h5netcdf, data by h5py, into ``tmp``."""
     grid_shape = tuple(coords[d].size for d in dims)
     # non-dimension coordinates are listed in "coordinates" attributes, as xarray does it
     aux = {k: set(v.dims) for k, v in coords.items() if k not in v.dims}
     listed: set[str] = set()
     start, first = next(chunks)
+    points = math.prod(grid_shape)
+    bound = sum(
+        v.values.nbytes // max(v.shape[0], 1) * points for v in first.data_vars.values()
+    ) + sum(v.nbytes for v in coords.values())
+    # + chunk indices, object headers and attributes (~2-6 kB per variable in practice)
+    _reserve(tmp, int(bound * 1.05) + (64 << 10) + (8 << 10) * len(first.data_vars))
     # the layout (dimensions, dimension scales, attributes) by h5netcdf, as xarray writes it
-    with h5netcdf.File(tmp, "w") as f:
+    f = h5netcdf.File(tmp, "w")
+    fd = _descriptor(f._h5file)
+    try:
         sizes = {d: coords[d].size for d in dims}
         sizes.update({d: n for d, n in first.sizes.items() if d != FLAT_DIM})
         f.dimensions = sizes
-        for name, var in coords.items():
-            v = _create(f, name, var.dims, var.dtype, var.attrs)
+        for name, var in coords.items():  # checksummed too (every numeric array is)
+            v = _create(f, name, var.dims, var.dtype, var.attrs, var.shape)
             v[...] = var.values
         for name, var in first.data_vars.items():
             vdims = tuple(dims) + tuple(d for d in var.dims if d != FLAT_DIM)
@@ -396,22 +696,38 @@ def write_result(
             f.attrs[k] = v
         if set(aux) - listed:
             f.attrs["coordinates"] = " ".join(sorted(set(aux) - listed))
+        f.close()
+    except BaseException:
+        _abandon(f, fd)
+        raise
     # the data by plain h5py: many small hyperslab writes, each far cheaper this way
-    with h5py.File(tmp, "r+") as h5:
+    h5 = h5py.File(tmp, "r+")
+    fd = _descriptor(h5)
+    # every dataset opened once and kept: a dataset's close writes its cached chunks, and a
+    # close that fails in a destructor cannot be reported (nor undone); flush() reports it
+    datasets = {str(name): h5[str(name)] for name in first.data_vars}
+    try:
         for at, chunk in itertools.chain([(start, first)], chunks):
             for name, var in chunk.data_vars.items():
-                _write_flat(h5[str(name)], grid_shape, at, var.values)
-    with open(tmp, "rb") as fh:
-        os.fsync(fh.fileno())
-    os.replace(tmp, path)
-    _fsync_dir(path.parent)
+                _write_flat(datasets[str(name)], grid_shape, at, var.values)
+        h5.flush()
+        datasets.clear()
+        h5.close()
+    except BaseException:
+        _abandon(h5, fd)  # (before the datasets are let go: their closes then succeed)
+        datasets.clear()
+        raise
 
 
-def open_result(path: str | os.PathLike[str], *, load: bool = False) -> xr.Dataset:
+def open_result(
+    path: str | os.PathLike[str], *, load: bool = False, verify_digest: bool = True
+) -> xr.Dataset:
     """Open a toposweep result file, with a clear :class:`StoreError` if it is not one.
 
-    The data are read lazily unless ``load`` is set; then every array is read at once and
-    checked against its Fletcher-32 checksum, so damage is reported here.
+    First the digest of the whole file (:mod:`toposweep.file_digest`) is checked, unless
+    ``verify_digest`` is False: a file changed in any byte since toposweep wrote it is refused
+    before HDF5 parses it. The data are read lazily unless ``load`` is set; then every array is
+    read at once and checked against its Fletcher-32 checksum as well.
 
     Examples
     --------
@@ -421,6 +737,8 @@ def open_result(path: str | os.PathLike[str], *, load: bool = False) -> xr.Datas
     toposweep.errors.StoreError: no/such/file.nc: no such file
     """
     p = Path(path)
+    if p.is_dir():
+        raise StoreError(f"{p}: is a directory, not a result file")
     if not p.is_file():
         journal = journal_path(p)
         if journal.is_dir():
@@ -430,6 +748,16 @@ def open_result(path: str | os.PathLike[str], *, load: bool = False) -> xr.Datas
                 f"{journal}); continue it with resume=True (command line: run --resume)"
             )
         raise StoreError(f"{p}: no such file")
+    if verify_digest:
+        try:
+            verify(p)  # before HDF5 parses anything: damaged metadata can make it hang
+        except DigestError as exc:
+            raise StoreError(
+                f"{p}: corrupt — damaged data, or changed since toposweep wrote it: {exc}; "
+                "recompute it (open_result(..., verify_digest=False) reads it unchecked)"
+            ) from None
+        except OSError as exc:
+            raise StoreError(f"{p}: cannot read ({exc.strerror or exc})") from None
     try:
         ds = xr.open_dataset(p, engine="h5netcdf")
     except Exception as exc:  # h5py/h5netcdf raise many types for broken files

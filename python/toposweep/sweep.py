@@ -24,6 +24,7 @@ from numpy.typing import ArrayLike, NDArray
 from .dataset import build_dataset
 from .errors import ParameterError, StoreError
 from .evaluation import prepare_request, run_points
+from .limits import check_grid
 from .model import Model
 from .progress import ProgressBar
 from .sampling import Sampling
@@ -31,6 +32,7 @@ from .store import (
     FLAT_DIM,
     IDENTITY_ATTR,
     Journal,
+    check_output,
     identity_differences,
     journal_path,
     missing_ranges,
@@ -232,6 +234,7 @@ def sweep(
     inversion: ArrayLike | None = None,
     out: str | os.PathLike[str] | None = None,
     resume: bool = False,
+    overwrite: bool = False,
     progress: bool = True,
     threads: int | None = None,
     chunk_size: int | None = None,
@@ -264,8 +267,12 @@ def sweep(
         they finish, then streamed into ``out``; the result is returned opened lazily from it.
     resume : bool
         Continue an interrupted run writing ``out`` (or return ``out`` if it is complete);
-        refuses with :class:`~toposweep.StoreError` if model, grid, filling, parameters or
-        sampling differ.
+        refuses with :class:`~toposweep.StoreError` if model (its numbers included), grid
+        (its order included), filling, parameters or sampling differ.
+    overwrite : bool
+        Replace an existing ``out`` (or start an interrupted run's journal over). Without
+        ``resume`` or ``overwrite`` an existing ``out`` or journal is refused, as the command
+        line does.
     progress : bool
         Draw a progress bar on stderr (only when stderr is a terminal).
     threads : int, optional
@@ -309,7 +316,10 @@ def sweep(
         isinstance(chunk_size, bool) or not isinstance(chunk_size, int) or chunk_size < 1
     ):
         raise ParameterError(f"chunk_size must be a positive integer or None, got {chunk_size!r}")
+    if out is not None:  # before any work: a bad output path is found now, not at the end
+        check_output(out, resume=resume, overwrite=overwrite)
     plan = make_plan(req, grid, params=params, coefficients=coefficients)
+    check_grid(model, samp, req.threads, plan.size, out)
     from .sweep_executor import remote_for  # (it imports this module)
 
     with remote_for(executor, out) as remote:
@@ -375,7 +385,7 @@ def _sweep_to_file(
         return ds
     journal = Journal.start(out, plan.identity, resume)
     try:
-        finished = journal.finished()
+        finished = journal.finished(plan.size)
         todo = missing_ranges(finished, plan.size)
         done = plan.size - sum(b - a for a, b in todo)
         bar = ProgressBar(plan.size, done=done, enabled=progress)

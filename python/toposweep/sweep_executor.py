@@ -161,6 +161,10 @@ class Remote:
             repair=self.repair,
         )  # fmt: skip
 
+        def status() -> None:
+            n = runner.workers
+            bar.set_status(f"{n} worker{'s' * (n != 1)}, {runner.running} tasks")
+
         def tasks() -> Iterator[tuple[int, int]]:
             nonlocal left
             for lo, hi in todo:
@@ -175,6 +179,7 @@ class Remote:
 
         try:
             with runner:
+                status()
                 for res in runner.imap_unordered(tasks()):
                     start, stop = res.task
                     if not checked:
@@ -183,6 +188,7 @@ class Remote:
                     save(start, stop, res.value)
                     saved += stop - start
                     sizer.observe(res.seconds, stop - start)
+                    status()
                     bar.update(stop - start, undefined=int(np.count_nonzero(res.value["nu0"] < 0)))
         except ExecutorError as exc:
             if self.out is None:

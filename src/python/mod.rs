@@ -5,13 +5,13 @@
 //! [`CoreError`] to Python exceptions.
 
 use crate::bloch::{BlochSource, Hoppings, FILL_CHUNK};
+use crate::cancel::{Watch, Watched};
 use crate::eigen::eigh_many_into;
 use crate::engine::{
     evaluate_point, plane_flow, planes, Method, Plane, PointResult, ProveGap, Sampling,
 };
 use crate::error::{CoreError, CoreResult};
 use crate::pools::{default_threads, help_until, mark_main_thread, run_with};
-use crate::probe::divisible_work;
 use crate::variation::VariationBound;
 use crate::C64;
 use numpy::ndarray::{Array2, Array3};
@@ -73,6 +73,35 @@ where
             panic_text(panic.as_ref())
         ))),
     }
+}
+
+/// A call's poll for Ctrl-C ([`Watch`]): runs Python's signal handlers on the calling thread
+/// (nothing elsewhere: Python runs them on its main thread only); an exception they raise
+/// (KeyboardInterrupt from the default handler) stops the call and is kept to be raised.
+fn signal_poll(interrupt: &Mutex<Option<PyErr>>) -> impl Fn() -> bool + Sync + '_ {
+    move || {
+        Python::with_gil(|py| match py.check_signals() {
+            Ok(()) => false,
+            Err(e) => {
+                interrupt
+                    .lock()
+                    .unwrap_or_else(PoisonError::into_inner)
+                    .get_or_insert(e);
+                true
+            }
+        })
+    }
+}
+
+/// The exception a signal handler raised during the call, in place of the core's error.
+fn raised_by_handler<T>(r: PyResult<T>, interrupt: &Mutex<Option<PyErr>>) -> PyResult<T> {
+    r.map_err(|e| {
+        interrupt
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .take()
+            .unwrap_or(e)
+    })
 }
 
 /// The message of a panic.
@@ -361,12 +390,20 @@ fn evaluate<'py>(
     };
     s.validate().map_err(to_py)?;
     let error = Arc::new(Mutex::new(None));
+    // Ctrl-C: polled on this thread between the kernels' tasks (src/cancel.rs)
+    let interrupt = Mutex::new(None);
+    let poll = signal_poll(&interrupt);
+    let watch = Watch::new(&poll);
     let points = || {
         rows.par_iter()
             .enumerate()
             .map(|(i, c)| {
                 model.with_source(c, i, &error, |src| {
-                    evaluate_point(src, filling, inv.as_deref(), u_t.as_deref(), &s)
+                    let src = Watched {
+                        inner: src,
+                        watch: &watch,
+                    };
+                    evaluate_point(&src, filling, inv.as_deref(), u_t.as_deref(), &s)
                 })
             })
             .collect::<CoreResult<Vec<PointResult>>>()
@@ -374,6 +411,7 @@ fn evaluate<'py>(
     let f = match alongside {
         None => {
             let run = detached(py, Workers::Pool(threads), points);
+            let run = raised_by_handler(run, &interrupt);
             return results(py, run, &error, model.dim, method, Targets::none());
         }
         Some(f) => f,
@@ -383,6 +421,7 @@ fn evaluate<'py>(
         let out = f.call0(py)?.into_bound(py);
         let targets = Targets::borrow(&out);
         let run = detached(py, Workers::Pool(threads), points);
+        let run = raised_by_handler(run, &interrupt);
         return results(py, run, &error, model.dim, method, targets);
     }
     // The points are spawned first: another worker steals them at once. The Python job runs
@@ -415,7 +454,8 @@ fn evaluate<'py>(
                 let r = run.lock().unwrap_or_else(PoisonError::into_inner).take();
                 let r =
                     r.unwrap_or_else(|| Err(CoreError::Internal("the points did not run".into())));
-                results(py, r.map_err(to_py), &error, model.dim, method, targets).map(Bound::unbind)
+                let r = raised_by_handler(r.map_err(to_py), &interrupt);
+                results(py, r, &error, model.dim, method, targets).map(Bound::unbind)
             })
         }))
     })?;
@@ -512,21 +552,6 @@ fn eigh<'py>(
     Ok((e.into_pyarray(py), v.into_pyarray(py)))
 }
 
-/// Benchmark probe: `tasks` equal chains of `iterations` multiply–adds over the pool, nothing
-/// serial (see [`crate::probe`]); returns their checksum.
-#[pyfunction]
-#[pyo3(signature = (tasks, iterations, *, threads=None))]
-fn fork_join_probe(
-    py: Python<'_>,
-    tasks: u64,
-    iterations: u64,
-    threads: Option<usize>,
-) -> PyResult<u64> {
-    detached(py, Workers::Pool(threads), || {
-        Ok(divisible_work(tasks, iterations))
-    })
-}
-
 /// Hybrid Wannier centres (npump, filling) of one plane at fixed pump coordinates. `plane` is
 /// the index into the planes of the model (3D: 2·axis + (cut == 1/2); 2D: 0).
 #[pyfunction]
@@ -554,12 +579,19 @@ fn flow<'py>(
     let t: Vec<f64> = pump.as_array().to_vec();
     let pos: Option<Vec<f64>> = positions.map(|p| p.as_array().iter().copied().collect());
     let error = Arc::new(Mutex::new(None));
+    let interrupt = Mutex::new(None);
+    let poll = signal_poll(&interrupt);
+    let watch = Watch::new(&poll);
     let run = detached(py, Workers::Pool(threads), || {
         model.with_source(&c, 0, &error, |src| {
-            plane_flow(src, filling, pl, loop_points, &t, pos.as_deref())
+            let src = Watched {
+                inner: src,
+                watch: &watch,
+            };
+            plane_flow(&src, filling, pl, loop_points, &t, pos.as_deref())
         })
     });
-    let lines = finish(py, run, &error)?;
+    let lines = finish(py, raised_by_handler(run, &interrupt), &error)?;
     let arr = Array2::from_shape_fn((lines.len(), filling), |(i, j)| lines[i].centres[j]);
     Ok(arr.into_pyarray(py))
 }
@@ -663,7 +695,6 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(eigh, m)?)?;
     m.add_function(wrap_pyfunction!(flow, m)?)?;
     m.add_function(wrap_pyfunction!(decided_flow, m)?)?;
-    m.add_function(wrap_pyfunction!(fork_join_probe, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     m.add("INSTRUCTION_SET", instruction_set())?;
     Ok(())

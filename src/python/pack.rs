@@ -6,7 +6,7 @@
 //! points are still being computed, and after them only the values are copied ([`pack`]).
 //! Looked up, checked and borrowed after the core, as before, the same ~28 arrays of a
 //! one-point call took 20–60 µs of a ~1.5 ms two-thread call in which the other core stood
-//! idle (a scratch build, DEVELOPERS.md).
+//! idle (a scratch build; benches/RESULTS.md, measurement history).
 
 use crate::columns::{columns, Column, Values};
 use crate::engine::{Method, PointResult};

@@ -2,9 +2,9 @@
 # The instruction-set comparison of DEVELOPERS.md ("Build flags and instruction set"): the kernel
 # harness's Wilson-Dirac point built at the x86-64 baseline, at x86-64-v3 and for this CPU
 # (native), run in interleaved rounds so that all three see the same machine load; prints the
-# best and median one-thread time of each. Usage: benches/compare_builds.sh [rounds] (default 12).
+# best and median one-thread time of each. Usage: benches/studies/compare_builds.sh [rounds] (default 12).
 set -euo pipefail
-cd "$(dirname "$0")/.."
+cd "$(dirname "$0")/../.."
 rounds=${1:-12}
 declare -A bin
 for level in x86-64 x86-64-v3 native; do

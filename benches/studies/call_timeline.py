@@ -15,7 +15,7 @@ it (the wrapper adds ~1 µs):
 
 Usage::
 
-    .venv/bin/python benches/call_timeline.py [--calls 400]
+    .venv/bin/python benches/studies/call_timeline.py [--calls 400]
 
 Prints the fastest call, the tenth percentile and the median of each part, in µs, per thread
 count. The parts of one call need not add up across columns of different rows.
@@ -37,7 +37,7 @@ import numpy as np  # noqa: E402
 import toposweep as ts  # noqa: E402
 from toposweep import evaluation  # noqa: E402
 
-sys.path.insert(0, str(Path(__file__).resolve().parent))
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from point_sampling import POINT_OPTIONS  # noqa: E402
 
 PARTS = ("before", "side job", "core", "after", "whole call")

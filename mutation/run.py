@@ -1,0 +1,500 @@
+"""Mutation testing of the modules where a silent bug means a wrong published result.
+
+``make mutants`` runs this script. It plants one small bug at a time (a mutant) in
+
+- Python (cosmic-ray): the builtin models, the phase/reason/flag tables of the Dataset, the
+  Python-side reason codes of ``evaluation.py``;
+- Rust (cargo-mutants): index assembly (``src/indices.rs``), Fu–Kane parity
+  (``src/parity.rs``) and Z2 flow counting (``src/flow.rs``),
+
+runs the tests that guard that module against each mutant, and writes the summary to
+``docs/mutants.md``. A mutant the tests do not notice ("survived", "missed") is either a hole in
+the tests — add a test that kills it — or equivalent to the original code (no input tells them
+apart); equivalent ones are listed with the reason in ``mutation/equivalent.toml``. The script
+exits non-zero when a survivor is neither killed nor listed.
+
+Why cosmic-ray for Python: it mutates the module files in place and runs any command per
+mutant, so it works with the editable install and the compiled extension as they are (mutmut 3
+runs the tests from a copied tree and its trampolines only reach code inside functions, not the
+module-level tables — phase names, reason codes — that matter most here), and its session
+database records every mutant with its enclosing function, which the scoping below uses.
+
+The groups are scoped (functions, operators, test files) so that the whole run takes well under
+an hour on 2 cores; everything runs under ``nice``. Options: ``--only python|rust``,
+``--group NAME`` (repeatable).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import re
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import tomllib
+
+ROOT = Path(__file__).resolve().parent.parent
+PY = Path(os.environ.get("VIRTUAL_ENV", ROOT / ".venv")) / "bin" / "python"
+OUT = ROOT / "docs" / "mutants.md"
+STATE = ROOT / "mutation" / "last_run.json"  # every group's last result; the report is made from it
+EQUIVALENT = ROOT / "mutation" / "equivalent.toml"
+
+# operators whose mutants are almost all trivially equivalent or unviable for numeric array code
+# (bit operations, shifts, powers and floor division never appear in these modules' sums;
+# replacing an operator by them only produces TypeErrors that any test catches)
+EXCLUDED_OPERATORS = [
+    r"core/ReplaceBinaryOperator_.*_(BitOr|BitAnd|BitXor|LShift|RShift|FloorDiv|Pow|Mod)$",
+    r"core/ReplaceBinaryOperator_(BitOr|BitAnd|BitXor|LShift|RShift|Pow|Mod)_.*",
+    r"core/RemoveDecorator",
+    r"core/ExceptionReplacer",
+    r"core/ReplaceComparisonOperator_(Is|IsNot|In|NotIn)_.*",
+    r"core/ReplaceComparisonOperator_.*_(Is|IsNot|In|NotIn)$",
+    # -x → ~x or not x on floats: a TypeError or a bool where an array is built, caught by the
+    # first test that touches the line; they only cost time
+    r"core/ReplaceUnaryOperator_.*_(Invert|Not)$",
+]
+
+
+@dataclass
+class PythonGroup:
+    """Modules mutated by cosmic-ray and the tests run against each of their mutants."""
+
+    name: str
+    modules: list[str]
+    tests: list[str]
+    definitions: list[str] | None = None  # enclosing functions to keep (None: all); "" = module
+    why: str = ""
+
+
+PYTHON_GROUPS = [
+    PythonGroup(
+        "models-geometry",
+        [
+            "python/toposweep/models/honeycomb.py",
+            "python/toposweep/models/diamond.py",
+            "python/toposweep/models/_bonds.py",
+        ],
+        ["tests/test_published_hamiltonians.py", "tests/test_physics_catalogue.py"],
+        definitions=["", "kane_mele", "fu_kane_mele", "add_spin_bond"],
+        why="Kane–Mele and diamond models, built from bonds found from the geometry",
+    ),
+    PythonGroup(
+        "models-closed-form",
+        [
+            "python/toposweep/models/cubic.py",
+            "python/toposweep/models/square.py",
+            "python/toposweep/models/df_lattice.py",
+            "python/toposweep/models/_matrices.py",
+        ],
+        ["tests/test_published_hamiltonians.py", "tests/test_physics_catalogue.py"],
+        definitions=["", "wilson_dirac", "bhz", "df_lattice", "_band_hoppings", "kron"],
+        why="Wilson–Dirac, BHZ and d–f models, hoppings written by hand",
+    ),
+    PythonGroup(
+        "dataset-flags",
+        ["python/toposweep/dataset.py"],
+        ["tests/test_flag_meanings.py"],
+        definitions=["", "_flags"],
+        why="phase and reason codes and names, the CF flag tables",
+    ),
+    PythonGroup(
+        "dataset-schema",
+        ["python/toposweep/dataset.py"],
+        ["tests/test_flag_meanings.py", "tests/test_parity_independent.py"],
+        definitions=["_fields"],
+        why="which variables a result has, with which flags",
+    ),
+    PythonGroup(
+        "python-reasons",
+        ["python/toposweep/evaluation.py"],
+        [
+            "tests/test_flag_meanings.py",
+            "tests/test_parity_independent.py",
+            "tests/test_bad_input.py::test_time_reversal_broken_at_some_points_only_marks_those",
+            "tests/test_bad_input.py::test_wrong_model_inversion_leaves_only_parity_undefined",
+        ],
+        definitions=[
+            "",
+            "_mark",
+            "_symmetry_breaks",
+            "run_points",
+            "python_side",
+            "run_points.python_side",
+        ],
+        why="reason codes 7 and 8 set on the Python side (symmetry broken at a point)",
+    ),
+]
+
+
+@dataclass
+class RustGroup:
+    """Source files mutated by cargo-mutants (tests: the crate's unit tests)."""
+
+    name: str
+    files: list[str]
+    test_filter: list[str] = field(default_factory=list)
+    why: str = ""
+
+
+RUST_GROUPS = [
+    RustGroup(
+        "rust-indices",
+        ["src/indices.rs"],
+        ["indices::"],
+        why="plane Z2s → (ν0; ν1ν2ν3) and reason; phase and agreement codes",
+    ),
+    RustGroup(
+        "rust-parity",
+        ["src/parity.rs"],
+        ["parity::"],
+        why="Fu–Kane parity indices at the TRIMs and their reason codes",
+    ),
+    RustGroup(
+        "rust-flow",
+        ["src/flow.rs"],
+        ["flow::"],
+        why="largest-gap tracking: the Z2 count of a flow, the refinement test",
+    ),
+]
+
+
+@dataclass
+class Survivor:
+    """A mutant no test noticed; ``key`` identifies it across runs (no line numbers)."""
+
+    group: str
+    where: str
+    what: str
+    key: str
+    reason: str | None = None
+    name: str = ""  # the tool's own name of the mutant (cargo-mutants: with line and column)
+
+
+@dataclass
+class GroupResult:
+    """Outcome counts and survivors of one group."""
+
+    name: str
+    tool: str
+    why: str
+    counts: dict[str, int]
+    survivors: list[Survivor]
+    seconds: float
+    finished: str = ""
+    command: str = ""
+
+
+def nice(cmd: list[str]) -> list[str]:
+    """``cmd`` at low priority: the host is shared."""
+    return ["nice", "-n", "15", *cmd]
+
+
+# -- Python: cosmic-ray ---------------------------------------------------------------------------
+def run_python_group(g: PythonGroup, work: Path) -> GroupResult:
+    """Initialise a cosmic-ray session, skip what is out of scope, run it, collect it."""
+    from cosmic_ray.work_db import WorkDB, use_db
+    from cosmic_ray.work_item import TestOutcome, WorkerOutcome, WorkResult
+
+    start = time.monotonic()
+    config = work / f"{g.name}.toml"
+    session = work / f"{g.name}.sqlite"
+    tests = " ".join(g.tests)
+    config.write_text(
+        "[cosmic-ray]\n"
+        f"module-path = {json.dumps(g.modules)}\n"
+        "timeout = 120.0\n"
+        "excluded-modules = []\n"
+        f'test-command = "{PY} -m pytest -x -q -p no:cacheprovider -p no:randomly {tests}"\n'
+        '[cosmic-ray.distributor]\nname = "local"\n'
+    )
+    subprocess.run(
+        [str(PY.parent / "cosmic-ray"), "init", str(config), str(session)], cwd=ROOT, check=True
+    )
+    pattern = re.compile("|".join(f"(?:{e})" for e in EXCLUDED_OPERATORS))
+    with use_db(str(session), WorkDB.Mode.open) as db:
+        for item in list(db.pending_work_items):
+            m = item.mutations[0]
+            outside = g.definitions is not None and (m.definition_name or "") not in g.definitions
+            if pattern.match(m.operator_name) or outside:
+                db.set_result(
+                    item.job_id,
+                    WorkResult(output="not in scope", worker_outcome=WorkerOutcome.SKIPPED),
+                )
+    subprocess.run(
+        nice([str(PY.parent / "cosmic-ray"), "exec", str(config), str(session)]),
+        cwd=ROOT,
+        check=True,
+    )
+    dirty = subprocess.run(
+        ["git", "status", "--porcelain", "--", *g.modules], cwd=ROOT, capture_output=True, text=True
+    ).stdout
+    assert not dirty, f"cosmic-ray left a module changed:\n{dirty}"
+
+    counts: dict[str, int] = {}
+    survivors: list[Survivor] = []
+    with use_db(str(session), WorkDB.Mode.open) as db:
+        for item, result in db.completed_work_items:
+            if result.worker_outcome == WorkerOutcome.SKIPPED:
+                continue
+            if result.worker_outcome != WorkerOutcome.NORMAL:
+                outcome = f"error ({result.worker_outcome.value})"
+            else:
+                outcome = {
+                    TestOutcome.KILLED: "killed",
+                    TestOutcome.SURVIVED: "survived",
+                    TestOutcome.INCOMPETENT: "killed",  # timeout or crash of the run: noticed
+                }[result.test_outcome]
+            counts[outcome] = counts.get(outcome, 0) + 1
+            if outcome == "survived":
+                m = item.mutations[0]
+                line = (ROOT / m.module_path).read_text().splitlines()[m.start_pos[0] - 1]
+                op = m.operator_name.removeprefix("core/")
+                diff = (result.diff or "").splitlines()
+                plus = [d[1:].strip() for d in diff if d.startswith("+") and not d.startswith("++")]
+                became = f" → `{plus[0]}`" if plus else ""
+                survivors.append(
+                    Survivor(
+                        g.name,
+                        f"{m.module_path}:{m.start_pos[0]} ({m.definition_name or 'module'})",
+                        f"{op}: `{line.strip()}`{became}",
+                        f"{m.module_path}|{op}|{line.strip()}|{plus[0] if plus else ''}",
+                    )
+                )
+    return GroupResult(g.name, "cosmic-ray", g.why, counts, survivors, time.monotonic() - start)
+
+
+# -- Rust: cargo-mutants --------------------------------------------------------------------------
+def recheck_rust_group(g: RustGroup, work: Path) -> GroupResult:
+    """Run again only the group's last survivors (after new tests).
+
+    The caught ones count as killed from then on; the rest of the last run's counts stand.
+    """
+    state = json.loads(STATE.read_text())[g.name]
+    names = [entry[3] for entry in state["survivors"]]
+    again = run_rust_group(g, work, only=names)
+    still = {s.name for s in again.survivors}
+    counts = dict(state["counts"])
+    caught = len(names) - len(still)
+    counts["survived"] = counts.get("survived", 0) - caught
+    counts["killed"] = counts.get("killed", 0) + caught
+    survivors = list(again.survivors)
+    return GroupResult(
+        g.name, "cargo-mutants", g.why, counts, survivors, state["seconds"] + again.seconds
+    )
+
+
+def run_rust_group(g: RustGroup, work: Path, only: list[str] | None = None) -> GroupResult:
+    """Run cargo-mutants on the group's files with the kernels' unit tests."""
+    start = time.monotonic()
+    out = work / g.name
+    cmd = [
+        "cargo",
+        "mutants",
+        "--no-shuffle",
+        "--jobs",
+        "2",
+        "--timeout",
+        "300",
+        "--output",
+        str(out),
+        "--no-default-features",
+    ]
+    for f in g.files:
+        cmd += ["--file", f]
+    for name in only or []:
+        cmd += ["--re", "^" + re.escape(name) + "$"]
+    cmd += ["--", "--lib"]
+    if g.test_filter:
+        cmd += ["--", *g.test_filter]
+    done = subprocess.run(nice(cmd), cwd=ROOT)
+    if done.returncode not in (0, 2, 3):  # 2: missed mutants, 3: timeouts (judged below)
+        raise SystemExit(f"cargo mutants failed ({done.returncode})")
+    outcomes = json.loads((out / "mutants.out" / "outcomes.json").read_text())
+    counts: dict[str, int] = {}
+    survivors: list[Survivor] = []
+    names = {
+        "CaughtMutant": "killed",
+        "MissedMutant": "survived",
+        "Timeout": "killed",
+        "Unviable": "unviable",
+    }
+    for o in outcomes["outcomes"]:
+        if o["scenario"] == "Baseline":
+            continue
+        summary = names.get(o["summary"], o["summary"])
+        counts[summary] = counts.get(summary, 0) + 1
+        if summary == "survived":
+            mutant = o["scenario"]["Mutant"]
+            line = mutant.get("span", {}).get("start", {}).get("line", "?")
+            func = (mutant.get("function") or {}).get("function_name", "")
+            what = _rust_description(mutant)
+            diff = (out / "mutants.out" / o["diff_path"]).read_text().splitlines()
+            was = [d[1:].strip() for d in diff if d.startswith("-") and not d.startswith("--")]
+            now = [d[1:].strip() for d in diff if d.startswith("+") and not d.startswith("++")]
+            was_now = f"`{was[0] if was else ''}` → `{now[0] if now else ''}`"
+            survivors.append(
+                Survivor(
+                    g.name,
+                    f"{mutant['file']}:{line} ({func})",
+                    f"{what}: {was_now}",
+                    f"{mutant['file']}|{func}|{what}|{was[0] if was else ''}",
+                    name=mutant["name"],
+                )
+            )
+    return GroupResult(g.name, "cargo-mutants", g.why, counts, survivors, time.monotonic() - start)
+
+
+def _rust_description(mutant: dict) -> str:
+    """cargo-mutants' own one-line description without the file and line (stable key)."""
+    name = mutant.get("name", "")
+    return re.sub(r"^src/[^:]+:\d+:\d+:\s*", "", name)
+
+
+# -- report ---------------------------------------------------------------------------------------
+def load_equivalent() -> dict[str, str]:
+    """Survivor key → why it is equivalent (``mutation/equivalent.toml``)."""
+    if not EQUIVALENT.exists():
+        return {}
+    data = tomllib.loads(EQUIVALENT.read_text())
+    return {e["key"]: e["reason"] for e in data.get("mutant", [])}
+
+
+def remember(results: list[GroupResult], argv: list[str]) -> list[GroupResult]:
+    """Merge this run's groups into ``mutation/last_run.json``; return every group's last run."""
+    state = json.loads(STATE.read_text()) if STATE.exists() else {}
+    stamp = time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime())
+    for r in results:
+        state[r.name] = {
+            "tool": r.tool,
+            "why": r.why,
+            "counts": r.counts,
+            "seconds": round(r.seconds),
+            "finished": stamp,
+            "command": " ".join(["python", "mutation/run.py", *argv]),
+            "survivors": [[s.where, s.what, s.key, s.name] for s in r.survivors],
+        }
+    STATE.write_text(json.dumps(state, indent=1, sort_keys=True, ensure_ascii=False) + "\n")
+    out = []
+    for name, g in state.items():
+        survivors = [
+            Survivor(name, *entry[:3], name=entry[3] if len(entry) > 3 else "")
+            for entry in g["survivors"]
+        ]
+        out.append(GroupResult(name, g["tool"], g["why"], g["counts"], survivors, g["seconds"]))
+        out[-1].finished = g["finished"]
+        out[-1].command = g.get("command", "")
+    return out
+
+
+def write_report(results: list[GroupResult], argv: list[str]) -> int:
+    """Write docs/mutants.md; return the number of unexplained survivors."""
+    results = remember(results, argv)
+    equivalent = load_equivalent()
+    unexplained = 0
+    lines = [
+        "# Mutation testing: last run",
+        "",
+        "Written by `make mutants` (`mutation/run.py`; what it mutates and why is in its",
+        "docstring). A *killed* mutant made some test fail; a *survived* one did not and is",
+        "either listed as equivalent below, with the reason, or a hole to close with a new test.",
+        "",
+        "Each group's row is its last run (`mutation/last_run.json`); `make mutants` runs them",
+        "all, `python mutation/run.py --group NAME` one.",
+        "",
+        "| group | tool | what | mutants run | killed | survived | other | minutes | run |",
+        "|---|---|---|---|---|---|---|---|---|",
+    ]
+    for r in results:
+        run = sum(r.counts.values())
+        other = {k: v for k, v in r.counts.items() if k not in ("killed", "survived")}
+        lines.append(
+            f"| {r.name} | {r.tool} | {r.why} | {run} | {r.counts.get('killed', 0)} | "
+            f"{r.counts.get('survived', 0)} | "
+            f"{', '.join(f'{k} {v}' for k, v in sorted(other.items())) or '–'} | "
+            f"{r.seconds / 60:.1f} | {r.finished}, `{r.command}` |"
+        )
+    done = {r.name for r in results}
+    for g in [*PYTHON_GROUPS, *RUST_GROUPS]:
+        if g.name not in done:
+            tool = "cosmic-ray" if isinstance(g, PythonGroup) else "cargo-mutants"
+            lines.append(f"| {g.name} | {tool} | {g.why} | not run yet | | | | | |")
+    lines += ["", "## Survivors", ""]
+    any_survivor = False
+    for r in results:
+        for s in r.survivors:
+            any_survivor = True
+            s.reason = equivalent.get(s.key)
+            if s.reason is None:
+                unexplained += 1
+            verdict = f"equivalent: {s.reason}" if s.reason else "**UNEXPLAINED: add a test**"
+            lines.append(f"- `{s.where}` — {s.what} — {verdict}")
+    if not any_survivor:
+        lines.append("None.")
+    lines.append("")
+    OUT.write_text("\n".join(lines))
+    print(f"wrote {OUT.relative_to(ROOT)}; unexplained survivors: {unexplained}")
+    return unexplained
+
+
+def main(argv: list[str]) -> int:
+    """Run the chosen groups and write the report; non-zero if a survivor is unexplained."""
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--only", choices=["python", "rust"])
+    ap.add_argument("--group", action="append", help="run only these groups (by name)")
+    ap.add_argument(
+        "--recheck",
+        action="store_true",
+        help="Rust groups: run only the last run's survivors again (after adding tests)",
+    )
+    ap.add_argument(
+        "--report", action="store_true", help="only rewrite docs/mutants.md from the last runs"
+    )
+    ap.add_argument(
+        "--definitions",
+        nargs="+",
+        help="a partial run: mutate only inside these functions of the chosen Python groups",
+    )
+    args = ap.parse_args(argv)
+    if args.report:
+        return 1 if write_report([], argv) else 0
+    chosen_py = [
+        g
+        for g in PYTHON_GROUPS
+        if args.only in (None, "python") and (not args.group or g.name in args.group)
+    ]
+    if args.definitions:
+        for g in chosen_py:
+            g.definitions = list(args.definitions)
+    chosen_rust = [
+        g
+        for g in RUST_GROUPS
+        if args.only in (None, "rust") and (not args.group or g.name in args.group)
+    ]
+    paths = [m for g in chosen_py for m in g.modules] + [f for g in chosen_rust for f in g.files]
+    dirty = subprocess.run(
+        ["git", "status", "--porcelain", "--", *paths], cwd=ROOT, capture_output=True, text=True
+    ).stdout
+    if dirty:
+        raise SystemExit(f"commit or stash changes to the mutated files first:\n{dirty}")
+    results: list[GroupResult] = []
+    with tempfile.TemporaryDirectory(prefix="mutants-") as tmp:
+        work = Path(tmp)
+        for g in chosen_py:
+            results.append(run_python_group(g, work))
+        for g in chosen_rust:
+            if shutil.which("cargo-mutants") is None:
+                raise SystemExit("cargo-mutants missing: cargo install --locked cargo-mutants")
+            run = recheck_rust_group if args.recheck else run_rust_group
+            results.append(run(g, work))
+    return 1 if write_report(results, argv) else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))
