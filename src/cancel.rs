@@ -90,6 +90,11 @@ impl BlochSource for Watched<'_> {
     fn prefers_batches(&self) -> bool {
         self.inner.prefers_batches()
     }
+    // (forwarded like every other method: without it a watched call loses its gap proof and
+    // its loops resolved to the gap — the test below compares whole results)
+    fn variation(&self) -> Option<&crate::variation::VariationBound> {
+        self.inner.variation()
+    }
     fn fill_line(
         &self,
         base: &[f64],
@@ -116,7 +121,7 @@ impl BlochSource for Watched<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::{evaluate_point, Method, Sampling};
+    use crate::engine::{evaluate_point, Method, ProveGap, Sampling};
     use crate::guided::tests::pool;
     use crate::wilson::tests::random_model;
     use std::sync::atomic::AtomicUsize;
@@ -132,6 +137,7 @@ mod tests {
             gap_starts: 0,
             method: Method::Wilson,
             certify: false,
+            prove_gap: ProveGap::Never,
         }
     }
 

@@ -35,7 +35,9 @@ pub fn needs_resolution(
     min_step_gap: f64,
 ) -> bool {
     let d = bound.along(axis, 1.0 / loop_points as f64);
-    !(turn_bound(d, min_step_gap) <= TURN_LIMIT)
+    // (a NaN gap counts as a step that must be resolved)
+    let turn = turn_bound(d, min_step_gap);
+    turn.is_nan() || turn > TURN_LIMIT
 }
 
 /// One κ point of a loop: its energies and occupied vectors (n × nocc, row-major).

@@ -135,7 +135,8 @@ pub fn prove_gap(
         // eigenvalues are exact to a few ulps of the spectrum's scale
         let rounding = 1e-12 * stats.bandwidth().abs().max(1.0);
         for (c, &g) in batch.iter().zip(&gaps) {
-            if !(g >= floor) {
+            // (a NaN gap counts as below the floor)
+            if g.is_nan() || g < floor {
                 return Ok(GapProof::BelowFloor {
                     gap: g,
                     kappa: c.centre,
