@@ -469,9 +469,10 @@ def main(argv: list[str]) -> int:
         for g in PYTHON_GROUPS
         if args.only in (None, "python") and (not args.group or g.name in args.group)
     ]
-    if args.definitions:
+    if args.definitions:  # a partial run is reported apart from the group's full runs
         for g in chosen_py:
             g.definitions = list(args.definitions)
+            g.name = f"{g.name} [{', '.join(args.definitions)}]"
     chosen_rust = [
         g
         for g in RUST_GROUPS
