@@ -33,7 +33,7 @@ def cases() -> list[tuple[str, object, int, dict]]:
         ("Kane–Mele, default", km, 2, {}),
         ("Wilson–Dirac m = −2", ts.models.wilson_dirac(), 2, {"mass": -2.0}),
         ("Fu–Kane–Mele, default", ts.models.fu_kane_mele(), 2, {}),
-        ("d–f lattice, default (8 bands)", ts.models.df_lattice(), 4, {}),
+        ("d–f lattice, default", ts.models.df_lattice(), 2, {}),
         ("stacked Wilson–Dirac, 8 bands", stacked_wilson_dirac(2), 4, {}),
         ("stacked Wilson–Dirac, 16 bands", stacked_wilson_dirac(4), 8, {}),
         (
