@@ -77,42 +77,9 @@ pub fn decided_flow(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::bloch::Hoppings;
+    use crate::engine::tests::bhz;
     use crate::engine::{evaluate_point, Method};
     use crate::plane_flows::{initial_pump, planes};
-    use crate::C64;
-
-    fn c(re: f64, im: f64) -> C64 {
-        C64::new(re, im)
-    }
-
-    /// Qi–Wu–Zhang h(k) and its time-reversed partner h*(−k), block-diagonal (the engine's
-    /// test model): Z2 = 1 for 0 < |m| < 2 and 0 for |m| > 2 (Qi, Wu & Zhang, PRB 74, 085308
-    /// (2006); Bernevig, Hughes & Zhang, Science 314, 1757 (2006)).
-    fn bhz() -> Hoppings {
-        let z = c(0.0, 0.0);
-        let block = |up: [C64; 4], dn: [C64; 4]| -> Vec<C64> {
-            vec![
-                up[0], up[1], z, z, up[2], up[3], z, z, z, z, dn[0], dn[1], z, z, dn[2], dn[3],
-            ]
-        };
-        let tx = block(
-            [c(0.5, 0.0), c(0.0, -0.5), c(0.0, -0.5), c(-0.5, 0.0)],
-            [c(0.5, 0.0), c(0.0, 0.5), c(0.0, 0.5), c(-0.5, 0.0)],
-        );
-        let ty = block(
-            [c(0.5, 0.0), c(-0.5, 0.0), c(0.5, 0.0), c(-0.5, 0.0)],
-            [c(0.5, 0.0), c(-0.5, 0.0), c(0.5, 0.0), c(-0.5, 0.0)],
-        );
-        let sz = block(
-            [c(1.0, 0.0), z, z, c(-1.0, 0.0)],
-            [c(1.0, 0.0), z, z, c(-1.0, 0.0)],
-        );
-        let mut t = sz;
-        t.extend(tx);
-        t.extend(ty);
-        Hoppings::new(2, 4, 1, vec![0, 0, 1, 0, 0, 1], t, vec![0, -1, -1]).unwrap()
-    }
 
     fn sampling() -> Sampling {
         Sampling {

@@ -444,7 +444,7 @@ pub fn evaluate_point(
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::bloch::Hoppings;
 
@@ -455,7 +455,7 @@ mod tests {
     /// Qi–Wu–Zhang h(k) = sin kx σx + sin ky σy + (m + cos kx + cos ky) σz and its time-reversed
     /// partner h*(−k) as a 4-band block-diagonal model (Bernevig, Hughes & Zhang, Science 314,
     /// 1757 (2006)); Z2 = 1 for 0 < |m| < 2, 0 for |m| > 2 (Qi, Wu & Zhang, PRB 74, 085308 (2006)).
-    fn bhz() -> Hoppings {
+    pub(crate) fn bhz() -> Hoppings {
         let z = c(0.0, 0.0);
         let block = |up: [C64; 4], dn: [C64; 4]| -> Vec<C64> {
             vec![

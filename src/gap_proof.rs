@@ -207,37 +207,10 @@ fn split(c: &Cell, dim: usize, slopes: &[f64; 3], out: &mut Vec<Cell>) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::bloch::Hoppings;
-    use crate::C64;
-
-    /// Qi–Wu–Zhang block h(k) = sin kx σx + sin ky σy + (m + cos kx + cos ky) σz ⊕ its
-    /// time-reversed partner (Bernevig, Hughes & Zhang, Science 314, 1757 (2006)); its direct
-    /// gap is 2 min_k |d(k)|, closing at m = 0, ±2 (Qi, Wu & Zhang, PRB 74, 085308 (2006)).
-    fn qwz() -> Hoppings {
-        let c = |re: f64, im: f64| C64::new(re, im);
-        let z = c(0.0, 0.0);
-        let block = |up: [C64; 4], dn: [C64; 4]| -> Vec<C64> {
-            vec![
-                up[0], up[1], z, z, up[2], up[3], z, z, z, z, dn[0], dn[1], z, z, dn[2], dn[3],
-            ]
-        };
-        let tx = block(
-            [c(0.5, 0.0), c(0.0, -0.5), c(0.0, -0.5), c(-0.5, 0.0)],
-            [c(0.5, 0.0), c(0.0, 0.5), c(0.0, 0.5), c(-0.5, 0.0)],
-        );
-        let ty = block(
-            [c(0.5, 0.0), c(-0.5, 0.0), c(0.5, 0.0), c(-0.5, 0.0)],
-            [c(0.5, 0.0), c(-0.5, 0.0), c(0.5, 0.0), c(-0.5, 0.0)],
-        );
-        let sz = block(
-            [c(1.0, 0.0), z, z, c(-1.0, 0.0)],
-            [c(1.0, 0.0), z, z, c(-1.0, 0.0)],
-        );
-        let mut t = sz;
-        t.extend(tx);
-        t.extend(ty);
-        Hoppings::new(2, 4, 1, vec![0, 0, 1, 0, 0, 1], t, vec![0, -1, -1]).unwrap()
-    }
+    // Qi–Wu–Zhang h(k) = sin kx σx + sin ky σy + (m + cos kx + cos ky) σz ⊕ its time-reversed
+    // partner (Bernevig, Hughes & Zhang, Science 314, 1757 (2006)); its direct gap is
+    // 2 min_k |d(k)|, closing at m = 0, ±2 (Qi, Wu & Zhang, PRB 74, 085308 (2006)).
+    use crate::engine::tests::bhz as qwz;
 
     /// 2 min over a fine mesh of |d(k)|: the gap the proof must stay below (an upper bound of
     /// the true minimum) and near.
