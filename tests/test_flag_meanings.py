@@ -183,3 +183,31 @@ def test_reason_names_are_the_cores_constants():
     assert set(want) <= set(consts), sorted(consts)
     for name, meaning_ in want.items():
         assert REASONS[consts[name]] == meaning_, name
+
+
+def test_a_point_without_time_reversal_is_undefined_in_every_variable():
+    """Where time reversal breaks (an i·1 hopping is odd under Θ = iσ_y K), every index of every
+    method is −1 and every comparison not comparable — not only the reason code."""
+    model = ts.models.wilson_dirac()
+    model.add((1, 0, 0), 1j * np.eye(4), term="b")
+    model.defaults["b"] = 0.0
+    ds = ts.sweep(model, {"b": [0.0, 0.3]}, 2, progress=False, method="both")
+    broken = ds.isel(b=1)
+    for name in ("nu0", "nu", "nu0_parity", "nu_parity", "nu0_lattice", "nu_lattice"):
+        assert (broken[name].values == -1).all(), name
+    assert (broken.odd_parity_states.values == -1).all()
+    for name in ("phase", "parity_agrees", "methods_agree"):
+        assert meaning(broken[name]) in ("undefined", "not_comparable"), name
+    # b = 0 is the Wilson–Dirac model at m = −2: (1;000) by every method (Fu & Kane 2007)
+    good = ds.isel(b=0)
+    assert int(good.nu0) == int(good.nu0_parity) == int(good.nu0_lattice) == 1
+
+
+def test_two_dimensional_results_have_no_axis_variables():
+    # a 2D model has a single Z2 index (design notes): no weak indices, planes or estimates
+    two = ts.invariants(ts.models.bhz(), 2)
+    three = ts.invariants(ts.models.wilson_dirac(), 2)
+    for name in ("nu", "z2_plane", "nu0_by_axis", "nu_parity"):
+        assert name not in two and name in three, name
+    assert two.nu0.attrs["long_name"] == "Z2 index"
+    assert three.nu0.attrs["long_name"] == "strong Z2 index nu0"
