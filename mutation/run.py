@@ -117,7 +117,7 @@ PYTHON_GROUPS = [
         [
             "tests/test_flag_meanings.py",
             "tests/test_parity_independent.py",
-            "tests/test_bad_input.py::test_time_reversal_broken_at_some_points_only_marks_those",
+            "tests/test_symmetry_rule.py",
             "tests/test_bad_input.py::test_wrong_model_inversion_leaves_only_parity_undefined",
         ],
         definitions=[
