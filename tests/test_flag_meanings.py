@@ -211,3 +211,27 @@ def test_two_dimensional_results_have_no_axis_variables():
         assert name not in two and name in three, name
     assert two.nu0.attrs["long_name"] == "Z2 index"
     assert three.nu0.attrs["long_name"] == "strong Z2 index nu0"
+
+
+def test_time_reversal_broken_on_a_model_without_inversion():
+    # no inversion known: reason 8 where time reversal breaks, and no parity variables at all
+    model = ts.models.wilson_dirac()
+    model.inversion = None
+    model.add((1, 0, 0), 1j * np.eye(4), term="b")
+    model.defaults["b"] = 0.0
+    ds = ts.sweep(model, {"b": [0.0, 0.3]}, 2, progress=False)
+    assert [meaning(ds.undefined_reason[i]) for i in range(2)] == [
+        "defined",
+        "time_reversal_broken_at_this_point",
+    ]
+    assert "nu0_parity" not in ds
+
+
+def test_the_symmetry_warning_points_at_the_callers_line():
+    from toposweep import SymmetryWarning
+
+    model = ts.models.wilson_dirac()
+    model.add((1, 0, 0), 1j * np.eye(4), term="b")
+    with pytest.warns(SymmetryWarning) as caught:
+        ts.invariants(model, 2, {"b": 0.3})
+    assert caught[0].filename == __file__
