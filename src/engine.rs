@@ -403,11 +403,14 @@ pub fn evaluate_point(
         (None, Some(l)) => l.indices,
         (None, None) => return Err(CoreError::Internal("no method ran".into())),
     };
-    let converged = if want_wilson {
-        plane_res.iter().all(|p| p.converged && !p.changed)
-    } else {
-        lat.iter().all(|o| o.admissible())
-    };
+    // (never "converged" where the gap blocks the indices: a flow that happened to close at
+    // a gapless point is not an answer)
+    let converged = blocking == reason::DEFINED
+        && if want_wilson {
+            plane_res.iter().all(|p| p.converged && !p.changed)
+        } else {
+            lat.iter().all(|o| o.admissible())
+        };
     let (max_step, min_clearance) = if want_wilson {
         (
             plane_res.iter().map(|p| p.max_step).fold(0.0, f64::max),
@@ -562,6 +565,7 @@ pub(crate) mod tests {
             let r = evaluate_point(&src, 2, None, None, &sampling()).unwrap();
             assert_eq!(r.nu0, -1);
             assert_eq!(r.reason, reason::DEGENERATE_AT_TRIM);
+            assert!(!r.converged, "m = {m}: a gapless point is never converged");
         }
     }
 

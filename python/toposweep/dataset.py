@@ -212,7 +212,7 @@ def _fields(dim: int, unit: str, parity_known: bool, method: str) -> tuple[Field
             {
                 "long_name": "indices converged: flow resolved within max_lines and, where it "
                 "was tight, unchanged with doubled loop_points (lattice-only runs: mesh fine "
-                "enough)",
+                "enough); 0 wherever the gap blocks the indices",
                 "units": "1",
                 **_YES_NO_FLAGS,
             },
