@@ -14,9 +14,9 @@
 use crate::bloch::BlochSource;
 use crate::eigen::eigh_occupied_many_into;
 use crate::error::CoreResult;
-use crate::matrix::{matmul, overlap, unitarise, unitary_phases};
+use crate::matrix::{matmul, overlap, unitarise};
 use crate::variation::{turn_bound, VariationBound, TURN_LIMIT};
-use crate::wilson::{BandStats, LineResult, LineSpec};
+use crate::wilson::{loop_centres, BandStats, LineResult, LineSpec};
 use crate::C64;
 use std::f64::consts::TAU;
 
@@ -133,7 +133,7 @@ pub fn resolve_line(
         let next = &pts[(i + 1) % pts.len()];
         min_step_gap = min_step_gap.min(p.gap(nocc).max(next.gap(nocc)));
     }
-    let (centres, min_singular) = loop_centres(&pts, n, nocc, l.axis, positions)?;
+    let (centres, min_singular) = transport(&pts, n, nocc, l.axis, positions)?;
     Ok(LineResult {
         centres,
         stats,
@@ -155,7 +155,7 @@ fn step_length(pts: &[Sample], i: usize) -> f64 {
 /// Hybrid Wannier centres (ascending, in [0, 1)) of the ordered product of the polar factors
 /// of the overlaps along the points, closed in the periodic gauge; and the smallest singular
 /// value of any overlap.
-fn loop_centres(
+fn transport(
     pts: &[Sample],
     n: usize,
     nocc: usize,
@@ -188,16 +188,7 @@ fn loop_centres(
         tmp.copy_from_slice(&w);
         matmul(&tmp, &m, &mut w, nocc, nocc, nocc);
     }
-    let mut centres = if min_singular > 0.0 {
-        let mut phases = unitary_phases(&w, nocc)?;
-        for t in &mut phases {
-            *t = (-*t / TAU).rem_euclid(1.0);
-        }
-        phases
-    } else {
-        vec![f64::NAN; nocc]
-    };
-    centres.sort_by(|a, b| a.total_cmp(b));
+    let centres = loop_centres(&w, nocc, min_singular)?;
     Ok((centres, min_singular))
 }
 

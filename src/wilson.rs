@@ -446,6 +446,19 @@ pub fn wilson_line_in(
     }
     min_singular = min_singular.min(step(prev, first, w)?);
     min_step_gap = min_step_gap.min(prev_gap.max(first_gap));
+    let centres = loop_centres(w, nocc, min_singular)?;
+    Ok(LineResult {
+        centres,
+        stats,
+        min_singular,
+        min_step_gap,
+        resolved: true,
+    })
+}
+
+/// Hybrid Wannier centres x = −θ/2π mod 1 of a Wilson loop `w` (nocc × nocc), ascending; NaN
+/// when an overlap along the loop was singular (`min_singular` = 0).
+pub fn loop_centres(w: &[C64], nocc: usize, min_singular: f64) -> CoreResult<Vec<f64>> {
     let mut centres: Vec<f64> = if min_singular > 0.0 {
         // (the phases' own vector becomes the centres: one allocation per line, not two)
         let mut phases = unitary_phases(w, nocc)?;
@@ -457,13 +470,7 @@ pub fn wilson_line_in(
         vec![f64::NAN; nocc]
     };
     centres.sort_by(|a, b| a.total_cmp(b));
-    Ok(LineResult {
-        centres,
-        stats,
-        min_singular,
-        min_step_gap,
-        resolved: true,
-    })
+    Ok(centres)
 }
 
 /// One step of a line with one occupied pair: W ← W · polar(F†T) for n × 2 row-major F, T

@@ -232,10 +232,8 @@ impl CoreModel {
                     )));
                 }
                 let v: Vec<f64> = a.as_array().iter().copied().collect();
-                if v.iter().any(|x| !(x.is_finite() && *x >= 0.0)) {
-                    return Err(PyValueError::new_err(
-                        "lipschitz constants must be finite and non-negative",
-                    ));
+                for row in v.chunks_exact(dim) {
+                    VariationBound::lipschitz(row).map_err(to_py)?;
                 }
                 Some(v)
             }
