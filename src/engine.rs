@@ -184,9 +184,9 @@ pub struct LatticeSummary {
 /// `ProveGap::Always`, about a second of eigenvalue work at any size (the point is then
 /// undefined, reason `GAP_NOT_PROVEN`). With `ProveGap::Auto`, twice the κ points of the
 /// point's first pass, so the proof at most about doubles the call (the point then simply has
-/// no proven gap).
-fn proof_budget(dim: usize, n: usize, s: &Sampling) -> usize {
-    match s.prove_gap {
+/// no proven gap, unless it is near the floor: then the full budget is spent as with `Always`).
+fn proof_budget(dim: usize, n: usize, s: &Sampling, when: ProveGap) -> usize {
+    match when {
         ProveGap::Always => {
             let per_matrix = (n * n * n).max(64); // ~ flops of one eigenvalue problem
             let budget = (4usize << 30) / per_matrix; // ~4 G flop-units
@@ -314,8 +314,8 @@ pub fn evaluate_point(
             .filter(|b| s.prove_gap.wanted(stats.min_direct, b))
         {
             let floor = floor_of(&stats);
-            let budget = proof_budget(dim, n, s);
-            let proof = prove_gap(
+            let budget = proof_budget(dim, n, s, s.prove_gap);
+            let mut proof = prove_gap(
                 src,
                 bound,
                 filling,
@@ -325,6 +325,26 @@ pub fn evaluate_point(
                 &mut stats,
             )?;
             proof_evaluations = proof.evaluations();
+            // auto, near the floor: the cheap proof is not enough, and without a proof the
+            // point would be undefined (NEAR_FLOOR below) — spend an eighth of the full budget
+            // on it (the whole budget tripled the d–f demo's time, points next to its
+            // transitions)
+            if matches!(proof, GapProof::Unfinished { .. })
+                && s.prove_gap == ProveGap::Auto
+                && stats.min_direct < NEAR_FLOOR * floor
+            {
+                let full = proof_budget(dim, n, s, ProveGap::Always) / 8;
+                proof = prove_gap(
+                    src,
+                    bound,
+                    filling,
+                    floor,
+                    stats.min_direct,
+                    full,
+                    &mut stats,
+                )?;
+                proof_evaluations += proof.evaluations();
+            }
             match proof {
                 GapProof::Proven { lower, .. } => gap_proven = lower,
                 GapProof::BelowFloor { gap, kappa, .. } => {
