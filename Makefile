@@ -4,7 +4,8 @@ PYTHON ?= python3
 VENV := .venv
 PY := $(VENV)/bin/python
 export VIRTUAL_ENV := $(abspath $(VENV))
-RUST_SOURCES := $(wildcard src/*.rs src/**/*.rs) Cargo.toml
+# every .rs at any depth (make's wildcard does not recurse: `**` is `*`)
+RUST_SOURCES := $(shell find src -name '*.rs') Cargo.toml
 PY_DEPS := maturin numpy xarray h5netcdf h5py matplotlib pytest hypothesis ruff scipy colorspacious tqdm
 # needed by the tests only (netCDF4: an outside reader of our files, the netCDF-C library;
 # dask, distributed: the optional extra toposweep[dask], for the executor tests);
@@ -83,17 +84,18 @@ mutants: build $(VENV)/.test-deps $(VENV)/.mutants-deps ## mutation testing of i
 bench: build ## benchmarks against plain NumPy; writes benches/RESULTS.md and the README table
 	$(PY) benches/run_all.py --out benches/RESULTS.md --readme README.md
 
-lint: venv ## cargo fmt --check, clippy -D warnings, ruff
+lint: venv ## cargo fmt --check, clippy -D warnings, ruff, folders used one way (.ci/check_layout.py)
+	$(PY) .ci/check_layout.py
 	cargo fmt --check
 	cargo clippy --all-targets --no-default-features -- -D warnings
 	cargo clippy --all-targets -- -D warnings
-	$(VENV)/bin/ruff check python tests benches mutation
-	$(VENV)/bin/ruff format --check python tests benches mutation
+	$(VENV)/bin/ruff check python tests benches mutation .ci
+	$(VENV)/bin/ruff format --check python tests benches mutation .ci
 
 fmt: venv ## format Rust and Python sources
 	cargo fmt
-	$(VENV)/bin/ruff format python tests benches mutation
-	$(VENV)/bin/ruff check --fix python tests benches mutation
+	$(VENV)/bin/ruff format python tests benches mutation .ci
+	$(VENV)/bin/ruff check --fix python tests benches mutation .ci
 
 clean: ## remove build products and the virtual environment
 	cargo clean

@@ -13,15 +13,16 @@
 use rayon::prelude::*;
 use std::hint::black_box;
 use std::time::Instant;
-use toposweep::bloch::{BlochSource, Hoppings};
-use toposweep::eigen::{
+use toposweep::linalg::eigen::{
     eigh_householder_into, eigh_into, eigh_jacobi_into, eigh_occupied_into,
     eigh_occupied_pair_into, eigh_occupied_quad_into, eigh_pair_into, eigh_quad_into,
     eigh_reference_into, eigh_warm_into, JACOBI_MAX_N, QUAD_MAX_N, SMALL_MAX_N,
 };
-use toposweep::engine::{evaluate_point, Method, ProveGap, Sampling};
-use toposweep::matrix::{unitarise, unitarise_reference};
-use toposweep::wilson::{wilson_line_with, Kernels};
+use toposweep::linalg::matrix::{unitarise, unitarise_reference};
+use toposweep::point::engine::evaluate_point;
+use toposweep::sampling::{Method, ProveGap, Sampling};
+use toposweep::topology::wilson::{wilson_line_with, Kernels};
+use toposweep::zone::bloch::{BlochSource, Hoppings};
 use toposweep::C64;
 
 fn c(re: f64, im: f64) -> C64 {
@@ -213,8 +214,13 @@ fn main() {
             });
             #[cfg(feature = "faer")]
             let fa = fmt(time_ns(reps, k, |i| {
-                toposweep::eigen::eigh_faer_into(black_box(&hs[i % batch]), n, &mut e, &mut v)
-                    .unwrap()
+                toposweep::linalg::eigen::eigh_faer_into(
+                    black_box(&hs[i % batch]),
+                    n,
+                    &mut e,
+                    &mut v,
+                )
+                .unwrap()
             }));
             #[cfg(not(feature = "faer"))]
             let fa = "(build with --features faer)";
@@ -466,7 +472,7 @@ fn main() {
             .collect();
         // one and two threads, interleaved (best of each): the time per point, the gain of the
         // second thread, and the indices it gave
-        let run = |model: &toposweep::bloch::Bloch, label: &str| {
+        let run = |model: &toposweep::zone::bloch::Bloch, label: &str| {
             let mut best = [f64::INFINITY; 2];
             for _ in 0..reps.min(5) {
                 for (b, pool) in best.iter_mut().zip(&pools) {
@@ -537,7 +543,7 @@ fn divisible_work(tasks: u64, iterations: u64) -> u64 {
 /// pools: the share of what this machine gives a fork–join call that the core gets, without
 /// Python.
 fn paired_with_probe(
-    model: &toposweep::bloch::Bloch,
+    model: &toposweep::zone::bloch::Bloch,
     s: &Sampling,
     pools: &[rayon::ThreadPool],
     rounds: usize,
@@ -589,7 +595,7 @@ fn paired_with_probe(
 /// (its AVX kernels may leave the upper register halves set), and after
 /// `dense::leave_wide_simd` — the evidence for calling it after every faer call.
 #[cfg(feature = "faer")]
-fn simd_state_table(wd: &toposweep::bloch::Bloch, rng: &mut Rng, reps: usize) {
+fn simd_state_table(wd: &toposweep::zone::bloch::Bloch, rng: &mut Rng, reps: usize) {
     let s = fixed_sampling();
     let h = rng.hermitian(64);
     let pool = rayon::ThreadPoolBuilder::new()
@@ -606,7 +612,7 @@ fn simd_state_table(wd: &toposweep::bloch::Bloch, rng: &mut Rng, reps: usize) {
         let m = faer::Mat::<C64>::from_fn(64, 64, |i, j| h[i * 64 + j]);
         black_box(m.self_adjoint_eigen(faer::Side::Lower).unwrap());
         let dirty = point();
-        toposweep::dense::leave_wide_simd();
+        toposweep::linalg::dense::leave_wide_simd();
         (fresh, dirty, point())
     });
     println!("| Wilson–Dirac point, one thread | time (ms) |");
@@ -643,7 +649,7 @@ type Solver = dyn Fn(&[C64], usize, &mut [f64], &mut [C64]);
 /// Products of many occupied bands (`dense::product` against its triple-loop reference) and the
 /// accuracy of the large-n eigensolvers (why faer is used from n = 9).
 fn dense_tables(rng: &mut Rng, reps: usize, inner: &dyn Fn(usize) -> usize) {
-    use toposweep::dense::{product, product_loops, Op, View};
+    use toposweep::linalg::dense::{product, product_loops, Op, View};
     println!(
         "| overlap U†V, occupied of n bands | dense::product (µs) | triple loops (µs) | ratio |"
     );
@@ -700,13 +706,13 @@ fn dense_tables(rng: &mut Rng, reps: usize, inner: &dyn Fn(usize) -> usize) {
     println!("|---|---|---|");
     for n in [10usize, 12, 16, 24] {
         let nal = worst(
-            &|h, n, e, v| toposweep::eigen::eigh_householder_into(h, n, e, v).unwrap(),
+            &|h, n, e, v| toposweep::linalg::eigen::eigh_householder_into(h, n, e, v).unwrap(),
             n,
             rng,
         );
         #[cfg(feature = "faer")]
         let fa = worst(
-            &|h, n, e, v| toposweep::eigen::eigh_faer_into(h, n, e, v).unwrap(),
+            &|h, n, e, v| toposweep::linalg::eigen::eigh_faer_into(h, n, e, v).unwrap(),
             n,
             rng,
         );
@@ -730,7 +736,7 @@ fn kramers_pairs(rng: &mut Rng, n: usize) -> Vec<C64> {
         }
     }
     // random unitary: the eigenvectors of a random Hermitian matrix
-    let (_, u) = toposweep::eigen::eigh(&rng.hermitian(n), n).unwrap();
+    let (_, u) = toposweep::linalg::eigen::eigh(&rng.hermitian(n), n).unwrap();
     let mut out = vec![c(0.0, 0.0); n * n];
     for i in 0..n {
         for j in 0..n {

@@ -4,8 +4,8 @@
 
 - Python (cosmic-ray): the builtin models, the phase/reason/flag tables of the Dataset, the
   Python-side reason codes of ``evaluation.py``;
-- Rust (cargo-mutants): index assembly (``src/indices.rs``), Fu–Kane parity
-  (``src/parity.rs``) and Z2 flow counting (``src/flow.rs``),
+- Rust (cargo-mutants): index assembly (``src/topology/indices.rs``), Fu–Kane parity
+  (``src/topology/parity.rs``) and Z2 flow counting (``src/topology/flow.rs``),
 
 runs the tests that guard that module against each mutant, and writes the summary to
 ``docs/mutants.md``. A mutant the tests do not notice ("survived", "missed") is either a hole in
@@ -146,19 +146,19 @@ class RustGroup:
 RUST_GROUPS = [
     RustGroup(
         "rust-indices",
-        ["src/indices.rs"],
+        ["src/topology/indices.rs"],
         ["indices::"],
         why="plane Z2s → (ν0; ν1ν2ν3) and reason; phase and agreement codes",
     ),
     RustGroup(
         "rust-parity",
-        ["src/parity.rs"],
+        ["src/topology/parity.rs"],
         ["parity::"],
         why="Fu–Kane parity indices at the TRIMs and their reason codes",
     ),
     RustGroup(
         "rust-flow",
-        ["src/flow.rs"],
+        ["src/topology/flow.rs"],
         ["flow::"],
         why="largest-gap tracking: the Z2 count of a flow, the refinement test",
     ),

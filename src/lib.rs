@@ -3,34 +3,31 @@
 //!
 //! Every module except `python` is a pure numerical kernel without PyO3 types, so it can be
 //! unit-tested with `cargo test --no-default-features` and benchmarked on its own.
+//!
+//! Folders by concern, each using only those below it (its `mod.rs` says which; `make lint`
+//! checks it with `.ci/check_layout.py`):
+//!
+//! | folder | holds | uses |
+//! |---|---|---|
+//! | `python` | the binding, the only PyO3 code | everything below |
+//! | `point` | one parameter point: first pass, gap search and proof, results as columns | topology, zone, linalg, exec |
+//! | `topology` | Wilson loops, centre flow, planes, lattice Z2, parity, indices | zone, linalg, exec |
+//! | `zone` | Bloch sums, `BlochSource`, the variation bound | linalg, exec |
+//! | `linalg` | eigensolvers, dense products, overlaps, polar factors | — |
+//! | `exec` | pools, the shared task list, per-thread scratch | — |
+//!
+//! At the top, usable by all: `error` (the one error enum), `sampling` (a point's settings),
+//! and this file (`C64`, `fmadd`).
 
-pub mod bloch;
-pub mod cancel;
-pub mod columns;
-pub mod decided_flow;
-pub mod dense;
-pub mod eigen;
-mod eigen_quad;
-mod eigen_small;
-pub mod engine;
 pub mod error;
-pub mod fine_line;
-pub mod first_pass;
-pub mod flow;
-pub mod gap_proof;
-pub mod gap_search;
-pub mod guided;
-pub mod indices;
-mod kept;
-pub mod lattice_z2;
-pub mod matrix;
-pub mod parity;
-pub mod plane_flows;
-pub mod pools;
+pub mod exec;
+pub mod linalg;
+pub mod point;
+pub mod sampling;
 #[cfg(test)]
 mod test_rng;
-pub mod variation;
-pub mod wilson;
+pub mod topology;
+pub mod zone;
 
 #[cfg(feature = "python")]
 mod python;

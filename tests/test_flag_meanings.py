@@ -159,11 +159,11 @@ def test_more_reasons_read_as_why():
 def test_reason_names_are_the_cores_constants():
     """Codes that no outside input can provoke reliably (estimates that disagree, an inversion
     that mixes occupied and empty states) are pinned to the core's own constants by name: the
-    constant names in src/parity.rs and evaluation.py, read from the source."""
+    constant names in src/topology/parity.rs and evaluation.py, read from the source."""
     from toposweep import evaluation
     from toposweep.dataset import REASONS
 
-    source = (Path(__file__).resolve().parent.parent / "src" / "parity.rs").read_text()
+    source = (Path(__file__).resolve().parent.parent / "src" / "topology" / "parity.rs").read_text()
     consts = {m[0]: int(m[1]) for m in re.findall(r"pub const (\w+): u8 = (\d+);", source)}
     consts["INVERSION_BROKEN"] = evaluation.REASON_INVERSION_BROKEN
     consts["TIME_REVERSAL_BROKEN"] = evaluation.REASON_TIME_REVERSAL_BROKEN

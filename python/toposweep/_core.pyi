@@ -1,6 +1,6 @@
 """Type stubs of the Rust extension ``toposweep._core``.
 
-Hand-written; keep in step with src/python.rs.
+Hand-written; keep in step with src/python/.
 """
 
 from collections.abc import Callable

@@ -3,16 +3,17 @@
 //! All numerical work runs through [`detached`], the one place that releases the GIL, installs
 //! the requested rayon pool (none for work too small to share), catches panics and maps
 //! [`CoreError`] to Python exceptions.
+//!
+//! Uses: point, topology, zone, linalg, exec.
 
-use crate::bloch::{BlochSource, Hoppings, FILL_CHUNK};
-use crate::cancel::{Watch, Watched};
-use crate::eigen::eigh_many_into;
-use crate::engine::{
-    evaluate_point, plane_flow, planes, Method, Plane, PointResult, ProveGap, Sampling,
-};
 use crate::error::{CoreError, CoreResult};
-use crate::pools::{default_threads, help_until, mark_main_thread, run_with};
-use crate::variation::VariationBound;
+use crate::exec::pools::{default_threads, help_until, mark_main_thread, run_with};
+use crate::linalg::eigen::eigh_many_into;
+use crate::point::cancel::{Watch, Watched};
+use crate::point::engine::{evaluate_point, plane_flow, planes, Plane, PointResult};
+use crate::sampling::{Method, ProveGap, Sampling};
+use crate::zone::bloch::{BlochSource, Hoppings, FILL_CHUNK};
+use crate::zone::variation::VariationBound;
 use crate::C64;
 use numpy::ndarray::{Array2, Array3};
 use numpy::{
@@ -45,7 +46,7 @@ fn to_py(e: CoreError) -> PyErr {
 #[derive(Clone, Copy)]
 enum Workers {
     /// A pool of this many workers (None: [`default_threads`]); which threads they are:
-    /// [`crate::pools`].
+    /// [`crate::exec::pools`].
     Pool(Option<usize>),
     /// The calling thread alone, no pool installed: work too small to share (a pool would make
     /// the caller a worker of a pool of the default size for good — rayon lets a thread be a
@@ -388,7 +389,7 @@ fn evaluate<'py>(
     };
     s.validate().map_err(to_py)?;
     let error = Arc::new(Mutex::new(None));
-    // Ctrl-C: polled on this thread between the kernels' tasks (src/cancel.rs)
+    // Ctrl-C: polled on this thread between the kernels' tasks (src/point/cancel.rs)
     let interrupt = Mutex::new(None);
     let poll = signal_poll(&interrupt);
     let watch = Watch::new(&poll);
@@ -594,7 +595,7 @@ fn flow<'py>(
     Ok(arr.into_pyarray(py))
 }
 
-/// The flow that decided one plane's Z2 (see [`crate::decided_flow`]): pump coordinates
+/// The flow that decided one plane's Z2 (see [`crate::point::decided_flow`]): pump coordinates
 /// (nlines,), centres (nlines, filling), the plane's Z2 from these lines (−1: undefined) and
 /// the loop points they used. `plane` as for [`flow`].
 #[pyfunction]
@@ -638,7 +639,7 @@ fn decided_flow<'py>(
     let error = Arc::new(Mutex::new(None));
     let run = detached(py, Workers::Pool(threads), || {
         model.with_source(&c, 0, &error, |src| {
-            crate::decided_flow::decided_flow(src, filling, pl, &s)
+            crate::point::decided_flow::decided_flow(src, filling, pl, &s)
         })
     });
     let f = finish(py, run, &error)?;

@@ -8,8 +8,9 @@
 //! one-point call took 20–60 µs of a ~1.5 ms two-thread call in which the other core stood
 //! idle (a scratch build; benches/RESULTS.md, measurement history).
 
-use crate::columns::{columns, Column, Values};
-use crate::engine::{Method, PointResult};
+use crate::point::columns::{columns, Column, Values};
+use crate::point::engine::PointResult;
+use crate::sampling::Method;
 use numpy::ndarray::{ArrayD, IxDyn};
 use numpy::{
     IntoPyArray, PyArrayDyn, PyArrayMethods, PyReadwriteArrayDyn, PyUntypedArray,

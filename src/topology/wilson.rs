@@ -7,14 +7,14 @@
 //! tight-binding convention. Hybrid Wannier centres are x = θ/2π mod 1 with θ = −arg λ(W)
 //! (the Berry phase, so a band on an orbital at τ has x = τ).
 
-use crate::bloch::BlochSource;
-use crate::eigen::{eigh_many_into, eigh_occupied_many_into, eigh_reference_into};
 use crate::error::{CoreError, CoreResult};
-use crate::guided::map_guided;
-use crate::kept::with_kept;
-use crate::matrix::{
+use crate::exec::guided::map_guided;
+use crate::exec::kept::with_kept;
+use crate::linalg::eigen::{eigh_many_into, eigh_occupied_many_into, eigh_reference_into};
+use crate::linalg::matrix::{
     matmul, overlap, unitarise, unitarise_2x2, unitarise_reference, unitary_phases,
 };
+use crate::zone::bloch::BlochSource;
 use crate::{fmadd, C64};
 use rayon::prelude::*;
 use std::f64::consts::TAU;
@@ -565,7 +565,7 @@ pub fn evaluate_points(
 #[cfg(test)]
 pub(crate) mod tests {
     use super::*;
-    use crate::bloch::Hoppings;
+    use crate::zone::bloch::Hoppings;
 
     pub(crate) fn random_model(n: usize, seed: u64) -> Hoppings {
         let mut rng = crate::test_rng::TestRng::new(seed);
@@ -617,7 +617,10 @@ pub(crate) mod tests {
                 let slow =
                     wilson_line_with(&h, &kappa, 3, n, nocc, None, Kernels::Reference).unwrap();
                 for (a, b) in fast.centres.iter().zip(&slow.centres) {
-                    assert!(crate::flow::circ_dist(*a, *b) < 1e-10, "n={n}: {a} vs {b}");
+                    assert!(
+                        crate::topology::flow::circ_dist(*a, *b) < 1e-10,
+                        "n={n}: {a} vs {b}"
+                    );
                 }
                 let (fs, ss) = (fast.stats, slow.stats);
                 for (a, b) in [
@@ -743,7 +746,10 @@ pub(crate) mod tests {
                 assert_eq!(paired.min_singular, single.min_singular, "n={n}");
                 let quad = line(Kernels::Fast);
                 for (a, b) in quad.centres.iter().zip(&single.centres) {
-                    assert!(crate::flow::circ_dist(*a, *b) <= 1e-12, "n={n}: {a} vs {b}");
+                    assert!(
+                        crate::topology::flow::circ_dist(*a, *b) <= 1e-12,
+                        "n={n}: {a} vs {b}"
+                    );
                 }
                 quad.stats
                     .assert_close(&single.stats, 1e-12, &format!("n={n}"));
@@ -756,7 +762,7 @@ pub(crate) mod tests {
             for (i, k) in kappa.chunks_exact(3).enumerate() {
                 let mut h = vec![C64::new(0.0, 0.0); n * n];
                 model.fill(k, &mut h).unwrap();
-                let (e, v) = crate::eigen::eigh(&h, n).unwrap();
+                let (e, v) = crate::linalg::eigen::eigh(&h, n).unwrap();
                 want.add(&e, nocc, k);
                 for (a, b) in energies[i].iter().zip(&e) {
                     assert!((a - b).abs() <= 1e-13, "n={n} point {i}: {a} vs {b}");

@@ -5,8 +5,9 @@
 //! rather than in Python: after the core they are serial work, ~35 µs of NumPy calls on one
 //! point.
 
-use crate::engine::{Method, PointResult};
-use crate::indices::{agreement, phase_of, with_overlap};
+use crate::point::engine::PointResult;
+use crate::sampling::Method;
+use crate::topology::indices::{agreement, phase_of, with_overlap};
 
 /// The values of one column, in the type the binding gives a new array of it.
 #[derive(Clone, Debug, PartialEq)]
@@ -216,9 +217,9 @@ pub fn columns(res: &[PointResult], dim: usize, method: Method) -> Vec<Column> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::LatticeSummary;
-    use crate::indices::{phase, Indices};
-    use crate::parity::ParityResult;
+    use crate::point::engine::LatticeSummary;
+    use crate::topology::indices::{phase, Indices};
+    use crate::topology::parity::ParityResult;
 
     fn point(nu0: i8, nu: [i8; 3]) -> PointResult {
         PointResult {

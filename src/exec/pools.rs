@@ -240,7 +240,7 @@ mod tests {
     fn a_helping_worker_runs_its_spawned_job_when_no_other_takes_it() {
         // a pool of one: the job waited for can only run on the helping worker itself
         let done = AtomicBool::new(false);
-        let pool = crate::guided::tests::pool(1);
+        let pool = crate::exec::guided::tests::pool(1);
         let ran_on = pool.install(|| {
             let mut ran_on = None;
             rayon::scope(|s| {
@@ -260,7 +260,7 @@ mod tests {
         // the job waited for spawns many small tasks; the helping worker runs some of them
         // (two workers, each task long enough that one worker cannot run them all first)
         let done = AtomicBool::new(false);
-        let pool = crate::guided::tests::pool(2);
+        let pool = crate::exec::guided::tests::pool(2);
         let helped = pool.install(|| {
             let me = rayon::current_thread_index();
             let by_me = std::sync::atomic::AtomicUsize::new(0);

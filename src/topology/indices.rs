@@ -1,7 +1,7 @@
 //! From the Z2 of each time-reversal-invariant plane to the indices (ν0; ν1ν2ν3), shared by
 //! the Wilson-loop and the lattice method so both are read out the same way.
 
-use crate::parity::reason;
+use crate::topology::parity::reason;
 
 /// Indices of one method at one point; −1 where undefined.
 #[derive(Clone, Copy, Debug, PartialEq)]

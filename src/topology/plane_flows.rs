@@ -6,14 +6,14 @@
 //! the pump coordinate κ_{(i+2) mod 3} goes from 0 to 1/2. In 2D the single plane loops along
 //! κ_1 and pumps κ_2.
 
-use crate::bloch::BlochSource;
-use crate::engine::Sampling;
 use crate::error::{CoreError, CoreResult};
-use crate::fine_line::{needs_resolution, resolve_line};
-use crate::flow::{inspect_with_gaps, largest_gap, z2_of_tracked_flow, Interval};
-use crate::guided::map_guided;
-use crate::lattice_z2::LatticePlane;
-use crate::wilson::{evaluate_line, evaluate_lines, BandStats, LineResult, LineSpec};
+use crate::exec::guided::map_guided;
+use crate::sampling::Sampling;
+use crate::topology::fine_line::{needs_resolution, resolve_line};
+use crate::topology::flow::{inspect_with_gaps, largest_gap, z2_of_tracked_flow, Interval};
+use crate::topology::lattice_z2::LatticePlane;
+use crate::topology::wilson::{evaluate_line, evaluate_lines, BandStats, LineResult, LineSpec};
+use crate::zone::bloch::BlochSource;
 use rayon::prelude::*;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{Mutex, OnceLock};
@@ -556,7 +556,7 @@ pub fn plane_flow(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::{Method, ProveGap};
+    use crate::sampling::{Method, ProveGap};
 
     fn sampling() -> Sampling {
         Sampling {
@@ -646,7 +646,7 @@ mod tests {
         for (m, &t) in all.iter().enumerate() {
             seq.merge(&line_at(t).stats);
             if m + 1 < all.len() {
-                let want = crate::flow::inspect(
+                let want = crate::topology::flow::inspect(
                     &line_at(t).centres,
                     &line_at(all[m + 1]).centres,
                     step_limit,
@@ -664,7 +664,7 @@ mod tests {
             2,
             0.45,
         );
-        assert_eq!(loose.z2, Some(crate::flow::z2_of_flow(&refs)));
+        assert_eq!(loose.z2, Some(crate::topology::flow::z2_of_flow(&refs)));
     }
 
     /// `summarise` reads the checks: converged exactly when no interval asks for a line, with the

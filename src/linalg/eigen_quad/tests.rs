@@ -3,8 +3,8 @@
 //! `eigen_quad.rs` about the kernel.)
 
 use super::*;
-use crate::eigen::tests::{eigh_reference, pairing_cases, random_hermitian};
-use crate::eigen::{
+use crate::linalg::eigen::tests::{eigh_reference, pairing_cases, random_hermitian};
+use crate::linalg::eigen::{
     eigh_many_into, eigh_occupied_many_into, eigh_occupied_quad_into, eigh_quad_into, QUAD_MAX_N,
 };
 use crate::CoreError;

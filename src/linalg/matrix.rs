@@ -1,9 +1,9 @@
 //! Small dense complex matrices stored row-major in flat slices: products, the unitary part of
 //! an overlap matrix, and the eigenphases of a unitary matrix.
 
-use crate::dense::{product, product_loops, Op, View, DENSE_MIN_N};
-use crate::eigen::{eigh, eigh_into, eigh_reference_into, JACOBI_MAX_N};
 use crate::error::{CoreError, CoreResult};
+use crate::linalg::dense::{product, product_loops, Op, View, DENSE_MIN_N};
+use crate::linalg::eigen::{eigh, eigh_into, eigh_reference_into, JACOBI_MAX_N};
 use crate::C64;
 
 /// `c = a · b` for an (m×k) `a` and a (k×n) `b` (many occupied bands: `dense::product`).

@@ -6,7 +6,7 @@
 //! (−1)^{ν0} = Π_Γ δ_Γ over all TRIMs; (−1)^{ν_i} = Π over the TRIMs with κ_i = 1/2.
 
 use crate::error::CoreResult;
-use crate::matrix::{hermitian_eigenvalues, matmul};
+use crate::linalg::matrix::{hermitian_eigenvalues, matmul};
 use crate::C64;
 
 /// Why a result is undefined. 0 means defined. Shared by the Wilson-loop and parity results.

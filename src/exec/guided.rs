@@ -33,7 +33,7 @@ pub fn map_guided<S, T: Send + Sync>(
     let slots: Vec<OnceLock<CoreResult<T>>> = (0..count).map(|_| OnceLock::new()).collect();
     let next = AtomicUsize::new(0);
     // the smallest index of a task that failed: tasks above it are skipped, since the list's
-    // result is that error whatever they give (a stopped call — Ctrl-C, src/cancel.rs — then
+    // result is that error whatever they give (a stopped call — Ctrl-C, src/point/cancel.rs — then
     // ends at once instead of preparing every remaining task); every task below it runs, so
     // the error reported is still the first by index
     let failed = AtomicUsize::new(usize::MAX);

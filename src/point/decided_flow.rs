@@ -1,19 +1,19 @@
 //! The hybrid Wannier centre flow that decided one plane's Z2, for plots and inspection.
 //!
-//! It runs the same steps as [`crate::engine::evaluate_point`] does for the planes of a gapped
+//! It runs the same steps as [`crate::point::engine::evaluate_point`] does for the planes of a gapped
 //! point — the evenly spaced initial pump lines, adaptive insertion until every neighbouring
 //! pair passes the refinement test (loops resolved to the gap where needed), and, when the flow is tight and the certificate is asked
 //! for, the same again with twice the loop points — on one plane, and returns its lines
-//! instead of only their Z2. It is built from the public steps of [`crate::plane_flows`] and
+//! instead of only their Z2. It is built from the public steps of [`crate::topology::plane_flows`] and
 //! changes nothing in them, so it follows them when they change; a Python test compares its
 //! Z2 with the one `invariants` reports.
 
-use crate::bloch::BlochSource;
-use crate::engine::Sampling;
 use crate::error::CoreResult;
-use crate::plane_flows::{
+use crate::sampling::Sampling;
+use crate::topology::plane_flows::{
     initial_lines, is_tight, refine_lines, resolve_planes, summarise, Plane, PlaneLines,
 };
+use crate::zone::bloch::BlochSource;
 
 /// One plane's decided flow: every pump line, ascending, with its centres.
 #[derive(Clone, Debug, PartialEq)]
@@ -77,9 +77,10 @@ pub fn decided_flow(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::tests::bhz;
-    use crate::engine::{evaluate_point, Method};
-    use crate::plane_flows::{initial_pump, planes};
+    use crate::point::engine::evaluate_point;
+    use crate::point::engine::tests::bhz;
+    use crate::sampling::Method;
+    use crate::topology::plane_flows::{initial_pump, planes};
 
     fn sampling() -> Sampling {
         Sampling {
@@ -92,7 +93,7 @@ mod tests {
             gap_starts: 3,
             method: Method::Wilson,
             certify: true,
-            prove_gap: crate::engine::ProveGap::Never,
+            prove_gap: crate::sampling::ProveGap::Never,
         }
     }
 

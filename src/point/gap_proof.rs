@@ -13,11 +13,11 @@
 //! the true minimum. A box centre whose gap is under the floor ends the proof: the point is
 //! gapless there.
 
-use crate::bloch::BlochSource;
 use crate::error::CoreResult;
-use crate::gap_search::gaps_at;
-use crate::variation::VariationBound;
-use crate::wilson::BandStats;
+use crate::point::gap_search::gaps_at;
+use crate::topology::wilson::BandStats;
+use crate::zone::bloch::BlochSource;
+use crate::zone::variation::VariationBound;
 use std::collections::BinaryHeap;
 
 /// The proven bound aims at this share of the smallest gap seen.
@@ -210,7 +210,7 @@ mod tests {
     // Qi–Wu–Zhang h(k) = sin kx σx + sin ky σy + (m + cos kx + cos ky) σz ⊕ its time-reversed
     // partner (Bernevig, Hughes & Zhang, Science 314, 1757 (2006)); its direct gap is
     // 2 min_k |d(k)|, closing at m = 0, ±2 (Qi, Wu & Zhang, PRB 74, 085308 (2006)).
-    use crate::engine::tests::bhz as qwz;
+    use crate::point::engine::tests::bhz as qwz;
 
     /// 2 min over a fine mesh of |d(k)|: the gap the proof must stay below (an upper bound of
     /// the true minimum) and near.

@@ -8,12 +8,12 @@
 //! their own, and a stopped call returns [`CoreError::Interrupted`] from every task after.
 //!
 //! `poll` runs only on the calling thread (a worker of its own pool where it can be, see
-//! `crate::pools`) and at most every [`POLL_EVERY`]; every other check is one atomic load.
+//! `crate::exec::pools`) and at most every [`POLL_EVERY`]; every other check is one atomic load.
 //! A call handed whole to another pool's threads (its caller only waits) is not polled: it
 //! stops at its end, as before.
 
-use crate::bloch::BlochSource;
 use crate::error::{CoreError, CoreResult};
+use crate::zone::bloch::BlochSource;
 use crate::C64;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::thread::ThreadId;
@@ -92,7 +92,7 @@ impl BlochSource for Watched<'_> {
     }
     // (forwarded like every other method: without it a watched call loses its gap proof and
     // its loops resolved to the gap — the test below compares whole results)
-    fn variation(&self) -> Option<&crate::variation::VariationBound> {
+    fn variation(&self) -> Option<&crate::zone::variation::VariationBound> {
         self.inner.variation()
     }
     fn fill_line(
@@ -121,9 +121,10 @@ impl BlochSource for Watched<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::{evaluate_point, Method, ProveGap, Sampling};
-    use crate::guided::tests::pool;
-    use crate::wilson::tests::random_model;
+    use crate::exec::guided::tests::pool;
+    use crate::point::engine::evaluate_point;
+    use crate::sampling::{Method, ProveGap, Sampling};
+    use crate::topology::wilson::tests::random_model;
     use std::sync::atomic::AtomicUsize;
 
     fn sampling() -> Sampling {

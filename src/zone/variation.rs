@@ -16,7 +16,7 @@
 //! instead (‖H(κ) − H(c)‖₂ ≤ Σ_i L_i |κ_i − c_i|), see [`VariationBound::lipschitz`].
 
 use crate::error::{invalid, CoreResult};
-use crate::matrix::hermitian_eigenvalues;
+use crate::linalg::matrix::hermitian_eigenvalues;
 use crate::C64;
 
 /// Relative safety margin on computed norms (rounding in the eigenvalues of M†M).
@@ -150,8 +150,8 @@ pub const TURN_LIMIT: f64 = 0.5;
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::bloch::{BlochSource, Hoppings};
     use crate::test_rng::TestRng;
+    use crate::zone::bloch::{BlochSource, Hoppings};
 
     /// A random 3-orbital 3D model with hoppings at several R.
     fn random_model(seed: u64) -> Hoppings {

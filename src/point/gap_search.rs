@@ -11,11 +11,11 @@
 //! |κ − κ0|) and derivative-based methods stall there; on a cone the search keeps halving its
 //! step towards the apex, so a closing is followed down until the gap is below the floor.
 
-use crate::bloch::BlochSource;
-use crate::eigen::eigh_occupied_many_into;
 use crate::error::CoreResult;
-use crate::guided::map_guided;
-use crate::wilson::BandStats;
+use crate::exec::guided::map_guided;
+use crate::linalg::eigen::eigh_occupied_many_into;
+use crate::topology::wilson::BandStats;
+use crate::zone::bloch::BlochSource;
 use crate::C64;
 use rayon::prelude::*;
 
@@ -499,7 +499,7 @@ mod tests {
             for (g, k) in gaps.iter().zip(kappa.chunks_exact(2)) {
                 let mut h = vec![C64::new(0.0, 0.0); 4];
                 src.fill(k, &mut h).unwrap();
-                let (e, _) = crate::eigen::eigh(&h, 2).unwrap();
+                let (e, _) = crate::linalg::eigen::eigh(&h, 2).unwrap();
                 want.add(&e, 1, k);
                 assert!(
                     (*g - (e[1] - e[0])).abs() <= 1e-13,
@@ -514,8 +514,8 @@ mod tests {
 
     /// Two 4-band 3D models: a generic Hermitian H(κ) (random nearest-neighbour hoppings) and
     /// the Wilson–Dirac model at m = −2 (two Kramers-degenerate levels: the closed form).
-    fn generic_and_kramers() -> (crate::bloch::Bloch, crate::bloch::Bloch) {
-        use crate::bloch::Hoppings;
+    fn generic_and_kramers() -> (crate::zone::bloch::Bloch, crate::zone::bloch::Bloch) {
+        use crate::zone::bloch::Hoppings;
         let mut rng = crate::test_rng::TestRng::new(7u64);
         let mut next = || rng.uniform();
         let n = 4;
@@ -546,7 +546,7 @@ mod tests {
             .unwrap();
         // Wilson–Dirac, H = (m + Σ cos 2πκ_i) Γ4 + Σ sin 2πκ_i Γ_i: two Kramers-degenerate
         // levels everywhere (the closed form)
-        let g = crate::eigen::tests::dirac_gammas();
+        let g = crate::linalg::eigen::tests::dirac_gammas();
         let mut t = vec![C64::new(0.0, 0.0); 7 * n * n];
         for x in 0..n * n {
             t[x] = g[4][x] * -2.0;
@@ -606,7 +606,7 @@ mod tests {
                 .collect();
             let set = SearchSettings::new(0.03, 1e-9);
             let run = |walk: bool, workers: usize| {
-                crate::guided::tests::pool(workers).install(|| {
+                crate::exec::guided::tests::pool(workers).install(|| {
                     let mut walkers = Walker::from_starts(&starts, &set);
                     let mut stats = BandStats::default();
                     let evaluations = if walk {

@@ -36,7 +36,7 @@ fn faer_eigen(h: &[C64], n: usize, evals: &mut [f64], vecs: &mut [C64]) -> CoreR
     let eig = m
         .self_adjoint_eigen(faer::Side::Lower)
         .map_err(|_| CoreError::NoConvergence(format!("faer Hermitian eigensolver, n = {n}")))?;
-    crate::dense::leave_wide_simd();
+    crate::linalg::dense::leave_wide_simd();
     let (s, u) = (eig.S().column_vector(), eig.U());
     for i in 0..n {
         evals[i] = s[i].re;

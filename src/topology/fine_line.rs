@@ -11,12 +11,12 @@
 //! crowd where the gap is small and nowhere else. A loop that needs more than
 //! [`MAX_POINTS_PER_LOOP`] points, or steps shorter than [`MIN_STEP`], is marked unresolved.
 
-use crate::bloch::BlochSource;
-use crate::eigen::eigh_occupied_many_into;
 use crate::error::CoreResult;
-use crate::matrix::{matmul, overlap, unitarise};
-use crate::variation::{turn_bound, VariationBound, TURN_LIMIT};
-use crate::wilson::{loop_centres, BandStats, LineResult, LineSpec};
+use crate::linalg::eigen::eigh_occupied_many_into;
+use crate::linalg::matrix::{matmul, overlap, unitarise};
+use crate::topology::wilson::{loop_centres, BandStats, LineResult, LineSpec};
+use crate::zone::bloch::BlochSource;
+use crate::zone::variation::{turn_bound, VariationBound, TURN_LIMIT};
 use crate::C64;
 use std::f64::consts::TAU;
 
@@ -195,8 +195,8 @@ fn transport(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::wilson::evaluate_line;
-    use crate::wilson::tests::random_model;
+    use crate::topology::wilson::evaluate_line;
+    use crate::topology::wilson::tests::random_model;
 
     /// On a model with a large gap the resolved loop is the even loop: same centres.
     #[test]
@@ -226,7 +226,7 @@ mod tests {
     /// resolved loop gets it right on both sides.
     #[test]
     fn resolves_a_turn_the_even_loop_steps_over() {
-        use crate::bloch::Hoppings;
+        use crate::zone::bloch::Hoppings;
         let c = |re: f64, im: f64| C64::new(re, im);
         let z = c(0.0, 0.0);
         // on-site m σz (coefficient), hopping at R = 1: (σz − iσx)/2

@@ -4,18 +4,18 @@
 //! they are one parallel phase.
 //!
 //! A source that builds H itself puts all of them into one guided list of tasks
-//! ([`crate::guided`]): the TRIMs, every line, every row of the bulk grid — the rows last,
+//! ([`crate::exec::guided`]): the TRIMs, every line, every row of the bulk grid — the rows last,
 //! because they are the shortest tasks (a row of 8 κ points against a line of 40) and the end
 //! of a list waits for its last task. A source that prefers batches (a Python callback) is asked
 //! for each kind in one batch, the three side by side.
 
-use crate::bloch::BlochSource;
 use crate::error::{CoreError, CoreResult};
-use crate::gap_search::{gaps_on_grid, grid_gaps, grid_row, grid_row_scratch};
-use crate::guided::map_guided;
-use crate::parity::trims;
-use crate::plane_flows::{initial_lines, InitialLines, Plane, PlaneLines};
-use crate::wilson::{evaluate_points, BandStats, PointSpectra};
+use crate::exec::guided::map_guided;
+use crate::point::gap_search::{gaps_on_grid, grid_gaps, grid_row, grid_row_scratch};
+use crate::topology::parity::trims;
+use crate::topology::plane_flows::{initial_lines, InitialLines, Plane, PlaneLines};
+use crate::topology::wilson::{evaluate_points, BandStats, PointSpectra};
+use crate::zone::bloch::BlochSource;
 
 /// What the first pass found. `trims` lists the TRIMs as [`trims`] does.
 pub struct FirstPass {
@@ -60,7 +60,7 @@ pub fn first_pass(
     src: &dyn BlochSource,
     planes: &[Plane],
     filling: usize,
-    s: &crate::engine::Sampling,
+    s: &crate::sampling::Sampling,
     wilson: bool,
 ) -> CoreResult<FirstPass> {
     let dim = src.dim();
@@ -115,7 +115,7 @@ fn batched(
     src: &dyn BlochSource,
     planes: &[Plane],
     filling: usize,
-    s: &crate::engine::Sampling,
+    s: &crate::sampling::Sampling,
     trim_k: Vec<f64>,
     bulk_kappa: Vec<f64>,
 ) -> CoreResult<FirstPass> {
@@ -144,11 +144,11 @@ fn batched(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::bloch::Bloch;
-    use crate::engine::{Method, ProveGap, Sampling};
-    use crate::guided::tests::pool;
-    use crate::plane_flows::planes;
-    use crate::wilson::tests::random_model;
+    use crate::exec::guided::tests::pool;
+    use crate::sampling::{Method, ProveGap, Sampling};
+    use crate::topology::plane_flows::planes;
+    use crate::topology::wilson::tests::random_model;
+    use crate::zone::bloch::Bloch;
 
     fn sampling(gap_points: usize) -> Sampling {
         Sampling {

@@ -76,9 +76,9 @@
 //! Layout: `h` is row-major n×n; eigenvalues come out ascending and eigenvector k is column k
 //! of the row-major `vecs` (component i at `vecs[i * n + k]`).
 
-use crate::eigen_quad;
-use crate::eigen_small;
 use crate::error::{CoreError, CoreResult};
+use crate::linalg::eigen_quad;
+use crate::linalg::eigen_small;
 use crate::C64;
 
 /// Largest size handled by the Jacobi path.

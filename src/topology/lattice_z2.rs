@@ -15,10 +15,10 @@
 //! The Wilson-loop engine shares no code with this module beyond the Bloch source and the
 //! eigensolver, which is why it serves as an independent cross-check.
 
-use crate::bloch::BlochSource;
-use crate::eigen::{eigh_into, eigh_occupied_many_into};
 use crate::error::{invalid, CoreError, CoreResult};
-use crate::wilson::BandStats;
+use crate::linalg::eigen::{eigh_into, eigh_occupied_many_into};
+use crate::topology::wilson::BandStats;
+use crate::zone::bloch::BlochSource;
 use crate::C64;
 use rayon::prelude::*;
 use std::f64::consts::PI;
@@ -410,7 +410,7 @@ pub fn lattice_planes_refine(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::bloch::Hoppings;
+    use crate::zone::bloch::Hoppings;
 
     fn c(re: f64, im: f64) -> C64 {
         C64::new(re, im)
@@ -576,9 +576,9 @@ mod tests {
                 let k = [j as f64 / n1 as f64, 0.5 * i as f64 / n2 as f64];
                 let mut h = vec![c(0.0, 0.0); n * n];
                 src.fill(&k, &mut h).unwrap();
-                let (_, v) = crate::eigen::eigh(&h, n).unwrap();
+                let (_, v) = crate::linalg::eigen::eigh(&h, n).unwrap();
                 let mut g: Vec<C64> = (0..m * m).map(|_| c(next(), next())).collect();
-                crate::matrix::unitarise(&mut g, m).unwrap();
+                crate::linalg::matrix::unitarise(&mut g, m).unwrap();
                 let mut f = vec![c(0.0, 0.0); n * m];
                 for r in 0..n {
                     for a in 0..m {

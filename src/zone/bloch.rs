@@ -6,8 +6,8 @@
 //! few complex multiply-adds per matrix element.
 
 use crate::error::{invalid, CoreResult};
-use crate::kept::with_kept;
-use crate::variation::VariationBound;
+use crate::exec::kept::with_kept;
+use crate::zone::variation::VariationBound;
 use crate::{fmadd, C64};
 use rayon::prelude::*;
 use std::cell::Cell;
@@ -231,7 +231,7 @@ fn add_combination(out: &mut [C64], cp: &[C64], sp: &[C64], c: f64, s: f64) {
 /// calling thread without touching rayon: a parallel iterator called outside any pool would
 /// start rayon's global pool, and the binding runs such small fills (the symmetry checks' few
 /// κ points) without a pool, so that they never make the caller a worker of a pool of a size
-/// it did not ask for (`crate::pools`).
+/// it did not ask for (`crate::exec::pools`).
 pub const FILL_CHUNK: usize = 64;
 
 impl BlochSource for Bloch {
@@ -493,7 +493,7 @@ mod tests {
         for npts in [1, FILL_CHUNK, FILL_CHUNK + 1, 3 * FILL_CHUNK + 7] {
             let kappa: Vec<f64> = (0..3 * npts).map(|i| (i as f64 * 0.37).fract()).collect();
             let mut batch = vec![C64::new(9.0, 9.0); npts * n * n];
-            crate::guided::tests::pool(2)
+            crate::exec::guided::tests::pool(2)
                 .install(|| b.fill(&kappa, &mut batch))
                 .unwrap();
             let mut one = vec![C64::new(0.0, 0.0); n * n];
