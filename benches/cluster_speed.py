@@ -28,8 +28,8 @@ from pathlib import Path
 
 import numpy as np
 import toposweep as ts
-from toposweep.executors import ChunkRunner, ScaledSum, executor_from_spec
-from toposweep.store import Journal
+from toposweep.cluster.executors import ChunkRunner, ScaledSum, executor_from_spec
+from toposweep.results.store import Journal
 from toposweep.sweep_executor import evaluate_range
 from toposweep.sweep_plan import make_plan
 
@@ -118,7 +118,7 @@ def journal_write(points: int, repeats: int = 20) -> tuple[float, int]:
 CALLER = r"""
 import json, resource, sys, tempfile, time
 import numpy as np, toposweep as ts
-from toposweep.executors import executor_from_spec
+from toposweep.cluster.executors import executor_from_spec
 if __name__ == "__main__":
     n = int(sys.argv[1])
     rows = int(np.sqrt(n)); cols = n // rows

@@ -33,7 +33,7 @@ import numpy as np
 #: same relative gap floor as the engine when none is given (× bandwidth)
 AUTO_FLOOR_REL = 1e-5
 
-# reason codes, as in toposweep.dataset.REASONS
+# reason codes, as in toposweep.results.dataset.REASONS
 DEFINED, GAPLESS, DEGENERATE_AT_TRIM, NU0_DISAGREE, NOT_CONVERGED = 0, 1, 2, 3, 4
 
 

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 import toposweep as ts
 import xarray as xr
-from toposweep.phase_map import labels_of
+from toposweep.maps.phase_map import labels_of
 
 
 def cases(quick: bool) -> list[tuple[str, Any, dict[str, Any], dict[str, float]]]:

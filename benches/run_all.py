@@ -204,8 +204,8 @@ def invariants_table(repeats: int, quick: bool) -> list[str]:
 
 def core_only_table(repeats: int) -> list[str]:
     """The Rust call alone (no symmetry checks, no Dataset assembly) for the Wilson–Dirac point."""
-    from toposweep.dataset import build_dataset
     from toposweep.evaluation import prepare_request, run_points
+    from toposweep.results.dataset import build_dataset
     from toposweep.sampling import Sampling
 
     wd = ts.models.wilson_dirac()

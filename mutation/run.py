@@ -99,14 +99,14 @@ PYTHON_GROUPS = [
     ),
     PythonGroup(
         "dataset-flags",
-        ["python/toposweep/dataset.py"],
+        ["python/toposweep/results/dataset.py"],
         ["tests/test_flag_meanings.py"],
         definitions=["", "_flags"],
         why="phase and reason codes and names, the CF flag tables",
     ),
     PythonGroup(
         "dataset-schema",
-        ["python/toposweep/dataset.py"],
+        ["python/toposweep/results/dataset.py"],
         ["tests/test_flag_meanings.py", "tests/test_parity_independent.py"],
         definitions=["_fields"],
         why="which variables a result has, with which flags",

@@ -14,8 +14,8 @@ import numpy as np
 import pytest
 import toposweep as ts
 from toposweep import _core
-from toposweep.dataset import ResultLayout, build_dataset, plan_dataset
 from toposweep.evaluation import prepare_request, run_points
+from toposweep.results.dataset import ResultLayout, build_dataset, plan_dataset
 from toposweep.sampling import Sampling
 
 LIGHT = Sampling(loop_points=16, lines=9, max_lines=41, gap_starts=0, certify=False)

@@ -5,9 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import toposweep as ts
-import toposweep.dataset as dataset_module
+import toposweep.results.dataset as dataset_module
 import xarray as xr
-from toposweep.dataset_assembly import assemble
+from toposweep.results.dataset_assembly import assemble
 
 
 class _KeepsNothing(dict):
@@ -94,7 +94,7 @@ def test_next_point_copied_from_the_last_layout_matches_public_constructor(
 def test_variables_filled_slot_by_slot_equal_constructed_ones(monkeypatch, slots_only):
     """Both ways of making a Variable (slots filled directly where this xarray allows it, the
     constructor otherwise) give Datasets identical to the public constructor's."""
-    import toposweep.dataset_assembly as assembly
+    import toposweep.results.dataset_assembly as assembly
 
     if slots_only:
         assert assembly._SLOTS_ONLY  # the xarray we test with takes the direct path

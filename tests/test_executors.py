@@ -30,11 +30,11 @@ import numpy as np
 import pytest
 import toposweep as ts
 import xarray as xr
-from toposweep import executor_backends, executors
 from toposweep.callable_model import load_file_module
+from toposweep.cluster import executor_backends, executors
+from toposweep.cluster.executors import ChunkRunner, ScaledSum
 from toposweep.errors import ExecutorError, ModelError
-from toposweep.executors import ChunkRunner, ScaledSum
-from toposweep.store import journal_path
+from toposweep.results.store import journal_path
 
 distributed = pytest.importorskip("distributed")
 

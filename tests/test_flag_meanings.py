@@ -161,7 +161,7 @@ def test_reason_names_are_the_cores_constants():
     that mixes occupied and empty states) are pinned to the core's own constants by name: the
     constant names in src/topology/parity.rs and evaluation.py, read from the source."""
     from toposweep import evaluation
-    from toposweep.dataset import REASONS
+    from toposweep.results.dataset import REASONS
 
     source = (Path(__file__).resolve().parent.parent / "src" / "topology" / "parity.rs").read_text()
     consts = {m[0]: int(m[1]) for m in re.findall(r"pub const (\w+): u8 = (\d+);", source)}

@@ -22,8 +22,8 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 from toposweep.config import load_config, parse_config
-from toposweep.dataset import PHASES, REASONS
-from toposweep.store import open_result
+from toposweep.results.dataset import PHASES, REASONS
+from toposweep.results.store import open_result
 
 FUZZ = settings(
     max_examples=150,

@@ -16,7 +16,7 @@ import pytest
 import toposweep as ts
 from toposweep.cli import main
 from toposweep.errors import StoreError
-from toposweep.store import journal_path
+from toposweep.results.store import journal_path
 
 sweep_module = import_module("toposweep.sweep")  # the package's `sweep` is the function
 
@@ -224,7 +224,7 @@ def bhz_config(folder: Path, extra: str = "", model: str = '"bhz"') -> Path:
 WRITE_WITHOUT_CHECK = """
 import importlib, sys
 if sys.argv[1] == "unchecked":  # no room check first: HDF5 meets the limit in mid-write
-    importlib.import_module("toposweep.store")._reserve = lambda tmp, size: None
+    importlib.import_module("toposweep.results.store")._reserve = lambda tmp, size: None
 from toposweep.cli import main
 sys.exit(main(["run", sys.argv[2], "--resume", "--quiet"]))
 """

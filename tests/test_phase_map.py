@@ -22,7 +22,7 @@ import pytest
 import toposweep as ts
 import xarray as xr
 from toposweep.errors import ParameterError, StoreError
-from toposweep.store import journal_path
+from toposweep.results.store import journal_path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from proven_gap import with_proven_gap  # noqa: E402

@@ -17,7 +17,7 @@ import pytest
 import toposweep as ts
 import xarray as xr
 from toposweep.errors import StoreError
-from toposweep.store import journal_path
+from toposweep.results.store import journal_path
 from toposweep.sweep import SweepInterrupted
 
 sweep_module = import_module("toposweep.sweep")  # the package's `sweep` is the function
@@ -232,7 +232,7 @@ def test_open_result_rejects_what_is_not_a_result(tmp_path: Path) -> None:
 
 
 def test_flat_ranges_map_onto_the_grid_like_numpy_ravel() -> None:
-    from toposweep.store import flat_boxes
+    from toposweep.results.store import flat_boxes
 
     rng = np.random.default_rng(5)
     for _ in range(500):

@@ -18,7 +18,7 @@ import numpy as np
 import toposweep as ts
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from toposweep.weyl_bound import band_shift_bounds, term_norm_bounds
+from toposweep.maps.weyl_bound import band_shift_bounds, term_norm_bounds
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from proven_gap import with_proven_gap  # noqa: E402

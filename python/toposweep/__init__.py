@@ -31,15 +31,15 @@ from .errors import (  # noqa: E402
     SymmetryWarning,
     ToposweepError,
 )
+from .maps.phase_map import phase_map  # noqa: E402
+from .maps.transition_finder import find_transition  # noqa: E402
 from .model import Model  # noqa: E402
 from .model_files import load_model, save_model  # noqa: E402
-from .phase_map import phase_map  # noqa: E402
+from .results.store import open_result  # noqa: E402
 from .sampling import Sampling  # noqa: E402
-from .store import open_result  # noqa: E402
 from .sweep import SweepInterrupted, sweep  # noqa: E402
 from .symmetrise import symmetrise  # noqa: E402
 from .tightbinding import TightBinding  # noqa: E402
-from .transition_finder import find_transition  # noqa: E402
 
 __all__ = [
     "__version__",

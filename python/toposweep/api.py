@@ -5,10 +5,10 @@ from __future__ import annotations
 import xarray as xr
 from numpy.typing import ArrayLike, NDArray
 
-from .dataset import ResultLayout, plan_dataset
 from .errors import ModelError
 from .evaluation import prepare_request, run_points
 from .model import Model, Params
+from .results.dataset import ResultLayout, plan_dataset
 from .sampling import Sampling, sampling_for
 
 __all__ = ["invariants"]

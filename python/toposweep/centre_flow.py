@@ -19,10 +19,10 @@ import xarray as xr
 
 from . import _core
 from .api import invariants
-from .dataset import INDEX_FLAGS, REASONS, _flags
 from .errors import ModelError, SamplingError
 from .evaluation import check_filling
 from .model import Model, Params
+from .results.dataset import INDEX_FLAGS, REASONS, _flags
 from .sampling import MAXIMA, Sampling, check_threads
 
 __all__ = ["centre_flow", "plane_of", "wcc_flow"]

@@ -17,7 +17,7 @@ from typing import NoReturn
 from . import _core
 from ._version import __version__
 from .errors import ConfigError, ParameterError, StoreError, ToposweepError
-from .store import journal_path, open_result
+from .results.store import journal_path, open_result
 
 __all__ = ["main"]
 
@@ -117,7 +117,7 @@ def _run(args: argparse.Namespace) -> int:
         kwargs["executor"] = args.scheduler
     try:
         if cfg.adaptive is not None:
-            from .phase_map import phase_map
+            from .maps.phase_map import phase_map
 
             ds = phase_map(
                 **kwargs, **cfg.adaptive, out=out, resume=args.resume,

@@ -21,7 +21,7 @@ import xarray as xr
 
 from . import models
 from .flowplot import flow_figure
-from .phase_map import phase_map
+from .maps.phase_map import phase_map
 from .plotting import plot_line, plot_phase_map
 from .summary import summarise
 from .sweep import sweep

@@ -213,12 +213,12 @@ def run_points(
 
     Symmetries are checked at every point (see :func:`_symmetry_breaks`): first, so a run
     that is not valid stops before it starts. With ``alongside`` (Python work of the caller
-    that does not need the results, such as :func:`toposweep.dataset.plan_dataset`), the
+    that does not need the results, such as :func:`toposweep.results.dataset.plan_dataset`), the
     checks and ``alongside()`` run instead while the core computes — on the worker that takes
     the call (from the main thread: the calling thread) while another worker starts on the
     points, so where there are two or more workers that work shares the cores with the points
     instead of adding to their time; their errors are raised all the same. When ``alongside``
-    returns a dict of arrays (:meth:`toposweep.dataset.ResultLayout.core_targets`), the core
+    returns a dict of arrays (:meth:`toposweep.results.dataset.ResultLayout.core_targets`), the core
     writes the results of those keys into them and returns those very arrays.
     """
     breaks: list[tuple[NDArray[np.bool_], NDArray[np.bool_], bool, bool, str | None]] = []

@@ -22,7 +22,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Patch
 
 from .errors import ParameterError
-from .map_report import draw_transitions
+from .maps.map_report import draw_transitions
 from .phase_style import (
     METAL_HATCH,
     SHADE_FLOOR,

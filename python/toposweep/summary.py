@@ -8,11 +8,11 @@ from collections import Counter
 import numpy as np
 import xarray as xr
 
-from .map_report import map_summary_lines
+from .maps.map_report import map_summary_lines
 
 __all__ = ["phase_label", "phase_labels", "summarise"]
 
-#: trade terms for the phase codes of :data:`toposweep.dataset.PHASES`
+#: trade terms for the phase codes of :data:`toposweep.results.dataset.PHASES`
 PHASE_NAMES = {
     -1: "undefined",
     0: "trivial insulator",

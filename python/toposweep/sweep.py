@@ -2,8 +2,8 @@
 
 Each chunk of points is ONE call into the Rust core, which spreads the points and their κ lines
 over the cores with the GIL released. Between chunks the sweep saves what finished (to the
-journal of :mod:`toposweep.store` when ``out=`` is given), updates the progress bar and checks
-for Ctrl-C, so an interruption loses at most the chunk that was running.
+journal of :mod:`toposweep.results.store` when ``out=`` is given), updates the progress bar and
+checks for Ctrl-C, so an interruption loses at most the chunk that was running.
 """
 
 from __future__ import annotations
@@ -21,14 +21,13 @@ import numpy as np
 import xarray as xr
 from numpy.typing import ArrayLike, NDArray
 
-from .dataset import build_dataset
 from .errors import ParameterError, StoreError
 from .evaluation import prepare_request, run_points
 from .limits import check_grid
 from .model import Model
 from .progress import ProgressBar
-from .sampling import Sampling
-from .store import (
+from .results.dataset import build_dataset
+from .results.store import (
     FLAT_DIM,
     IDENTITY_ATTR,
     Journal,
@@ -40,6 +39,7 @@ from .store import (
     read_identity,
     write_result,
 )
+from .sampling import Sampling
 from .sweep_plan import Coefficients, SweepPlan, callable_name, make_plan
 
 __all__ = ["sweep", "SweepInterrupted"]

@@ -25,11 +25,11 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from .cluster.executors import ChunkRunner, executor_from_spec
 from .errors import ExecutorError
 from .evaluation import Request, run_points
-from .executors import ChunkRunner, executor_from_spec
 from .progress import ProgressBar
-from .store import journal_path
+from .results.store import journal_path
 from .sweep import TERM_VALUES, _check_names
 from .sweep_plan import SweepPlan
 
@@ -66,7 +66,7 @@ def evaluate_range(
 
 @dataclass(frozen=True)
 class RangeJob:
-    """A sweep's plan as a job of :class:`~toposweep.executors.ChunkRunner`.
+    """A sweep's plan as a job of :class:`~toposweep.cluster.executors.ChunkRunner`.
 
     A task is a flat range ``(start, stop)``; its value the core's arrays of those points.
     """
@@ -89,7 +89,7 @@ class PointsJob:
     --------
     >>> import toposweep as ts
     >>> from toposweep.evaluation import prepare_request
-    >>> from toposweep.executors import ChunkRunner
+    >>> from toposweep.cluster.executors import ChunkRunner
     >>> req = prepare_request(ts.models.bhz(), 2, inversion=None, sampling=ts.Sampling())
     >>> points = [req.model.resolve({"mass": m}) for m in (-1.0, 3.0)]
     >>> with ChunkRunner(None, PointsJob(req)) as runner:   # or a Dask client, a pool

@@ -23,8 +23,8 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from .model import Model
-from .tightbinding import TightBinding
+from ..model import Model
+from ..tightbinding import TightBinding
 
 __all__ = ["band_shift_bounds", "term_norm_bounds"]
 

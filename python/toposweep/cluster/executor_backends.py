@@ -1,9 +1,9 @@
-"""Where the tasks of a :class:`~toposweep.executors.ChunkRunner` run.
+"""Where the tasks of a :class:`~toposweep.cluster.executors.ChunkRunner` run.
 
 Inline, a ``concurrent.futures`` pool, or a Dask client; and the executors a text names
 (``local:N``, ``processes:N``, a scheduler address).
 
-Each backend submits :func:`~toposweep.executor_worker.run_task` and waits for the first of
+Each backend submits :func:`~toposweep.cluster.executor_worker.run_task` and waits for the first of
 several tasks; a pool that toposweep made itself can be remade after one of its processes died.
 """
 
@@ -24,7 +24,7 @@ from concurrent.futures import (
 )
 from typing import Any
 
-from .errors import ExecutorError, ParameterError
+from ..errors import ExecutorError, ParameterError
 from .executor_worker import _host, call_job, run_task
 
 __all__ = ["executor_from_spec", "is_dask_client", "pool_context"]

@@ -21,11 +21,11 @@ import numpy as np
 import xarray as xr
 from numpy.typing import NDArray
 
-from ._version import __version__
+from .._version import __version__
+from ..model import Model
+from ..sampling import Sampling
 from .dataset_assembly import assemble, renewed
 from .dataset_methods import AGREE_FLAGS, Field, Raw, method_fields
-from .model import Model
-from .sampling import Sampling
 
 __all__ = [
     "build_dataset",

@@ -11,13 +11,13 @@ import numpy as np
 import xarray as xr
 from numpy.typing import ArrayLike
 
-from ._version import __version__
-from .dataset import INDEX_FLAGS, PHASES
-from .errors import ParameterError
-from .evaluation import prepare_request, run_points
-from .model import Model
+from .._version import __version__
+from ..errors import ParameterError
+from ..evaluation import prepare_request, run_points
+from ..model import Model
+from ..results.dataset import INDEX_FLAGS, PHASES
+from ..sampling import Sampling
 from .phase_map import labels_of
-from .sampling import Sampling
 from .transitions import STATUS, locate_segments, probe_request, probes_of, segment_search
 
 __all__ = ["find_transition"]
@@ -79,7 +79,7 @@ def find_transition(
     """Locate the bulk gap closing on the segment from ``start`` to ``end``.
 
     The direct gap, minimised over κ by the core's gap search, is followed along
-    p(s) = start + s (end − start) to its smallest value (see :mod:`toposweep.transitions`).
+    p(s) = start + s (end − start) to its smallest value (see :mod:`toposweep.maps.transitions`).
     Both ends are evaluated in full for their phases.
 
     Parameters

@@ -1,8 +1,8 @@
 """Adaptive phase maps: the Dataset of :func:`toposweep.sweep`, evaluating only what is needed.
 
-:mod:`toposweep.adaptive_cells` decides which points to evaluate and how every other point is
-vouched for (proven by the gap bound of :mod:`toposweep.weyl_bound`, or filled by agreement);
-:mod:`toposweep.transitions` then locates the gap closing between every pair of neighbouring
+:mod:`toposweep.maps.adaptive_cells` decides which points to evaluate and how every other point is
+vouched for (proven by the gap bound of :mod:`toposweep.maps.weyl_bound`, or filled by agreement);
+:mod:`toposweep.maps.transitions` then locates the gap closing between every pair of neighbouring
 evaluated points of different phases. This module runs the evaluations through the sweep's own
 chunk loop (Ctrl-C, progress, chunk sizes) and journal (``out=``/``resume=``), and assembles
 the result.
@@ -24,21 +24,12 @@ import numpy as np
 import xarray as xr
 from numpy.typing import ArrayLike, NDArray
 
-from . import sweep as _sweep
-from .adaptive_cells import (
-    EVALUATED,
-    PointTable,
-    RefineSettings,
-    auto_coarse_step,
-    refine,
-)
-from .errors import ParameterError, StoreError
-from .evaluation import _mark, _symmetry_breaks, prepare_request
-from .model import Model
-from .phase_map_dataset import add_map_variables, write_map
-from .progress import ProgressBar
-from .sampling import Sampling
-from .store import (
+from .. import sweep as _sweep
+from ..errors import ParameterError, StoreError
+from ..evaluation import _mark, _symmetry_breaks, prepare_request
+from ..model import Model
+from ..progress import ProgressBar
+from ..results.store import (
     Journal,
     identity_differences,
     journal_path,
@@ -46,10 +37,19 @@ from .store import (
     open_result,
     read_identity,
 )
-from .sweep import SweepInterrupted, _InterruptFlag
-from .sweep_executor import remote_for
-from .sweep_plan import Coefficients, SweepPlan, make_plan
-from .tightbinding import TightBinding
+from ..sampling import Sampling
+from ..sweep import SweepInterrupted, _InterruptFlag
+from ..sweep_executor import remote_for
+from ..sweep_plan import Coefficients, SweepPlan, make_plan
+from ..tightbinding import TightBinding
+from .adaptive_cells import (
+    EVALUATED,
+    PointTable,
+    RefineSettings,
+    auto_coarse_step,
+    refine,
+)
+from .phase_map_dataset import add_map_variables, write_map
 from .transitions import locate_segments, probe_request, probes_of, segment_search
 from .weyl_bound import term_norm_bounds
 

@@ -27,9 +27,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from .evaluation import Request, prepare_request, run_points
-from .sampling import Sampling
-from .tightbinding import TightBinding
+from ..evaluation import Request, prepare_request, run_points
+from ..sampling import Sampling
+from ..tightbinding import TightBinding
 
 __all__ = [
     "STATUS",

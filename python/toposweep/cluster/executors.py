@@ -27,7 +27,8 @@ its ``(start, stop)`` range — and runs tasks of it on an executor:
 
 ``executor=None`` runs the tasks inline in the calling process, so code that drives a
 :class:`ChunkRunner` has one path for both. What a worker runs is in
-:mod:`toposweep.executor_worker`, the kinds of executor in :mod:`toposweep.executor_backends`.
+:mod:`toposweep.cluster.executor_worker`, the kinds of executor in
+:mod:`toposweep.cluster.executor_backends`.
 
 Examples
 --------
@@ -47,7 +48,7 @@ from concurrent.futures import BrokenExecutor, Executor, Future
 from dataclasses import dataclass
 from typing import Any
 
-from .errors import ExecutorError, ParameterError, ToposweepError
+from ..errors import ExecutorError, ParameterError, ToposweepError
 from .executor_backends import _Dask, _Inline, _Pool, executor_from_spec, is_dask_client
 from .executor_backends import pool_context as pool_context
 from .executor_worker import MISSING, fitting_threads, serialise_job

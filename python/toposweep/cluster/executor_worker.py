@@ -1,4 +1,4 @@
-"""The worker side of :mod:`toposweep.executors`: what a task runs, and the job it runs.
+"""The worker side of :mod:`toposweep.cluster.executors`: what a task runs, and the job it runs.
 
 A job is unpickled once per worker process and kept (:data:`KEPT_JOBS` of them), so the model
 and its compiled core serve every later task of the run on that worker. Also here: how the
@@ -18,7 +18,7 @@ import time
 from collections import OrderedDict
 from typing import Any
 
-from .errors import ExecutorError
+from ..errors import ExecutorError
 
 __all__ = ["fitting_threads", "run_task", "serialise_job"]
 

@@ -1,6 +1,6 @@
 """Dataset fields of the second Z2 method and of the convergence certificate.
 
-Kept apart from :mod:`toposweep.dataset` so the headline schema stays readable: this module
+Kept apart from :mod:`toposweep.results.dataset` so the headline schema stays readable: this module
 adds the lattice (Fukui–Hatsugai) indices, ``methods_agree`` and the certificate's loop
 sampling, when the run produced them.
 """

@@ -2,7 +2,7 @@
 
 Per grid point: ``obtained`` (evaluated / proven by the gap bound / filled by agreement) and
 ``gap_bound``. Along the dim ``transition``: where each located gap closing is, what closes
-there and between which phases. The file is the sweep's layout (:func:`toposweep.store.
+there and between which phases. The file is the sweep's layout (:func:`toposweep.results.store.
 write_result`, one block of the whole grid) with the transition variables added before the
 file takes its final name.
 """
@@ -19,11 +19,11 @@ import numpy as np
 import xarray as xr
 from numpy.typing import NDArray
 
+from ..file_digest import append_digest
+from ..results.dataset import PHASES
+from ..results.store import FLAT_DIM, _create, _fsync_dir, write_result
+from ..sweep_plan import SweepPlan
 from .adaptive_cells import EVALUATED, FILLED, PROVEN
-from .dataset import PHASES
-from .file_digest import append_digest
-from .store import FLAT_DIM, _create, _fsync_dir, write_result
-from .sweep_plan import SweepPlan
 from .transitions import STATUS
 
 __all__ = ["OBTAINED", "add_map_variables", "write_map"]

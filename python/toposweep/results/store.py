@@ -39,8 +39,8 @@ import numpy as np
 import xarray as xr
 from numpy.typing import NDArray
 
-from .errors import StoreError
-from .file_digest import DigestError, append_digest, verify
+from ..errors import StoreError
+from ..file_digest import DigestError, append_digest, verify
 
 __all__ = [
     "Journal",
@@ -499,8 +499,8 @@ def write_result(
     """Stream chunk datasets (over the flat dim ``point``) into the NetCDF file ``out``.
 
     ``coords`` holds every coordinate of the final dataset (grid dims first); each chunk is a
-    Dataset from :func:`toposweep.dataset.build_dataset` over ``point``, whose data variables
-    define the schema. The file appears under its name only when complete.
+    Dataset from :func:`toposweep.results.dataset.build_dataset` over ``point``, whose data
+    variables define the schema. The file appears under its name only when complete.
     """
     path = Path(out)
     tmp = path.with_name(path.name + ".writing")

@@ -6,7 +6,7 @@ evaluated points all have the same defined indices is *settled*: each point of i
 evaluated is
 
 * **proven** when some evaluated point q of the cell has a proven gap (``gap_proven``) larger
-  than twice the band-shift bound δ(p, q) of :mod:`toposweep.weyl_bound` — then the gap cannot
+  than twice the band-shift bound δ(p, q) of :mod:`toposweep.maps.weyl_bound` — then the gap cannot
   close between q and p, and p has q's indices;
 * else **filled by agreement** (unless forbidden): for tight-binding models when the same test
   passes with the measured gap (``gap_direct``, a minimum found by search, not a proof); for
