@@ -95,6 +95,9 @@ impl BlochSource for Watched<'_> {
     fn variation(&self) -> Option<&crate::zone::variation::VariationBound> {
         self.inner.variation()
     }
+    fn local_variation(&self, centre: &[f64], half: &[f64; 3]) -> CoreResult<Option<f64>> {
+        self.inner.local_variation(centre, half)
+    }
     fn fill_line(
         &self,
         base: &[f64],

@@ -18,6 +18,7 @@ use crate::point::gap_search::gaps_at;
 use crate::topology::wilson::BandStats;
 use crate::zone::bloch::BlochSource;
 use crate::zone::variation::VariationBound;
+use rayon::prelude::*;
 use std::collections::BinaryHeap;
 
 /// The proven bound aims at this share of the smallest gap seen.
@@ -145,14 +146,36 @@ pub fn prove_gap(
             }
             target = target.min((TARGET_SHARE * g).max(floor));
         }
+        // the global bound first (no Hamiltonian); the boxes it leaves try the bound from the
+        // derivatives at their centre, in parallel, when its remainder leaves room
+        let mut left: Vec<(Cell, f64)> = Vec::new();
         for (c, &g) in batch.iter().zip(&gaps) {
             let lower = g - 2.0 * bound.within(&c.half) - rounding;
             if lower >= target {
                 proven = proven.min(lower);
             } else {
-                children.clear();
-                split(c, dim, &slopes, &mut children);
-                todo.extend(children.drain(..).map(|cell| Pending { key: g, cell }));
+                left.push((*c, g));
+            }
+        }
+        let local: Vec<Option<f64>> = left
+            .par_iter()
+            .map(|(c, g)| {
+                if 2.0 * bound.remainder(&c.half) + rounding >= g - target {
+                    return Ok(None);
+                }
+                Ok(src
+                    .local_variation(&c.centre[..dim], &c.half)?
+                    .map(|d| g - 2.0 * d - rounding))
+            })
+            .collect::<CoreResult<_>>()?;
+        for ((c, g), lower) in left.iter().zip(local) {
+            match lower {
+                Some(lower) if lower >= target => proven = proven.min(lower),
+                _ => {
+                    children.clear();
+                    split(c, dim, &slopes, &mut children);
+                    todo.extend(children.drain(..).map(|cell| Pending { key: *g, cell }));
+                }
             }
         }
     }

@@ -105,6 +105,22 @@ impl VariationBound {
         }
     }
 
+    /// The second-order remainder of the local bound (`Bloch::local_variation`) over the box
+    /// |κ_i − c_i| ≤ h_i: Σ_R 2‖M_R‖ x_R²/2 with x_R = 2π Σ_i |R_i| h_i; infinity for a
+    /// Lipschitz bound (which has no local form).
+    pub fn remainder(&self, h: &[f64; 3]) -> f64 {
+        match self {
+            Self::Hoppings(terms) => terms
+                .iter()
+                .map(|(r, a)| {
+                    let x = std::f64::consts::TAU * (r[0] * h[0] + r[1] * h[1] + r[2] * h[2]);
+                    a * 0.5 * x * x
+                })
+                .sum(),
+            Self::Lipschitz(_) => f64::INFINITY,
+        }
+    }
+
     /// [`Self::within`] for a step of length `delta` along one axis.
     pub fn along(&self, axis: usize, delta: f64) -> f64 {
         let mut h = [0.0; 3];
@@ -204,6 +220,59 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn local_bound_holds_and_is_tighter_on_small_boxes() {
+        // the bound from the derivatives at the centre (Bloch::local_variation) against the
+        // norm of the actual difference at random points of random boxes, at the box corners
+        // (where the first-order term is largest) and inside; then its gain over the global bound
+        let mut rng = TestRng::new(11);
+        let mut u = move || rng.uniform() + 0.5;
+        let (mut local_sum, mut global_sum) = (0.0, 0.0);
+        for seed in 0..5 {
+            let src = random_model(seed).at(&[]).unwrap();
+            let b = src.variation().unwrap().clone();
+            let n = src.norb();
+            for trial in 0..200 {
+                let c: Vec<f64> = (0..3).map(|_| u()).collect();
+                let scale = [1e-4, 1e-3, 1e-2, 0.1][trial % 4];
+                let h = [u() * scale, u() * scale, u() * scale];
+                let local = src.local_variation(&c, &h).unwrap().unwrap();
+                let mut hc = vec![C64::new(0.0, 0.0); n * n];
+                src.fill(&c, &mut hc).unwrap();
+                for corner in 0..12 {
+                    let k: Vec<f64> = (0..3)
+                        .map(|i| {
+                            let s = if corner < 8 {
+                                if (corner >> i) & 1 == 1 {
+                                    1.0
+                                } else {
+                                    -1.0
+                                }
+                            } else {
+                                2.0 * u() - 1.0
+                            };
+                            c[i] + s * h[i]
+                        })
+                        .collect();
+                    let mut hk = hc.clone();
+                    src.fill(&k, &mut hk).unwrap();
+                    let diff: Vec<C64> = hk.iter().zip(&hc).map(|(a, b)| a - b).collect();
+                    let d = norm2(&diff, n);
+                    assert!(d <= local, "{d} > local bound {local} at h = {h:?}");
+                }
+                if scale <= 1e-3 {
+                    local_sum += local;
+                    global_sum += b.within(&h);
+                }
+            }
+        }
+        // (the triangle inequality over five bonds of random matrices: 2.3 here)
+        assert!(
+            global_sum > 1.5 * local_sum,
+            "local {local_sum} vs global {global_sum}"
+        );
     }
 
     #[test]
