@@ -26,9 +26,7 @@ import re
 import sys
 from pathlib import Path
 
-ROOT = Path(__file__).resolve().parent.parent
-SRC = ROOT / "src"
-PKG = ROOT / "python" / "toposweep"
+REPO = Path(__file__).resolve().parent.parent
 
 CRATE_PATH = re.compile(r"\bcrate::((?:[a-z_][a-z0-9_]*::)*[a-z_][a-z0-9_]*)")
 USES_LINE = re.compile(r"^//!\s*Uses:\s*(.*)$", re.MULTILINE)
@@ -40,9 +38,9 @@ def strip_comments(code: str) -> str:
     return "\n".join(line.split("//", 1)[0] for line in code.splitlines())
 
 
-def rust_module(path: Path) -> tuple[str, ...]:
+def rust_module(path: Path, src: Path) -> tuple[str, ...]:
     """src/point/engine.rs -> ("point", "engine"); a mod.rs names its folder, lib.rs ()."""
-    parts = path.relative_to(SRC).with_suffix("").parts
+    parts = path.relative_to(src).with_suffix("").parts
     if parts[-1] in ("mod", "lib"):
         parts = parts[:-1]
     return tuple(parts)
@@ -85,15 +83,16 @@ def find_cycle(graph: dict[str, set[str]]) -> list[list[str]]:
     return sorted(found)
 
 
-def check_rust() -> tuple[list[str], str]:
+def check_rust(root: Path) -> tuple[list[str], str]:
     """The broken rules of src/ and a line of counts."""
+    src = root / "src"
     errors: list[str] = []
-    files = sorted(SRC.rglob("*.rs"))
-    modules = {rust_module(f) for f in files}
-    folders = sorted(p.name for p in SRC.iterdir() if p.is_dir())
+    files = sorted(src.rglob("*.rs"))
+    modules = {rust_module(f, src) for f in files}
+    folders = sorted(p.name for p in src.iterdir() if p.is_dir())
     allowed: dict[str, set[str]] = {}
     for folder in folders:
-        mod = SRC / folder / "mod.rs"
+        mod = src / folder / "mod.rs"
         found = USES_LINE.search(mod.read_text()) if mod.exists() else None
         if found is None:
             errors.append(
@@ -113,7 +112,7 @@ def check_rust() -> tuple[list[str], str]:
     folder_graph: dict[str, set[str]] = {f: set() for f in folders}
     edges = 0
     for f in files:
-        here = rust_module(f)
+        here = rust_module(f, src)
         text = f.read_text()
         test_only = f.name in ("tests.rs", "test_rng.rs")
         cut = TEST_START.search(text)
@@ -129,12 +128,12 @@ def check_rust() -> tuple[list[str], str]:
                 )
                 if not target or target == here[: len(target)] or here == target[: len(here)]:
                     continue  # the crate root, or a module's own parent or child
-                src_folder = here[0] if len(here) > 1 or (SRC / here[0]).is_dir() else None
-                dst_folder = target[0] if (SRC / target[0]).is_dir() else None
+                src_folder = here[0] if len(here) > 1 or (src / here[0]).is_dir() else None
+                dst_folder = target[0] if (src / target[0]).is_dir() else None
                 if not is_test:
                     module_graph.setdefault("::".join(here), set()).add("::".join(target))
                     edges += 1
-                where = f"{f.relative_to(ROOT)}: crate::{m.group(1)}"
+                where = f"{f.relative_to(root)}: crate::{m.group(1)}"
                 if src_folder is None and dst_folder is not None:
                     errors.append(
                         f"{where}: a file at the top of src/ uses the folder {dst_folder}/"
@@ -205,13 +204,14 @@ def python_imports(path: Path, name: str) -> tuple[set[str], set[str]]:
     return every, eager
 
 
-def check_python() -> tuple[list[str], str]:
+def check_python(root: Path) -> tuple[list[str], str]:
     """The broken rules of python/toposweep/ and a line of counts."""
+    pkg = root / "python" / "toposweep"
     errors: list[str] = []
-    files = sorted(PKG.rglob("*.py"))
+    files = sorted(pkg.rglob("*.py"))
     names = {}
     for f in files:
-        rel = f.relative_to(PKG.parent).with_suffix("")
+        rel = f.relative_to(pkg.parent).with_suffix("")
         parts = rel.parts[:-1] if rel.name == "__init__" else rel.parts
         names[".".join(parts)] = f
     package_graph: dict[str, set[str]] = {}
@@ -236,7 +236,7 @@ def check_python() -> tuple[list[str], str]:
         }
     notes = []
     for comp in find_cycle(package_graph):
-        if any((PKG / c.split(".")[1]).is_dir() for c in comp):
+        if any((pkg / c.split(".")[1]).is_dir() for c in comp):
             errors.append("python/toposweep: a subpackage in a circle: " + ", ".join(comp))
         else:
             notes.append(", ".join(comp))
@@ -254,12 +254,13 @@ def check_python() -> tuple[list[str], str]:
     return errors, summary
 
 
-def main() -> int:
-    """Run both checks; 1 if any rule is broken."""
+def main(argv: list[str]) -> int:
+    """Run both checks on the repository (or the folder given); 1 if any rule is broken."""
+    root = Path(argv[0]) if argv else REPO
     errors: list[str] = []
     summaries = []
     for check in (check_rust, check_python):
-        found, summary = check()
+        found, summary = check(root)
         errors += found
         summaries.append(summary)
     if errors:
@@ -271,4 +272,4 @@ def main() -> int:
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    sys.exit(main(sys.argv[1:]))
