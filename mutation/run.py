@@ -186,9 +186,11 @@ class GroupResult:
     why: str
     counts: dict[str, int]
     survivors: list[Survivor]
-    seconds: float
+    seconds: float  # the full run of the group (a recheck adds recheck_seconds)
     finished: str = ""
     command: str = ""
+    recheck_seconds: float = 0.0
+    load: str = ""  # the host's 1-minute load average at the start and at the end
 
 
 def nice(cmd: list[str]) -> list[str]:
@@ -196,13 +198,53 @@ def nice(cmd: list[str]) -> list[str]:
     return ["nice", "-n", "15", *cmd]
 
 
+def load_now() -> float:
+    """The host's 1-minute load average (times on a shared host mean little without it)."""
+    return os.getloadavg()[0]
+
+
+def key_without_folders(key: str) -> str:
+    """A survivor key with its file's folders dropped: keys stay valid when files move."""
+    path, sep, rest = key.partition("|")
+    return Path(path).name + sep + rest
+
+
+def _python_key(module_path: str, op: str, line: str, plus: list[str]) -> str:
+    return f"{module_path}|{op}|{line.strip()}|{plus[0] if plus else ''}"
+
+
+def _added_lines(diff: str) -> list[str]:
+    lines = diff.splitlines()
+    return [d[1:].strip() for d in lines if d.startswith("+") and not d.startswith("++")]
+
+
+def _python_mutant_key(m) -> str:
+    """The key of a cosmic-ray mutation spec, computed without running it (for a recheck)."""
+    import difflib
+
+    import cosmic_ray.plugins
+    from cosmic_ray.mutating import mutate_code
+
+    source = (ROOT / m.module_path).read_text()
+    operator = cosmic_ray.plugins.get_operator(m.operator_name)(**(m.operator_args or {}))
+    mutated = mutate_code(source, operator, m.occurrence) or source
+    diff = "\n".join(difflib.unified_diff(source.split("\n"), mutated.split("\n"), lineterm=""))
+    line = source.splitlines()[m.start_pos[0] - 1]
+    return _python_key(
+        str(m.module_path), m.operator_name.removeprefix("core/"), line, _added_lines(diff)
+    )
+
+
 # -- Python: cosmic-ray ---------------------------------------------------------------------------
-def run_python_group(g: PythonGroup, work: Path) -> GroupResult:
-    """Initialise a cosmic-ray session, skip what is out of scope, run it, collect it."""
+def run_python_group(g: PythonGroup, work: Path, only: set[str] | None = None) -> GroupResult:
+    """Initialise a cosmic-ray session, skip what is out of scope, run it, collect it.
+
+    ``only``: run just the mutants with these keys (a recheck of the last run's survivors).
+    """
     from cosmic_ray.work_db import WorkDB, use_db
     from cosmic_ray.work_item import TestOutcome, WorkerOutcome, WorkResult
 
-    start = time.monotonic()
+    start, load_start = time.monotonic(), load_now()
     config = work / f"{g.name}.toml"
     session = work / f"{g.name}.sqlite"
     tests = " ".join(g.tests)
@@ -222,7 +264,17 @@ def run_python_group(g: PythonGroup, work: Path) -> GroupResult:
         for item in list(db.pending_work_items):
             m = item.mutations[0]
             outside = g.definitions is not None and (m.definition_name or "") not in g.definitions
-            if pattern.match(m.operator_name) or outside:
+            skip = pattern.match(m.operator_name) or outside
+            if not skip and only is not None:
+                line = (ROOT / m.module_path).read_text().splitlines()[m.start_pos[0] - 1]
+                op = m.operator_name.removeprefix("core/")
+                # (keys compared without folders: a file may have moved since the last run)
+                prefix = key_without_folders(_python_key(str(m.module_path), op, line, []))
+                maybe = any(key_without_folders(k).startswith(prefix) for k in only)
+                skip = not maybe or key_without_folders(_python_mutant_key(m)) not in {
+                    key_without_folders(k) for k in only
+                }
+            if skip:
                 db.set_result(
                     item.job_id,
                     WorkResult(output="not in scope", worker_outcome=WorkerOutcome.SKIPPED),
@@ -256,18 +308,49 @@ def run_python_group(g: PythonGroup, work: Path) -> GroupResult:
                 m = item.mutations[0]
                 line = (ROOT / m.module_path).read_text().splitlines()[m.start_pos[0] - 1]
                 op = m.operator_name.removeprefix("core/")
-                diff = (result.diff or "").splitlines()
-                plus = [d[1:].strip() for d in diff if d.startswith("+") and not d.startswith("++")]
+                plus = _added_lines(result.diff or "")
                 became = f" → `{plus[0]}`" if plus else ""
                 survivors.append(
                     Survivor(
                         g.name,
                         f"{m.module_path}:{m.start_pos[0]} ({m.definition_name or 'module'})",
                         f"{op}: `{line.strip()}`{became}",
-                        f"{m.module_path}|{op}|{line.strip()}|{plus[0] if plus else ''}",
+                        _python_key(str(m.module_path), op, line, plus),
                     )
                 )
-    return GroupResult(g.name, "cosmic-ray", g.why, counts, survivors, time.monotonic() - start)
+    r = GroupResult(g.name, "cosmic-ray", g.why, counts, survivors, time.monotonic() - start)
+    r.load = f"{load_start:.1f}–{load_now():.1f}"
+    return r
+
+
+def recheck_python_group(g: PythonGroup, work: Path) -> GroupResult:
+    """Run again only the group's last survivors (after new tests); see ``recheck``."""
+    state = json.loads(STATE.read_text())[g.name]
+    keys = {entry[2] for entry in state["survivors"]}
+    again = run_python_group(g, work, only=keys)
+    if sum(again.counts.values()) != len(keys):
+        raise SystemExit(f"{g.name}: {len(keys)} survivors to recheck, found others (edited?)")
+    return _after_recheck(g.name, state, again)
+
+
+def _after_recheck(name: str, state: dict, again: GroupResult) -> GroupResult:
+    """The last full run's counts with the rechecked survivors that are now caught as killed.
+
+    A recheck may run a few more mutants than the survivors (cargo-mutants is told them by
+    description, which some share); one of those surviving now is counted as a survivor too.
+    """
+    counts = dict(state["counts"])
+    old = {key_without_folders(entry[2]) for entry in state["survivors"]}
+    still = [s for s in again.survivors if key_without_folders(s.key) in old]
+    extra = len(again.survivors) - len(still)
+    caught = len(old) - len(still)
+    counts["survived"] = counts.get("survived", 0) - caught + extra
+    counts["killed"] = counts.get("killed", 0) + caught - extra
+    r = GroupResult(name, again.tool, again.why, counts, again.survivors, state["seconds"])
+    r.recheck_seconds = state.get("recheck_seconds", 0) + again.seconds
+    r.load = state.get("load", "")
+    r.command = state.get("command", "")  # the full run's; the recheck is noted beside it
+    return r
 
 
 # -- Rust: cargo-mutants --------------------------------------------------------------------------
@@ -279,27 +362,24 @@ def recheck_rust_group(g: RustGroup, work: Path) -> GroupResult:
     state = json.loads(STATE.read_text())[g.name]
     names = [entry[3] for entry in state["survivors"]]
     again = run_rust_group(g, work, only=names)
-    still = {s.name for s in again.survivors}
-    counts = dict(state["counts"])
-    caught = len(names) - len(still)
-    counts["survived"] = counts.get("survived", 0) - caught
-    counts["killed"] = counts.get("killed", 0) + caught
-    survivors = list(again.survivors)
-    return GroupResult(
-        g.name, "cargo-mutants", g.why, counts, survivors, state["seconds"] + again.seconds
-    )
+    return _after_recheck(g.name, state, again)
 
 
 def run_rust_group(g: RustGroup, work: Path, only: list[str] | None = None) -> GroupResult:
     """Run cargo-mutants on the group's files with the kernels' unit tests."""
-    start = time.monotonic()
+    start, load_start = time.monotonic(), load_now()
     out = work / g.name
+    # In place, one mutant at a time: the worktree's warm target/ is rebuilt incrementally (a
+    # few seconds per mutant); two jobs in copies of the tree each start with a cold build of
+    # every dependency and took ~30 s per mutant on this host (rust-indices, rust-parity).
+    # The group's files are restored by cargo-mutants when it ends (checked below).
     cmd = [
         "cargo",
         "mutants",
         "--no-shuffle",
+        "--in-place",
         "--jobs",
-        "2",
+        "1",
         "--timeout",
         "300",
         "--output",
@@ -309,11 +389,19 @@ def run_rust_group(g: RustGroup, work: Path, only: list[str] | None = None) -> G
     for f in g.files:
         cmd += ["--file", f]
     for name in only or []:
-        cmd += ["--re", "^" + re.escape(name) + "$"]
+        # by file name and description, not by folder and line: both may have changed since
+        # the run that found the survivor (tests added above, files moved)
+        file, desc = re.match(r"^(\S+?):\d+:\d+:\s*(.*)$", name).groups()
+        pattern = rf"^src/(?:.*/)?{_regex_escape(Path(file).name)}:\d+:\d+: {_regex_escape(desc)}$"
+        cmd += ["--re", pattern]
     cmd += ["--", "--lib"]
     if g.test_filter:
         cmd += ["--", *g.test_filter]
     done = subprocess.run(nice(cmd), cwd=ROOT)
+    dirty = subprocess.run(
+        ["git", "status", "--porcelain", "--", *g.files], cwd=ROOT, capture_output=True, text=True
+    ).stdout
+    assert not dirty, f"cargo-mutants left a file changed:\n{dirty}"
     if done.returncode not in (0, 2, 3):  # 2: missed mutants, 3: timeouts (judged below)
         raise SystemExit(f"cargo mutants failed ({done.returncode})")
     outcomes = json.loads((out / "mutants.out" / "outcomes.json").read_text())
@@ -348,7 +436,14 @@ def run_rust_group(g: RustGroup, work: Path, only: list[str] | None = None) -> G
                     name=mutant["name"],
                 )
             )
-    return GroupResult(g.name, "cargo-mutants", g.why, counts, survivors, time.monotonic() - start)
+    r = GroupResult(g.name, "cargo-mutants", g.why, counts, survivors, time.monotonic() - start)
+    r.load = f"{load_start:.1f}–{load_now():.1f}"
+    return r
+
+
+def _regex_escape(text: str) -> str:
+    """Escape the metacharacters only (Rust's regex refuses escapes such as a backslash-space)."""
+    return re.sub(r"([\\.+*?()|\[\]{}^$#&~-])", r"\\\1", text)
 
 
 def _rust_description(mutant: dict) -> str:
@@ -363,23 +458,31 @@ def load_equivalent() -> dict[str, str]:
     if not EQUIVALENT.exists():
         return {}
     data = tomllib.loads(EQUIVALENT.read_text())
-    return {e["key"]: e["reason"] for e in data.get("mutant", [])}
+    return {key_without_folders(e["key"]): e["reason"] for e in data.get("mutant", [])}
 
 
 def remember(results: list[GroupResult], argv: list[str]) -> list[GroupResult]:
     """Merge this run's groups into ``mutation/last_run.json``; return every group's last run."""
     state = json.loads(STATE.read_text()) if STATE.exists() else {}
     stamp = time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime())
+    command = " ".join(["python", "mutation/run.py", *argv])
     for r in results:
-        state[r.name] = {
+        entry = {
             "tool": r.tool,
             "why": r.why,
             "counts": r.counts,
             "seconds": round(r.seconds),
+            "load": r.load,
             "finished": stamp,
-            "command": " ".join(["python", "mutation/run.py", *argv]),
+            "command": command,
             "survivors": [[s.where, s.what, s.key, s.name] for s in r.survivors],
         }
+        if r.recheck_seconds:  # a recheck: the full run's command and time stand
+            entry["command"] = r.command
+            entry["finished"] = state[r.name]["finished"]
+            entry["recheck_seconds"] = round(r.recheck_seconds)
+            entry["rechecked"] = f"{stamp}, `{command}`"
+        state[r.name] = entry
     STATE.write_text(json.dumps(state, indent=1, sort_keys=True, ensure_ascii=False) + "\n")
     out = []
     for name, g in state.items():
@@ -390,6 +493,10 @@ def remember(results: list[GroupResult], argv: list[str]) -> list[GroupResult]:
         out.append(GroupResult(name, g["tool"], g["why"], g["counts"], survivors, g["seconds"]))
         out[-1].finished = g["finished"]
         out[-1].command = g.get("command", "")
+        out[-1].recheck_seconds = g.get("recheck_seconds", 0)
+        out[-1].load = g.get("load", "")
+        if g.get("rechecked"):
+            out[-1].command += f"; survivors rechecked {g['rechecked']}"
     return out
 
 
@@ -408,23 +515,30 @@ def write_report(results: list[GroupResult], argv: list[str]) -> int:
         "Each group's row is its last run (`mutation/last_run.json`); `make mutants` runs them",
         "all, `python mutation/run.py --group NAME` one.",
         "",
-        "| group | tool | what | mutants run | killed | survived | other | minutes | run |",
-        "|---|---|---|---|---|---|---|---|---|",
+        "Minutes are the group's full run (a recheck of its survivors after new tests is",
+        "timed apart); seconds per mutant and the host's load (1-minute average at start and",
+        "end; 2 cores shared by several people) say how far a time can be trusted.",
+        "",
+        "| group | tool | what | mutants run | killed | survived | other | minutes | "
+        "s per mutant | load | run |",
+        "|---|---|---|---|---|---|---|---|---|---|---|",
     ]
     for r in results:
         run = sum(r.counts.values())
         other = {k: v for k, v in r.counts.items() if k not in ("killed", "survived")}
+        recheck = f" (+{r.recheck_seconds / 60:.1f} recheck)" if r.recheck_seconds else ""
         lines.append(
             f"| {r.name} | {r.tool} | {r.why} | {run} | {r.counts.get('killed', 0)} | "
             f"{r.counts.get('survived', 0)} | "
             f"{', '.join(f'{k} {v}' for k, v in sorted(other.items())) or '–'} | "
-            f"{r.seconds / 60:.1f} | {r.finished}, `{r.command}` |"
+            f"{r.seconds / 60:.1f}{recheck} | {r.seconds / max(run, 1):.0f} | "
+            f"{r.load or '–'} | {r.finished}, `{r.command}` |"
         )
     done = {r.name for r in results}
     for g in [*PYTHON_GROUPS, *RUST_GROUPS]:
         if g.name not in done:
             tool = "cosmic-ray" if isinstance(g, PythonGroup) else "cargo-mutants"
-            lines.append(f"| {g.name} | {tool} | {g.why} | not run yet | | | | | |")
+            lines.append(f"| {g.name} | {tool} | {g.why} | not run yet | | | | | | | |")
     lines += ["", "## Survivors", ""]
     any_survivor = False
     for r in results:
