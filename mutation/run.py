@@ -377,9 +377,7 @@ def run_rust_group(g: RustGroup, work: Path, only: list[str] | None = None) -> G
         "cargo",
         "mutants",
         "--no-shuffle",
-        "--in-place",
-        "--jobs",
-        "1",
+        "--in-place",  # (one job: cargo-mutants refuses --jobs with it)
         "--timeout",
         "300",
         "--output",
