@@ -35,6 +35,7 @@ import subprocess
 import sys
 import tempfile
 import time
+from collections import Counter
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -340,10 +341,12 @@ def _after_recheck(name: str, state: dict, again: GroupResult) -> GroupResult:
     description, which some share); one of those surviving now is counted as a survivor too.
     """
     counts = dict(state["counts"])
-    old = {key_without_folders(entry[2]) for entry in state["survivors"]}
-    still = [s for s in again.survivors if key_without_folders(s.key) in old]
-    extra = len(again.survivors) - len(still)
-    caught = len(old) - len(still)
+    # (a Counter: mutants at two places of one line share a key)
+    old = Counter(key_without_folders(entry[2]) for entry in state["survivors"])
+    now = Counter(key_without_folders(s.key) for s in again.survivors)
+    still = sum(min(n, old[k]) for k, n in now.items())
+    extra = len(again.survivors) - still
+    caught = sum(old.values()) - still
     counts["survived"] = counts.get("survived", 0) - caught + extra
     counts["killed"] = counts.get("killed", 0) + caught - extra
     r = GroupResult(name, again.tool, again.why, counts, again.survivors, state["seconds"])
@@ -542,7 +545,7 @@ def write_report(results: list[GroupResult], argv: list[str]) -> int:
     for r in results:
         for s in r.survivors:
             any_survivor = True
-            s.reason = equivalent.get(s.key)
+            s.reason = equivalent.get(key_without_folders(s.key))
             if s.reason is None:
                 unexplained += 1
             verdict = f"equivalent: {s.reason}" if s.reason else "**UNEXPLAINED: add a test**"
