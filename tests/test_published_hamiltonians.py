@@ -253,3 +253,34 @@ DOCUMENTED_DEFAULTS = {
 @pytest.mark.parametrize("name", sorted(DOCUMENTED_DEFAULTS))
 def test_defaults_are_the_documented_ones(name):
     assert getattr(ts.models, name)().defaults == DOCUMENTED_DEFAULTS[name]
+
+
+# the lattice (Cartesian rows, a = 1) and the sites each reference above is written on: simple
+# cubic for the Wilson–Dirac and d–f models and square for BHZ (k = 2πκ, one site per cell,
+# every orbital on it), and the honeycomb and fcc lattices typed in for Kane–Mele and diamond
+REFERENCE_GEOMETRY = {
+    "bhz": (np.eye(2), np.zeros((1, 2))),
+    "df_lattice": (np.eye(3), np.zeros((1, 3))),
+    "fu_kane_mele": (FKM_LATTICE, FKM_SITES),
+    "kane_mele": (KM_LATTICE, KM_SITES),
+    "wilson_dirac": (np.eye(3), np.zeros((1, 3))),
+}
+
+
+def test_every_builtin_model_has_a_reference_geometry():
+    assert set(REFERENCE_GEOMETRY) == set(ts.models.__all__)
+
+
+@pytest.mark.parametrize("name", sorted(REFERENCE_GEOMETRY))
+def test_lattice_and_orbital_sites_are_the_references(name):
+    """H(κ) in reduced coordinates does not show the lattice, but the model carries it into
+    every result's provenance (``to_dict``) and its orbital positions place the Wannier
+    centres: both must be the geometry the published formula is written on (two orbitals,
+    spin up and down or two orbitals of one atom, per site)."""
+    model = getattr(ts.models, name)()
+    lattice, sites = REFERENCE_GEOMETRY[name]
+    np.testing.assert_allclose(model.lattice, lattice, atol=1e-15)
+    assert model.to_dict()["lattice"] == model.lattice.tolist()
+    reduced = np.zeros((model.norb, model.dim)) if model.positions is None else model.positions
+    want = np.repeat(sites, model.norb // len(sites), axis=0)
+    np.testing.assert_allclose(reduced @ model.lattice, want, atol=1e-12)
