@@ -79,6 +79,46 @@ def test_map_transitions_lie_on_the_published_boundaries(wilson_dirac_maps) -> N
     assert (pm.transition_phase_low.values != pm.transition_phase_high.values).any()
 
 
+def test_points_next_to_a_boundary_skip_the_proof_unless_near_the_floor(monkeypatch) -> None:
+    """Corners of one-spacing cells prove nothing for the map: under prove_gap="auto" they are
+    evaluated without the gap proof, except where the sweep's setting could make them
+    undefined (smallest gap under 100 floors): there the point is evaluated as the sweep does.
+
+    Wilson–Dirac at t = 1 closes its gap at m = 1 and m = 3 (Qi, Hughes & Zhang, PRB 78,
+    195424 (2008)); the direct gap is 2|m − m*| at the inverting TRIM, so m = 1.0001 lies ~2.5
+    floors from the closing (floor 8e-5, 1e-5 of the bandwidth) and m = 3.05 ~1250 floors.
+    """
+    model = ts.models.wilson_dirac()
+    mass = [0.6, 0.8, 0.98, 1.0001, 1.02, 1.5, 2.0, 2.5, 2.9, 3.05, 3.2]
+    grid = {"mass": mass}
+    sw = ts.sweep(model, grid, 2, progress=False)
+    asked: list[tuple[str, list[float]]] = []
+    run_points = sweep_module.run_points
+
+    def recording(request, points):  # type: ignore[no-untyped-def]
+        asked.append((request.sampling.prove_gap, [p["mass"] for p in points]))
+        return run_points(request, points)
+
+    monkeypatch.setattr(sweep_module, "run_points", recording)
+    pm = ts.phase_map(model, grid, 2, progress=False, coarse_step=2)
+    ev = pm.obtained.values == 0
+    assert ev.tolist() == [i % 2 == 0 or i in (3, 9) for i in range(len(mass))]
+    # 3 and 9 are next to the closings: without the proof first, 3 again with it (near floor)
+    assert asked[-2:] == [("never", [1.0001, 3.05]), ("auto", [1.0001])]
+    assert {p for p, _ in asked[:-2]} == {"auto"}
+    for name in sw.data_vars:
+        if name == "gap_proven":
+            continue
+        np.testing.assert_array_equal(pm[name].values[ev], sw[name].values[ev], err_msg=name)
+    # next to the floor the proof is the sweep's (and succeeds: 2.5 floors, ~1e-4 proven)
+    assert np.isfinite(sw.gap_proven.values[3])
+    assert pm.gap_proven.values[3] == sw.gap_proven.values[3]
+    assert np.isnan(pm.gap_proven.values[9])  # not proven: not attempted
+    other = ev & (np.arange(len(mass)) % 2 == 0)
+    np.testing.assert_array_equal(pm.gap_proven.values[other], sw.gap_proven.values[other])
+    assert np.isclose(pm.transition_mass.values, [1.0, 3.0], rtol=1e-5).all()
+
+
 def test_proof_path_with_a_stand_in_bound(monkeypatch) -> None:
     """With a proven gap the Weyl bound vouches for points; they all match the sweep."""
     model = ts.models.bhz()

@@ -205,9 +205,50 @@ def _decide(
     return Claims(todo.astype(np.int64), how, source.astype(np.int64), bound, seen)
 
 
+def _edge_midpoints(
+    cells: list[Cell], table: PointTable
+) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Midpoints of the cells' edges: those whose two ends agree, and all the others.
+
+    An edge joins two corners that differ along one axis. Its midpoint can wait when both ends
+    are evaluated with the same defined indices: a boundary that crosses the cell crosses
+    some other edge or the cell's interior, where points are evaluated now, and the children
+    next to the waiting point either settle it (proof or agreement, as any point) or, still
+    undecided, evaluate it in the next round.
+    """
+    shape = table.shape
+    agree: list[NDArray[np.int64]] = []
+    other: list[NDArray[np.int64]] = []
+    for axis in range(len(shape)):
+        wide = [c for c in cells if c[1][axis] - c[0][axis] >= 2]
+        if not wide:
+            continue
+        lo = np.array([c[0] for c in wide])
+        hi = np.array([c[1] for c in wide])
+        rest = [a for a in range(len(shape)) if a != axis]
+        picks = np.array(list(itertools.product((0, 1), repeat=len(rest))), bool)
+        picks = picks.reshape(2 ** len(rest), len(rest))
+        for pick in picks:
+            start = lo.copy()
+            start[:, rest] = np.where(pick, hi[:, rest], lo[:, rest])
+            end, mid = start.copy(), start.copy()
+            end[:, axis] = hi[:, axis]
+            mid[:, axis] = (lo[:, axis] + hi[:, axis]) // 2
+            a, b, m = (np.ravel_multi_index(tuple(x.T), shape) for x in (start, end, mid))
+            la, lb = table.label[a], table.label[b]
+            same = (la >= 0) & (la == lb)
+            agree.append(m[same])
+            other.append(m[~same])
+    empty = np.zeros(0, np.int64)
+    return (
+        np.unique(np.concatenate(agree)) if agree else empty,
+        np.unique(np.concatenate(other)) if other else empty,
+    )
+
+
 def refine(
     table: PointTable,
-    evaluate: Callable[[NDArray[np.int64]], None],
+    evaluate: Callable[[NDArray[np.int64], NDArray[np.bool_]], None],
     settings: RefineSettings,
     *,
     coeffs: NDArray[np.float64] | None = None,
@@ -216,12 +257,17 @@ def refine(
 ) -> tuple[NDArray[np.int8], NDArray[np.int64], NDArray[np.float64]]:
     """Evaluate a grid adaptively; returns per point ``(how, source, bound)``.
 
-    ``evaluate(indices)`` must evaluate the given flat indices (sorted, none evaluated before)
-    and set their ``label``, ``gap_direct``, ``gap_proven`` and ``bandwidth`` in ``table``.
+    ``evaluate(indices, last)`` must evaluate the given flat indices (sorted, none evaluated
+    before) and set their ``label``, ``gap_direct``, ``gap_proven`` and ``bandwidth`` in
+    ``table``; ``last`` marks the points that are corners of one-spacing cells only, whose
+    proven gap can vouch for no other point (the caller may skip proving it there).
     ``coeffs`` (points × terms) and ``bounds`` (terms) enable the proof; ``forced`` points
     are evaluated in the first round whatever happens. ``how`` is EVALUATED/PROVEN/FILLED,
     ``source`` the evaluated point whose indices a point carries (itself if evaluated),
     ``bound`` the proven lower bound of the gap at PROVEN points (NaN elsewhere).
+
+    When a cell is split, the midpoints of its edges whose ends agree wait a round (see
+    :func:`_edge_midpoints`); every other new corner is evaluated at once.
     """
     shape = table.shape
     step = max(1, int(settings.coarse_step))
@@ -235,22 +281,35 @@ def refine(
     first = np.ravel_multi_index(np.ix_(*[np.array(a) for a in axes]), shape).ravel()
     if forced is not None and forced.size:
         first = np.union1d(first, forced)
-    evaluate(np.unique(first).astype(np.int64))
+    first = np.unique(first).astype(np.int64)
+    evaluate(first, np.zeros(first.size, bool))
+    waited = np.zeros(table.label.size, bool)  # midpoints that waited once already
 
     def run(pending: list[Cell]) -> None:
         while pending:
             children: list[Cell] = []
+            split: list[Cell] = []
             for cell in pending:
                 claims = _decide(cell, table, coeffs, bounds, settings)
                 if claims is None:
                     children += _split(cell)
+                    split.append(cell)
                 else:
                     leaves[cell] = claims
             if children:
                 new = _all_corners(children, shape)
                 new = new[table.label[new] == UNSEEN]
+                agree, other = _edge_midpoints(split, table)
+                wait = np.setdiff1d(agree, other)
+                wait = wait[~waited[wait]]
+                waited[wait] = True
+                new = np.setdiff1d(new, wait)
                 if new.size:
-                    evaluate(new.astype(np.int64))
+                    wide = [c for c in children if max(b - a for a, b in zip(*c, strict=True)) > 1]
+                    last = ~np.isin(new, _all_corners(wide, shape)) if wide else None
+                    evaluate(
+                        new.astype(np.int64), np.ones(new.size, bool) if last is None else last
+                    )
             pending = children
 
     leaves: dict[Cell, Claims] = {}
@@ -270,7 +329,7 @@ def refine(
         how, source, bound, conflicts = _merge(leaves, table)
         if conflicts.size == 0:
             return how, source, bound
-        evaluate(conflicts)
+        evaluate(conflicts, np.zeros(conflicts.size, bool))
 
 
 def _merge(

@@ -143,7 +143,14 @@ def segment_search(
     def gap_of(p: Probe) -> float:
         return p.gap if np.isfinite(p.gap) else math.inf
 
-    yield from ask([(j + 1) / (interior + 1) for j in range(interior)])
+    g0, g1 = gap_of(ends[0]), gap_of(ends[1])
+    if interior == 1 and not same_phase and 0 < g0 < math.inf and 0 < g1 < math.inf:
+        # a V with equal slopes through both ends: exact for a band inversion driven by a
+        # term whose sign flips (Wilson–Dirac mass), a near guess otherwise; the V fit and the
+        # golden-section fallback take it from there as from the midpoint
+        yield from ask([min(0.95, max(0.05, g0 / (g0 + g1)))])
+    else:
+        yield from ask([(j + 1) / (interior + 1) for j in range(interior)])
     widths: list[float] = []
     for _ in range(MAX_ROUNDS):
         s = sorted(pts)
