@@ -63,7 +63,7 @@ WORK_COUNTERS = ("lines_used", "loop_points_used", "lattice_loop_points")
 #: default transition_tol, as a fraction of a grid spacing
 TRANSITION_TOL = 1e-3
 #: under prove_gap="auto" the core makes a point whose proof is unfinished undefined when its
-#: smallest gap found is under this many gap floors (the core's ``engine::NEAR_FLOOR``)
+#: smallest gap found is under this many gap floors (the core's ``sampling::NEAR_FLOOR``)
 NEAR_FLOOR = 100.0
 
 
