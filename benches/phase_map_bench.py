@@ -4,15 +4,17 @@ For each map: how many points were evaluated, proven and filled, how many transi
 located, whether the map agrees with the sweep (phase and indices) at every point where both
 are defined — counted separately for proven and for filled points — how many points the map
 leaves undefined where the sweep is defined, and the wall times of both (same machine, one
-right after the other; default sampling, all cores). Part of ``make bench``
-(``benches/run_all.py``); alone::
+right after the other; default sampling, all cores), with the host's load average while
+they ran. With ``--rounds N`` map and sweep alternate N times and every round's ratio is
+shown (the spread on a shared host). Part of ``make bench`` (``benches/run_all.py``); alone::
 
-    nice .venv/bin/python benches/phase_map_bench.py [--quick]
+    nice .venv/bin/python benches/phase_map_bench.py [--quick] [--rounds N] [--only TEXT]
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import time
 from typing import Any
 
@@ -80,32 +82,40 @@ def compare(pm: xr.Dataset, sw: xr.Dataset) -> dict[str, int]:
     }
 
 
-def table(quick: bool) -> list[str]:
-    """Markdown rows: one per map."""
+def table(quick: bool, rounds: int = 1, only: str | None = None) -> list[str]:
+    """Markdown rows: one per map (best times of ``rounds`` alternating rounds)."""
     out = [
         "| map | points | evaluated | proven | filled | transitions | disagree (proven / "
         "filled) | undefined only in map / only in sweep | sweep (s) | map (s) | "
-        "evaluated share | time ratio |",
-        "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|",
+        "evaluated share | time ratio | ratio per round | load (1 min) |",
+        "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|",
     ]
     ts.sweep(ts.models.bhz(), {"mass": [0.5, 1.0]}, 2, progress=False)  # one-off set-up costs
     for label, model, grid, params in cases(quick):
-        t0 = time.perf_counter()
-        pm = ts.phase_map(model, grid, 2, params=params, progress=False)
-        t_map = time.perf_counter() - t0
-        t0 = time.perf_counter()
-        sw = ts.sweep(model, grid, 2, params=params, progress=False)
-        t_sweep = time.perf_counter() - t0
+        if only is not None and only not in label:
+            continue
+        maps, sweeps, loads = [], [], [os.getloadavg()[0]]
+        for _ in range(rounds):
+            t0 = time.perf_counter()
+            pm = ts.phase_map(model, grid, 2, params=params, progress=False)
+            maps.append(time.perf_counter() - t0)
+            t0 = time.perf_counter()
+            sw = ts.sweep(model, grid, 2, params=params, progress=False)
+            sweeps.append(time.perf_counter() - t0)
+            loads.append(os.getloadavg()[0])
+        t_map, t_sweep = min(maps), min(sweeps)
         c = compare(pm, sw)
         assert c["evaluated"] == 0, "evaluated points must equal the sweep's"
         n = pm.phase.size
         ev = int(pm.attrs["points_evaluated"])
         shape = " × ".join(str(len(v)) for v in grid.values())
+        per_round = " / ".join(f"{a / b:.1f}" for a, b in zip(sweeps, maps, strict=True))
         out.append(
             f"| {label} ({shape}) | {n} | {ev} | {pm.attrs['points_proven']} | "
             f"{pm.attrs['points_filled_by_agreement']} | {pm.sizes['transition']} | "
             f"{c['proven']} / {c['filled']} | {c['map_undefined']} / {c['sweep_undefined']} | "
-            f"{t_sweep:.1f} | {t_map:.1f} | {ev / n:.3f} | {t_sweep / t_map:.1f}× |"
+            f"{t_sweep:.1f} | {t_map:.1f} | {ev / n:.3f} | {t_sweep / t_map:.1f}× | "
+            f"{per_round} | {min(loads):.1f}–{max(loads):.1f} |"
         )
         print(out[-1], flush=True)
     return out
@@ -113,7 +123,9 @@ def table(quick: bool) -> list[str]:
 
 NOTE = (
     "`benches/phase_map_bench.py`: `ts.phase_map` against `ts.sweep` of the same grid, default "
-    "options and sampling, all cores, the map first and the sweep right after it. 'disagree' "
+    "options and sampling, all cores, the map first and the sweep right after it (best of the "
+    "rounds when they alternate; every round's ratio and the 1-minute load average beside). "
+    "'disagree' "
     "counts points where both are defined and phase or indices differ, split by how the map "
     "obtained them (evaluated points are asserted equal); 'undefined only in map / only in "
     "sweep' counts points one of them leaves undefined. Proven points need the core's "
@@ -124,8 +136,10 @@ NOTE = (
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="coarser grids")
+    parser.add_argument("--rounds", type=int, default=1, help="alternating map/sweep rounds")
+    parser.add_argument("--only", help="only the maps whose label contains this text")
     args = parser.parse_args()
-    print("\n".join(table(args.quick)))
+    print("\n".join(table(args.quick, args.rounds, args.only)))
 
 
 if __name__ == "__main__":

@@ -230,14 +230,21 @@ class TightBinding(Model):
         The fixed part and every term are checked once at random κ; a parameter point then
         costs one small linear combination, so sweeps of any size check every point.
         """
+        coeffs = np.array([[p[t] for t in self._terms] for p in points], float)
+        return self.coefficient_residuals(
+            coeffs.reshape(len(points), len(self._terms)), operator, kind
+        )
+
+    def coefficient_residuals(
+        self, coeffs: NDArray[np.float64], operator: NDArray[np.complex128], kind: str
+    ) -> NDArray[np.float64]:
+        """:meth:`symmetry_residuals` of points given as rows of term coefficients."""
         resid, hp = self._term_residuals(operator, kind)
         nterm = len(self._terms)
-        coeffs = np.array([[1.0, *(p[t] for t in self._terms)] for p in points]).reshape(
-            -1, nterm + 1
-        )
+        rows = np.concatenate([np.ones((len(coeffs), 1)), np.asarray(coeffs, float)], axis=1)
         # (one matrix product per quantity: points × terms times terms × every residual entry)
-        res = np.abs(coeffs @ resid.reshape(nterm + 1, -1)).max(axis=1)
-        scale = np.abs(coeffs @ hp.reshape(nterm + 1, -1)).max(axis=1)
+        res = np.abs(rows @ resid.reshape(nterm + 1, -1)).max(axis=1)
+        scale = np.abs(rows @ hp.reshape(nterm + 1, -1)).max(axis=1)
         return res / np.maximum(scale, 1e-300)
 
     def _term_residuals(

@@ -42,6 +42,7 @@ from ..sampling import Sampling
 from ..sweep import SweepInterrupted, _InterruptFlag
 from ..sweep_executor import remote_for
 from ..sweep_plan import Coefficients, SweepPlan, make_plan
+from ..symmetry import TOLERANCE, symmetry_error
 from ..tightbinding import TightBinding
 from .adaptive_cells import (
     EVALUATED,
@@ -117,6 +118,18 @@ def _symmetry_breaks_everywhere(plan: SweepPlan) -> tuple[NDArray[np.bool_], NDA
         )
         if exact:
             return np.zeros(n, bool), np.zeros(n, bool)
+        if plan.coefficients is None:  # the sweep's per-point check, from the coefficient rows
+            coeffs = _coefficients(plan)
+            res = model.coefficient_residuals(coeffs, ops[0], kinds[0])
+            p_broken = np.zeros(n, bool)
+            if req.inversion is not None:
+                p_res = model.coefficient_residuals(coeffs, req.inversion, kinds[1])
+                p_broken = ~(p_res <= TOLERANCE)
+                if req.inversion_from_call and p_broken.any():
+                    i = int(np.argmax(p_res))
+                    where = f"at parameters {plan.user_point(i)}"
+                    raise symmetry_error("inversion", float(p_res[i]), where)
+            return ~(res <= TOLERANCE), p_broken
     tr_broken, p_broken, _ = _symmetry_breaks(req, plan.points(0, n))  # (reason 8 is marked)
     return tr_broken, p_broken
 
