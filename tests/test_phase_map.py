@@ -215,3 +215,28 @@ def test_bad_options_are_refused() -> None:
     grid = {k: [0.5, 1.0] for k in ("mass", "hopping")}
     with pytest.raises(ParameterError, match="1 to 4"):
         ts.phase_map(wd, {**grid, "a": [1.0], "b": [2.0], "c": [3.0]}, 2, coefficients=lambda p: {})
+
+
+def test_symmetry_breaks_of_a_grid_match_the_per_point_check() -> None:
+    """The map's grid-wide check (coefficient rows) finds what the sweep's per-point one does.
+
+    Kane–Mele: the staggered sublattice potential breaks inversion, which exchanges the two
+    sublattices, and every term keeps time reversal (Kane & Mele, PRL 95, 146802 (2005)); an
+    inversion matrix passed to the call must hold at every point.
+    """
+    phase_map_module = import_module("toposweep.phase_map")
+    from toposweep.evaluation import _symmetry_breaks, prepare_request
+    from toposweep.sweep_plan import make_plan
+
+    model = ts.models.kane_mele()
+    grid = {"staggered": np.linspace(0.0, 0.8, 9), "rashba": np.linspace(0.0, 0.4, 5)}
+    req = prepare_request(model, 2, inversion=None, sampling=ts.Sampling())
+    plan = make_plan(req, grid, params=None, coefficients=None)
+    tr, p = phase_map_module._symmetry_breaks_everywhere(plan)
+    want_tr, want_p, _ = _symmetry_breaks(req, plan.points(0, plan.size))
+    np.testing.assert_array_equal(tr, want_tr)
+    np.testing.assert_array_equal(p, want_p)
+    assert not tr.any() and p.reshape(9, 5)[1:].all()  # wherever the staggered potential is on
+    assert not p[0]  # (the point without staggered potential or Rashba coupling)
+    with pytest.raises(ts.errors.SymmetryError, match="inversion"):
+        ts.phase_map(model, grid, 2, inversion=model.inversion, progress=False)
