@@ -119,6 +119,29 @@ def test_points_next_to_a_boundary_skip_the_proof_unless_near_the_floor(monkeypa
     assert np.isclose(pm.transition_mass.values, [1.0, 3.0], rtol=1e-5).all()
 
 
+def test_no_more_proofs_once_none_succeeded(monkeypatch) -> None:
+    """When no evaluated point of the first round has a proven gap, later rounds skip it."""
+    model = ts.models.wilson_dirac()
+    grid = {"mass": np.linspace(-4, 4, 33) + 0.013}
+    asked: list[str] = []
+    run_points = sweep_module.run_points
+
+    def unproven(request, points):  # type: ignore[no-untyped-def]
+        # a stand-in for a model whose gaps are too small for the proof's budget
+        asked.append(request.sampling.prove_gap)
+        raw = run_points(request, points)
+        raw["gap_proven"][:] = np.nan
+        return raw
+
+    monkeypatch.setattr(sweep_module, "run_points", unproven)
+    pm = ts.phase_map(model, grid, 2, progress=False, coarse_step=8)
+    assert asked[0] == "auto" and len(asked) > 2 and set(asked[1:]) == {"never"}
+    monkeypatch.undo()
+    sw = ts.sweep(model, grid, 2, progress=False)
+    np.testing.assert_array_equal(pm.phase.values, sw.phase.values)  # (QHZ: -3, -1, 1, 3)
+    assert (pm.obtained.values != 1).all()  # nothing proven without proven gaps
+
+
 def test_proof_path_with_a_stand_in_bound(monkeypatch) -> None:
     """With a proven gap the Weyl bound vouches for points; they all match the sweep."""
     model = ts.models.bhz()

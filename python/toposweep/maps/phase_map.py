@@ -214,21 +214,44 @@ class _Evaluations:
         was ~60 % of a Wilson–Dirac map's time). Its results are the sweep's apart from
         ``gap_proven`` (NaN: not proven), except that the sweep's proof can also find a
         closing the gap search missed; where the smallest gap found is under
-        :data:`NEAR_FLOOR` floors — where an unfinished proof would make the point undefined —
-        it is evaluated again with the sweep's setting, so it is exactly the sweep's there.
+        :data:`NEAR_FLOOR` floors, or where the proof's κ samples could make it a metal
+        (:meth:`_proof_may_matter`), it is evaluated again with the sweep's setting, so it is
+        exactly the sweep's there.
+
+        Every point is treated so once the points evaluated so far (at least a first round)
+        have no proven gap at all: the model's gaps are then too small for the proof's budget
+        under "auto" (the d–f lattice's hybridisation gap against its band widths), and every
+        further proof would be work for nothing.
         """
+        evaluated = self.table.evaluated
+        if self.plain is not None and evaluated.any():
+            if not np.isfinite(self.table.gap_proven[evaluated]).any():
+                last = np.ones(indices.size, bool)
         if self.plain is None or not last.any():
             self._evaluate(indices, self.plan)
             return
         self._evaluate(indices[~last], self.plan)
         self._evaluate(indices[last], self.plain)
-        # where the sweep's own setting could make a point undefined (an unfinished proof near
-        # the floor), evaluate it again with that setting: the point is then the sweep's
-        near = indices[last][
-            self.table.gap_direct[indices[last]] < NEAR_FLOOR * self.floor(indices[last])
-        ]
-        if near.size:
-            self._evaluate(near, self.plan)
+        # where the proof could change the point's indices or phase, evaluate it again with the
+        # sweep's setting: the point is then the sweep's
+        again = indices[last][self._proof_may_matter(indices[last])]
+        if again.size:
+            self._evaluate(again, self.plan)
+
+    def _proof_may_matter(self, indices: NDArray[np.int64]) -> NDArray[np.bool_]:
+        """Points evaluated without the proof whose phase the proof's κ samples could change.
+
+        Near the floor an unfinished proof makes a point undefined (reason 11). And the proof
+        samples κ across the zone: where the indirect gap found is positive but well below the
+        direct one, the band extrema lie apart from the direct gap's minimum, and a valence
+        maximum or conduction minimum that only the proof's samples find can make it negative
+        (a metal, phase codes 10–13). Measured on Kane–Mele with Rashba coupling: 4e-4 became
+        −3e-3 where the direct gap was 0.09.
+        """
+        direct = self.table.gap_direct[indices]
+        indirect = np.asarray(self.raw["gap_indirect"][indices], float)
+        near_floor = direct < NEAR_FLOOR * self.floor(indices)
+        return near_floor | ((indirect > 0) & (indirect < 0.5 * direct))
 
     def floor(self, indices: NDArray[np.int64]) -> NDArray[np.float64]:
         """The gap floor the core used at evaluated points."""
