@@ -247,7 +247,7 @@ def test_symmetry_breaks_of_a_grid_match_the_per_point_check() -> None:
     sublattices, and every term keeps time reversal (Kane & Mele, PRL 95, 146802 (2005)); an
     inversion matrix passed to the call must hold at every point.
     """
-    phase_map_module = import_module("toposweep.phase_map")
+    phase_map_module = import_module("toposweep.maps.phase_map")
     from toposweep.evaluation import _symmetry_breaks, prepare_request
     from toposweep.sweep_plan import make_plan
 
