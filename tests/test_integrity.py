@@ -10,6 +10,7 @@ from __future__ import annotations
 import textwrap
 from importlib import import_module
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
@@ -167,18 +168,47 @@ def test_grid_of_booleans_is_refused_like_params() -> None:
         ts.invariants(ts.models.bhz(), 2, params={"mass": True})
 
 
-def test_huge_callable_model_is_refused_with_what_to_change(monkeypatch) -> None:
-    limits = import_module("toposweep.limits")
-    monkeypatch.setattr(limits, "available_memory", lambda: 8 << 30)
-    n = 1000  # its 8³ bulk gap grid in one batch: ~25 GB (2000 orbitals: ~98 GB)
+def huge_callable(n: int) -> ts.CallableModel:
     u_t = np.kron(np.array([[0, 1], [-1, 0]]), np.eye(n // 2))
 
     def never_called(kappa, mass=1.0):
         raise AssertionError("the model must not be evaluated")
 
-    model = ts.CallableModel(never_called, dim=3, norb=n, time_reversal=u_t)
-    with pytest.raises(ts.errors.ParameterError, match=r"needs about 24\.\d GB .* gap_points"):
-        ts.invariants(model, n // 2)
+    return ts.CallableModel(never_called, dim=3, norb=n, time_reversal=u_t)
+
+
+def test_huge_callable_model_is_refused_with_what_to_change(monkeypatch) -> None:
+    limits = import_module("toposweep.limits")
+    monkeypatch.setattr(limits, "available_memory", lambda: 2 << 30)
+    # 1000 orbitals: 16 MB a Hamiltonian, 48 MB a κ point; 80 κ points at once (8 TRIMs,
+    # 8 of the bulk grid, one Wilson line of 2 × 32)
+    model = huge_callable(1000)
+    with pytest.raises(ts.errors.ParameterError, match=r"needs about 3\.8 GB .* loop_points"):
+        ts.invariants(model, 500)
+
+
+def test_huge_callable_model_that_fits_in_batches_is_accepted(monkeypatch) -> None:
+    """Issue 20 item 5: what can be batched runs. The bulk gap grid of a 2000-orbital model
+    is taken in batches of 8 κ points (1.5 GB at three copies), not in one of 32.8 GB, so
+    short Wilson lines fit in 8 GB; before, this point was refused for its grid."""
+    limits = import_module("toposweep.limits")
+    monkeypatch.setattr(limits, "available_memory", lambda: 8 << 30)
+    sampling = ts.Sampling(loop_points=4, certify=False)
+    # (the estimate reads only the size: a stand-in, not a 2000-orbital model in memory)
+    model = SimpleNamespace(norb=2000, dim=3)
+    need, _, what = limits.point_estimate(model, sampling, 2)
+    assert need == pytest.approx((8 + 8 + 4) * 3 * 16 * 2000**2)
+    assert "8 points of the bulk gap grid" in what
+    with pytest.warns(limits.SlowPointWarning):  # hours: said, not refused
+        limits.check_point_memory(model, sampling, 2)
+
+
+def test_a_point_of_more_than_a_year_is_refused() -> None:
+    limits = import_module("toposweep.limits")
+    # (the estimate reads only the size: a stand-in, not a 20 000-orbital model in memory)
+    model = SimpleNamespace(norb=20000, dim=3, add=None)
+    with pytest.raises(ts.errors.ParameterError, match=r"would take about .* years .* lower"):
+        limits.check_point_memory(model, ts.Sampling(), 2)
 
 
 def test_a_slow_point_is_announced_before_it_starts() -> None:
@@ -426,3 +456,36 @@ def test_every_damaged_byte_is_refused_and_plain_tools_still_read(tmp_path, resu
             ts.open_result(path)
     path.write_bytes(result_bytes)
     ts.open_result(path, load=True).close()
+
+
+def test_callable_model_larger_than_a_batch_runs_in_batches() -> None:
+    """A Python-function model whose bulk gap grid is more than one batch (issue 20 item 5):
+    the grid comes in batches of at most 32 MiB of Hamiltonians and the point is right.
+
+    The Wilson–Dirac model padded with 92 flat empty bands (96 orbitals: 144 KiB a
+    Hamiltonian, 228 κ points a batch, the 8³ grid in three). Its phases: Fu & Kane, PRB 76,
+    045302 (2007) with the model of Qi, Hughes & Zhang, PRB 78, 195424 (2008): (1;000) at
+    m = −2; the padding changes no occupied state.
+    """
+    n, spare = 96, 92
+    wd = ts.models.wilson_dirac()
+    sizes: list[int] = []
+
+    def padded(kappa, mass=-2.0):
+        sizes.append(len(kappa))
+        h = np.zeros((len(kappa), n, n), complex)
+        h[:, :4, :4] = wd.hamiltonian(kappa, {"mass": mass})
+        h[:, range(4, n), range(4, n)] = 20.0  # far above the model's bands (|E| ≤ 6)
+        return h
+
+    u_t = np.zeros((n, n), complex)
+    u_t[:4, :4] = wd.time_reversal
+    u_t[4:, 4:] = np.kron([[0, 1], [-1, 0]], np.eye(spare // 2))
+    model = ts.CallableModel(padded, dim=3, norb=n, time_reversal=u_t)
+    fast = {"loop_points": 12, "lines": 7, "certify": False, "prove_gap": "never"}
+    ds = ts.invariants(model, 2, {"mass": -2.0}, **fast)
+    assert (int(ds.nu0), ds.nu.values.tolist()) == (1, [0, 0, 0])
+    ref = ts.invariants(wd, 2, {"mass": -2.0}, **fast)
+    assert float(ds.gap_direct) == pytest.approx(float(ref.gap_direct), abs=1e-9)
+    assert max(sizes) <= 228, sorted(sizes)[-5:]  # (before: the 512-point grid at once)
+    assert sizes.count(228) >= 2

@@ -6,15 +6,18 @@ estimates are coarse upper bounds, meant to tell a possible run from an impossib
 refusal says what to change:
 
 * **memory of one point.** A model whose Hamiltonian is a Python function gets the κ points in
-  batches; the largest is the 3D bulk gap grid (``gap_points³`` points at once), else one batch
-  of Wilson lines (at most 32 MiB, at least one loop). A tight-binding model builds one Wilson
-  line per worker. Each κ point holds an n×n complex matrix (16 n² bytes) and about as much
-  again for its eigenvectors and the function's own arrays (factor :data:`COPIES`).
+  batches of at most 32 MiB of Hamiltonians (:data:`BATCH_BYTES`) but at least 2^dim κ points
+  (:func:`batch_points`, the core's rule), a Wilson-line batch at least one whole loop; at the
+  start of a point three batches are alive side by side (the TRIMs, the first of the 3D bulk
+  gap grid, the first of the Wilson lines). A tight-binding model builds one Wilson line per
+  worker. Each κ point holds an n×n complex matrix (16 n² bytes) and about as much again for
+  its eigenvectors and the function's own arrays (factor :data:`COPIES`).
 * **the result.** ~:data:`BYTES_PER_POINT` per grid point in memory, and the same on disk for
   the journal and again for the final file.
 * **time.** ~:data:`EIGH_SECONDS_PER_N3` × n³ per Hermitian eigendecomposition (n ≥ 16; the
   design notes' NumPy figure for n = 64, 0.55 ms, is 2.1 ns × n³), about
-  ``planes × lines × loop_points`` of them per point.
+  ``planes × lines × loop_points`` of them per point. A point of more than
+  :data:`MAX_SECONDS` is refused, one of more than :data:`SLOW_POINT_SECONDS` announced.
 """
 
 from __future__ import annotations
@@ -31,6 +34,7 @@ from .errors import ParameterError
 __all__ = [
     "SlowPointWarning",
     "available_memory",
+    "batch_points",
     "check_grid",
     "check_point_memory",
     "point_estimate",
@@ -83,6 +87,21 @@ def _duration(seconds: float) -> str:
     return f"{seconds:.3g} s"
 
 
+def batch_points(norb: int, dim: int) -> int:
+    """κ points per batch of a Python-function model (the core's ``wilson::batch_points``).
+
+    As many as :data:`BATCH_BYTES` of n×n complex Hamiltonians hold, at least 2^dim (the
+    TRIMs are one batch), in multiples of four.
+
+    Examples
+    --------
+    >>> batch_points(4, 3), batch_points(128, 3), batch_points(2000, 3), batch_points(2000, 1)
+    (131072, 128, 8, 4)
+    """
+    fit = BATCH_BYTES // max(16 * norb * norb, 1)
+    return -(-max(fit, 2**dim) // 4) * 4
+
+
 def point_estimate(model: Any, sampling: Any, workers: int) -> tuple[float, float, str]:
     """(bytes at once, seconds on ``workers``, what takes the bytes) of one point.
 
@@ -100,12 +119,19 @@ def point_estimate(model: Any, sampling: Any, workers: int) -> tuple[float, floa
     planes = 6 if dim == 3 else 1
     batched = not hasattr(model, "add")  # a tight-binding model builds lines in place
     if batched:
-        grid = int(sampling.gap_points) ** dim if dim == 3 else 0
+        # three batches side by side at the start of a point (the core's first pass)
+        block = batch_points(n, dim)
+        trims = min(2**dim, block)
+        grid = min(int(sampling.gap_points) ** dim if dim == 3 else 0, block)
         lines_batch = max(BATCH_BYTES // (16 * n * n * loop), 1) * loop
-        if grid >= lines_batch:
-            need, what = grid * matrix, f"its bulk gap grid of {grid} κ points in one batch"
-        else:
-            need, what = lines_batch * matrix, f"a batch of Wilson lines ({lines_batch} κ points)"
+        need = (trims + grid + lines_batch) * matrix
+        what = (
+            f"three batches side by side: {trims} TRIMs, {grid} points of the bulk gap grid "
+            f"and Wilson lines of {lines_batch} κ points"
+            if grid
+            else f"two batches side by side: {trims} TRIMs and Wilson lines of {lines_batch} "
+            "κ points"
+        )
     else:
         need = workers * loop * matrix
         what = f"one Wilson line of {loop} κ points on each of {workers} worker(s)"
@@ -123,13 +149,21 @@ SLOW_POINT_SECONDS = 60.0
 
 
 def check_point_memory(model: Any, sampling: Any, threads: int | None) -> None:
-    """Refuse a model and sampling whose one point cannot fit in memory; warn if it is slow.
+    """Refuse a point that cannot fit in memory or takes over a year; warn if it is slow.
 
-    Reads the system's memory only when the estimate is above 256 MiB (so small models pay
-    nothing but the arithmetic).
+    The limit of time is :data:`MAX_SECONDS`, the warning comes after
+    :data:`SLOW_POINT_SECONDS`. Reads the system's memory only when the estimate is above
+    256 MiB (so small models pay nothing but the arithmetic).
     """
     workers = threads or os.cpu_count() or 1
     need, seconds, what = point_estimate(model, sampling, workers)
+    if seconds > MAX_SECONDS:
+        raise ParameterError(
+            f"one point of this {model.norb}-orbital model would take about "
+            f"{_duration(seconds)} on {workers} thread(s) ({model.norb}×{model.norb} "
+            "eigendecompositions, planes × lines × loop_points of them): lower lines and "
+            "loop_points, or reduce the model (fewer orbitals per cell)"
+        )
     if seconds > SLOW_POINT_SECONDS:
         warnings.warn(
             f"one point of this {model.norb}-orbital model will take about "
@@ -144,11 +178,14 @@ def check_point_memory(model: Any, sampling: Any, threads: int | None) -> None:
     have = available_memory()
     if have is None or need <= MEMORY_SHARE * have:
         return
-    hint = "lower gap_points (the bulk gap grid)" if "gap grid" in what else "lower loop_points"
+    if "batches" in what:  # a Wilson line is one batch: its κ points decide
+        hint = "lower loop_points (or certify=False: half the κ points per line)"
+    else:
+        hint = "lower loop_points, use fewer threads"
     raise ParameterError(
         f"a point of this {model.norb}-orbital model needs about {_size(need)} at once "
         f"({what}; {COPIES} n×n complex matrices per κ point), but {_size(have)} of memory "
-        f"are available: {hint}, use fewer threads, or run it on a machine with more memory"
+        f"are available: {hint}, or run it on a machine with more memory"
     )
 
 

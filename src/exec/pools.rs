@@ -15,6 +15,12 @@
 //! A thread can be a worker of one pool only (rayon), so the calling thread joins the pool of
 //! the first size it asks for; later calls of another size use the shared pools.
 //!
+//! **Ctrl-C.** A call handed to a shared pool must still hear Ctrl-C, which Python delivers
+//! to the calling thread only: that thread does not block in the pool but waits for the
+//! work's end in naps of [`NAP`], running the caller's `on_wait` between them (the binding
+//! polls the call's watch there, `crate::point::cancel`), and the workers stop at their next
+//! check. `help_until` runs its `on_idle` likewise.
+//!
 //! **Fork.** A child started by `fork()` (Python's `os.fork`, multiprocessing's fork start
 //! method) inherits the memory of every pool but none of its threads: work handed to such a
 //! pool waits forever. So each pool is tagged with the process that built it, and a call in
@@ -28,7 +34,7 @@ use std::cell::RefCell;
 use std::collections::HashMap;
 use std::rc::Rc;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::{Arc, Mutex, OnceLock};
+use std::sync::{Arc, Mutex, OnceLock, PoisonError};
 use std::thread::ThreadId;
 
 static MAIN_THREAD: OnceLock<ThreadId> = OnceLock::new();
@@ -119,8 +125,12 @@ fn own(n: usize) -> Option<Rc<rayon::ThreadPool>> {
     })
 }
 
-/// Run `f` with `n` workers (see the module notes for which threads they are).
-pub fn run_with<T, F>(n: usize, f: F) -> CoreResult<T>
+/// The calling thread's nap while a pool it handed work to runs it ([`run_with`]).
+pub const NAP: std::time::Duration = std::time::Duration::from_millis(20);
+
+/// Run `f` with `n` workers (see the module notes for which threads they are); where the
+/// calling thread only waits for them, it runs `on_wait` every [`NAP`].
+pub fn run_with<T, F>(n: usize, on_wait: &(dyn Fn() + Sync), f: F) -> CoreResult<T>
 where
     T: Send,
     F: FnOnce() -> CoreResult<T> + Send,
@@ -129,9 +139,60 @@ where
         return Err(CoreError::InvalidInput("threads must be positive".into()));
     }
     match own(n) {
+        // (the calling thread is worker 0: it polls between the tasks it runs)
         Some(p) => p.install(f),
-        None => shared(n)?.install(f),
+        None => {
+            let p = shared(n)?;
+            if p.current_thread_index().is_some() {
+                // already a worker of it (a callback of a call on this pool calling again):
+                // it runs the work itself, polling between tasks; handing the work to its
+                // own queue and napping would wait forever in a pool of one
+                p.install(f)
+            } else {
+                handed_over(&p, on_wait, f)
+            }
+        }
     }
+}
+
+/// Run `f` on `pool`, whose workers this thread is not one of: `f` is spawned into the pool
+/// and this thread naps until it is done, running `on_wait` after every nap. (`install`
+/// would block this thread until the end, deaf to Ctrl-C.)
+fn handed_over<T, F>(pool: &rayon::ThreadPool, on_wait: &(dyn Fn() + Sync), f: F) -> CoreResult<T>
+where
+    T: Send,
+    F: FnOnce() -> CoreResult<T> + Send,
+{
+    /// marks the work done and wakes the caller, also when `f` panics (the scope then
+    /// re-raises the panic on the caller)
+    struct Done<'a>(&'a AtomicBool, std::thread::Thread);
+    impl Drop for Done<'_> {
+        fn drop(&mut self) {
+            self.0.store(true, Ordering::Release);
+            self.1.unpark();
+        }
+    }
+    let out = Mutex::new(None);
+    let done = AtomicBool::new(false);
+    let caller = std::thread::current();
+    pool.in_place_scope(|scope| {
+        scope.spawn(|_| {
+            let _done = Done(&done, caller);
+            let r = f();
+            *out.lock().unwrap_or_else(PoisonError::into_inner) = Some(r);
+        });
+        while !done.load(Ordering::Acquire) {
+            std::thread::park_timeout(NAP);
+            on_wait();
+        }
+    });
+    out.into_inner()
+        .unwrap_or_else(PoisonError::into_inner)
+        .unwrap_or_else(|| {
+            Err(CoreError::Internal(
+                "the handed-over work did not run".into(),
+            ))
+        })
 }
 
 /// Run other work of the current pool (jobs this worker spawned, or stolen from the others)
@@ -141,8 +202,9 @@ where
 /// workers finish their last tasks; a job of this worker that no other has taken yet is run
 /// here, so the wait ends even if no other worker comes. After ~1 ms without work (a long
 /// Python callback on another worker, say) it naps 100 µs between attempts instead of
-/// keeping a core busy.
-pub fn help_until(done: &AtomicBool) {
+/// keeping a core busy, and runs `on_idle` between naps (the binding polls Ctrl-C there, so
+/// a wait for another worker's long task still answers it).
+pub fn help_until(done: &AtomicBool, on_idle: &dyn Fn()) {
     let mut idle = 0u32;
     while !done.load(Ordering::Acquire) {
         if rayon::yield_now() == Some(rayon::Yield::Executed) {
@@ -151,6 +213,7 @@ pub fn help_until(done: &AtomicBool) {
             idle += 1;
             std::thread::yield_now();
         } else {
+            on_idle();
             std::thread::sleep(std::time::Duration::from_micros(100));
         }
     }
@@ -163,10 +226,12 @@ const IDLE_BEFORE_NAPS: u32 = 2000;
 mod tests {
     use super::*;
 
+    fn nothing() {}
+
     /// (worker index of the thread that runs the body, pool size, whether it is the caller)
     fn probe(n: usize) -> (Option<usize>, usize, bool) {
         let caller = std::thread::current().id();
-        run_with(n, || {
+        run_with(n, &nothing, || {
             Ok((
                 rayon::current_thread_index(),
                 rayon::current_num_threads(),
@@ -179,7 +244,7 @@ mod tests {
     #[test]
     fn zero_threads_is_an_error() {
         assert!(matches!(
-            run_with(0, || Ok(())),
+            run_with(0, &nothing, || Ok(())),
             Err(CoreError::InvalidInput(_))
         ));
     }
@@ -212,7 +277,7 @@ mod tests {
             assert!(on_main_thread());
             assert_eq!(probe(3), (Some(0), 3, true));
             // both halves of a join run, whichever worker takes them
-            let (a, b) = run_with(3, || Ok(rayon::join(|| 1, || 2))).unwrap();
+            let (a, b) = run_with(3, &nothing, || Ok(rayon::join(|| 1, || 2))).unwrap();
             assert_eq!(a + b, 3);
             let (_, size, inline) = probe(1);
             assert_eq!(size, 1);
@@ -228,9 +293,69 @@ mod tests {
         // a Python callback that runs on a shared worker and calls the core again: that
         // worker cannot join a pool of its own, so the shared one-worker pool takes the call
         std::thread::spawn(|| {
-            let inner = run_with(2, || Ok(probe(1))).unwrap();
+            let inner = run_with(2, &nothing, || Ok(probe(1))).unwrap();
             assert_eq!(inner.1, 1);
             assert!(!inner.2);
+        })
+        .join()
+        .unwrap();
+    }
+
+    #[test]
+    fn a_worker_of_a_shared_pool_calling_again_runs_the_call_itself() {
+        // shared(2) worker → shared(1) (handed over) → its worker asks for 1 again: it is
+        // the one worker of that pool, so it must run the call (a nap would wait forever)
+        std::thread::spawn(|| {
+            let r = run_with(2, &nothing, || {
+                run_with(1, &nothing, || run_with(1, &nothing, || Ok(probe(1))))
+            });
+            assert_eq!(r.unwrap().1, 1);
+        })
+        .join()
+        .unwrap();
+    }
+
+    #[test]
+    fn a_handed_over_call_hears_its_caller_while_the_caller_waits() {
+        // not the main thread: a call of 2 workers goes whole to the shared pool; the work
+        // checks a stop flag like a kernel, which only the waiting caller can set (as the
+        // binding's poll of Ctrl-C, which runs on the calling thread alone)
+        std::thread::spawn(|| {
+            let stop = AtomicBool::new(false);
+            let waits = std::sync::atomic::AtomicUsize::new(0);
+            let on = std::thread::current().id();
+            let on_wait = || {
+                assert_eq!(std::thread::current().id(), on, "run off the caller");
+                if waits.fetch_add(1, Ordering::Relaxed) >= 1 {
+                    stop.store(true, Ordering::Relaxed);
+                }
+            };
+            let t0 = std::time::Instant::now();
+            let r: CoreResult<()> = run_with(2, &on_wait, || {
+                assert!(rayon::current_thread_index().is_some());
+                while !stop.load(Ordering::Relaxed) {
+                    assert!(
+                        t0.elapsed() < std::time::Duration::from_secs(30),
+                        "never stopped"
+                    );
+                    std::thread::sleep(std::time::Duration::from_millis(1));
+                }
+                Err(CoreError::Interrupted)
+            });
+            assert!(matches!(r, Err(CoreError::Interrupted)));
+            assert!(t0.elapsed() < 10 * NAP, "stopped after {:?}", t0.elapsed());
+        })
+        .join()
+        .unwrap();
+    }
+
+    #[test]
+    fn a_handed_over_call_that_panics_raises_on_the_caller() {
+        std::thread::spawn(|| {
+            let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                run_with(2, &nothing, || -> CoreResult<()> { panic!("boom") })
+            }));
+            assert!(r.is_err());
         })
         .join()
         .unwrap();
@@ -248,7 +373,7 @@ mod tests {
                     ran_on = rayon::current_thread_index();
                     done.store(true, Ordering::Release);
                 });
-                help_until(&done);
+                help_until(&done, &nothing);
             });
             ran_on
         });
@@ -278,7 +403,7 @@ mod tests {
                     });
                     done.store(true, Ordering::Release);
                 });
-                help_until(&done);
+                help_until(&done, &nothing);
             });
             by_me.load(Ordering::Relaxed)
         });

@@ -7,15 +7,23 @@
 //! every bulk-grid row, every batch — so kernels stop between tasks without a change of
 //! their own, and a stopped call returns [`CoreError::Interrupted`] from every task after.
 //!
-//! `poll` runs only on the calling thread (a worker of its own pool where it can be, see
-//! `crate::exec::pools`) and at most every [`POLL_EVERY`]; every other check is one atomic load.
-//! A call handed whole to another pool's threads (its caller only waits) is not polled: it
-//! stops at its end, as before.
+//! `poll` runs only on the calling thread and at most every [`POLL_EVERY`]; every other check
+//! is one or two atomic loads. The calling thread polls while it works (a worker of its own
+//! pool, see `crate::exec::pools`) and while it waits: a call handed whole to another pool's
+//! threads has its caller wake every [`POLL_EVERY`] to poll (`crate::exec::pools::run_with`).
+//!
+//! **Calls inside calls.** A Python callback of a call (a `CallableModel`'s function) may call
+//! the core again, on whatever worker runs it. Such an inner call's watch also reads the stop
+//! flag of the call it runs inside — the watch whose [`Watched`] source was filling on that
+//! thread ([`Watch::inside`]) — so a stopped call stops the calls of its callbacks too
+//! instead of waiting for them to end.
 
 use crate::error::{CoreError, CoreResult};
 use crate::zone::bloch::BlochSource;
 use crate::C64;
+use std::cell::RefCell;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::Arc;
 use std::thread::ThreadId;
 use std::time::{Duration, Instant};
 
@@ -23,9 +31,17 @@ use std::time::{Duration, Instant};
 /// ~100 ms however long the call).
 pub const POLL_EVERY: Duration = Duration::from_millis(40);
 
+thread_local! {
+    /// The stop flag of the watched call whose source is filling on this thread (a Python
+    /// callback running now may call the core again: that inner call stops with it).
+    static ENCLOSING: RefCell<Option<Arc<AtomicBool>>> = const { RefCell::new(None) };
+}
+
 /// One call's stop flag and how to learn that it should stop.
 pub struct Watch<'a> {
-    stop: AtomicBool,
+    stop: Arc<AtomicBool>,
+    /// the stop flag of the call this one was made inside, if any (see the module notes)
+    enclosing: Option<Arc<AtomicBool>>,
     caller: ThreadId,
     start: Instant,
     /// nanoseconds after `start` of the next poll
@@ -37,7 +53,8 @@ impl<'a> Watch<'a> {
     /// A watch of the calling thread; `poll()` true means: stop.
     pub fn new(poll: &'a (dyn Fn() -> bool + Sync)) -> Self {
         Self {
-            stop: AtomicBool::new(false),
+            stop: Arc::new(AtomicBool::new(false)),
+            enclosing: ENCLOSING.with(|e| e.borrow().clone()),
             caller: std::thread::current().id(),
             start: Instant::now(),
             next: AtomicU64::new(POLL_EVERY.as_nanos() as u64),
@@ -45,9 +62,29 @@ impl<'a> Watch<'a> {
         }
     }
 
-    /// Whether the call was stopped.
+    /// Whether the call (or the call it was made inside) was stopped.
     pub fn stopped(&self) -> bool {
         self.stop.load(Ordering::Relaxed)
+            || self
+                .enclosing
+                .as_ref()
+                .is_some_and(|e| e.load(Ordering::Relaxed))
+    }
+
+    /// Run `f` (a source's fill that may call Python, and Python the core) with this watch
+    /// as the enclosing one of any call made on this thread meanwhile.
+    pub fn inside<R>(&self, f: impl FnOnce() -> R) -> R {
+        /// puts the previous enclosing watch back, also when `f` unwinds
+        struct Restore(Option<Arc<AtomicBool>>);
+        impl Drop for Restore {
+            fn drop(&mut self) {
+                let previous = self.0.take();
+                ENCLOSING.with(|e| *e.borrow_mut() = previous);
+            }
+        }
+        let previous = ENCLOSING.with(|e| e.borrow_mut().replace(self.stop.clone()));
+        let _restore = Restore(previous);
+        f()
     }
 
     /// `Err(Interrupted)` once the call should stop; polls on the calling thread when due.
@@ -76,6 +113,18 @@ pub struct Watched<'a> {
     pub watch: &'a Watch<'a>,
 }
 
+impl Watched<'_> {
+    /// A fill of the inner source; one that may run Python (a batch source: a callback)
+    /// runs [`Watch::inside`] this call's watch, so a core call it makes stops with this one.
+    fn enclose(&self, fill: impl FnOnce() -> CoreResult<()>) -> CoreResult<()> {
+        if self.inner.prefers_batches() {
+            self.watch.inside(fill)
+        } else {
+            fill()
+        }
+    }
+}
+
 impl BlochSource for Watched<'_> {
     fn dim(&self) -> usize {
         self.inner.dim()
@@ -85,7 +134,7 @@ impl BlochSource for Watched<'_> {
     }
     fn fill(&self, kappa: &[f64], out: &mut [C64]) -> CoreResult<()> {
         self.watch.check()?;
-        self.inner.fill(kappa, out)
+        self.enclose(|| self.inner.fill(kappa, out))
     }
     fn prefers_batches(&self) -> bool {
         self.inner.prefers_batches()
@@ -106,7 +155,7 @@ impl BlochSource for Watched<'_> {
         out: &mut [C64],
     ) -> CoreResult<()> {
         self.watch.check()?;
-        self.inner.fill_line(base, axis, points, out)
+        self.enclose(|| self.inner.fill_line(base, axis, points, out))
     }
     fn fill_line_shifted(
         &self,
@@ -117,7 +166,7 @@ impl BlochSource for Watched<'_> {
         out: &mut [C64],
     ) -> CoreResult<()> {
         self.watch.check()?;
-        self.inner.fill_line_shifted(base, axis, points, shift, out)
+        self.enclose(|| self.inner.fill_line_shifted(base, axis, points, shift, out))
     }
 }
 
@@ -143,6 +192,48 @@ mod tests {
             certify: false,
             prove_gap: ProveGap::Never,
         }
+    }
+
+    #[test]
+    fn a_call_made_inside_a_watched_fill_stops_with_it() {
+        // a batch source (a Python callback) whose fill makes a call of its own, as a
+        // callback calling the core again does: that call's watch sees the outer one stop
+        struct Calling<'w>(&'w Watch<'w>, std::sync::Mutex<Vec<bool>>);
+        impl BlochSource for Calling<'_> {
+            fn dim(&self) -> usize {
+                2
+            }
+            fn norb(&self) -> usize {
+                2
+            }
+            fn fill(&self, _: &[f64], out: &mut [C64]) -> CoreResult<()> {
+                let never = || false;
+                let inner = Watch::new(&never);
+                self.1.lock().unwrap().push(inner.stopped());
+                out.fill(C64::new(0.0, 0.0));
+                Ok(())
+            }
+        }
+        let fire = AtomicBool::new(false);
+        let poll = || fire.load(Ordering::Relaxed);
+        let outer = Watch::new(&poll);
+        let src = Calling(&outer, Default::default());
+        let watched = Watched {
+            inner: &src,
+            watch: &outer,
+        };
+        let mut h = vec![C64::new(0.0, 0.0); 4];
+        watched.fill(&[0.1, 0.2], &mut h).unwrap();
+        // the outer call stops (a poll that fires, due after POLL_EVERY)
+        fire.store(true, Ordering::Relaxed);
+        std::thread::sleep(POLL_EVERY);
+        assert!(outer.check().is_err());
+        let stops_with_it = src.0.inside(|| Watch::new(&poll).stopped());
+        assert_eq!(*src.1.lock().unwrap(), [false]);
+        assert!(stops_with_it, "a call made inside a stopped one goes on");
+        // outside any fill, a new call has no enclosing one
+        let never = || false;
+        assert!(!Watch::new(&never).stopped());
     }
 
     #[test]

@@ -14,7 +14,7 @@
 use crate::error::CoreResult;
 use crate::exec::guided::map_guided;
 use crate::linalg::eigen::eigh_occupied_many_into;
-use crate::topology::wilson::BandStats;
+use crate::topology::wilson::{batch_points, BandStats};
 use crate::zone::bloch::BlochSource;
 use crate::C64;
 use rayon::prelude::*;
@@ -55,46 +55,61 @@ pub struct GapMinimum {
     pub evaluations: usize,
 }
 
-/// Direct gaps at a batch of κ points (`kappa`: npts × dim), with their band statistics merged
-/// into `stats`.
+/// Direct gaps at a set of κ points (`kappa`: npts × dim), with their band statistics merged
+/// into `stats`. The Hamiltonians are built in batches of [`batch_points`] (a 3D bulk gap
+/// grid of a model of thousands of orbitals is tens of GB at once): the values do not depend
+/// on the split.
 pub fn gaps_at(
     src: &dyn BlochSource,
     kappa: &[f64],
     filling: usize,
     stats: &mut BandStats,
 ) -> CoreResult<Vec<f64>> {
+    let block = batch_points(src.norb() * src.norb(), src.dim());
+    gaps_in_blocks(src, kappa, filling, stats, block)
+}
+
+/// [`gaps_at`] with batches of `block` κ points.
+fn gaps_in_blocks(
+    src: &dyn BlochSource,
+    kappa: &[f64],
+    filling: usize,
+    stats: &mut BandStats,
+    block: usize,
+) -> CoreResult<Vec<f64>> {
     let (dim, n) = (src.dim(), src.norb());
     let nn = n * n;
     let npts = kappa.len() / dim;
-    if npts == 0 {
-        return Ok(Vec::new());
+    let mut h = Vec::new();
+    let mut gaps = Vec::with_capacity(npts);
+    for start in (0..npts).step_by(block.max(1)) {
+        let end = (start + block).min(npts);
+        let kappa = &kappa[start * dim..end * dim];
+        h.resize((end - start) * nn, C64::new(0.0, 0.0));
+        src.fill(kappa, &mut h)?;
+        // four κ points per task, solved together, eigenvalues only (eigh_occupied_many_into
+        // with no occupied vectors: the Kramers closed form writes none); the rest in a pair
+        // and alone
+        let energies: CoreResult<Vec<Vec<f64>>> = h
+            .par_chunks(4 * nn)
+            .map_init(
+                // eigenvector scratch of the fallbacks, once per rayon split
+                || vec![C64::new(0.0, 0.0); nn],
+                |work, hk| {
+                    let mut e = vec![0.0; hk.len() / nn * n];
+                    eigh_occupied_many_into(hk, n, 0, &mut e, &mut [], work)?;
+                    Ok(e)
+                },
+            )
+            .collect();
+        // (n energies per point, in the order of `kappa`)
+        let energies = energies?.concat();
+        for (e, k) in energies.chunks_exact(n).zip(kappa.chunks_exact(dim)) {
+            stats.add(e, filling, k);
+            gaps.push(e[filling] - e[filling - 1]);
+        }
     }
-    let mut h = vec![C64::new(0.0, 0.0); npts * nn];
-    src.fill(kappa, &mut h)?;
-    // four κ points per task, solved together, eigenvalues only (eigh_occupied_many_into
-    // with no occupied vectors: the Kramers closed form writes none); the rest in a pair and
-    // alone
-    let energies: CoreResult<Vec<Vec<f64>>> = h
-        .par_chunks(4 * nn)
-        .map_init(
-            // eigenvector scratch of the fallbacks, once per rayon split
-            || vec![C64::new(0.0, 0.0); nn],
-            |work, hk| {
-                let mut e = vec![0.0; hk.len() / nn * n];
-                eigh_occupied_many_into(hk, n, 0, &mut e, &mut [], work)?;
-                Ok(e)
-            },
-        )
-        .collect();
-    // (n energies per point, in the order of `kappa`)
-    let energies = energies?.concat();
-    for (e, k) in energies.chunks_exact(n).zip(kappa.chunks_exact(dim)) {
-        stats.add(e, filling, k);
-    }
-    Ok(energies
-        .chunks_exact(n)
-        .map(|e| e[filling] - e[filling - 1])
-        .collect())
+    Ok(gaps)
 }
 
 /// Direct gaps on the uniform bulk grid κ = (j + ½)/m of a 3D model — `kappa` lists its m³
@@ -509,6 +524,68 @@ mod tests {
             }
             assert_eq!(gaps.len(), npts);
             stats.assert_close(&want, 1e-13, "grid by lines against batch");
+        }
+    }
+
+    /// A set of κ points taken in batches gives the values of one batch, bit for bit, and the
+    /// source never gets more than a batch at once (a huge model's bulk grid: issue 20).
+    #[test]
+    fn gaps_in_batches_match_one_batch() {
+        struct Counted<'a>(&'a dyn BlochSource, std::sync::Mutex<Vec<usize>>);
+        impl BlochSource for Counted<'_> {
+            fn dim(&self) -> usize {
+                self.0.dim()
+            }
+            fn norb(&self) -> usize {
+                self.0.norb()
+            }
+            fn fill(&self, kappa: &[f64], out: &mut [C64]) -> CoreResult<()> {
+                self.1.lock().unwrap().push(kappa.len() / self.dim());
+                self.0.fill(kappa, out)
+            }
+        }
+        let (generic, _) = generic_and_kramers();
+        let m = 5;
+        let kappa: Vec<f64> = (0..m * m * m)
+            .flat_map(|i| {
+                [
+                    (i / 25) as f64 / 5.0,
+                    (i / 5 % 5) as f64 / 5.0 + 0.03,
+                    0.1 * (i % 5) as f64,
+                ]
+            })
+            .collect();
+        let mut one_stats = BandStats::default();
+        let one = gaps_in_blocks(&generic, &kappa, 2, &mut one_stats, 1 << 20).unwrap();
+        for block in [4, 8, 12] {
+            let counted = Counted(&generic, Default::default());
+            let mut stats = BandStats::default();
+            let split = gaps_in_blocks(&counted, &kappa, 2, &mut stats, block).unwrap();
+            assert_eq!(format!("{split:?}"), format!("{one:?}"), "block {block}");
+            assert_eq!(
+                format!("{stats:?}"),
+                format!("{one_stats:?}"),
+                "block {block}"
+            );
+            let sizes = counted.1.into_inner().unwrap();
+            assert_eq!(sizes.iter().sum::<usize>(), m * m * m);
+            assert!(sizes.iter().all(|&b| b <= block), "{sizes:?}");
+        }
+    }
+
+    #[test]
+    fn batches_fit_the_budget_but_hold_at_least_the_trims() {
+        for dim in 1..=3 {
+            // 4 bands: the whole default bulk grid (512 points) in one batch
+            assert!(batch_points(16, dim) >= 512);
+            // 2000 orbitals: 64 MB a matrix, more than the budget alone: 2^dim, rounded to 4
+            assert_eq!(batch_points(2000 * 2000, dim), (1usize << dim).max(4));
+            for n in [64usize, 200, 1000] {
+                let b = batch_points(n * n, dim);
+                assert_eq!(b % 4, 0);
+                assert!(b >= 1 << dim);
+                assert!(b * n * n * 16 <= (32 << 20) || b <= 8, "{n}: {b}");
+            }
         }
     }
 

@@ -55,20 +55,54 @@ enum Workers {
     Caller,
 }
 
+/// What a detached call's work gets: the call's Ctrl-C watch (to wrap its sources in
+/// [`Watched`] and to check between its tasks) and the exception a signal handler raised.
+struct Call<'a> {
+    watch: Watch<'a>,
+    interrupt: &'a Mutex<Option<PyErr>>,
+}
+
+impl Call<'_> {
+    /// The exception a signal handler raised during the call, in place of the core's error.
+    fn raised<T>(&self, r: PyResult<T>) -> PyResult<T> {
+        r.map_err(|e| {
+            self.interrupt
+                .lock()
+                .unwrap_or_else(PoisonError::into_inner)
+                .take()
+                .unwrap_or(e)
+        })
+    }
+}
+
 /// Release the GIL, run `f` on `workers`, and turn errors and panics into Python exceptions.
+/// Every call is watched for Ctrl-C: `f` gets the watch, and the calling thread polls it
+/// while it works or waits (`crate::exec::pools::run_with`); the handler's exception is raised.
 fn detached<T, F>(py: Python<'_>, workers: Workers, f: F) -> PyResult<T>
 where
     T: Send,
-    F: FnOnce() -> CoreResult<T> + Send,
+    F: FnOnce(&Call<'_>) -> CoreResult<T> + Send,
 {
+    let interrupt = Mutex::new(None);
+    let poll = signal_poll(&interrupt);
+    let call = Call {
+        watch: Watch::new(&poll),
+        interrupt: &interrupt,
+    };
+    // (a stopped call: the workers end their tasks with it; the caller waits for them)
+    let poll = || {
+        let _ = call.watch.check();
+    };
     let out = py.allow_threads(|| {
         catch_unwind(AssertUnwindSafe(|| match workers {
-            Workers::Pool(threads) => run_with(threads.unwrap_or_else(default_threads), f),
-            Workers::Caller => f(),
+            Workers::Pool(threads) => {
+                run_with(threads.unwrap_or_else(default_threads), &poll, || f(&call))
+            }
+            Workers::Caller => f(&call),
         }))
     });
     match out {
-        Ok(r) => r.map_err(to_py),
+        Ok(r) => call.raised(r.map_err(to_py)),
         Err(panic) => Err(PyRuntimeError::new_err(format!(
             "internal error in toposweep core: {}",
             panic_text(panic.as_ref())
@@ -92,17 +126,6 @@ fn signal_poll(interrupt: &Mutex<Option<PyErr>>) -> impl Fn() -> bool + Sync + '
             }
         })
     }
-}
-
-/// The exception a signal handler raised during the call, in place of the core's error.
-fn raised_by_handler<T>(r: PyResult<T>, interrupt: &Mutex<Option<PyErr>>) -> PyResult<T> {
-    r.map_err(|e| {
-        interrupt
-            .lock()
-            .unwrap_or_else(PoisonError::into_inner)
-            .take()
-            .unwrap_or(e)
-    })
 }
 
 /// The message of a panic.
@@ -389,19 +412,13 @@ fn evaluate<'py>(
     };
     s.validate().map_err(to_py)?;
     let error = Arc::new(Mutex::new(None));
-    // Ctrl-C: polled on this thread between the kernels' tasks (src/point/cancel.rs)
-    let interrupt = Mutex::new(None);
-    let poll = signal_poll(&interrupt);
-    let watch = Watch::new(&poll);
-    let points = || {
+    // Ctrl-C: the watch of the call (src/cancel.rs), checked before every Hamiltonian
+    let points = |watch: &Watch<'_>| {
         rows.par_iter()
             .enumerate()
             .map(|(i, c)| {
                 model.with_source(c, i, &error, |src| {
-                    let src = Watched {
-                        inner: src,
-                        watch: &watch,
-                    };
+                    let src = Watched { inner: src, watch };
                     evaluate_point(&src, filling, inv.as_deref(), u_t.as_deref(), &s)
                 })
             })
@@ -409,8 +426,7 @@ fn evaluate<'py>(
     };
     let f = match alongside {
         None => {
-            let run = detached(py, Workers::Pool(threads), points);
-            let run = raised_by_handler(run, &interrupt);
+            let run = detached(py, Workers::Pool(threads), |call| points(&call.watch));
             return results(py, run, &error, model.dim, method, Targets::none());
         }
         Some(f) => f,
@@ -419,8 +435,7 @@ fn evaluate<'py>(
         // one worker: the Python job first, on this thread, then the points
         let out = f.call0(py)?.into_bound(py);
         let targets = Targets::borrow(&out);
-        let run = detached(py, Workers::Pool(threads), points);
-        let run = raised_by_handler(run, &interrupt);
+        let run = detached(py, Workers::Pool(threads), |call| points(&call.watch));
         return results(py, run, &error, model.dim, method, targets);
     }
     // The points are spawned first: another worker steals them at once. The Python job runs
@@ -433,10 +448,10 @@ fn evaluate<'py>(
     // wins over the core's: it says why the run was not valid in the first place.
     let run = Mutex::new(None);
     let done = AtomicBool::new(false);
-    let packed = detached(py, Workers::Pool(threads), || {
+    let packed = detached(py, Workers::Pool(threads), |call| {
         Ok(rayon::scope(|sc| {
             sc.spawn(|_| {
-                let r = catch_unwind(AssertUnwindSafe(points))
+                let r = catch_unwind(AssertUnwindSafe(|| points(&call.watch)))
                     .unwrap_or_else(|p| Err(CoreError::Internal(panic_text(p.as_ref()))));
                 *run.lock().unwrap_or_else(PoisonError::into_inner) = Some(r);
                 done.store(true, Ordering::Release);
@@ -445,15 +460,18 @@ fn evaluate<'py>(
                 let out = f.call0(py);
                 let targets = out.map(|o| Targets::borrow(&o.into_bound(py)));
                 // (without the GIL, on this thread: still inside this pool's scope)
-                detached(py, Workers::Caller, || {
-                    help_until(&done);
+                // (polling this call's watch while it waits for another worker's task)
+                detached(py, Workers::Caller, |_| {
+                    help_until(&done, &|| {
+                        let _ = call.watch.check();
+                    });
                     Ok(())
                 })?;
                 let targets = targets?;
                 let r = run.lock().unwrap_or_else(PoisonError::into_inner).take();
                 let r =
                     r.unwrap_or_else(|| Err(CoreError::Internal("the points did not run".into())));
-                let r = raised_by_handler(r.map_err(to_py), &interrupt);
+                let r = call.raised(r.map_err(to_py));
                 results(py, r, &error, model.dim, method, targets).map(Bound::unbind)
             })
         }))
@@ -502,9 +520,15 @@ fn hamiltonian<'py>(
     } else {
         Workers::Pool(threads)
     };
-    let run = detached(py, workers, || {
+    let run = detached(py, workers, |call| {
         let mut out = vec![C64::new(0.0, 0.0); npts * n * n];
-        model.with_source(&c, 0, &error, |src| src.fill(&k, &mut out))?;
+        model.with_source(&c, 0, &error, |src| {
+            let src = Watched {
+                inner: src,
+                watch: &call.watch,
+            };
+            src.fill(&k, &mut out)
+        })?;
         Ok(out)
     });
     let out = finish(py, run, &error)?;
@@ -534,14 +558,18 @@ fn eigh<'py>(
     }
     let (m, n) = (sh[0], sh[1]);
     let data: Vec<C64> = h.as_array().iter().copied().collect();
-    let (e, v) = detached(py, Workers::Pool(threads), || {
+    let (e, v) = detached(py, Workers::Pool(threads), |call| {
         let mut e = vec![0.0; m * n];
         let mut v = vec![C64::new(0.0, 0.0); m * n * n];
         // four matrices per task: n ≤ 8 are solved together in the lanes (eigh_many_into)
         e.par_chunks_mut(4 * n.max(1))
             .zip(v.par_chunks_mut(4 * (n * n).max(1)))
             .zip(data.par_chunks(4 * (n * n).max(1)))
-            .try_for_each(|((e, v), h)| eigh_many_into(h, n, e, v))?;
+            .try_for_each(|((e, v), h)| {
+                // (a large batch of large matrices takes long: Ctrl-C between tasks)
+                call.watch.check()?;
+                eigh_many_into(h, n, e, v)
+            })?;
         Ok((e, v))
     })?;
     let e =
@@ -578,19 +606,16 @@ fn flow<'py>(
     let t: Vec<f64> = pump.as_array().to_vec();
     let pos: Option<Vec<f64>> = positions.map(|p| p.as_array().iter().copied().collect());
     let error = Arc::new(Mutex::new(None));
-    let interrupt = Mutex::new(None);
-    let poll = signal_poll(&interrupt);
-    let watch = Watch::new(&poll);
-    let run = detached(py, Workers::Pool(threads), || {
+    let run = detached(py, Workers::Pool(threads), |call| {
         model.with_source(&c, 0, &error, |src| {
             let src = Watched {
                 inner: src,
-                watch: &watch,
+                watch: &call.watch,
             };
             plane_flow(&src, filling, pl, loop_points, &t, pos.as_deref())
         })
     });
-    let lines = finish(py, raised_by_handler(run, &interrupt), &error)?;
+    let lines = finish(py, run, &error)?;
     let arr = Array2::from_shape_fn((lines.len(), filling), |(i, j)| lines[i].centres[j]);
     Ok(arr.into_pyarray(py))
 }
@@ -637,9 +662,13 @@ fn decided_flow<'py>(
     s.validate().map_err(to_py)?;
     let c: Vec<f64> = coeff.as_array().to_vec();
     let error = Arc::new(Mutex::new(None));
-    let run = detached(py, Workers::Pool(threads), || {
+    let run = detached(py, Workers::Pool(threads), |call| {
         model.with_source(&c, 0, &error, |src| {
-            crate::point::decided_flow::decided_flow(src, filling, pl, &s)
+            let src = Watched {
+                inner: src,
+                watch: &call.watch,
+            };
+            crate::point::decided_flow::decided_flow(&src, filling, pl, &s)
         })
     });
     let f = finish(py, run, &error)?;

@@ -22,6 +22,16 @@ use std::f64::consts::TAU;
 /// Memory budget for the Hamiltonians of one batch of κ points.
 const BATCH_BYTES: usize = 32 << 20;
 
+/// κ points per batch of a batch source (a Python callback) for n×n Hamiltonians (`nn` = n²)
+/// of a `dim`-dimensional model: as many as [`BATCH_BYTES`] hold, but at least 2^dim (the
+/// TRIMs stay one batch, and a huge model is still asked for several points per call), in
+/// multiples of four (the eigensolvers take four κ points at a time, so a set split into
+/// batches gives the same values as one batch).
+pub fn batch_points(nn: usize, dim: usize) -> usize {
+    let fit = BATCH_BYTES / (nn * 16).max(1);
+    fit.max(1 << dim).div_ceil(4) * 4
+}
+
 /// Band-edge statistics over a set of κ points at a given filling.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct BandStats {
@@ -522,7 +532,7 @@ pub fn evaluate_points(
     let (dim, n) = (src.dim(), src.norb());
     let nn = n * n;
     let npts = kappa.len() / dim;
-    let chunk = (BATCH_BYTES / (nn * 16)).max(1);
+    let chunk = batch_points(nn, dim);
     let mut stats = BandStats::default();
     let mut energies = Vec::new();
     let mut vectors = Vec::new();
