@@ -303,6 +303,35 @@ def test_disk_full_during_the_final_write_is_one_line(
         assert ds.phase.shape == (30, 4)
 
 
+def test_full_disk_while_journalling_says_where_and_what_to_do(tmp_path: Path) -> None:
+    """A chunk that cannot be saved (file size limit of 1 KiB: every chunk is larger) ends
+    with one line that names the journal and says how to continue, not "[Errno 27] File too
+    large"; no temporary file is left in the journal, and the resume completes the run."""
+    import resource
+    import subprocess
+    import sys
+
+    config = bhz_config(tmp_path)
+
+    def small_files() -> None:
+        resource.setrlimit(resource.RLIMIT_FSIZE, (1 << 10, 1 << 10))
+
+    done = subprocess.run(
+        [sys.executable, "-m", "toposweep.cli", "run", str(config), "--quiet"],
+        capture_output=True, text=True, timeout=120, preexec_fn=small_files,
+    )  # fmt: skip
+    assert done.returncode == 2, done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1, done.stderr
+    journal = journal_path(tmp_path / "map.nc")
+    assert f"in the journal {journal}: File too large" in lines[0]
+    assert "run --resume" in lines[0]
+    assert not list(journal.glob("*.tmp"))
+    assert main(["run", str(config), "--quiet", "--resume"]) == 0
+    with ts.open_result(tmp_path / "map.nc", load=True) as ds:
+        assert ds.phase.shape == (30, 4)
+
+
 # -- one line, exit 2, instead of tracebacks ----------------------------------------------------
 
 

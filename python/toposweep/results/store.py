@@ -46,6 +46,7 @@ __all__ = [
     "Journal",
     "check_output",
     "identity_differences",
+    "malformed",
     "journal_path",
     "missing_ranges",
     "open_result",
@@ -261,10 +262,21 @@ class Journal:
         before the chunk itself, so no chunk exists without a schema to check it against.
         """
         arrays = {k: np.asarray(v) for k, v in raw.items()}
-        if not (self.path / SCHEMA_FILE).is_file():
-            text = json.dumps(self._schema(arrays), sort_keys=True).encode()
-            _atomic_write(self.path / SCHEMA_FILE, lambda fh: fh.write(text))
-        _atomic_write(self.path / self._name(start, stop), lambda fh: np.savez(fh, **arrays))
+        name = self.path / self._name(start, stop)
+        try:
+            if not (self.path / SCHEMA_FILE).is_file():
+                text = json.dumps(self._schema(arrays), sort_keys=True).encode()
+                _atomic_write(self.path / SCHEMA_FILE, lambda fh: fh.write(text))
+            _atomic_write(name, lambda fh: np.savez(fh, **arrays))
+        except OSError as exc:  # disk full, file size limit, quota: say where and what to do
+            for tmp in (name, self.path / SCHEMA_FILE):
+                tmp.with_name(tmp.name + ".tmp").unlink(missing_ok=True)
+            raise StoreError(
+                f"cannot save points {start}…{stop - 1} in the journal {self.path}: "
+                f"{exc.strerror or exc}; the chunks finished before are kept — free space (or "
+                "raise the file size limit) and run again with resume=True (command line: "
+                "run --resume)"
+            ) from None
 
     def load(self, start: int, stop: int) -> dict[str, NDArray[Any]]:
         """Arrays of one finished chunk."""
@@ -759,7 +771,8 @@ def open_result(
         except OSError as exc:
             raise StoreError(f"{p}: cannot read ({exc.strerror or exc})") from None
     try:
-        ds = xr.open_dataset(p, engine="h5netcdf")
+        # (phony_dims given: a plain HDF5 file is read without a warning before our message)
+        ds = xr.open_dataset(p, engine="h5netcdf", phony_dims="access")
     except Exception as exc:  # h5py/h5netcdf raise many types for broken files
         raise StoreError(
             f"{p}: not a readable NetCDF4/HDF5 file ({type(exc).__name__}: {exc}); "
@@ -769,6 +782,13 @@ def open_result(
     if "toposweep_version" not in ds.attrs or "model" not in ds.attrs or missing:
         ds.close()
         raise StoreError(f"{p}: not a toposweep result file (no toposweep variables/attributes)")
+    wrong = malformed(ds)
+    if wrong is not None:
+        ds.close()
+        raise StoreError(
+            f"{p}: not a valid toposweep result file: {wrong} (changed since toposweep wrote "
+            "it, e.g. by an HDF5 tool); recompute it"
+        )
     if load:
         try:
             ds.load()
@@ -778,6 +798,50 @@ def open_result(
                 f"{p}: damaged data ({type(exc).__name__}: {exc}); recompute the file"
             ) from None
     return ds
+
+
+def malformed(ds: xr.Dataset) -> str | None:
+    """What is wrong with the attributes and variables toposweep reads from a file, or None.
+
+    A file without its digest (changed by an HDF5 tool) is read unverified; these are the
+    values the summary, the plots and a resume rely on.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> ds = xr.Dataset({"gap_direct": ((), 1.0), "phase": ((), 0)},
+    ...                 attrs={"model": "null", "filling": 2})
+    >>> malformed(ds)
+    "attribute 'model' is not a JSON object"
+    """
+    try:
+        model = json.loads(ds.attrs["model"])
+    except (TypeError, ValueError):
+        model = None
+    if not isinstance(model, dict):
+        return "attribute 'model' is not a JSON object"
+    filling = ds.attrs.get("filling")
+    if (
+        isinstance(filling, bool | np.bool_)
+        or not isinstance(filling, int | np.integer)
+        or filling < 1
+    ):
+        return f"attribute 'filling' is not a positive integer ({filling!r})"
+    if "sampling" in ds.attrs:
+        try:
+            sampling = json.loads(ds.attrs["sampling"])
+        except (TypeError, ValueError):
+            sampling = None
+        if not isinstance(sampling, dict):
+            return "attribute 'sampling' is not a JSON object"
+    if "gap_direct" not in ds.variables:
+        return "variable 'gap_direct' is missing"
+    for d in ds.phase.dims:
+        if d in ds.coords:
+            values = np.asarray(ds[d].values)
+            if values.dtype.kind not in "fiu" or not np.isfinite(values).all():
+                return f"coordinate {d!r} holds values that are not finite numbers"
+    return None
 
 
 def read_identity(ds: xr.Dataset) -> dict[str, Any] | None:
