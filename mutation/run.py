@@ -34,6 +34,7 @@ import argparse
 import json
 import os
 import re
+import shlex
 import shutil
 import subprocess
 import sys
@@ -480,7 +481,7 @@ def remember(results: list[GroupResult], argv: list[str]) -> list[GroupResult]:
     """Merge this run's groups into ``mutation/last_run.json``; return every group's last run."""
     state = json.loads(STATE.read_text()) if STATE.exists() else {}
     stamp = time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime())
-    command = " ".join(["python", "mutation/run.py", *argv])
+    command = shlex.join(["python", "mutation/run.py", *argv])
     for r in results:
         entry = {
             "tool": r.tool,
@@ -550,7 +551,7 @@ def full_run_time(results: list[GroupResult]) -> list[str]:
 
 def write_report(results: list[GroupResult], argv: list[str]) -> int:
     """Write docs/mutants.md; return the number of unexplained survivors."""
-    results = remember(results, argv)
+    results = sorted(remember(results, argv), key=lambda r: (r.tool != "cosmic-ray", r.name))
     equivalent = load_equivalent()
     unexplained = 0
     lines = [
@@ -583,7 +584,7 @@ def write_report(results: list[GroupResult], argv: list[str]) -> int:
             f"{r.load or '–'} | {r.finished}, `{r.command}`"
             f"{f'; survivors rechecked {r.rechecked}' if r.rechecked else ''} |"
         )
-    done = {r.name for r in results}
+    done = {r.name.split(" [")[0] for r in results}  # a group run in parts counts as run
     for g in [*PYTHON_GROUPS, *RUST_GROUPS]:
         if g.name not in done:
             tool = "cosmic-ray" if isinstance(g, PythonGroup) else "cargo-mutants"
