@@ -229,7 +229,9 @@ impl Bloch {
         let remainder = bound.remainder(half);
         let (n, dim) = (self.norb, self.dim);
         let nn = n * n;
-        let patterns = 1usize << dim.saturating_sub(1);
+        // (axes of zero width add nothing: a step along one axis needs one matrix)
+        let axes: Vec<usize> = (0..dim).filter(|&i| half[i] > 0.0).collect();
+        let patterns = 1usize << axes.len().saturating_sub(1);
         // the corners' first-order matrices Σ_R w_R(s) (S_R cos φ_R − C_R sin φ_R), where
         // ∂_i(C cos φ + S sin φ) = 2π R_i (S cos φ − C sin φ) and w_R(s) = 2π Σ_i s_i h_i R_i
         let mut mats = vec![C64::new(0.0, 0.0); patterns * nn];
@@ -242,10 +244,12 @@ impl Bloch {
             let phase: f64 = r.iter().zip(centre).map(|(a, b)| a * b).sum::<f64>() * TAU;
             let (sn, cs) = phase.sin_cos();
             for (p, out) in mats.chunks_exact_mut(nn).enumerate() {
-                // pattern p: sign + on axis 0, bit i−1 of p the sign on axis i
-                let w: f64 = (0..dim)
-                    .map(|i| {
-                        let sign = if i > 0 && (p >> (i - 1)) & 1 == 1 {
+                // pattern p: sign + on the first axis, bit j−1 of p the sign on the j-th
+                let w: f64 = axes
+                    .iter()
+                    .enumerate()
+                    .map(|(j, &i)| {
+                        let sign = if j > 0 && (p >> (j - 1)) & 1 == 1 {
                             -1.0
                         } else {
                             1.0
