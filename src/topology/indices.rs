@@ -233,4 +233,29 @@ mod tests {
         let r = combine(2, &[1], reason::GAPLESS, reason::NOT_CONVERGED);
         assert_eq!((r.nu0, r.reason), (-1, reason::GAPLESS));
     }
+
+    /// Band overlap: a defined phase with a negative indirect gap becomes the metal code of
+    /// its bands — 10 trivial, 11 weak, 12 strong, 13 Z2-odd 2D (the names the Dataset's
+    /// flag table gives codes 10–13: metal_with_trivial_bands, ..._weak_topological_...,
+    /// ..._strong_topological_..., ..._z2_odd_2d_bands); an undefined phase stays undefined,
+    /// and a gap of zero (touching, not overlapping) or positive keeps the phase.
+    #[test]
+    fn overlapping_bands_give_the_metal_code_of_the_phase() {
+        let table = [
+            (phase::TRIVIAL, 10),
+            (phase::WEAK, 11),
+            (phase::STRONG, 12),
+            (phase::Z2_ODD_2D, 13),
+        ];
+        for (p, metal) in table {
+            assert_eq!(with_overlap(p, -0.3), metal, "phase {p}");
+            assert_eq!(with_overlap(p, -1e-12), metal, "phase {p}");
+            for gap in [0.0, 1e-12, 0.7, f64::NAN] {
+                assert_eq!(with_overlap(p, gap), p, "phase {p}, gap {gap}");
+            }
+        }
+        for gap in [-0.3, 0.0, 0.7] {
+            assert_eq!(with_overlap(phase::UNDEFINED, gap), phase::UNDEFINED);
+        }
+    }
 }
