@@ -523,8 +523,6 @@ def full_run_time(results: list[GroupResult]) -> list[str]:
         lanes[r.tool][1] += sum(r.counts.values())
     py, rust = lanes["cosmic-ray"], lanes["cargo-mutants"]
     idle = {t: lanes[t][1] * CPU_SECONDS_PER_MUTANT[t] / 60 for t in lanes}
-    flow = [r for r in results if r.name == "rust-flow"]  # the first Rust group run in place
-    in_place = flow[0].seconds / max(sum(flow[0].counts.values()), 1) if flow else float("nan")
     return [
         "",
         "## How long a full run takes",
@@ -533,10 +531,9 @@ def full_run_time(results: list[GroupResult]) -> list[str]:
         f"(the minutes above, summed; a group's partial runs add up to the group), the Python "
         f"lane takes {py[0] / 60:.0f} min and the Rust lane {rust[0] / 60:.0f} min at the "
         "loads shown; `make mutants` runs the two side by side, so about the longer of them. "
-        "(rust-indices and rust-parity were last run in copies of the tree, two jobs, each "
-        f"starting from a cold build: ~30 s per mutant; in place, as now, rust-flow took "
-        f"{in_place:.0f} s per mutant at a load of 10–17, which makes "
-        f"{rust[1] * in_place / 60:.0f} min for all Rust groups.)",
+        "(The Rust groups run in place, on the warm target/: 4–11 s per mutant at these "
+        "loads; in copies of the tree, two jobs each starting from a cold build, they took "
+        "~30 s per mutant before 5 December.)",
         "",
         "CPU time per mutant does not depend on the load: "
         f"{CPU_SECONDS_PER_MUTANT['cosmic-ray']} s (cosmic-ray) and "
