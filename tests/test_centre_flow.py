@@ -121,3 +121,20 @@ def test_a_flow_without_time_reversal_has_no_z2() -> None:
         bare.add(r, t, term)
     flow = ts.centre_flow(bare, 2, {"mass": -1.0, "hopping": 1.0})
     assert int(flow.z2) == -1 and "undefined_reason" not in flow
+
+
+def test_flow_figure_of_a_mapped_grid_names_the_grid_point_asked_for():
+    """With ``coefficients=`` the title gives the grid point (``--at``'s names), then the terms.
+
+    BHZ at mass = 0.5 × level = −1 is Z2-odd (Qi, Wu & Zhang 2006: 0 < |m/t| < 2).
+    """
+    from toposweep.flowplot import flow_figure
+
+    ds = ts.sweep(
+        ts.models.bhz(), {"level": [-2.0, 3.0]}, filling=2, progress=False,
+        coefficients=lambda p: {"mass": 0.5 * p["level"], "hopping": 1.0},
+    )  # fmt: skip
+    fig = flow_figure(ds, {"level": -2.0})
+    title = fig.get_suptitle()
+    assert "level = -2\n" in title and "mass = -1" in title
+    assert fig.axes[0].get_title() == "2D model: Z2 = 1"

@@ -146,6 +146,14 @@ def test_bad_arguments_are_one_line_exit_2(argv, capsys, tmp_path: Path) -> None
     assert err.count("\n") == 1 and "Traceback" not in err
 
 
+@pytest.mark.parametrize("command", ["summary", "plot"])
+def test_a_configuration_given_for_a_result_says_which_file(command, capsys, tmp_path) -> None:
+    (tmp_path / "wd.toml").write_text(CONFIG)
+    assert main([command, str(tmp_path / "wd.toml")]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "is a run configuration" in err and "`output`" in err
+
+
 def test_model_from_a_user_file(tmp_path: Path, capsys) -> None:
     (tmp_path / "mine.py").write_text(
         textwrap.dedent(

@@ -66,6 +66,11 @@ def _image_path(out: Path, fig: object) -> Path:
 
 def _reading(path: object, read: Callable[[], int]) -> int:
     """Run ``read``; an unexpected error while reading a result file is one line."""
+    if Path(str(path)).suffix == ".toml":  # a natural slip: the configuration for its output
+        raise ConfigError(
+            f"{path} is a run configuration, not a result file: give the file named by its "
+            f"`output` (computed by `toposweep run {path}`)"
+        )
     try:
         return read()
     except (ToposweepError, OSError, KeyboardInterrupt):

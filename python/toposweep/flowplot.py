@@ -47,7 +47,9 @@ def flow_figure(ds: xr.Dataset, at: Mapping[str, float], *, allow_code: bool = F
 
     The flows are recomputed with the file's sampling, so they are the flows its indices came
     from (inserted lines marked). Grid dims not in ``at`` are taken at their middle value.
-    ``allow_code`` as in :func:`point_of`.
+    The title names the grid point and, when the file's grid was mapped onto the model's
+    terms (``coefficients=``), the term values it maps to. ``allow_code`` as in
+    :func:`point_of`.
     """
     model, point, params = point_of(ds, at, allow_code=allow_code)
     filling = int(ds.attrs["filling"])
@@ -55,5 +57,8 @@ def flow_figure(ds: xr.Dataset, at: Mapping[str, float], *, allow_code: bool = F
     planes = [(a, c) for a in (1, 2, 3) for c in (0.0, 0.5)] if model.dim == 3 else [(None, 0.0)]
     flows = [centre_flow(model, filling, params, axis=a, cut=c, **sampling) for a, c in planes]
     where = ", ".join(f"{k} = {v:.4g}" for k, v in params.items())
+    if "coefficients" in ds.attrs:  # the grid point asked for, then the terms it maps to
+        grid = {str(d): float(point[d]) for d in ds.phase.dims}
+        where = ", ".join(f"{k} = {v:.4g}" for k, v in grid.items()) + f"\nmodel terms: {where}"
     title = f"centre flow (hybrid Wannier centres), {model.name}\n{where}"
     return plot_flow(flows, title=title)
