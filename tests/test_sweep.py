@@ -159,6 +159,21 @@ def test_coefficients_map_user_variables() -> None:
     np.testing.assert_allclose(ds.term_mass.values, -1.0)
 
 
+def test_coefficients_reading_a_variable_not_given_says_to_give_it() -> None:
+    # the natural slip: the mapping reads a fixed variable that params= does not hold
+    def renormalised(p: dict[str, float]) -> dict[str, float]:
+        return {"hopping": p["z"] * p["bare_hopping"], "mass": -1.0}
+
+    with pytest.raises(ParameterError, match=r"reads 'bare_hopping'.*params="):
+        ts.sweep(ts.models.bhz(), {"z": [0.5]}, 2, coefficients=renormalised, **FAST)
+
+    def broken(p: dict[str, float]) -> dict[str, float]:
+        return {"hopping": {}["inner"], "mass": p["z"]}  # its own lookup fails: unchanged
+
+    with pytest.raises(KeyError):
+        ts.sweep(ts.models.bhz(), {"z": [0.5]}, 2, coefficients=broken, **FAST)
+
+
 @pytest.mark.parametrize(
     ("kwargs", "error", "words"),
     [

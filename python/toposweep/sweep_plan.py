@@ -140,8 +140,15 @@ class SweepPlan:
         model = self.request.model
         if self.coefficients is None:
             return model.resolve(user)
-        terms = self.coefficients(dict(user))  # (its own errors pass unchanged: executors
-        # retry them, and the command line reports them in one line)
+        try:  # (its own errors pass unchanged: executors retry them, and the command line
+            terms = self.coefficients(_Point(user))  # reports them in one line)
+        except _NotGiven as exc:  # except reading a variable the call never gave it
+            key = exc.args[0]
+            raise ParameterError(
+                f"coefficients {callable_name(self.coefficients)} reads {key!r}, which is "
+                f"neither swept nor fixed (it was given {sorted(user)}); give its value in "
+                "params= (in a run configuration: [params])"
+            ) from None
         if not isinstance(terms, Mapping):
             raise ParameterError(
                 f"coefficients {callable_name(self.coefficients)} must return a dict "
@@ -165,6 +172,21 @@ class SweepPlan:
             user.update(zip(self.dims, values, strict=True))
             out.append(self.model_point(user))
         return out
+
+
+class _NotGiven(KeyError):
+    """A coefficients function read a variable that is neither swept nor fixed."""
+
+
+class _Point(dict[str, float]):
+    """The variables handed to a coefficients function.
+
+    A plain dict whose missing keys raise :class:`_NotGiven`, told apart from a failed lookup
+    inside the user's own code (which keeps its KeyError).
+    """
+
+    def __missing__(self, key: str) -> float:
+        raise _NotGiven(key)
 
 
 def make_plan(
