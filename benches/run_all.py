@@ -516,6 +516,16 @@ def main() -> None:
         "(the default) / always, interleaved rounds; the last rows sit 0.1 % from the "
         "Kane–Mele transition (λ_SO = 0.06), where the loops' κ points crowd toward K.",
     )
+    from near_closing_cost import lattice_table
+
+    section(
+        "The lattice method refined locally: cost of method=\"both\"",
+        lattice_table(2 if args.quick else 3),
+        "`benches/near_closing_cost.py`: default sampling, all cores, the default call against "
+        "`method=\"both\"`, interleaved rounds; the lattice mesh is refined only where the "
+        "plaquette field or links are rough (docs/near-closings.md), so the default points "
+        "pay what they paid before and the points next to transitions pay for their patch.",
+    )
     doc.append(f"(total benchmark time {time.perf_counter() - t_start:.0f} s; {load()} at the end)")
     if args.out:
         kept = ""

@@ -142,9 +142,16 @@ def test_more_reasons_read_as_why():
     ds = ts.invariants(as_callable(stretched_bhz(5)), 2, **COARSE)
     assert meaning(ds.undefined_reason) == "changes_with_doubled_loop_points"
     assert meaning(ds.converged) == "no"
-    # a lattice mesh of four points per loop is too coarse near the Kane–Mele boundary
+    # 1e-10 from the Kane–Mele boundary λ_v* = 3√3 λ_SO (Kane & Mele, PRL 95, 226801
+    # (2005)) with a floor below the gap: the lattice mesh cannot be refined far enough
+    critical = 3**1.5 * 0.06
     ds = ts.invariants(
-        ts.models.kane_mele(), 2, {"staggered": 0.45}, method="lattice", loop_points=4, lines=3
+        ts.models.kane_mele(),
+        2,
+        {"spin_orbit": 0.06, "staggered": critical * (1 - 1e-10)},
+        method="lattice",
+        gap_floor=1e-14,
+        prove_gap="never",
     )
     assert meaning(ds.lattice_undefined_reason) == "lattice_mesh_too_coarse"
     # an i·1 hopping is odd under Θ = iσ_y K: time reversal broken at b ≠ 0 only

@@ -126,20 +126,50 @@ def test_sweep_carries_the_lattice_result():
 
 def test_rough_mesh_is_refined_near_a_transition():
     # 0.01 inside the strong phase of Fu & Kane, PRB 76, 045302 (2007) (−3 < m < −1): the base
-    # mesh's links are too rough (|U| < 0.5), one doubling resolves it
+    # mesh's links are too rough (|U| < 0.5) next to Γ; only the cells there are split
     ds = ts.invariants(ts.models.wilson_dirac(), 2, {"mass": -2.99}, method="both")
-    assert (int(ds.lattice_loop_points), int(ds.lattice_pump_steps)) == (64, 40)
     assert int(ds.nu0_lattice) == 1 and int(ds.methods_agree) == 1
     assert float(ds.lattice_min_link) >= 0.5
+    n1, n2 = int(ds.lattice_loop_points), int(ds.lattice_pump_steps)
+    assert (n1, n2) >= (64, 40)  # finer than the 32 × 20 base somewhere
+    base = 6 * 32 * 21  # six planes
+    assert base < int(ds.lattice_points) < base + (6 * n1 * (n2 + 1) - base) // 10
 
 
-def test_too_coarse_mesh_is_undefined_not_wrong():
-    # Kane & Mele, PRL 95, 226801 (2005): λ_v = 0.87 × 3√3 λ_SO is still Z2-odd
+def test_coarse_mesh_is_refined_to_the_answer():
+    # Kane & Mele, PRL 95, 226801 (2005): λ_v = 0.87 × 3√3 λ_SO is still Z2-odd. A base mesh
+    # of 4 × 2 cells is far too rough; split where it fails, it answers (it gave up before)
     params = {"staggered": 0.45}
     coarse = ts.invariants(
         ts.models.kane_mele(), 2, params, method="lattice", loop_points=4, lines=3
     )
-    assert int(coarse.nu0) == -1 and int(coarse.lattice_undefined_reason) == 10
-    assert int(coarse.lattice_loop_points) == 16  # two doublings of the rounded-up 4 points
-    fine = ts.invariants(ts.models.kane_mele(), 2, params, method="lattice")
-    assert int(fine.nu0) == 1
+    assert int(coarse.nu0) == 1 and int(coarse.lattice_undefined_reason) == 0
+    assert 4 * 3 < int(coarse.lattice_points) < int(coarse.lattice_loop_points) * 3
+
+
+CRITICAL = 3 * SQRT3 * 0.06  # Kane & Mele, PRL 95, 226801 (2005), λ_SO = 0.06
+
+
+@pytest.mark.parametrize(("rel", "z2"), [(1e-8, 1), (-1e-8, 0)])
+def test_refinement_follows_the_flux_to_tiny_gaps(rel, z2):
+    # 1e-8 from λ_v*, gap ~6e-9 (a floor below it): a uniform mesh would need ~10^17 points;
+    # the cells split toward K only, under a thousand points in all
+    params = {"spin_orbit": 0.06, "staggered": CRITICAL * (1 - rel)}
+    ds = ts.invariants(
+        ts.models.kane_mele(), 2, params, method="lattice", gap_floor=1e-14, prove_gap="never"
+    )
+    assert float(ds.gap_direct) < 1e-8
+    assert int(ds.nu0) == z2 and int(ds.lattice_undefined_reason) == 0
+    assert int(ds.lattice_loop_points) >= 32 << 20 and int(ds.lattice_points) < 1000
+
+
+def test_refinement_cap_is_undefined_not_wrong():
+    # 1e-10 from λ_v*: the flux sits within cells smaller than 2^-24 of a base cell, where
+    # refinement stops: undefined (reason 10), never a count from a mesh that missed it
+    params = {"spin_orbit": 0.06, "staggered": CRITICAL * (1 - 1e-10)}
+    ds = ts.invariants(
+        ts.models.kane_mele(), 2, params, method="lattice", gap_floor=1e-14, prove_gap="never"
+    )
+    assert float(ds.gap_direct) > 1e-14  # gapped by the floor given: the mesh gave up
+    assert int(ds.nu0) == -1 and int(ds.lattice_undefined_reason) == 10
+    assert float(ds.lattice_max_field) > 2.0

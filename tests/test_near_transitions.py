@@ -327,3 +327,27 @@ def test_near_transition(name, distance, side):
     starts = [closing.kappa, -closing.kappa, ds.gap_kappa.values]
     gap = rb.min_direct_gap(t.reference(value), t.dim, t.filling, extra_starts=starts)
     check_point(ds, want, gap, f"{t.name} {t.param}={value!r} (reference: {t.source})")
+
+
+@pytest.mark.parametrize(("name", "distance", "side"), CASES)
+def test_near_transition_both_methods(name, distance, side):
+    """``method="both"``: the lattice Z2 (Fukui & Hatsugai, J. Phys. Soc. Jpn. 76, 053702
+    (2007)) obeys the same rule as the headline indices — defined and right wherever the
+    independent gap is over ``GAP_THRESHOLD`` and proven, because its mesh is refined locally
+    where the plaquette field or links are rough instead of giving up (reason 10) — and agrees
+    with the Wilson loop wherever both answer."""
+    t = BY_NAME[name]
+    value = point_value(t, distance, side)
+    want = expected_indices(name, value, side)
+    closing = critical_value(name)
+    ds = ts.invariants(built_model(name), t.filling, {**t.fixed, t.param: value}, method="both")
+    starts = [closing.kappa, -closing.kappa, ds.gap_kappa.values]
+    gap = rb.min_direct_gap(t.reference(value), t.dim, t.filling, extra_starts=starts)
+    what = f"{t.name} {t.param}={value!r} (reference: {t.source})"
+    check_point(ds, want, gap, what)
+    lattice = ds.assign(nu0=ds.nu0_lattice, undefined_reason=ds.lattice_undefined_reason)
+    if "nu" in ds:
+        lattice = lattice.assign(nu=ds.nu_lattice)
+    check_point(lattice, want, gap, "lattice method, " + what)
+    if int(ds.nu0) != -1 and int(ds.nu0_lattice) != -1:
+        assert int(ds.methods_agree) == 1, what

@@ -65,6 +65,10 @@ impl Column {
     }
 }
 
+fn clamp_i32(x: usize) -> i32 {
+    i32::try_from(x).unwrap_or(i32::MAX)
+}
+
 /// Every quantity of `res`, in the order the binding returns them. The lattice and parity
 /// columns are there only when every point has that result.
 pub fn columns(res: &[PointResult], dim: usize, method: Method) -> Vec<Column> {
@@ -172,9 +176,16 @@ pub fn columns(res: &[PointResult], dim: usize, method: Method) -> Vec<Column> {
             &[2],
             Values::I32(
                 l.iter()
-                    .flat_map(|x| [x.mesh.0 as i32, x.mesh.1 as i32])
+                    // (a locally refined mesh may reach 2^24 × the base spacing: the uniform
+                    // equivalent of a large base then passes i32, and is clamped)
+                    .flat_map(|x| [clamp_i32(x.mesh.0), clamp_i32(x.mesh.1)])
                     .collect(),
             ),
+        ));
+        out.push(col(
+            "lattice_points",
+            &[],
+            Values::I32(l.iter().map(|x| clamp_i32(x.points)).collect()),
         ));
     }
     let parity: Option<Vec<_>> = res.iter().map(|r| r.parity.as_ref()).collect();
@@ -271,6 +282,7 @@ mod tests {
                 max_field: 0.3,
                 min_link: 0.9,
                 mesh: (12, 8),
+                points: 300,
             });
         }
         let cols = columns(&res, 3, Method::Both);

@@ -13,7 +13,8 @@ use crate::point::gap_proof::{prove_gap, GapProof};
 use crate::point::gap_search::{minimise, pick_starts, SearchSettings};
 use crate::sampling::{Method, ProveGap, Sampling, AUTO_FLOOR_REL, AUTO_PROOF_SHARE, NEAR_FLOOR};
 use crate::topology::indices::{combine, Indices};
-use crate::topology::lattice_z2::{lattice_planes_initial, lattice_planes_refine};
+use crate::topology::lattice_refine::lattice_planes_refine;
+use crate::topology::lattice_z2::lattice_planes_initial;
 use crate::topology::parity::{parity_indices, reason, trims, ParityResult};
 use crate::topology::plane_flows::{certify, line_stats, refine_lines, resolve_planes, summarise};
 pub use crate::topology::plane_flows::{plane_flow, planes, Plane, PlaneResult};
@@ -68,7 +69,10 @@ pub struct LatticeSummary {
     pub indices: Indices,
     pub max_field: f64,
     pub min_link: f64,
+    /// finest spacing over the planes, as loop points × pump intervals of a uniform mesh
     pub mesh: (usize, usize),
+    /// κ points of the lattice meshes of all planes
+    pub points: usize,
 }
 
 /// Hamiltonians the gap proof of one point may evaluate before it gives up. With
@@ -297,6 +301,7 @@ pub fn evaluate_point(
             max_field: lat.iter().map(|o| o.max_field).fold(0.0, f64::max),
             min_link: lat.iter().map(|o| o.min_link).fold(f64::INFINITY, f64::min),
             mesh: lat.iter().map(|o| o.mesh).max().unwrap_or((0, 0)),
+            points: lat.iter().map(|o| o.points).sum(),
         }
     });
     let wilson = want_wilson.then(|| {

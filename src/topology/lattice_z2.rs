@@ -51,8 +51,11 @@ pub struct LatticeOutcome {
     /// smallest |U| over the links: the product of the cosines of the principal angles between
     /// neighbouring occupied spaces (gauge invariant; near 0 the mesh misses how they turn)
     pub min_link: f64,
-    /// mesh used: loop points × pump intervals
+    /// finest spacing of the mesh used, as the uniform mesh of that spacing: loop points ×
+    /// pump intervals
     pub mesh: (usize, usize),
+    /// κ points of the mesh used
+    pub points: usize,
 }
 
 impl LatticeOutcome {
@@ -94,7 +97,7 @@ pub fn det(a: &[C64], m: usize) -> C64 {
 }
 
 /// Θ v = U_T v* for every column of an n × m frame (row-major).
-fn time_reverse(u_t: &[C64], psi: &[C64], n: usize, m: usize, out: &mut [C64]) {
+pub(crate) fn time_reverse(u_t: &[C64], psi: &[C64], n: usize, m: usize, out: &mut [C64]) {
     for i in 0..n {
         for c in 0..m {
             let mut s = C64::new(0.0, 0.0);
@@ -108,7 +111,7 @@ fn time_reverse(u_t: &[C64], psi: &[C64], n: usize, m: usize, out: &mut [C64]) {
 
 /// Replace the occupied frame at a TRIM by a Kramers-paired orthonormal frame of the same
 /// space: columns v1, Θv1, v2, Θv2, … (Gram–Schmidt over the original columns).
-fn kramers_frame(u_t: &[C64], psi: &mut [C64], n: usize, m: usize) -> CoreResult<()> {
+pub(crate) fn kramers_frame(u_t: &[C64], psi: &mut [C64], n: usize, m: usize) -> CoreResult<()> {
     let col = |f: &[C64], c: usize| -> Vec<C64> { (0..n).map(|i| f[i * m + c]).collect() };
     let orig: Vec<Vec<C64>> = (0..m).map(|c| col(psi, c)).collect();
     let mut basis: Vec<Vec<C64>> = Vec::with_capacity(m);
@@ -148,7 +151,7 @@ fn kramers_frame(u_t: &[C64], psi: &mut [C64], n: usize, m: usize) -> CoreResult
 }
 
 /// det ψ_a† ψ_b of two n × m frames.
-fn link(a: &[C64], b: &[C64], n: usize, m: usize) -> C64 {
+pub(crate) fn link(a: &[C64], b: &[C64], n: usize, m: usize) -> C64 {
     let mut o = vec![C64::new(0.0, 0.0); m * m];
     for i in 0..n {
         for p in 0..m {
@@ -216,11 +219,11 @@ pub fn lattice_z2(
 }
 
 /// Energies and occupied frame (n × m, row-major) of one mesh point.
-type MeshPoint = (Vec<f64>, Vec<C64>);
+pub(crate) type MeshPoint = (Vec<f64>, Vec<C64>);
 
 /// Energies and occupied frames (n × m) of every mesh point, H for all of them in one batch
 /// (sources that prefer batches: Python callbacks).
-fn mesh_in_one_batch(
+pub(crate) fn mesh_in_one_batch(
     src: &dyn BlochSource,
     kappa: &[f64],
     n: usize,
@@ -330,6 +333,7 @@ pub fn z2_of_frames(
             max_field: f64::INFINITY,
             min_link,
             mesh: (n1, n2),
+            points: npts,
         });
     }
     // Link phases. On the two invariant rows the link s → s + δ and its time-reversed
@@ -363,11 +367,9 @@ pub fn z2_of_frames(
         max_field,
         min_link,
         mesh: (n1, n2),
+        points: npts,
     })
 }
-
-/// How often the lattice mesh may be doubled in each direction before giving up.
-const LATTICE_DOUBLINGS: usize = 2;
 
 /// Lattice Z2 of every plane at the base mesh (loop points rounded up to even × pump
 /// intervals of the initial lines).
@@ -385,30 +387,8 @@ pub fn lattice_planes_initial(
         .collect()
 }
 
-/// Double the lattice mesh of every plane whose field or links are too rough, up to
-/// `LATTICE_DOUBLINGS` times.
-pub fn lattice_planes_refine(
-    src: &dyn BlochSource,
-    pl: &[LatticePlane],
-    filling: usize,
-    u_t: &[C64],
-    lat: &mut [LatticeOutcome],
-    stats: &mut BandStats,
-) -> CoreResult<()> {
-    for (p, out) in pl.iter().zip(lat.iter_mut()) {
-        for _ in 0..LATTICE_DOUBLINGS {
-            if out.admissible() {
-                break;
-            }
-            let (n1, n2) = out.mesh;
-            *out = lattice_z2(src, p, filling, u_t, 2 * n1, 2 * n2, stats, &mut Vec::new())?;
-        }
-    }
-    Ok(())
-}
-
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::zone::bloch::Hoppings;
 
@@ -440,7 +420,7 @@ mod tests {
     /// Z2 = 1 for 0 < |m| < 2 (Qi, Wu & Zhang, PRB 74, 085308 (2006); Bernevig, Hughes & Zhang,
     /// Science 314, 1757 (2006)). An extra term `r` (Rashba-like, s_x ⊗ σ_y sin k_y... here the
     /// on-site s_x ⊗ σ_y) couples the spins and breaks s_z conservation but not time reversal.
-    fn bhz(rashba: f64, mix: f64) -> (Hoppings, Vec<C64>) {
+    pub(crate) fn bhz(rashba: f64, mix: f64) -> (Hoppings, Vec<C64>) {
         let z = c(0.0, 0.0);
         let o = c(1.0, 0.0);
         let i = c(0.0, 1.0);
@@ -493,7 +473,7 @@ mod tests {
         (h, kron([z, o, -o, z], s0)) // U_T = iσ_y ⊗ 1
     }
 
-    fn plane() -> LatticePlane {
+    pub(crate) fn plane() -> LatticePlane {
         LatticePlane {
             base: [0.0; 3],
             loop_axis: 0,

@@ -60,7 +60,7 @@ __all__ = ["labels_of", "phase_map"]
 #: the journal's per-point record of which grid point a numbered evaluation was
 GRID_INDEX = "grid_index"
 #: flat results that say how the work went, not what the point is: 0 where not evaluated
-WORK_COUNTERS = ("lines_used", "loop_points_used", "lattice_loop_points")
+WORK_COUNTERS = ("lines_used", "loop_points_used", "lattice_mesh", "lattice_points")
 #: default transition_tol, as a fraction of a grid spacing
 TRANSITION_TOL = 1e-3
 #: under prove_gap="auto" the core makes a point whose proof is unfinished undefined when its

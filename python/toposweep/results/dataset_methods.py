@@ -148,8 +148,8 @@ def method_fields(
             (),
             np.int32,
             {
-                "long_name": "kappa points along the loop axis of the finest lattice mesh used "
-                "(doubled where the field or links were too rough)",
+                "long_name": "kappa points along the loop axis of a uniform mesh of the finest "
+                "lattice spacing used (cells are split where the field or links are too rough)",
                 "units": "1",
             },
             lambda raw: raw["lattice_mesh"][:, 0],
@@ -159,11 +159,22 @@ def method_fields(
             (),
             np.int32,
             {
-                "long_name": "steps from 0 to 1/2 along the pump axis of the finest lattice "
-                "mesh used",
+                "long_name": "steps from 0 to 1/2 along the pump axis of a uniform mesh of the "
+                "finest lattice spacing used",
                 "units": "1",
             },
             lambda raw: raw["lattice_mesh"][:, 1],
+        ),
+        Field(
+            "lattice_points",
+            (),
+            np.int32,
+            {
+                "long_name": "kappa points of the lattice meshes of all planes (refined locally "
+                "where the field or links were too rough)",
+                "units": "1",
+            },
+            "lattice_points",
         ),
     ]
     if method == "both":
