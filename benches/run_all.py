@@ -519,10 +519,10 @@ def main() -> None:
     from near_closing_cost import lattice_table
 
     section(
-        "The lattice method refined locally: cost of method=\"both\"",
+        'The lattice method refined locally: cost of method="both"',
         lattice_table(2 if args.quick else 3),
         "`benches/near_closing_cost.py`: default sampling, all cores, the default call against "
-        "`method=\"both\"`, interleaved rounds; the lattice mesh is refined only where the "
+        '`method="both"`, interleaved rounds; the lattice mesh is refined only where the '
         "plaquette field or links are rough (docs/near-closings.md), so the default points "
         "pay what they paid before and the points next to transitions pay for their patch.",
     )

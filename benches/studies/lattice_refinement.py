@@ -60,14 +60,26 @@ def points() -> list[tuple[str, ts.TightBinding, int, dict, tuple | None, rb.Ham
                 want = family.expected_indices(t.name, value, side)
                 label = f"{t.name} {d:.0e} {'above' if side > 0 else 'below'}"
                 out.append(
-                    (label, family.built_model(t.name), t.filling, {**t.fixed, t.param: value},
-                     want, (t.reference(value), t.dim, closing.kappa))
+                    (
+                        label,
+                        family.built_model(t.name),
+                        t.filling,
+                        {**t.fixed, t.param: value},
+                        want,
+                        (t.reference(value), t.dim, closing.kappa),
+                    )
                 )
     km = ts.models.kane_mele()
     reproducer = {"spin_orbit": 0.06, "staggered": 0.166667, "rashba": 0.143590}
     out.append(
-        ("issue 18 Rashba reproducer", km, 2, reproducer, (0, ()),
-         (lambda k: rb.kane_mele_h(k, lso=0.06, lr=0.143590, lv=0.166667), 2, None))
+        (
+            "issue 18 Rashba reproducer",
+            km,
+            2,
+            reproducer,
+            (0, ()),
+            (lambda k: rb.kane_mele_h(k, lso=0.06, lr=0.143590, lv=0.166667), 2, None),
+        )
     )
     for name in ("bhz", "kane_mele", "wilson_dirac", "fu_kane_mele", "df_lattice"):
         model = getattr(ts.models, name)()
@@ -91,12 +103,14 @@ def main() -> None:
         t_r = np.ascontiguousarray(model.time_reversal, dtype=complex)
         calls = []
         for _, module in builds:
-            core = core_new if module is _core else module.CoreModel.tight_binding(
-                *model._core_arguments()
+            core = (
+                core_new
+                if module is _core
+                else module.CoreModel.tight_binding(*model._core_arguments())
             )
             calls.append(
-                lambda m=module, c=core: m.evaluate(
-                    c, coeffs, filling, time_reversal=t_r, **SAMPLING
+                lambda m=module, c=core, x=coeffs, f=filling, u=t_r: m.evaluate(
+                    c, x, f, time_reversal=u, **SAMPLING
                 )
             )
         times = best_times(calls, args.repeats, min_seconds=0.02)
