@@ -133,7 +133,7 @@ def main() -> None:
         rel = ""
         if ref is not None:
             h, dim, kappa = ref
-            starts = [] if kappa is None else [kappa, -kappa]
+            starts = None if kappa is None else [kappa, -kappa]
             gap = rb.min_direct_gap(h, dim, filling, extra_starts=starts)
             rel = f"gap/bw {gap.relative:.1e}"
         wanted = "" if want is None else f"{want[0]}{''.join(map(str, want[1]))}"
