@@ -30,15 +30,6 @@ FORMAT_VERSION = 1
 _HDF5_SUFFIXES = (".h5", ".hdf5")
 
 
-def _term_names(terms: str | Sequence[str | None] | None, n: int) -> list[str | None]:
-    if terms is None or isinstance(terms, str):
-        return [terms or None] * n
-    names = [None if t in (None, "") else str(t) for t in terms]
-    if len(names) != n:
-        raise ModelError(f"terms must give one name per hopping ({n}), got {len(names)}")
-    return names
-
-
 def from_hoppings(
     R: ArrayLike,
     T: ArrayLike,
@@ -49,126 +40,19 @@ def from_hoppings(
     tolerance: float = 1e-8,
     **kwargs: Any,
 ) -> TightBinding:
-    """A :class:`TightBinding` from lattice vectors ``R`` (nR, dim) and matrices ``T``.
-
-    Codes write hoppings either as a **full** list — every bond R ≠ 0 together with its
-    partner −R, whose matrix is T_R† — or as a **half** list with one of each pair (the
-    conjugate implied, as :meth:`TightBinding.add` does). A full list is checked: every
-    T_{−R} must equal T_R† to ``tolerance`` (relative to the largest entry), else
-    :class:`~toposweep.ModelError` names the worst pair; then one of each pair is kept. The
-    on-site block (R = 0) is counted once in both kinds and must be Hermitian. Entries with the
-    same R (and term) are added together.
-
-    Parameters
-    ----------
-    R : int array (nR, dim)
-        Lattice vectors in units of the primitive vectors.
-    T : complex array (nR, norb, norb)
-        Hopping matrices: T[i][a, b] is the amplitude from orbital b in cell 0 to orbital a in
-        cell R[i] (H(κ) = Σ_R T_R e^{2πiκ·R}).
-    terms : str or sequence, optional
-        A term name for every hopping (None or "" for the fixed part), or one name for all;
-        default: all fixed.
-    half : bool, optional
-        True: a half list (every entry taken as given); False: a full list (checked); None:
-        decided from the list — full if every R ≠ 0 has its −R, half if none has.
-    weights : array (nR,), optional
-        Each T is divided by its weight (e.g. how many times a lattice vector is listed in a
-        Wigner–Seitz supercell).
-    tolerance : float
-        Relative tolerance of the full list's Hermitian pairs.
-    **kwargs
-        ``lattice``, ``positions``, ``time_reversal``, ``inversion``, ``energy_unit``, ``name``
-        as for :class:`TightBinding`.
+    """:meth:`TightBinding.from_hoppings <toposweep.TightBinding.from_hoppings>`, which see.
 
     Examples
     --------
-    A full list of a 2D two-band model (R and −R both given):
-
-    >>> import numpy as np, toposweep as ts
-    >>> sz = np.diag([1.0, -1.0])
-    >>> R = [(0, 0), (1, 0), (-1, 0), (0, 1), (0, -1)]
-    >>> T = [0.5 * sz] + [0.25 * sz] * 4
-    >>> m = ts.TightBinding.from_hoppings(R, T)
-    >>> len(list(m.hoppings())), m.hamiltonian([[0.0, 0.0]])[0].real.tolist()
-    (3, [[1.5, 0.0], [0.0, -1.5]])
+    >>> import numpy as np
+    >>> from toposweep.model_files import from_hoppings
+    >>> m = from_hoppings([(0, 0), (1, 0), (0, 1)], [np.eye(2), 0.5 * np.eye(2), 0.5 * np.eye(2)])
+    >>> len(list(m.hoppings())), m.norb
+    (3, 2)
     """
-    try:
-        r = np.asarray(R)
-        t = np.asarray(T, dtype=complex)
-    except (TypeError, ValueError) as exc:
-        raise ModelError(f"R and T must be numeric arrays: {exc}") from None
-    if r.ndim != 2 or r.shape[0] == 0:
-        raise ModelError(f"R must be an integer array of shape (nR, dim), got shape {r.shape}")
-    if t.ndim != 3 or t.shape[0] != r.shape[0] or t.shape[1] != t.shape[2]:
-        raise ModelError(
-            f"T must have shape (nR, norb, norb) with nR = {r.shape[0]} (from R), got {t.shape}"
-        )
-    if not np.issubdtype(r.dtype, np.integer):
-        if not (np.all(np.isfinite(r)) and np.all(r == np.round(r))):
-            raise ModelError("R must hold integers (lattice vectors in primitive units)")
-        r = np.round(r).astype(np.int64)
-    if weights is not None:
-        w = np.asarray(weights, dtype=float)
-        if w.shape != (r.shape[0],) or not np.all(w > 0):
-            raise ModelError(f"weights must be {r.shape[0]} positive numbers, got shape {w.shape}")
-        t = t / w[:, None, None]
-    dim, norb = r.shape[1], t.shape[1]
-    names = _term_names(terms, r.shape[0])
-    # sum entries with the same (R, term): codes may list a bond once per contribution
-    summed: dict[tuple[tuple[int, ...], str | None], NDArray[np.complex128]] = {}
-    for vec, mat, name in zip(map(tuple, r.tolist()), t, names, strict=True):
-        key = (vec, name)
-        summed[key] = summed[key] + mat if key in summed else mat.copy()
-    bonds = [k for k in summed if any(k[0])]
-    partnered = [k for k in bonds if (tuple(-x for x in k[0]), k[1]) in summed]
-    if half is None:
-        if partnered and len(partnered) != len(bonds):
-            lone = next(k for k in bonds if k not in set(partnered))
-            raise ModelError(
-                f"the list has both R and −R for some bonds but R = {lone[0]} has no partner: "
-                "pass half=True (each entry as given, conjugates implied) or half=False (a "
-                "full list, then every bond needs its −R)"
-            )
-        half = not partnered
-    if not half:
-        _check_pairs(summed, bonds, tolerance)
-    m = TightBinding(dim, norb, **kwargs)
-    for (vec, name), mat in summed.items():
-        if not half and any(vec) and _is_negative(vec):
-            continue  # the partner of a kept bond
-        m.add(vec, mat, name)
-    return m
-
-
-def _is_negative(vec: tuple[int, ...]) -> bool:
-    """Whether the first nonzero component is negative (−R of a kept bond R)."""
-    return next(x for x in vec if x) < 0
-
-
-def _check_pairs(
-    summed: dict[tuple[tuple[int, ...], str | None], NDArray[np.complex128]],
-    bonds: list[tuple[tuple[int, ...], str | None]],
-    tolerance: float,
-) -> None:
-    scale = max(float(np.abs(m).max()) for m in summed.values()) or 1.0
-    worst, where = 0.0, None
-    for vec, name in bonds:
-        partner = summed.get((tuple(-x for x in vec), name))
-        if partner is None:
-            raise ModelError(
-                f"half=False, but R = {vec} has no partner −R in the list: pass half=True for "
-                "a list with one of each pair"
-            )
-        err = float(np.abs(partner - summed[(vec, name)].conj().T).max()) / scale
-        if err > worst:
-            worst, where = err, vec
-    if worst > tolerance:
-        raise ModelError(
-            f"the full list is not Hermitian: T(−R) differs from T(R)† by {worst:.2e} (relative) "
-            f"at R = {where}; check the matrices' orbital order (T[R][a, b]: b in cell 0 to a in "
-            "cell R), or pass half=True if the list holds one of each pair"
-        )
+    return TightBinding.from_hoppings(
+        R, T, terms=terms, half=half, weights=weights, tolerance=tolerance, **kwargs
+    )
 
 
 # -- files --------------------------------------------------------------------------------------

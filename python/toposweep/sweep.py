@@ -40,7 +40,15 @@ from .results.store import (
     write_result,
 )
 from .sampling import Sampling
-from .sweep_plan import Coefficients, SweepPlan, callable_name, make_plan
+from .sweep_executor import remote_for
+from .sweep_plan import (
+    TERM_VALUES,
+    Coefficients,
+    SweepPlan,
+    callable_name,
+    check_names,
+    make_plan,
+)
 
 __all__ = ["sweep", "SweepInterrupted"]
 
@@ -50,7 +58,6 @@ CHUNK_SECONDS = 1.0
 MAX_CHUNK = 4096
 #: with a coefficients mapping, the model's term values are kept per point as ``term_<name>``
 TERM_PREFIX = "term_"
-TERM_VALUES = "term_values"
 #: points per write when the journal is streamed into the result file (~100 bytes each)
 WRITE_BLOCK = 1 << 14
 
@@ -150,32 +157,6 @@ def assemble(
     return ds
 
 
-def _check_names(plan: SweepPlan, raw: Mapping[str, NDArray[Any]]) -> None:
-    """Refuse parameter names that the result dataset uses itself.
-
-    Checked on the first chunk, so it holds for every variable the dataset has now or gains
-    later, not just for a list written down once.
-    """
-    req = plan.request
-    n = len(raw["nu0"])
-    probe = build_dataset(
-        req.model,
-        raw,
-        dims=(FLAT_DIM,),
-        coords={FLAT_DIM: np.arange(n)},
-        fixed={},
-        filling=req.filling,
-        sampling=req.sampling,
-        parity_known=req.inversion is not None,
-    )
-    clash = sorted((set(plan.dims) | set(plan.fixed)) & {str(v) for v in probe.variables})
-    if clash:
-        raise ParameterError(
-            f"parameter name(s) {clash} are also names of result variables; rename them "
-            "(with coefficients= you can sweep variables of your own naming)"
-        )
-
-
 def _flat_chunk(plan: SweepPlan, start: int, raw: Mapping[str, NDArray[Any]]) -> xr.Dataset:
     n = len(next(iter(raw.values())))
     return assemble(plan, raw, (FLAT_DIM,), {FLAT_DIM: np.arange(start, start + n)})
@@ -208,7 +189,7 @@ def _run(
             points = plan.points(start, stop)
             raw = run_points(plan.request, points)
             if first:
-                _check_names(plan, raw)
+                check_names(plan, raw)
                 first = False
             if plan.coefficients is not None:  # keep the model's term values of every point
                 terms = plan.request.model.parameters
@@ -320,7 +301,6 @@ def sweep(
         check_output(out, resume=resume, overwrite=overwrite)
     plan = make_plan(req, grid, params=params, coefficients=coefficients)
     check_grid(model, samp, req.threads, plan.size, out)
-    from .sweep_executor import remote_for  # (it imports this module)
 
     with remote_for(executor, out) as remote:
         if out is None:

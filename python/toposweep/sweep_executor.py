@@ -30,8 +30,7 @@ from .errors import ExecutorError
 from .evaluation import Request, run_points
 from .progress import ProgressBar
 from .results.store import journal_path
-from .sweep import TERM_VALUES, _check_names
-from .sweep_plan import SweepPlan
+from .sweep_plan import TERM_VALUES, SweepPlan, check_names
 
 __all__ = ["PointsJob", "RangeJob", "Remote", "evaluate_range", "remote_for"]
 
@@ -183,7 +182,7 @@ class Remote:
                 for res in runner.imap_unordered(tasks()):
                     start, stop = res.task
                     if not checked:
-                        _check_names(plan, res.value)
+                        check_names(plan, res.value)
                         checked = True
                     save(start, stop, res.value)
                     saved += stop - start

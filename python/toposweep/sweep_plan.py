@@ -23,8 +23,10 @@ from .errors import ParameterError
 from .evaluation import Request
 from .fingerprint import numbers_fingerprint, sample_indices
 from .model import Model, matrix_to_json
+from .results.dataset import build_dataset
+from .results.store import FLAT_DIM
 
-__all__ = ["SweepPlan", "make_plan", "callable_name"]
+__all__ = ["TERM_VALUES", "SweepPlan", "callable_name", "check_names", "make_plan"]
 
 #: dimension and variable names a grid parameter may not take (they are used by the dataset)
 RESERVED = frozenset(
@@ -37,6 +39,9 @@ RESERVED = frozenset(
 )
 
 Coefficients = Callable[[dict[str, float]], Mapping[str, float]]
+
+#: the raw column of the model term values of every point (``coefficients=``)
+TERM_VALUES = "term_values"
 
 
 def callable_name(func: Callable[..., Any]) -> str:
@@ -275,3 +280,29 @@ def make_plan(
         "inversion": None if inv is None else _digest(matrix_to_json(inv)),
     }
     return plan
+
+
+def check_names(plan: SweepPlan, raw: Mapping[str, NDArray[Any]]) -> None:
+    """Refuse parameter names that the result dataset uses itself.
+
+    Checked on the first chunk, so it holds for every variable the dataset has now or gains
+    later, not just for a list written down once.
+    """
+    req = plan.request
+    n = len(raw["nu0"])
+    probe = build_dataset(
+        req.model,
+        raw,
+        dims=(FLAT_DIM,),
+        coords={FLAT_DIM: np.arange(n)},
+        fixed={},
+        filling=req.filling,
+        sampling=req.sampling,
+        parity_known=req.inversion is not None,
+    )
+    clash = sorted((set(plan.dims) | set(plan.fixed)) & {str(v) for v in probe.variables})
+    if clash:
+        raise ParameterError(
+            f"parameter name(s) {clash} are also names of result variables; rename them "
+            "(with coefficients= you can sweep variables of your own naming)"
+        )

@@ -10,6 +10,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from . import _core
 from .errors import ModelError
+from .hopping_lists import hopping_entries
 from .model import Model, matrix_from_json, matrix_to_json
 
 __all__ = ["TightBinding"]
@@ -142,15 +143,68 @@ class TightBinding(Model):
         return t
 
     @classmethod
-    def from_hoppings(cls, R: ArrayLike, T: ArrayLike, **kwargs: Any) -> TightBinding:
-        """A model from lattice vectors R (nR, dim) and matrices T (nR, norb, norb).
+    def from_hoppings(
+        cls,
+        R: ArrayLike,
+        T: ArrayLike,
+        *,
+        terms: str | Sequence[str | None] | None = None,
+        half: bool | None = None,
+        weights: ArrayLike | None = None,
+        tolerance: float = 1e-8,
+        **kwargs: Any,
+    ) -> TightBinding:
+        """A model from lattice vectors ``R`` (nR, dim) and matrices ``T``.
 
-        Half or full lists (full ones checked for Hermitian pairs); see
-        :func:`toposweep.model_files.from_hoppings` for the options.
+        Codes write hoppings either as a **full** list — every bond R ≠ 0 together with its
+        partner −R, whose matrix is T_R† — or as a **half** list with one of each pair (the
+        conjugate implied, as :meth:`TightBinding.add` does). A full list is checked: every
+        T_{−R} must equal T_R† to ``tolerance`` (relative to the largest entry), else
+        :class:`~toposweep.ModelError` names the worst pair; then one of each pair is kept. The
+        on-site block (R = 0) is counted once in both kinds and must be Hermitian. Entries with the
+        same R (and term) are added together.
+
+        Parameters
+        ----------
+        R : int array (nR, dim)
+            Lattice vectors in units of the primitive vectors.
+        T : complex array (nR, norb, norb)
+            Hopping matrices: T[i][a, b] is the amplitude from orbital b in cell 0 to orbital a in
+            cell R[i] (H(κ) = Σ_R T_R e^{2πiκ·R}).
+        terms : str or sequence, optional
+            A term name for every hopping (None or "" for the fixed part), or one name for all;
+            default: all fixed.
+        half : bool, optional
+            True: a half list (every entry taken as given); False: a full list (checked); None:
+            decided from the list — full if every R ≠ 0 has its −R, half if none has.
+        weights : array (nR,), optional
+            Each T is divided by its weight (e.g. how many times a lattice vector is listed in a
+            Wigner–Seitz supercell).
+        tolerance : float
+            Relative tolerance of the full list's Hermitian pairs.
+        **kwargs
+            ``lattice``, ``positions``, ``time_reversal``, ``inversion``, ``energy_unit``, ``name``
+            as for :class:`TightBinding`.
+
+        Examples
+        --------
+        A full list of a 2D two-band model (R and −R both given):
+
+        >>> import numpy as np, toposweep as ts
+        >>> sz = np.diag([1.0, -1.0])
+        >>> R = [(0, 0), (1, 0), (-1, 0), (0, 1), (0, -1)]
+        >>> T = [0.5 * sz] + [0.25 * sz] * 4
+        >>> m = ts.TightBinding.from_hoppings(R, T)
+        >>> len(list(m.hoppings())), m.hamiltonian([[0.0, 0.0]])[0].real.tolist()
+        (3, [[1.5, 0.0], [0.0, -1.5]])
         """
-        from .model_files import from_hoppings
-
-        return from_hoppings(R, T, **kwargs)
+        dim, norb, entries = hopping_entries(
+            R, T, terms=terms, half=half, weights=weights, tolerance=tolerance
+        )
+        model = cls(dim, norb, **kwargs)
+        for vec, mat, name in entries:
+            model.add(vec, mat, name)
+        return model
 
     # -- model interface --------------------------------------------------------------------------
     @property

@@ -41,7 +41,7 @@ from ..results.store import (
 from ..sampling import Sampling
 from ..sweep import SweepInterrupted, _InterruptFlag
 from ..sweep_executor import remote_for
-from ..sweep_plan import Coefficients, SweepPlan, make_plan
+from ..sweep_plan import TERM_VALUES, Coefficients, SweepPlan, make_plan
 from ..symmetry import TOLERANCE, symmetry_error
 from ..tightbinding import TightBinding
 from .adaptive_cells import (
@@ -504,7 +504,7 @@ def _compute(
     if plan.coefficients is not None:  # the model's term values are known everywhere
         terms = req.model.parameters
         points = plan.points(0, plan.size)
-        full[_sweep.TERM_VALUES] = np.array([[p[t] for t in terms] for p in points], float)
+        full[TERM_VALUES] = np.array([[p[t] for t in terms] for p in points], float)
     ds = _sweep.assemble(plan, full, plan.dims, plan.coords)
     return add_map_variables(ds, plan, how, bound, found)
 
