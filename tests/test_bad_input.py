@@ -115,6 +115,19 @@ CASES = [
     ),
     ("dim 4", lambda: TightBinding(4, 2), ModelError, ["2 or 3"]),
     ("norb 0", lambda: TightBinding(3, 0), ModelError, ["positive"]),
+    # primitive vectors span space (handbook fact: a lattice basis is linearly independent)
+    (
+        "lattice row of zeros",
+        lambda: TightBinding(2, 2, lattice=[[1, 0], [0, 0]]),
+        ModelError,
+        ["linearly independent"],
+    ),
+    (
+        "lattice rows repeated",
+        lambda: TightBinding(3, 2, lattice=np.eye(3)[[0, 1, 1]]),
+        ModelError,
+        ["linearly independent"],
+    ),
     (
         "non-unitary time reversal",
         lambda: TightBinding(3, 4, time_reversal=2 * U_T),

@@ -98,6 +98,16 @@ class Model(ABC):
         self.dim = int(dim)
         self.norb = int(norb)
         self.lattice = self._real_matrix(lattice, (self.dim, self.dim), "lattice")
+        if self.lattice is not None:
+            # rows are the primitive vectors: they must span space (relative to their length,
+            # so that any unit works); a zero or repeated row is a typo, not a lattice
+            lengths = np.linalg.norm(self.lattice, axis=1)
+            volume = abs(float(np.linalg.det(self.lattice)))
+            if not lengths.all() or volume <= 1e-10 * float(np.prod(lengths)):
+                raise ModelError(
+                    "lattice rows (the primitive vectors) must be linearly independent; got "
+                    f"{self.lattice.tolist()}"
+                )
         self.positions = self._real_matrix(positions, (self.norb, self.dim), "positions")
         self.time_reversal = _read_only(as_operator(time_reversal, self.norb, "time_reversal"))
         self.inversion = _read_only(as_operator(inversion, self.norb, "inversion"))
