@@ -45,6 +45,9 @@ struct Sample {
     t: f64,
     e: Vec<f64>,
     occ: Vec<C64>,
+    /// the step to the next point passed the local bound (a step that passes is never split,
+    /// so it is not checked again)
+    settled: bool,
 }
 
 impl Sample {
@@ -76,6 +79,7 @@ fn solve(src: &dyn BlochSource, l: &LineSpec, ts: &[f64], nocc: usize) -> CoreRe
             t,
             e: e[i * n..(i + 1) * n].to_vec(),
             occ: occ[i * n * nocc..(i + 1) * n * nocc].to_vec(),
+            settled: false,
         })
         .collect())
 }
@@ -97,7 +101,6 @@ pub fn resolve_line(
         .collect();
     let mut pts = solve(src, l, &even, nocc)?;
     let mut resolved = true;
-    let mut passed = std::collections::HashSet::new();
     loop {
         let count = pts.len();
         let mut mids = Vec::new();
@@ -106,7 +109,7 @@ pub fn resolve_line(
             let dt = step_length(&pts, i);
             let g = pts[i].gap(nocc).max(pts[j].gap(nocc));
             let d = bound.along(l.axis, dt);
-            if turn_bound(d, g) <= TURN_LIMIT || passed.contains(&pts[i].t.to_bits()) {
+            if turn_bound(d, g) <= TURN_LIMIT || pts[i].settled {
                 continue;
             }
             // the bound from the derivatives at the end with the larger gap, over a box that
@@ -122,8 +125,7 @@ pub fn resolve_line(
             h[l.axis] = dt;
             if let Some(d) = src.local_variation(&k[..dim], &h)? {
                 if turn_bound(d, g) <= TURN_LIMIT {
-                    // (a step that passes is never split, so its start keys it)
-                    passed.insert(pts[i].t.to_bits());
+                    pts[i].settled = true;
                     continue;
                 }
             }

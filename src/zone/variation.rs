@@ -97,7 +97,7 @@ impl VariationBound {
             Self::Hoppings(terms) => terms
                 .iter()
                 .map(|(r, a)| {
-                    let x = std::f64::consts::PI * (r[0] * h[0] + r[1] * h[1] + r[2] * h[2]);
+                    let x = std::f64::consts::PI * reach(r, h);
                     a * 2.0 * x.min(std::f64::consts::FRAC_PI_2).sin()
                 })
                 .sum(),
@@ -113,7 +113,7 @@ impl VariationBound {
             Self::Hoppings(terms) => terms
                 .iter()
                 .map(|(r, a)| {
-                    let x = std::f64::consts::TAU * (r[0] * h[0] + r[1] * h[1] + r[2] * h[2]);
+                    let x = std::f64::consts::TAU * reach(r, h);
                     a * 0.5 * x * x
                 })
                 .sum(),
@@ -144,6 +144,11 @@ impl VariationBound {
             Self::Lipschitz(l) => *l,
         }
     }
+}
+
+/// Σ_i |R_i| h_i: the largest phase step of a bond over a box, in turns (|R_i| stored).
+fn reach(r: &[f64; 3], h: &[f64; 3]) -> f64 {
+    r[0] * h[0] + r[1] * h[1] + r[2] * h[2]
 }
 
 /// Davis–Kahan bound of sin θ between the occupied subspaces at two κ points whose
