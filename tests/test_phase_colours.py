@@ -106,7 +106,7 @@ def test_metals_share_their_bands_colour_and_are_hatched() -> None:
     ax = fig.axes[0]
     rgb = np.asarray(ax.collections[0].get_array())
     np.testing.assert_allclose(rgb[0, 5], rgb[0, 0])
-    hatched = [c for c in ax.collections if METAL_HATCH in (getattr(c, "hatches", None) or [])]
+    hatched = [c for c in ax.collections if c.get_hatch() == METAL_HATCH]
     assert len(hatched) == 1
     labels = [t.get_text() for t in fig.axes[1].get_legend().get_texts()]
     assert labels == ["strong TI (1;000)", "hatched: metal (bands' indices)"]

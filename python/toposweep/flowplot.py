@@ -11,7 +11,7 @@ from matplotlib.figure import Figure
 from .centre_flow import centre_flow
 from .errors import StoreError
 from .model import Model
-from .plotting import plot_flow, select
+from .plotting import fixed_text, plot_flow, select
 
 __all__ = ["flow_figure", "point_of"]
 
@@ -56,9 +56,10 @@ def flow_figure(ds: xr.Dataset, at: Mapping[str, float], *, allow_code: bool = F
     sampling = json.loads(ds.attrs["sampling"])
     planes = [(a, c) for a in (1, 2, 3) for c in (0.0, 0.5)] if model.dim == 3 else [(None, 0.0)]
     flows = [centre_flow(model, filling, params, axis=a, cut=c, **sampling) for a, c in planes]
-    where = ", ".join(f"{k} = {v:.4g}" for k, v in params.items())
-    if "coefficients" in ds.attrs:  # the grid point asked for, then the terms it maps to
-        grid = {str(d): float(point[d]) for d in ds.phase.dims}
-        where = ", ".join(f"{k} = {v:.4g}" for k, v in grid.items()) + f"\nmodel terms: {where}"
+    # the grid point by its parameters' long names and units; when the grid was mapped onto
+    # the model's terms (coefficients=), then the terms it maps to
+    where = fixed_text(point, width=100)
+    if "coefficients" in ds.attrs:
+        where += "\nmodel terms: " + ", ".join(f"{k} = {v:.4g}" for k, v in params.items())
     title = f"centre flow (hybrid Wannier centres), {model.name}\n{where}"
     return plot_flow(flows, title=title)

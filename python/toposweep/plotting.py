@@ -17,12 +17,13 @@ import numpy as np
 import xarray as xr
 from matplotlib import patheffects, rc_context
 from matplotlib.cm import ScalarMappable
+from matplotlib.collections import PatchCollection
 from matplotlib.colors import LinearSegmentedColormap, PowerNorm, to_rgb
 from matplotlib.figure import Figure
-from matplotlib.patches import Patch
+from matplotlib.patches import Patch, Rectangle
 
 from .errors import ParameterError
-from .maps.map_report import draw_transitions
+from .maps.map_report import draw_transitions, transitions_in
 from .phase_style import (
     METAL_HATCH,
     SHADE_FLOOR,
@@ -34,7 +35,15 @@ from .phase_style import (
 )
 from .summary import phase_labels
 
-__all__ = ["axis_label", "phase_colours", "plot_flow", "plot_line", "plot_phase_map", "select"]
+__all__ = [
+    "axis_label",
+    "fixed_text",
+    "phase_colours",
+    "plot_flow",
+    "plot_line",
+    "plot_phase_map",
+    "select",
+]
 
 #: legend order: strong, weak, 2D Z2-odd, trivial, then metals, then undefined
 _LEGEND_RANK = ("strong", "weak", "Z2-odd", "trivial", "metal", "undefined")
@@ -155,14 +164,50 @@ def _deepest_cells(labels: np.ndarray) -> dict[str, tuple[int, int, int]]:
     return out
 
 
-def _title(ds: xr.Dataset, fixed: Mapping[str, Any]) -> str:
+def _fixed_parts(sub: xr.Dataset) -> list[str]:
+    parts = []
+    for k, v in sub.coords.items():
+        if v.ndim != 0:
+            continue
+        name = str(v.attrs.get("long_name", k))
+        units = str(v.attrs.get("units", ""))
+        parts.append(f"{name} = {float(v):.4g}" + ("" if units in ("", "1") else f" {units}"))
+    return parts
+
+
+def fixed_text(sub: xr.Dataset, width: int = 0) -> str:
+    """The grid parameters a selection holds fixed, by their long names and units.
+
+    With ``width`` > 0 the text is broken between parameters into lines of about that many
+    characters (a figure title must not run off the figure).
+
+    Examples
+    --------
+    >>> z = xr.DataArray(0.6, attrs={"long_name": "f quasiparticle factor z", "units": "1"})
+    >>> e = xr.DataArray(-1.5, attrs={"long_name": "bare f level", "units": "eV"})
+    >>> fixed_text(xr.Dataset(coords={"weight": z, "f_level": e}))
+    'f quasiparticle factor z = 0.6, bare f level = -1.5 eV'
+    >>> print(fixed_text(xr.Dataset(coords={"weight": z, "f_level": e}), width=30))
+    f quasiparticle factor z = 0.6,
+    bare f level = -1.5 eV
+    """
+    lines: list[str] = []
+    for part in _fixed_parts(sub):
+        if lines and (width <= 0 or len(lines[-1]) + len(part) + 2 <= width):
+            lines[-1] += f", {part}"
+        else:
+            lines.append(part)
+    return ",\n".join(lines)
+
+
+def _title(ds: xr.Dataset, sub: xr.Dataset) -> str:
     import json
 
     try:
         name = json.loads(ds.attrs["model"]).get("name", "")
     except (KeyError, ValueError):
         name = ""
-    extra = ", ".join(f"{k} = {v:.4g}" for k, v in fixed.items())
+    extra = fixed_text(sub, width=72)
     return f"{name}" + (f"\n{extra}" if extra else "")
 
 
@@ -207,18 +252,25 @@ def plot_phase_map(
     side.axis("off")
     xs, ys = sub[x].values, sub[y].values
     ax.pcolormesh(xs, ys, rgb, shading="nearest")
-    if style.metal.any() and len(xs) > 1 and len(ys) > 1:
-        with rc_context({"hatch.color": "0.15", "hatch.linewidth": 0.7}):
-            ax.contourf(xs, ys, style.metal.astype(float), levels=[0.5, 1.5], colors="none",
-                        hatches=[METAL_HATCH])  # fmt: skip
+    if style.metal.any():  # (dark hatching on light colours, light on dark ones)
+        dark = _luminance(rgb) < 0.2
+        for cells, ink in ((style.metal & ~dark, "0.15"), (style.metal & dark, "0.85")):
+            if not cells.any():
+                continue
+            with rc_context({"hatch.color": ink, "hatch.linewidth": 0.7}):
+                ax.add_collection(_metal_cells(xs, ys, cells))
     if region_labels:
         _label_regions(ax, xs, ys, style)
-    draw_transitions(ax, ds, sub, x, y, evaluated=show_evaluated)
+    marks = draw_transitions(ax, ds, sub, x, y, evaluated=show_evaluated)
     ax.set_xlabel(axis_label(sub[x]))
     ax.set_ylabel(axis_label(sub[y]))
-    fixed = {str(k): float(v) for k, v in sub.coords.items() if v.ndim == 0}
-    ax.set_title(_title(ds, fixed), fontsize=10)
-    side.legend(handles=handles, loc="upper left", frameon=False, fontsize=9, title="phase")
+    ax.set_title(_title(ds, sub), fontsize=10)
+    if marks:  # (beside the map, under the phases: a legend on the map would hide points)
+        handles.append(Patch(visible=False, label=" "))
+        handles += marks
+    side.legend(
+        handles=handles, loc="upper left", frameon=False, fontsize=9, title="phase", markerscale=1.6
+    )
     if adaptive:
         return fig
     # the shading scale: a small horizontal bar under the legend
@@ -236,6 +288,38 @@ def plot_phase_map(
     return fig
 
 
+def _luminance(rgb: np.ndarray) -> np.ndarray:
+    """Relative luminance of sRGB colours (last axis r, g, b in 0…1), as WCAG 2.1 defines it."""
+    lin = np.where(rgb <= 0.04045, rgb / 12.92, ((rgb + 0.055) / 1.055) ** 2.4)
+    return np.asarray(lin @ np.array([0.2126, 0.7152, 0.0722]))
+
+
+def _cell_edges(values: np.ndarray) -> np.ndarray:
+    """Edges of the cells that ``pcolormesh(shading="nearest")`` draws around grid values."""
+    if len(values) == 1:
+        return np.array([values[0] - 0.5, values[0] + 0.5])
+    mid = (values[1:] + values[:-1]) / 2
+    return np.concatenate([[2 * values[0] - mid[0]], mid, [2 * values[-1] - mid[-1]]])
+
+
+def _metal_cells(xs: np.ndarray, ys: np.ndarray, metal: np.ndarray) -> PatchCollection:
+    """Hatching over exactly the cells of metal points (one rectangle per run in a row).
+
+    (A contour of the metal mask would cut cells diagonally and leave the map's outer half
+    cells bare.)
+    """
+    ex, ey = _cell_edges(xs), _cell_edges(ys)
+    boxes = []
+    for row in range(metal.shape[0]):
+        flags = np.concatenate([[False], metal[row], [False]])
+        starts = np.flatnonzero(flags[1:] & ~flags[:-1])
+        stops = np.flatnonzero(~flags[1:] & flags[:-1])
+        for a, b in zip(starts, stops, strict=True):
+            boxes.append(Rectangle((ex[a], ey[row]), ex[b] - ex[a], ey[row + 1] - ey[row]))
+    return PatchCollection(boxes, facecolor="none", edgecolor="none", hatch=METAL_HATCH,
+                           zorder=2)  # fmt: skip
+
+
 def _label_regions(ax: Any, xs: np.ndarray, ys: np.ndarray, style: _PhaseStyle) -> None:
     """Print each phase's indices at the deepest cell of its largest region.
 
@@ -248,7 +332,7 @@ def _label_regions(ax: Any, xs: np.ndarray, ys: np.ndarray, style: _PhaseStyle) 
             continue
         r, g, b = to_rgb(style.colours[row, col])
         dark = 0.2126 * r + 0.7152 * g + 0.0722 * b < 0.45  # (relative luminance, sRGB weights)
-        ax.text(xs[col], ys[row], text, ha="center", va="center", fontsize=8,
+        ax.text(xs[col], ys[row], text, ha="center", va="center", fontsize=8, zorder=5,
                 color="white" if dark else "black",
                 path_effects=[patheffects.withStroke(linewidth=2, foreground="black" if dark
                                                      else "white", alpha=0.6)])  # fmt: skip
@@ -283,17 +367,41 @@ def plot_line(ds: xr.Dataset, x: str, *, at: Mapping[str, float] | None = None) 
     top.set_ylabel("Z2 index")
     top.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8, frameon=False)
     unit = sub.gap_direct.attrs.get("units", "")
-    bottom.plot(xs, sub.gap_direct.values, "k-", label="direct gap")
-    bottom.plot(xs, sub.gap_indirect.values, color="0.35", ls="--", label="indirect gap")
+    if "obtained" in sub:  # a phase map: gaps measured at its evaluated points only
+        _phase_map_gaps(top, bottom, ds, sub, x)
+    else:
+        bottom.plot(xs, sub.gap_direct.values, "k-", label="direct gap")
+        bottom.plot(xs, sub.gap_indirect.values, color="0.35", ls="--", label="indirect gap")
     bottom.axhline(0, color="0.5", lw=0.8)
     bottom.set_ylabel("gap" + ("" if unit in ("", "1") else f" ({unit})"))
     bottom.set_xlabel(axis_label(sub[x]))
     handles = style.handles(alpha=0.55)
     bottom.legend(handles=[*bottom.get_legend_handles_labels()[0], *handles], fontsize=8,
                   loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)  # fmt: skip
-    fixed = {str(k): float(v) for k, v in sub.coords.items() if v.ndim == 0}
-    top.set_title(_title(ds, fixed), fontsize=10)
+    top.set_title(_title(ds, sub), fontsize=10)
     return fig
+
+
+def _phase_map_gaps(top: Any, bottom: Any, ds: xr.Dataset, sub: xr.Dataset, x: str) -> None:
+    """A phase map's gaps on a cut: measured ones as dots, proven bounds, its transitions.
+
+    Lines through the measured gaps would join points far apart (the map skips the insides of
+    phases), so they are drawn as dots; the transitions located on the cut are vertical lines.
+    """
+    xs = sub[x].values
+    measured = sub.obtained.values == 0
+    bottom.plot(xs[measured], sub.gap_direct.values[measured], "o", ms=3, color="k",
+                label="direct gap (evaluated)")  # fmt: skip
+    bottom.plot(xs[measured], sub.gap_indirect.values[measured], "o", ms=3, mfc="none",
+                mec="0.35", label="indirect gap (evaluated)")  # fmt: skip
+    if "gap_bound" in sub and np.isfinite(sub.gap_bound.values).any():
+        bottom.plot(xs, sub.gap_bound.values, "_", ms=5, color="0.35",
+                    label="proven lower bound (not evaluated)")  # fmt: skip
+    if ds.sizes.get("transition", 0):
+        at = ds[f"transition_{x}"].values[transitions_in(ds, sub, (x,))]
+        for i, value in enumerate(at):
+            top.axvline(value, color="k", lw=0.8, ls=":")
+            bottom.axvline(value, color="k", lw=0.8, ls=":", label=None if i else "transition")
 
 
 #: centre flow markers: the evenly spaced initial lines and the lines inserted between them

@@ -7,7 +7,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-__all__ = ["draw_transitions", "map_summary_lines"]
+__all__ = ["draw_transitions", "map_summary_lines", "transitions_in"]
 
 MAX_LISTED = 8
 
@@ -58,27 +58,47 @@ def map_summary_lines(ds: xr.Dataset) -> list[str]:
     return lines
 
 
+#: marker styles on a phase map: evaluated points as small white dots ringed in black and
+#: located closings as larger black dots ringed in white, so each stands out on every phase
+#: colour, pale grey and dark indigo alike (tests/test_plot_readability.py checks the contrast)
+EVALUATED_STYLE = {"marker": "o", "ms": 2.0, "mfc": "white", "mec": "black", "mew": 0.35}
+CLOSING_STYLE = {"marker": "o", "ms": 3.2, "mfc": "black", "mec": "white", "mew": 0.6}
+OTHER_STYLE = {"marker": "X", "ms": 5.0, "mfc": "black", "mec": "white", "mew": 0.5}
+
+
+def transitions_in(ds: xr.Dataset, sub: xr.Dataset, free: tuple[str, ...]) -> np.ndarray:
+    """Which transitions of ``ds`` lie in the slice ``sub`` (grid dims not in ``free`` fixed)."""
+    keep = np.ones(ds.sizes.get("transition", 0), bool)
+    for d in (str(k) for k in ds.phase.dims):
+        if d not in free:
+            keep &= np.isclose(ds[f"transition_{d}"].values, float(sub[d]))
+    return keep
+
+
 def draw_transitions(
     ax: Any, ds: xr.Dataset, sub: xr.Dataset, x: str, y: str, *, evaluated: bool = False
-) -> None:
+) -> list[Any]:
     """Mark a phase map's transitions (and, if asked, its evaluated points) on a 2D slice.
 
     ``sub`` is the slice drawn (other grid dims fixed); transitions of other slices are left
-    out. Does nothing for results that are not phase maps.
+    out. Returns the drawn markers for a legend (the caller puts it beside the map, where it
+    covers nothing); empty for results that are not phase maps.
     """
+    drawn: list[Any] = []
     if evaluated and "obtained" in sub:
         ev = sub.obtained.transpose(y, x).values == 0
         gx, gy = np.meshgrid(sub[x].values, sub[y].values)
-        ax.plot(gx[ev], gy[ev], ".", ms=1.2, color="0.15", alpha=0.6, label="evaluated")
+        drawn += ax.plot(gx[ev], gy[ev], ls="none", zorder=3, label="evaluated point",
+                         **EVALUATED_STYLE)  # fmt: skip
     if "transition_status" not in ds or ds.sizes.get("transition", 0) == 0:
-        return
-    keep = np.ones(ds.sizes["transition"], bool)
-    for d in (str(k) for k in ds.phase.dims):
-        if d not in (x, y):
-            keep &= np.isclose(ds[f"transition_{d}"].values, float(sub[d]))
+        return drawn
+    keep = transitions_in(ds, sub, (x, y))
     tx, ty = ds[f"transition_{x}"].values[keep], ds[f"transition_{y}"].values[keep]
     point = ds.transition_status.values[keep] == 0
-    ax.plot(tx[point], ty[point], "o", ms=2.2, mfc="k", mec="none", label="gap closes")
+    if point.any():
+        drawn += ax.plot(tx[point], ty[point], ls="none", zorder=4, label="gap closes",
+                         **CLOSING_STYLE)  # fmt: skip
     if (~point).any():
-        ax.plot(tx[~point], ty[~point], "x", ms=3, color="k", mew=0.8, label="other transition")
-    ax.legend(loc="lower right", fontsize=7, framealpha=0.8, markerscale=2)
+        drawn += ax.plot(tx[~point], ty[~point], ls="none", zorder=4,
+                         label="other transition (summary)", **OTHER_STYLE)  # fmt: skip
+    return drawn
