@@ -126,7 +126,7 @@ def _run(args: argparse.Namespace) -> int:
 
             ds = phase_map(
                 **kwargs, **cfg.adaptive, out=out, resume=args.resume,
-                progress=not args.quiet,
+                overwrite=args.overwrite, progress=not args.quiet,
             )  # fmt: skip
         else:
             ds = sweep(

@@ -89,6 +89,7 @@ def run_demo(out_dir: str | Path, *, progress: bool = True) -> list[Path]:
         filling=2,
         coefficients=renormalised_terms,
         out=nc,
+        overwrite=True,  # (the demo's own folder: a second run redraws it)
         progress=progress,
     )
     print(summarise(ds, str(nc)))

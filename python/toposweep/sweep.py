@@ -32,11 +32,9 @@ from .results.store import (
     IDENTITY_ATTR,
     Journal,
     check_output,
-    identity_differences,
+    finished_result,
     journal_path,
     missing_ranges,
-    open_result,
-    read_identity,
     write_result,
 )
 from .sampling import Sampling
@@ -353,16 +351,7 @@ def _sweep_to_file(
     remote: Any = None,
 ) -> xr.Dataset:
     if resume and os.path.isfile(out) and not journal_path(out).is_dir():
-        ds = open_result(out)
-        found = read_identity(ds)
-        if found != plan.identity:
-            ds.close()
-            why = "; ".join(identity_differences(plan.identity, found or {})) or "no run record"
-            raise StoreError(
-                f"cannot resume {out}: the finished file belongs to a different run — {why}. "
-                "Use the original settings, or resume=False to overwrite it."
-            )
-        return ds
+        return finished_result(out, plan.identity)
     journal = Journal.start(out, plan.identity, resume)
     try:
         finished = journal.finished(plan.size)

@@ -32,11 +32,10 @@ from ..model import Model
 from ..progress import ProgressBar
 from ..results.store import (
     Journal,
-    identity_differences,
+    check_output,
+    finished_result,
     journal_path,
     missing_ranges,
-    open_result,
-    read_identity,
 )
 from ..sampling import Sampling
 from ..sweep import SweepInterrupted, _InterruptFlag
@@ -268,7 +267,7 @@ class _Evaluations:
             if not np.array_equal(raw[GRID_INDEX], indices[a:b]):
                 raise StoreError(
                     f"{self.journal.path}: the journal's points differ from this run's; "  # type: ignore[union-attr]
-                    "start over with resume=False"
+                    "start over with overwrite=True (command line: --overwrite)"
                 )
             self._store(indices[a:b], raw)
         todo = missing_ranges(here, len(indices))
@@ -319,6 +318,7 @@ def phase_map(
     inversion: ArrayLike | None = None,
     out: str | os.PathLike[str] | None = None,
     resume: bool = False,
+    overwrite: bool = False,
     progress: bool = True,
     threads: int | None = None,
     chunk_size: int | None = None,
@@ -353,7 +353,13 @@ def phase_map(
     out : path, optional
         NetCDF4/HDF5 file to write; evaluated points are journalled in ``<out>.partial/``.
     resume : bool
-        Continue an interrupted run writing ``out`` (the same settings are required).
+        Continue an interrupted run writing ``out``, or return ``out`` if it is finished —
+        either only when made with the same settings (model, grid, filling, fixed parameters,
+        coefficients, sampling and the options below); otherwise a
+        :class:`~toposweep.StoreError` names the first differences.
+    overwrite : bool
+        Replace an existing ``out`` (or an interrupted run's journal). Without ``resume`` or
+        ``overwrite`` an existing one is refused, as for :func:`toposweep.sweep`.
     progress : bool
         Progress bar of the evaluated points on stderr (only on a terminal).
     threads : int, optional
@@ -424,18 +430,10 @@ def phase_map(
         "transition_tol": tol,
     }
     target = None if out is None else os.fspath(out)
-    if target is not None and resume and os.path.isfile(target):
-        if not journal_path(target).is_dir():
-            ds = open_result(target)
-            found = read_identity(ds)
-            if found != plan.identity:
-                ds.close()
-                why = "; ".join(identity_differences(plan.identity, found or {})) or "no record"
-                raise StoreError(
-                    f"cannot resume {target}: the finished file belongs to a different run — "
-                    f"{why}. Use the original settings, or resume=False to overwrite it."
-                )
-            return ds
+    if target is not None:
+        check_output(target, resume=resume, overwrite=overwrite)
+        if resume and os.path.isfile(target) and not journal_path(target).is_dir():
+            return finished_result(target, plan.identity)
     journal = None if target is None else Journal.start(target, plan.identity, resume)
     try:
         with remote_for(executor, target) as remote:

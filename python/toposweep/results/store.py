@@ -45,11 +45,14 @@ from ..file_digest import DigestError, append_digest, verify
 __all__ = [
     "Journal",
     "check_output",
+    "finished_result",
     "identity_differences",
     "malformed",
     "journal_path",
     "missing_ranges",
     "open_result",
+    "other_run_message",
+    "read_identity",
     "write_result",
 ]
 
@@ -91,8 +94,17 @@ def _atomic_write(path: Path, write: Callable[[Any], None]) -> None:
     _fsync_dir(path.parent)
 
 
+#: identity keys in the order their differences are named (the telling ones first)
+_KEY_ORDER = ("phase_map", "model", "coefficients", "filling", "grid", "fixed", "inversion")
+#: differences named in a refusal; the rest are counted
+FIRST_DIFFERENCES = 3
+
+
 def identity_differences(expected: Mapping[str, Any], found: Mapping[str, Any]) -> list[str]:
     """Readable list of what differs between two run identities (empty: same run).
+
+    The most telling differences come first: the kind of run (sweep or phase map), the model,
+    the coefficients mapping, the filling, the grid, then parameters and sampling.
 
     Examples
     --------
@@ -102,30 +114,96 @@ def identity_differences(expected: Mapping[str, Any], found: Mapping[str, Any]) 
     ['filling: 2 now, 4 in the file', "grid order: ['m', 't'] now, ['t', 'm'] in the file
     (the same parameters in another order lay the points out differently; give the grid in
     the file's order)"]
+    >>> identity_differences({"phase_map": {"coarse_step": 8}}, {})
+    ['kind of run: a phase map now, a uniform sweep in the file']
     """
+
+    def rank(key: str) -> tuple[int, bool, str]:
+        return (
+            _KEY_ORDER.index(key) if key in _KEY_ORDER else len(_KEY_ORDER),
+            key == "numbers",
+            key,
+        )
+
     out = []
-    for key in sorted(set(expected) | set(found)):
+    keys = sorted(set(expected) | set(found), key=rank)
+    for key in keys:
         a, b = expected.get(key), found.get(key)
         if a == b:
             continue
-        if key == "grid":
-            out.extend(_grid_differences(a, b))
-        elif key == "sampling" and isinstance(a, dict) and isinstance(b, dict):
+        if key == "phase_map" and (a is None or b is None):
+            kinds = ("a phase map", "a uniform sweep")
+            now, then = kinds if a is not None else kinds[::-1]
+            out.append(f"kind of run: {now} now, {then} in the file")
+        elif key in ("phase_map", "sampling") and isinstance(a, dict) and isinstance(b, dict):
+            what = "phase-map option" if key == "phase_map" else "sampling"
             for opt in sorted(set(a) | set(b)):
                 if a.get(opt) != b.get(opt):
-                    out.append(f"sampling {opt}: {a.get(opt)!r} now, {b.get(opt)!r} in the file")
+                    out.append(f"{what} {opt}: {a.get(opt)!r} now, {b.get(opt)!r} in the file")
+        elif key == "grid":
+            out.extend(_grid_differences(a, b))
+        elif key == "fixed" and isinstance(a, dict) and isinstance(b, dict):
+            for name in sorted(set(a) | set(b)):
+                if a.get(name) != b.get(name):
+                    now = "not fixed" if name not in a else a[name]
+                    then = "not fixed" if name not in b else b[name]
+                    out.append(f"parameter {name}: {now} now, {then} in the file")
         elif key == "model":
             out.append("model: a different model (terms, hoppings, symmetry or defaults)")
         elif key == "numbers":
+            if expected.get("model") != found.get("model"):
+                continue  # (a different model gives other numbers anyway)
             out.append(
                 "model numbers: H(κ) or the coefficients mapping now give other values at the "
-                "same grid points (its code or a file it reads changed, though its name did "
-                "not); restore the original code, or start over (resume=False; command line: "
-                "--overwrite)"
+                "same grid points (its code or a file it reads changed, though its name did not)"
             )
+        elif key == "inversion":
+            out.append("inversion matrix: a different one now")
         else:
             out.append(f"{key}: {a!r} now, {b!r} in the file")
     return out
+
+
+def other_run_message(out: str, expected: Mapping[str, Any], found: Any, what: str) -> str:
+    """One line refusing to reuse ``what`` of ``out``, naming the first differences.
+
+    ``found`` is the identity recorded with it (None: a file without one).
+
+    Examples
+    --------
+    >>> other_run_message("m.nc", {"filling": 2}, {"filling": 4}, "the finished file")
+    ... # doctest: +NORMALIZE_WHITESPACE
+    'cannot reuse m.nc: the finished file was made by a different run — filling: 2 now, 4 in
+    the file. Give the settings it was made with, or start over with overwrite=True (command
+    line: --overwrite).'
+    """
+    diff = identity_differences(expected, found) if isinstance(found, dict) else []
+    if not diff:
+        diff = ["it records no run identity (an older or a foreign file)"]
+    named = "; ".join(diff[:FIRST_DIFFERENCES])
+    if len(diff) > FIRST_DIFFERENCES:
+        named += f"; and {len(diff) - FIRST_DIFFERENCES} more"
+    verb = "resume" if "interrupted" in what else "reuse"
+    return (
+        f"cannot {verb} {out}: {what} was made by a different run — {named}. Give the "
+        "settings it was made with, or start over with overwrite=True (command line: "
+        "--overwrite)."
+    )
+
+
+def finished_result(out: str, identity: Mapping[str, Any]) -> xr.Dataset:
+    """The finished result file ``out``, reused by ``resume=True`` only if it is this run's.
+
+    Its recorded identity (model, grid, filling, fixed parameters, sampling, coefficients,
+    phase-map options) must equal ``identity``; otherwise a :class:`StoreError` in one line
+    names the first differences.
+    """
+    ds = open_result(out)
+    found = read_identity(ds)
+    if found != identity:
+        ds.close()
+        raise StoreError(other_run_message(out, identity, found, "the finished file"))
+    return ds
 
 
 def _grid_axes(grid: Any) -> list[tuple[str, Any, Any]] | None:
@@ -221,12 +299,11 @@ class Journal:
                 except (OSError, ValueError):
                     found = None  # never completed: nothing of that run is trustworthy
                 if isinstance(found, dict):
-                    diff = identity_differences(identity, found)
-                    if diff:
+                    if identity_differences(identity, found):
                         raise StoreError(
-                            f"cannot resume {os.fspath(out)}: the interrupted run differs — "
-                            + "; ".join(diff)
-                            + ". Use the original settings, or resume=False to start over."
+                            other_run_message(
+                                os.fspath(out), identity, found, "the interrupted run's journal"
+                            )
                         )
                     return cls(path, identity, lock)
             for p in path.iterdir():  # a new run: clear everything but the lock
