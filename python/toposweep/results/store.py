@@ -155,7 +155,8 @@ def identity_differences(expected: Mapping[str, Any], found: Mapping[str, Any]) 
                 continue  # (a different model gives other numbers anyway)
             out.append(
                 "model numbers: H(κ) or the coefficients mapping now give other values at the "
-                "same grid points (its code or a file it reads changed, though its name did not)"
+                "same grid points (its code or a file it reads changed, though its name did "
+                "not; restore the original code)"
             )
         elif key == "inversion":
             out.append("inversion matrix: a different one now")
