@@ -29,6 +29,12 @@ TRIMS_2D = {
 }
 
 
+def one(ds):
+    """The single transition of a find_transition result."""
+    assert ds.sizes["transition"] == 1, ds.sizes
+    return ds.isel(transition=0)
+
+
 def _at(kappa: np.ndarray, allowed: set[tuple[float, ...]], tol: float = 1e-6) -> bool:
     k = np.mod(kappa + tol, 1.0) - tol
     return any(np.allclose(k, a, atol=tol) for a in allowed)
@@ -39,13 +45,15 @@ def _at(kappa: np.ndarray, allowed: set[tuple[float, ...]], tol: float = 1e-6) -
 def test_wilson_dirac_critical_masses(hopping: float, critical: int, inverted_at: int) -> None:
     # Qi, Hughes & Zhang, PRB 78, 195424 (2008): gap closes at m = -3t, -t, t, 3t
     m_star = critical * hopping
-    ds = ts.find_transition(
-        ts.models.wilson_dirac(),
-        2,
-        start={"mass": m_star - 0.37 * hopping},
-        end={"mass": m_star + 0.29 * hopping},
-        params={"hopping": hopping},
-        tol=1e-9,
+    ds = one(
+        ts.find_transition(
+            ts.models.wilson_dirac(),
+            2,
+            start={"mass": m_star - 0.37 * hopping},
+            end={"mass": m_star + 0.29 * hopping},
+            params={"hopping": hopping},
+            tol=1e-9,
+        )
     )
     assert int(ds.status) == 0  # a point-like closing between two different phases
     assert abs(float(ds.mass) - m_star) <= 1e-6 * abs(m_star)
@@ -62,8 +70,14 @@ def test_wilson_dirac_critical_masses(hopping: float, critical: int, inverted_at
 def test_bhz_critical_masses(critical: int, inverted_at: int, z2_changes: bool) -> None:
     # Bernevig, Hughes & Zhang, Science 314, 1757 (2006): closings at m/t = -2, 0, 2; at 0
     # the gap closes at X and Y together and the Z2 index is the same on both sides
-    ds = ts.find_transition(
-        ts.models.bhz(), 2, start={"mass": critical - 0.41}, end={"mass": critical + 0.23}, tol=1e-9
+    ds = one(
+        ts.find_transition(
+            ts.models.bhz(),
+            2,
+            start={"mass": critical - 0.41},
+            end={"mass": critical + 0.23},
+            tol=1e-9,
+        )
     )
     assert abs(float(ds.mass) - critical) <= 1e-6 * max(1.0, abs(critical))
     assert _at(ds.kappa.values, TRIMS_2D[inverted_at])
@@ -77,12 +91,14 @@ def test_kane_mele_staggered_critical_value() -> None:
     # Kane & Mele, PRL 95, 146802 (2005): without Rashba the Z2-odd phase ends at 3√3 λ_SO
     so = 0.06
     star = 3 * np.sqrt(3) * so
-    ds = ts.find_transition(
-        ts.models.kane_mele(spin_orbit=so),
-        2,
-        start={"staggered": 0.8 * star},
-        end={"staggered": 1.13 * star},
-        tol=1e-9,
+    ds = one(
+        ts.find_transition(
+            ts.models.kane_mele(spin_orbit=so),
+            2,
+            start={"staggered": 0.8 * star},
+            end={"staggered": 1.13 * star},
+            tol=1e-9,
+        )
     )
     assert int(ds.status) == 0
     assert abs(float(ds.staggered) / star - 1) <= 1e-6
@@ -108,8 +124,10 @@ def _overlapping_bands() -> ts.TightBinding:
 
 
 def test_a_gapless_interval_is_reported_as_an_interval() -> None:
-    ds = ts.find_transition(
-        _overlapping_bands(), 2, start={"level": -3.0}, end={"level": 3.0}, tol=1e-7
+    ds = one(
+        ts.find_transition(
+            _overlapping_bands(), 2, start={"level": -3.0}, end={"level": 3.0}, tol=1e-7
+        )
     )
     meanings = ds.status.attrs["flag_meanings"].split()
     assert meanings[int(ds.status)] == "same_phase_gap_closes_and_reopens"
@@ -120,7 +138,7 @@ def test_a_gapless_interval_is_reported_as_an_interval() -> None:
 
 
 def test_same_phase_without_closing_and_bad_segments() -> None:
-    ds = ts.find_transition(ts.models.bhz(), 2, start={"mass": -1.5}, end={"mass": -0.5})
+    ds = one(ts.find_transition(ts.models.bhz(), 2, start={"mass": -1.5}, end={"mass": -0.5}))
     assert ds.status.attrs["flag_meanings"].split()[int(ds.status)] == "same_phase_no_closing"
     assert float(ds.gap) > 0.9  # 2 min(|m + 2|, |m|) at m = -0.5 … -1.5 is ≥ 1
     with pytest.raises(ParameterError, match="same parameters"):

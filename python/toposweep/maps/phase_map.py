@@ -27,7 +27,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .. import sweep as _sweep
 from ..errors import ParameterError, StoreError
-from ..evaluation import _mark, _symmetry_breaks, prepare_request
+from ..evaluation import _mark, _symmetry_breaks, prepare_request, run_points
 from ..model import Model
 from ..progress import ProgressBar
 from ..results.store import (
@@ -51,7 +51,15 @@ from .adaptive_cells import (
     refine,
 )
 from .phase_map_dataset import add_map_variables, write_map
-from .transitions import locate_segments, probe_request, probes_of, segment_search
+from .transitions import (
+    SegmentResult,
+    between,
+    finish_statuses,
+    locate_segments,
+    probe_request,
+    probes_of,
+    segment_search,
+)
 from .weyl_bound import term_norm_bounds
 
 __all__ = ["labels_of", "phase_map"]
@@ -65,6 +73,9 @@ TRANSITION_TOL = 1e-3
 #: under prove_gap="auto" the core makes a point whose proof is unfinished undefined when its
 #: smallest gap found is under this many gap floors (the core's ``sampling::NEAR_FLOOR``)
 NEAR_FLOOR = 100.0
+#: a transition's segment: parts the gap bound leaves uncovered are split down to this length
+#: (a fraction of the segment) in search of a second closing
+MAP_RESOLUTION = 1.0 / 16
 
 
 class _Subset:
@@ -481,7 +492,11 @@ def _compute(
             full = _complete(
                 evals.raw, how, source, p_broken if req.inversion is not None else None
             )
-            found = _transitions(plan, full, how, tol, flag) if transitions else _no_transitions()
+            found = (
+                _transitions(plan, full, how, tol, flag, coeffs)
+                if transitions
+                else _no_transitions()
+            )
         except KeyboardInterrupt:
             bar.close()
             done = evals.count
@@ -548,17 +563,30 @@ def _transitions(
     how: NDArray[np.int8],
     tol: float,
     flag: _InterruptFlag,
+    coefficients: NDArray[np.float64] | None = None,
 ) -> dict[str, Any]:
     """Locate the closing between every pair of neighbouring evaluated points of two phases."""
     shape = plan.shape
     lo, hi, ax = segments(labels_of(full).reshape(shape), (how == EVALUATED).reshape(shape))
     if lo.size == 0:
         return _no_transitions()
-    ends = probes_of({k: full[k] for k in ("gap_direct", "gap_kappa", "gap_floor")})
+    bounds = term_norm_bounds(plan.request.model)
+    rows = None
+    if bounds is not None:
+        rows = coefficients if coefficients is not None else _coefficients(plan)
+    keys = ("gap_direct", "gap_kappa", "gap_floor", "gap_indirect")
+    ends = probes_of({k: full[k] for k in keys if k in full}, rows)
     span = np.abs(np.array(np.unravel_index(hi, shape)) - np.array(np.unravel_index(lo, shape)))
     span = span.sum(axis=0)
     searches = [
-        segment_search((ends[i], ends[j]), tol=tol / n, same_phase=False, interior=1)
+        segment_search(
+            (ends[i], ends[j]),
+            tol=tol / n,
+            same_phase=False,
+            interior=1,
+            bounds=bounds,
+            resolution=MAP_RESOLUTION,
+        )
         for i, j, n in zip(lo, hi, span, strict=True)
     ]
     dims = plan.dims
@@ -573,10 +601,58 @@ def _transitions(
         user[d] = float(x0 + s * (x1 - x0))
         return plan.model_point(user)
 
-    results = locate_segments(
-        probe_request(plan.request), searches, point_at, stop=lambda: flag.requested
+    per_segment = locate_segments(
+        probe_request(plan.request),
+        searches,
+        point_at,
+        stop=lambda: flag.requested,
+        with_coefficients=bounds is not None,
+        full=plan.request,
     )
-    return {"lower": lo, "upper": hi, "axis": ax, "results": results}
+    return _flatten(plan, full, lo, hi, ax, per_segment, point_at)
+
+
+def _flatten(
+    plan: SweepPlan,
+    full: dict[str, NDArray[Any]],
+    lo: NDArray[np.int64],
+    hi: NDArray[np.int64],
+    ax: NDArray[np.int64],
+    per_segment: list[list[SegmentResult]],
+    point_at: Any,
+) -> dict[str, Any]:
+    """One entry per closing, with the phases on both of its sides.
+
+    Where a segment holds several closings, the phases between them come from full
+    evaluations halfway between consecutive closings (one core call for all of them).
+    """
+    keys = ("phase", "nu0", *(("nu",) if "nu" in full else ()))
+    mids = [(j, x) for j, res in enumerate(per_segment) for x in between(res)]
+    inner = run_points(plan.request, [point_at(j, x) for j, x in mids]) if mids else None
+    taken = 0
+    rows: dict[str, list[Any]] = {k: [] for k in ("lower", "upper", "axis", "results")}
+    sides: dict[str, list[Any]] = {f"{k}_{w}": [] for k in keys for w in ("low", "high")}
+    for j, res in enumerate(per_segment):
+        n = len(res) - 1
+        side = {
+            k: [full[k][lo[j]], *([] if inner is None else inner[k][taken : taken + n]),
+                full[k][hi[j]]]
+            for k in keys
+        }  # fmt: skip
+        taken += n
+        finish_statuses(res, labels_of({k: np.asarray(v) for k, v in side.items()}).tolist())
+        for k, r in enumerate(res):
+            rows["lower"].append(lo[j])
+            rows["upper"].append(hi[j])
+            rows["axis"].append(ax[j])
+            rows["results"].append(r)
+            for key in keys:
+                sides[f"{key}_low"].append(side[key][k])
+                sides[f"{key}_high"].append(side[key][k + 1])
+    out: dict[str, Any] = {k: np.array(rows[k], np.int64) for k in ("lower", "upper", "axis")}
+    out["results"] = rows["results"]
+    out["sides"] = {k: np.asarray(v) for k, v in sides.items()}
+    return out
 
 
 def segments(

@@ -149,21 +149,29 @@ def _transition_variables(
             "units": "1",
         },  # fmt: skip
     )
+    sides = found.get("sides", {})
     for side, pts in (("low", lo), ("high", hi)):
+        phase = sides.get(f"phase_{side}", ds.phase.values.reshape(-1)[pts])
+        nu0 = sides.get(f"nu0_{side}", ds.nu0.values.reshape(-1)[pts])
         out[f"transition_phase_{side}"] = xr.Variable(
             t,
-            ds.phase.values.reshape(-1)[pts].astype(np.int8),
-            {"long_name": f"phase at the {side}er grid point", "units": "1", **_flags(PHASES)},
-        )
+            np.asarray(phase).astype(np.int8),
+            {"long_name": f"phase on the {side}er side of the transition", "units": "1",
+             **_flags(PHASES)},
+        )  # fmt: skip
         out[f"transition_nu0_{side}"] = xr.Variable(
             t,
-            ds.nu0.values.reshape(-1)[pts].astype(np.int8),
-            {"long_name": f"nu0 at the {side}er grid point", "units": "1"},
+            np.asarray(nu0).astype(np.int8),
+            {"long_name": f"nu0 on the {side}er side of the transition", "units": "1"},
         )
     out["transition_probes"] = xr.Variable(
         t,
         np.array([r.probes for r in results], np.int32),
-        {"long_name": "gap evaluations the search used", "units": "1"},
+        {
+            "long_name": "gap evaluations the search of the transition's segment used "
+            "(shared by the closings of one segment)",
+            "units": "1",
+        },
     )
     return out
 
