@@ -213,7 +213,7 @@ def test_function_from_a_file_loaded_by_path_round_trips(tmp_path, rng):
     name = file_module_name(path)  # the name `toposweep run` loads model files under
     model = load_by_path(path, name).build()
     d = json.loads(json.dumps(model.to_dict()))
-    assert d["function"] == f"{name}:square_model"
+    assert d["function"] == f"{path.resolve()}:square_model"  # the user's file, not `name`
     assert d["function_file"] == str(path.resolve())
     del sys.modules[name]  # as in a later process
     back = ts.model_from_dict(d, allow_code=True)

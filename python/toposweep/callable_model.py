@@ -18,7 +18,11 @@ from . import _core
 from .errors import ModelError
 from .model import Model
 
-__all__ = ["CallableModel", "file_module_name"]
+__all__ = ["CallableModel", "file_module_name", "function_label"]
+
+#: module-name prefix of Python files toposweep imports by path (:func:`file_module_name`);
+#: an internal name, never shown: :func:`function_label` names such functions by their file
+FILE_MODULE_PREFIX = "toposweep_user_"
 
 
 class CallableModel(Model):
@@ -168,21 +172,18 @@ class CallableModel(Model):
     def to_dict(self) -> dict[str, Any]:
         """JSON-able description; the function is recorded by its import path.
 
-        The path is ``module:qualified_name``; the function's source file is recorded too, so
-        a function from a file loaded by path (for example a ``toposweep run`` model file,
-        whose module name exists only in the process that loaded it) can be found again.
+        The path is ``module:qualified_name`` — for a function of a file toposweep loaded by
+        path (a ``toposweep run`` model file) ``/path/to/file.py:qualified_name`` — and the
+        function's source file is recorded too, so it can be found again.
         """
         d = self._base_dict()
         d["kind"] = "callable"
         d["parameters"] = list(self._parameters)
-        module = getattr(self.func, "__module__", None)
-        qualname = getattr(self.func, "__qualname__", None)
-        d["function"] = f"{module}:{qualname}" if module and qualname else repr(self.func)
+        d["function"] = function_label(self.func)
         d["function_file"] = _source_file(self.func)
         given = self.lipschitz
         if callable(given):
-            mod, name = getattr(given, "__module__", None), getattr(given, "__qualname__", None)
-            d["lipschitz"] = f"function {mod}:{name}"
+            d["lipschitz"] = f"function {function_label(given)}"
         elif given is not None:
             d["lipschitz"] = self._lipschitz_row(given).tolist()
         return d
@@ -222,28 +223,67 @@ def _source_file(func: Any) -> str | None:
     return str(Path(path).resolve()) if path else None
 
 
+def function_label(func: Any) -> str:
+    """How results and messages name a function: ``module:qualname``, or ``file.py:qualname``.
+
+    A function of a Python file toposweep imported by path (a run configuration's
+    ``"path/to/file.py:function"``) lives in a module of an internal name; it is named by
+    the file's absolute path instead, which is what the user wrote and fixed the same way.
+
+    Examples
+    --------
+    >>> import math
+    >>> function_label(math.floor)
+    'math:floor'
+    """
+    module = getattr(func, "__module__", None)
+    qualname = getattr(func, "__qualname__", None)
+    if not module or not qualname:
+        return repr(func)
+    if str(module).startswith(FILE_MODULE_PREFIX):
+        loaded = sys.modules.get(str(module))
+        path = getattr(loaded, "__file__", None)
+        if path:
+            return f"{Path(path).resolve()}:{qualname}"
+    return f"{module}:{qualname}"
+
+
 def _import_function(ref: str, file: Any) -> Callable[..., Any]:
-    """The function recorded as ``module:qualname``: by import, else from its source file."""
-    module, _, qualname = ref.partition(":")
+    """The function recorded as ``module:qualname`` or ``/path/file.py:qualname``.
+
+    Imported by its module name, else loaded from its source file ``file``.
+    """
+    module, _, qualname = ref.rpartition(":")
+    by_path = module.endswith(".py") or module.startswith(FILE_MODULE_PREFIX)
+    if module.endswith(".py"):  # a file loaded by path: its path is the reference
+        file = module
+    where = Path(file) if isinstance(file, str) and file else None
+    if by_path and where is not None:  # (older results recorded the internal module name)
+        ref = f"{where}:{qualname}"
     if not module or not qualname or "<" in qualname:
         raise ModelError(
             f"cannot rebuild callable model: function {ref!r} is not importable (lambdas and "
             "functions defined inside other functions cannot be found again; define it at "
             "module level)"
         )
-    try:
-        return _attribute(importlib.import_module(module), qualname)
-    except (ImportError, AttributeError) as exc:
-        first = exc
-    where = Path(file) if isinstance(file, str) and file else None
+    first: Exception | None = None
+    if not by_path:
+        try:
+            return _attribute(importlib.import_module(module), qualname)
+        except (ImportError, AttributeError) as exc:
+            first = exc
     if module == "__main__" or where is None or not where.is_file():
+        if by_path:
+            why = f"the file {where} is gone (moved or deleted?)"
+        else:
+            why = str(first)
         hint = (
             " It was defined in a script run as __main__: move it into a module file so results "
             "can rebuild the model."
             if module == "__main__"
             else ""
         )
-        raise ModelError(f"cannot import model function {ref!r}: {first}.{hint}") from None
+        raise ModelError(f"cannot import model function {ref!r}: {why}.{hint}") from None
     # A file loaded by path (its module name existed only in the process that loaded it):
     # load it again under the name fixed by its path, once per process.
     loaded = load_file_module(where)
@@ -251,8 +291,10 @@ def _import_function(ref: str, file: Any) -> Callable[..., Any]:
         raise ModelError(f"cannot import model function {ref!r} from {where}") from None
     try:
         return _attribute(loaded, qualname)
-    except AttributeError as exc:
-        raise ModelError(f"cannot import model function {ref!r} from {where}: {exc}") from None
+    except AttributeError:
+        raise ModelError(
+            f"cannot import model function {ref!r}: {where} has no function {qualname!r}"
+        ) from None
 
 
 def load_file_module(path: Path) -> Any:
@@ -291,7 +333,7 @@ def file_module_name(path: Path) -> str:
     True
     """
     digest = hashlib.sha1(str(Path(path).resolve()).encode()).hexdigest()[:16]
-    return f"toposweep_user_{digest}"
+    return f"{FILE_MODULE_PREFIX}{digest}"
 
 
 def _attribute(obj: Any, qualname: str) -> Any:

@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from .callable_model import function_label
 from .errors import ParameterError
 from .evaluation import Request
 from .fingerprint import numbers_fingerprint, sample_indices
@@ -52,6 +53,8 @@ def callable_name(func: Callable[..., Any]) -> str:
     >>> callable_name(math.floor)
     'math:floor'
     """
+    if getattr(func, "__module__", None) and getattr(func, "__qualname__", None):
+        return function_label(func)  # (a file's function by its path, not our module name)
     return f"{getattr(func, '__module__', '?')}:{getattr(func, '__qualname__', repr(func))}"
 
 

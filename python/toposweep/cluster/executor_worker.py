@@ -127,6 +127,26 @@ def call_job(job: Any, task: Any, threads: Any) -> tuple[Any, str, float]:
     return (value, _worker_name(), seconds)
 
 
+def _refuse_file_modules(payload: bytes) -> None:
+    """Refuse a job that refers to a file toposweep loaded by path, naming the file.
+
+    Pickled by reference, such a function names a module that exists only in this process
+    (the worker would fail with "No module named" and our internal module name).
+    """
+    files = sorted(
+        str(getattr(module, "__file__", name))
+        for name, module in list(sys.modules.items())
+        if name.startswith(FILE_MODULE_PREFIX) and module is not None and name.encode() in payload
+    )
+    if files:
+        raise ExecutorError(
+            f"the run's model or coefficients function comes from {', '.join(files)}, a file "
+            "loaded by its path, which the workers cannot import by name: install cloudpickle "
+            "(pip install 'toposweep[dask]') so it travels to them by value, or make the file "
+            "an importable module on the workers and name the function from there"
+        )
+
+
 def serialise_job(job: Any) -> bytes:
     """Pickle ``job`` once for all workers.
 
@@ -139,12 +159,16 @@ def serialise_job(job: Any) -> bytes:
         cloudpickle = None
     try:
         if cloudpickle is None:
-            return pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL)
+            payload = pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL)
+            _refuse_file_modules(payload)
+            return payload
         for name, module in list(sys.modules.items()):
             if name.startswith(FILE_MODULE_PREFIX) and module is not None:
                 # (such a module exists only in the process that loaded the file by path)
                 cloudpickle.register_pickle_by_value(module)
         return bytes(cloudpickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL))
+    except ExecutorError:
+        raise
     except Exception as exc:  # PicklingError, AttributeError of local objects, TypeError ...
         how = (
             "define the model function (and coefficients=) at module level in an importable "
