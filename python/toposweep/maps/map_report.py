@@ -17,6 +17,26 @@ def _meanings(var: xr.DataArray) -> dict[int, str]:
     return dict(zip(values.tolist(), str(var.attrs.get("flag_meanings", "")).split(), strict=False))
 
 
+#: phase codes as a summary line names them (metals: 10 + the code of their bands)
+PHASE_NAMES = {-1: "undefined", 0: "trivial insulator", 1: "weak TI", 2: "strong TI",
+               3: "Z2-odd 2D insulator"}  # fmt: skip
+
+
+def _phase_name(code: int) -> str:
+    """A phase code as a summary line says it.
+
+    Examples
+    --------
+    >>> _phase_name(2), _phase_name(10), _phase_name(7)
+    ('strong TI', 'metal (trivial insulator bands)', 'phase 7')
+    """
+    if code in PHASE_NAMES:
+        return PHASE_NAMES[code]
+    if code - 10 in PHASE_NAMES and code >= 10:
+        return f"metal ({PHASE_NAMES[code - 10]} bands)"
+    return f"phase {code}"
+
+
 def map_summary_lines(ds: xr.Dataset) -> list[str]:
     """Lines on how the points of a phase map were obtained and where its transitions are.
 
@@ -41,17 +61,19 @@ def map_summary_lines(ds: xr.Dataset) -> list[str]:
     status = ds.transition_status.values
     meanings = _meanings(ds.transition_status)
     for code in sorted(set(status.tolist())):
-        lines.append(f"  {meanings.get(code, str(code)):42s} {int((status == code).sum()):6d}")
+        name = meanings.get(code, str(code))  # (as the flag meanings say, like reasons)
+        lines.append(f"  {name:42s} {int((status == code).sum()):6d}")
     dims = [str(d) for d in ds.phase.dims]
     unit = str(ds.transition_gap.attrs.get("units", ""))
     unit = "" if unit in ("", "1") else f" {unit}"
     for j in range(min(n_tr, MAX_LISTED)):
+        low = int(ds.transition_phase_low.values[j])
+        high = int(ds.transition_phase_high.values[j])
         where = ", ".join(f"{d}={float(ds[f'transition_{d}'].values[j]):.6g}" for d in dims)
         kappa = ", ".join(f"{k:.4f}" for k in ds.transition_kappa.values[j])
         lines.append(
             f"  at {where}: gap {float(ds.transition_gap.values[j]):.2g}{unit} at kappa "
-            f"({kappa}), phase {int(ds.transition_phase_low.values[j])} -> "
-            f"{int(ds.transition_phase_high.values[j])}"
+            f"({kappa}), {_phase_name(low)} -> {_phase_name(high)}"
         )
     if n_tr > MAX_LISTED:
         lines.append(f"  … and {n_tr - MAX_LISTED} more")
