@@ -153,3 +153,10 @@ def test_a_phase_map_cut_shows_measured_gaps_only_and_its_transitions() -> None:
     marks = sorted({float(ln.get_xdata()[0]) for ln in bottom.get_lines()
                     if ln.get_linestyle() == ":"})  # fmt: skip
     np.testing.assert_allclose(marks, [-2.0, 2.0], atol=1e-6)
+
+
+def test_the_demos_cut_is_titled_by_the_quasiparticle_factor() -> None:
+    from toposweep.demo import cut_at_fixed_weight
+
+    title = plot_line(cut_at_fixed_weight(ts.models.df_lattice()), "f_level").axes[0].get_title()
+    assert title.endswith("f quasiparticle factor z = 0.6") and "weight" not in title
