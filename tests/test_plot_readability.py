@@ -160,3 +160,17 @@ def test_the_demos_cut_is_titled_by_the_quasiparticle_factor() -> None:
 
     title = plot_line(cut_at_fixed_weight(ts.models.df_lattice()), "f_level").axes[0].get_title()
     assert title.endswith("f quasiparticle factor z = 0.6") and "weight" not in title
+
+
+def test_other_transitions_are_named_by_their_status(bhz_map: xr.Dataset) -> None:
+    ds = bhz_map.copy(deep=True)
+    status = ds.transition_status.values.copy()
+    status[0] = 5  # as if the first were the edge of a metal
+    ds["transition_status"] = ("transition", status, {**bhz_map.transition_status.attrs,
+        "flag_values": np.arange(6, dtype=np.int8),
+        "flag_meanings": "gap_closes_at_a_point b c d e bands_overlap_begins"})  # fmt: skip
+    fig = plot_phase_map(ds, "mass", "hopping")
+    texts = [t.get_text() for t in fig.axes[1].get_legend().get_texts()]
+    assert "bands overlap begins" in texts and "gap closes" in texts
+    (edge,) = _lines(fig, "bands overlap begins")
+    assert len(edge.get_xdata()) == 1

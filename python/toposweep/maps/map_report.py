@@ -86,6 +86,9 @@ def map_summary_lines(ds: xr.Dataset) -> list[str]:
 EVALUATED_STYLE = {"marker": "o", "ms": 2.0, "mfc": "white", "mec": "black", "mew": 0.35}
 CLOSING_STYLE = {"marker": "o", "ms": 3.2, "mfc": "black", "mec": "white", "mew": 0.6}
 OTHER_STYLE = {"marker": "X", "ms": 5.0, "mfc": "black", "mec": "white", "mew": 0.5}
+#: markers of the other transition statuses, in the order of their codes (labelled by their
+#: flag meanings: "bands overlap begins", "gap closed over an interval", ...)
+OTHER_MARKERS = ("X", "D", "s", "P", "^", "v")
 
 
 def transitions_in(ds: xr.Dataset, sub: xr.Dataset, free: tuple[str, ...]) -> np.ndarray:
@@ -120,7 +123,11 @@ def draw_transitions(
     if point.any():
         drawn += ax.plot(tx[point], ty[point], ls="none", zorder=4, label="gap closes",
                          **CLOSING_STYLE)  # fmt: skip
-    if (~point).any():
-        drawn += ax.plot(tx[~point], ty[~point], ls="none", zorder=4,
-                         label="other transition (summary)", **OTHER_STYLE)  # fmt: skip
+    status = ds.transition_status.values[keep]
+    meanings = _meanings(ds.transition_status)
+    for code, marker in zip(sorted(set(status[~point].tolist())), OTHER_MARKERS, strict=False):
+        here = status == code
+        label = meanings.get(code, f"transition status {code}").replace("_", " ")
+        drawn += ax.plot(tx[here], ty[here], ls="none", zorder=4, label=label,
+                         **{**OTHER_STYLE, "marker": marker})  # fmt: skip
     return drawn
