@@ -25,6 +25,7 @@ from toposweep.errors import ParameterError, StoreError
 from toposweep.results.store import journal_path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+from proven_gap import sampled_gap as proven_gap_sampled  # noqa: E402
 from proven_gap import with_proven_gap  # noqa: E402
 
 sweep_module = import_module("toposweep.sweep")
@@ -79,10 +80,11 @@ def test_map_transitions_lie_on_the_published_boundaries(wilson_dirac_maps) -> N
     assert (pm.transition_phase_low.values != pm.transition_phase_high.values).any()
 
 
-def test_points_next_to_a_boundary_skip_the_proof_unless_near_the_floor(monkeypatch) -> None:
-    """Corners of one-spacing cells prove nothing for the map: under prove_gap="auto" they are
-    evaluated without the gap proof, except where the sweep's setting could make them
-    undefined (smallest gap under 100 floors): there the point is evaluated as the sweep does.
+def test_points_are_evaluated_without_the_proof_unless_near_the_floor(monkeypatch) -> None:
+    """Under prove_gap="auto" points are evaluated without the gap proof (the map asks for the
+    proofs it needs afterwards), except where the sweep's setting could make them undefined
+    (smallest gap under 100 floors, and under the core's auto-proof threshold): there the point
+    is evaluated again as the sweep does.
 
     Wilson–Dirac at t = 1 closes its gap at m = 1 and m = 3 (Qi, Hughes & Zhang, PRB 78,
     195424 (2008)); the direct gap is 2|m − m*| at the inverting TRIM, so m = 1.0001 lies ~2.5
@@ -103,9 +105,11 @@ def test_points_next_to_a_boundary_skip_the_proof_unless_near_the_floor(monkeypa
     pm = ts.phase_map(model, grid, 2, progress=False, coarse_step=2)
     ev = pm.obtained.values == 0
     assert ev.tolist() == [i % 2 == 0 or i in (3, 9) for i in range(len(mass))]
-    # 3 and 9 are next to the closings: without the proof first, 3 again with it (near floor)
-    assert asked[-2:] == [("never", [1.0001, 3.05]), ("auto", [1.0001])]
-    assert {p for p, _ in asked[:-2]} == {"auto"}
+    # only 1.0001 (next to the closing, near the floor) is evaluated again with the proof
+    assert [(p, m) for p, m in asked if p != "never"] == [("auto", [1.0001])]
+    assert sorted(m for p, ms in asked if p == "never" for m in ms) == sorted(
+        np.asarray(mass)[ev].tolist()
+    )
     for name in sw.data_vars:
         if name == "gap_proven":
             continue
@@ -113,33 +117,53 @@ def test_points_next_to_a_boundary_skip_the_proof_unless_near_the_floor(monkeypa
     # next to the floor the proof is the sweep's (and succeeds: 2.5 floors, ~1e-4 proven)
     assert np.isfinite(sw.gap_proven.values[3])
     assert pm.gap_proven.values[3] == sw.gap_proven.values[3]
-    assert np.isnan(pm.gap_proven.values[9])  # not proven: not attempted
-    other = ev & (np.arange(len(mass)) % 2 == 0)
-    np.testing.assert_array_equal(pm.gap_proven.values[other], sw.gap_proven.values[other])
+    # elsewhere a proven gap is one the map asked for: a lower bound of the measured gap
+    asked_for = ev & np.isfinite(pm.gap_proven.values)
+    assert np.all(pm.gap_proven.values[asked_for] <= sw.gap_direct.values[asked_for])
     assert np.isclose(pm.transition_mass.values, [1.0, 3.0], rtol=1e-5).all()
 
 
-def test_no_more_proofs_once_none_succeeded(monkeypatch) -> None:
-    """When no evaluated point of the first round has a proven gap, later rounds skip it."""
+def test_no_more_proofs_once_a_batch_of_them_failed(monkeypatch) -> None:
+    """When fewer than half of a batch of 8 or more proofs succeed, the map asks for no more."""
     model = ts.models.wilson_dirac()
-    grid = {"mass": np.linspace(-4, 4, 33) + 0.013}
-    asked: list[str] = []
-    run_points = sweep_module.run_points
+    grid = {"mass": np.linspace(-4, 4, 129) + 0.013, "hopping": np.linspace(0.6, 1.4, 17)}
+    core = import_module("toposweep._core")
+    batches: list[int] = []
 
-    def unproven(request, points):  # type: ignore[no-untyped-def]
-        # a stand-in for a model whose gaps are too small for the proof's budget
-        asked.append(request.sampling.prove_gap)
-        raw = run_points(request, points)
-        raw["gap_proven"][:] = np.nan
-        return raw
+    def failing(core_model, coeffs, filling, targets, floors, **kw):  # type: ignore[no-untyped-def]
+        # a stand-in for a model whose gaps are too small for a proof's budget
+        batches.append(len(targets))
+        n = len(targets)
+        return np.full(n, np.nan), np.ones(n, np.int8), np.zeros(n, np.int64)
 
-    monkeypatch.setattr(sweep_module, "run_points", unproven)
-    pm = ts.phase_map(model, grid, 2, progress=False, coarse_step=8)
-    assert asked[0] == "auto" and len(asked) > 2 and set(asked[1:]) == {"never"}
+    monkeypatch.setattr(core, "prove_gaps", failing)
+    pm = ts.phase_map(model, grid, 2, progress=False, coarse_step=16, transitions=False)
+    assert batches and batches[-1] >= 8
+    assert all(b < 8 for b in batches[:-1])
     monkeypatch.undo()
     sw = ts.sweep(model, grid, 2, progress=False)
     np.testing.assert_array_equal(pm.phase.values, sw.phase.values)  # (QHZ: -3, -1, 1, 3)
     assert (pm.obtained.values != 1).all()  # nothing proven without proven gaps
+
+
+def test_the_proofs_the_map_asks_for_are_lower_bounds_of_the_gap() -> None:
+    """Real proofs, no stand-in: every point is evaluated or proven, each proven bound lies
+    below the gap NumPy finds on a dense κ mesh (an upper bound of the true minimum), and the
+    indices are the sweep's. BHZ: Z2 changes at m/t = ±2 (Bernevig, Hughes & Zhang, Science
+    314, 1757 (2006))."""
+    model = ts.models.bhz()
+    grid = {"mass": np.linspace(-3.5, 3.5, 57) + 0.01, "hopping": np.linspace(0.8, 1.2, 9)}
+    pm = ts.phase_map(model, grid, 2, progress=False, proven_only=True, transitions=False)
+    sw = ts.sweep(model, grid, 2, progress=False)
+    how = pm.obtained.values
+    assert (how == 2).sum() == 0 and (how == 1).sum() > 0.4 * how.size
+    np.testing.assert_array_equal(pm.nu0.values, sw.nu0.values)
+    proven = np.argwhere(how == 1)
+    rng = np.random.default_rng(5)
+    for i, j in proven[rng.choice(len(proven), 12, replace=False)]:
+        params = {"mass": float(grid["mass"][i]), "hopping": float(grid["hopping"][j])}
+        bound = float(pm.gap_bound.values[i, j])
+        assert 0 < bound <= proven_gap_sampled(model, params) + 1e-12, params
 
 
 def test_proof_path_with_a_stand_in_bound(monkeypatch) -> None:

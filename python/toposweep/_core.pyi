@@ -87,6 +87,27 @@ def flow(
     positions: NDArray[np.float64] | None = None,
     threads: int | None = None,
 ) -> NDArray[np.float64]: ...
+def prove_gaps(
+    model: CoreModel,
+    coeffs: NDArray[np.float64],
+    filling: int,
+    targets: NDArray[np.float64],
+    floors: NDArray[np.float64],
+    *,
+    budget: int,
+    threads: int | None = None,
+) -> tuple[NDArray[np.float64], NDArray[np.int8], NDArray[np.int64]]:
+    """Prove the direct gap ≥ ``targets[i]`` over the zone at every row of ``coeffs``.
+
+    Returns (lower bounds, NaN where not proven; codes 0 proven, 1 not proven, 2 a κ point
+    under the floor; Hamiltonians evaluated per point).
+    """
+    ...
+
+def auto_proof_below(model: CoreModel, coeffs: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Per row of ``coeffs``: the gap under which ``prove_gap="auto"`` proves (NaN: never)."""
+    ...
+
 def decided_flow(
     model: CoreModel,
     coeff: NDArray[np.float64],

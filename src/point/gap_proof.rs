@@ -100,6 +100,62 @@ pub fn prove_gap(
     budget: usize,
     stats: &mut BandStats,
 ) -> CoreResult<GapProof> {
+    let target = (TARGET_SHARE * estimate).max(floor);
+    prove(
+        src,
+        bound,
+        filling,
+        floor,
+        Target::Share(target),
+        budget,
+        stats,
+    )
+}
+
+/// Prove that the direct gap is at least `target` over the zone — no more: the boxes are as
+/// large as that allows, so a target well under the gap is proven with a few boxes. What a
+/// phase map asks of a point that is to vouch for its neighbours (it needs twice their
+/// distance in band shifts, not the gap itself). A box centre whose gap is under the target
+/// ends the proof as [`GapProof::Unfinished`] (the target is out of reach); under the floor,
+/// as [`GapProof::BelowFloor`]. `Proven.lower` is the smallest box bound, ≥ `target`.
+pub fn prove_gap_above(
+    src: &dyn BlochSource,
+    bound: &VariationBound,
+    filling: usize,
+    floor: f64,
+    target: f64,
+    budget: usize,
+    stats: &mut BandStats,
+) -> CoreResult<GapProof> {
+    prove(
+        src,
+        bound,
+        filling,
+        floor,
+        Target::Fixed(target.max(floor)),
+        budget,
+        stats,
+    )
+}
+
+/// What a box's bound must reach.
+#[derive(Clone, Copy)]
+enum Target {
+    /// [`TARGET_SHARE`] of the smallest gap seen (starting from this value), never below the floor
+    Share(f64),
+    /// this value; a centre gap under it ends the proof
+    Fixed(f64),
+}
+
+fn prove(
+    src: &dyn BlochSource,
+    bound: &VariationBound,
+    filling: usize,
+    floor: f64,
+    aim: Target,
+    budget: usize,
+    stats: &mut BandStats,
+) -> CoreResult<GapProof> {
     let dim = src.dim();
     let slopes = bound.slopes();
     // smallest gap first: the boxes whose parent's centre had the smallest gap, so the proof
@@ -113,7 +169,9 @@ pub fn prove_gap(
             cell,
         })
         .collect();
-    let mut target = (TARGET_SHARE * estimate).max(floor);
+    let mut target = match aim {
+        Target::Share(t) | Target::Fixed(t) => t,
+    };
     let mut proven = f64::INFINITY;
     let mut evaluations = 0;
     let mut kappa = Vec::new();
@@ -144,7 +202,12 @@ pub fn prove_gap(
                     evaluations,
                 });
             }
-            target = target.min((TARGET_SHARE * g).max(floor));
+            match aim {
+                Target::Share(_) => target = target.min((TARGET_SHARE * g).max(floor)),
+                // (the true minimum is at most g: the target cannot be proven)
+                Target::Fixed(t) if g < t => return Ok(GapProof::Unfinished { evaluations }),
+                Target::Fixed(_) => {}
+            }
         }
         // the global bound first (no Hamiltonian); the boxes it leaves try the bound from the
         // derivatives at their centre, in parallel, when its remainder leaves room
@@ -289,6 +352,45 @@ mod tests {
         );
         // never a proof of a gap that is not there
         assert!(!matches!(got, GapProof::Proven { .. }));
+    }
+
+    #[test]
+    fn a_fixed_target_under_the_gap_is_proven_cheaply_and_one_above_never() {
+        let model = qwz();
+        for m in [-1.0, 0.5, 1.9, 2.5] {
+            let src = model.at(&[m]).unwrap();
+            let b = src.variation().unwrap().clone();
+            let want = sampled_gap(m);
+            let mut stats = BandStats::default();
+            let full = prove_gap(&src, &b, 2, 1e-9, want, 1 << 20, &mut stats).unwrap();
+            let low = prove_gap_above(&src, &b, 2, 1e-9, 0.1 * want, 1 << 20, &mut stats).unwrap();
+            match (low, full) {
+                (
+                    GapProof::Proven { lower, evaluations },
+                    GapProof::Proven {
+                        evaluations: full_evaluations,
+                        ..
+                    },
+                ) => {
+                    assert!(
+                        lower >= 0.1 * want && lower <= want + 1e-12,
+                        "m = {m}: {lower}"
+                    );
+                    assert!(
+                        evaluations < full_evaluations,
+                        "m = {m}: {evaluations} ≥ {full_evaluations}"
+                    );
+                }
+                other => panic!("m = {m}: {other:?}"),
+            }
+            // the sampled gap is an upper bound of the true minimum: above it, no proof
+            let high =
+                prove_gap_above(&src, &b, 2, 1e-9, 1.01 * want, 1 << 20, &mut stats).unwrap();
+            assert!(
+                matches!(high, GapProof::Unfinished { .. }),
+                "m = {m}: {high:?}"
+            );
+        }
     }
 
     #[test]

@@ -7,7 +7,10 @@ evaluated is
 
 * **proven** when some evaluated point q of the cell has a proven gap (``gap_proven``) larger
   than twice the band-shift bound δ(p, q) of :mod:`toposweep.maps.weyl_bound` — then the gap cannot
-  close between q and p, and p has q's indices;
+  close between q and p, and p has q's indices. The proofs are asked for here, not at
+  evaluation: a settled cell's points that no proven gap covers yet ask the corner whose
+  measured gap covers them best for a proof of just 2δ (``prove``) — a target far under the
+  gap is proven with a few boxes, where proving the gap itself costs as much as the point;
 * else **filled by agreement** (unless forbidden): for tight-binding models when the same test
   passes with the measured gap (``gap_direct``, a minimum found by search, not a proof); for
   other models when every evaluated point's gap exceeds ``agreement_gap``.
@@ -40,6 +43,19 @@ UNSEEN = -2
 #: default agreement threshold for models without a band-shift bound, relative to the largest
 #: bandwidth among the cell's evaluated points
 AGREEMENT_SHARE = 0.02
+#: a proof is asked for at most this share of the point's measured gap (the share the core's
+#: own proof aims at, ``gap_proof::TARGET_SHARE``: nearer the gap the boxes get small)
+PROOF_SHARE = 0.5
+#: a proof asks this much more than the cell needs, so that the finer cells that share the
+#: corner later are covered by the same proof
+PROOF_HEADROOM = 2.5
+#: a batch of at least this many proofs of which fewer than half succeed ends the asking: the
+#: model's gaps are then mostly beyond what a proof's budget covers, and a failed proof costs
+#: its whole budget (the d–f lattice: 2 of 98 proven, against 100 % on Wilson–Dirac and
+#: Kane–Mele)
+PROOF_GIVE_UP = 8
+#: :func:`_decide`'s answer for a cell waiting for the proofs it asked for
+WAIT = "wait"
 
 Cell = tuple[tuple[int, ...], tuple[int, ...]]
 
@@ -53,6 +69,8 @@ class PointTable:
     gap_direct: NDArray[np.float64] = field(init=False)
     gap_proven: NDArray[np.float64] = field(init=False)
     bandwidth: NDArray[np.float64] = field(init=False)
+    #: the smallest proof target that failed at a point (inf: none failed)
+    proof_failed: NDArray[np.float64] = field(init=False)
 
     def __post_init__(self) -> None:
         n = math.prod(self.shape)
@@ -60,6 +78,7 @@ class PointTable:
         self.gap_direct = np.full(n, np.nan)
         self.gap_proven = np.full(n, np.nan)
         self.bandwidth = np.full(n, np.nan)
+        self.proof_failed = np.full(n, np.inf)
 
     @property
     def evaluated(self) -> NDArray[np.bool_]:
@@ -158,8 +177,14 @@ def _decide(
     coeffs: NDArray[np.float64] | None,
     bounds: NDArray[np.float64] | None,
     settings: RefineSettings,
-) -> Claims | None:
-    """Claims of a settled cell, or None when it must be split."""
+    wants: dict[int, float] | None = None,
+) -> Claims | None | str:
+    """Claims of a settled cell, None when it must be split, or :data:`WAIT`.
+
+    With ``wants`` (corner → proof target), a cell whose corners agree but whose points are
+    not all proven asks for the proofs that would cover them (:func:`_proofs_wanted`) and
+    returns :data:`WAIT` if it asked for any.
+    """
     idx = _box(cell, table.shape)
     ev = table.label[idx] != UNSEEN
     seen = int(ev.sum())
@@ -182,6 +207,9 @@ def _decide(
         margin = m[np.arange(nt), best]
         estimate_ok = (np.nan_to_num(table.gap_direct[src], nan=-np.inf) - 2.0 * delta > 0).any(1)
     proven = margin > 0
+    if wants is not None and not proven.all() and bounds is not None and coeffs is not None:
+        if _proofs_wanted(src, delta[~proven], table, wants):
+            return WAIT
     if not proven.all():
         if settings.proven_only:
             return None
@@ -203,6 +231,38 @@ def _decide(
     source = np.where(proven, src[best], src[nearest])
     bound = np.where(proven, margin, np.nan)
     return Claims(todo.astype(np.int64), how, source.astype(np.int64), bound, seen)
+
+
+def _proofs_wanted(
+    src: NDArray[np.int64],
+    delta: NDArray[np.float64],
+    table: PointTable,
+    wants: dict[int, float],
+) -> bool:
+    """Ask, for points not yet proven, the evaluated corners that could prove them.
+
+    ``delta`` is (points, corners): each point picks the corner whose measured gap covers it
+    with the most room, and that corner is asked for twice the largest δ among the points that
+    picked it (with :data:`PROOF_HEADROOM`, never above :data:`PROOF_SHARE` of its gap). A
+    corner is not asked again for what it has proven already, nor for a target at or above
+    one that failed there. Returns whether anything was asked.
+    """
+    est = np.nan_to_num(table.gap_direct[src], nan=-np.inf)
+    pick = np.argmax(est[None, :] - 2.0 * delta, axis=1)
+    need = np.zeros(src.size)
+    np.maximum.at(need, pick, 2.0 * delta[np.arange(delta.shape[0]), pick])
+    asked = False
+    for j in np.flatnonzero(need > 0):
+        cap = PROOF_SHARE * est[j]
+        if need[j] >= cap:  # out of a proof's reach: the point is filled or its cell split
+            continue
+        q = int(src[j])
+        have = table.gap_proven[q]
+        if have > need[j] or need[j] >= table.proof_failed[q]:
+            continue
+        wants[q] = max(wants.get(q, 0.0), min(PROOF_HEADROOM * need[j], cap))
+        asked = True
+    return asked
 
 
 def _edge_midpoints(
@@ -248,20 +308,22 @@ def _edge_midpoints(
 
 def refine(
     table: PointTable,
-    evaluate: Callable[[NDArray[np.int64], NDArray[np.bool_]], None],
+    evaluate: Callable[[NDArray[np.int64]], None],
     settings: RefineSettings,
     *,
     coeffs: NDArray[np.float64] | None = None,
     bounds: NDArray[np.float64] | None = None,
     forced: NDArray[np.int64] | None = None,
+    prove: Callable[[NDArray[np.int64], NDArray[np.float64]], int] | None = None,
 ) -> tuple[NDArray[np.int8], NDArray[np.int64], NDArray[np.float64]]:
     """Evaluate a grid adaptively; returns per point ``(how, source, bound)``.
 
-    ``evaluate(indices, last)`` must evaluate the given flat indices (sorted, none evaluated
+    ``evaluate(indices)`` must evaluate the given flat indices (sorted, none evaluated
     before) and set their ``label``, ``gap_direct``, ``gap_proven`` and ``bandwidth`` in
-    ``table``; ``last`` marks the points that are corners of one-spacing cells only, whose
-    proven gap can vouch for no other point (the caller may skip proving it there).
-    ``coeffs`` (points × terms) and ``bounds`` (terms) enable the proof; ``forced`` points
+    ``table``. ``coeffs`` (points × terms) and ``bounds`` (terms) enable the proof;
+    ``prove(indices, targets)`` (evaluated points, sorted) tries to prove the gap ≥ target
+    there, raises ``table.gap_proven`` where it succeeds, lowers ``table.proof_failed`` where
+    not, and returns how many succeeded. ``forced`` points
     are evaluated in the first round whatever happens. ``how`` is EVALUATED/PROVEN/FILLED,
     ``source`` the evaluated point whose indices a point carries (itself if evaluated),
     ``bound`` the proven lower bound of the gap at PROVEN points (NaN elsewhere).
@@ -282,20 +344,36 @@ def refine(
     if forced is not None and forced.size:
         first = np.union1d(first, forced)
     first = np.unique(first).astype(np.int64)
-    evaluate(first, np.zeros(first.size, bool))
+    evaluate(first)
     waited = np.zeros(table.label.size, bool)  # midpoints that waited once already
+    asking = [prove is not None and bounds is not None and coeffs is not None]
+
+    def settle(cell: Cell, claims: Claims | None | str, children: list[Cell],
+               split: list[Cell]) -> None:  # fmt: skip
+        if claims is None:
+            children += _split(cell)
+            split.append(cell)
+        elif isinstance(claims, Claims):
+            leaves[cell] = claims
 
     def run(pending: list[Cell]) -> None:
         while pending:
             children: list[Cell] = []
             split: list[Cell] = []
+            wants: dict[int, float] | None = {} if asking[0] else None
+            waiting: list[Cell] = []
             for cell in pending:
-                claims = _decide(cell, table, coeffs, bounds, settings)
-                if claims is None:
-                    children += _split(cell)
-                    split.append(cell)
-                else:
-                    leaves[cell] = claims
+                claims = _decide(cell, table, coeffs, bounds, settings, wants)
+                if claims is WAIT:
+                    waiting.append(cell)
+                settle(cell, claims, children, split)
+            if waiting and wants and prove is not None:
+                asked = np.array(sorted(wants), np.int64)
+                done = prove(asked, np.array([wants[int(q)] for q in asked]))
+                if asked.size >= PROOF_GIVE_UP and 2 * done < asked.size:
+                    asking[0] = False
+            for cell in waiting:
+                settle(cell, _decide(cell, table, coeffs, bounds, settings), children, split)
             if children:
                 new = _all_corners(children, shape)
                 new = new[table.label[new] == UNSEEN]
@@ -305,11 +383,7 @@ def refine(
                 waited[wait] = True
                 new = np.setdiff1d(new, wait)
                 if new.size:
-                    wide = [c for c in children if max(b - a for a, b in zip(*c, strict=True)) > 1]
-                    last = ~np.isin(new, _all_corners(wide, shape)) if wide else None
-                    evaluate(
-                        new.astype(np.int64), np.ones(new.size, bool) if last is None else last
-                    )
+                    evaluate(new.astype(np.int64))
             pending = children
 
     leaves: dict[Cell, Claims] = {}
@@ -329,7 +403,7 @@ def refine(
         how, source, bound, conflicts = _merge(leaves, table)
         if conflicts.size == 0:
             return how, source, bound
-        evaluate(conflicts, np.zeros(conflicts.size, bool))
+        evaluate(conflicts)
 
 
 def _merge(

@@ -25,6 +25,7 @@ import numpy as np
 import xarray as xr
 from numpy.typing import ArrayLike, NDArray
 
+from .. import _core
 from .. import sweep as _sweep
 from ..errors import ParameterError, StoreError
 from ..evaluation import _mark, _symmetry_breaks, prepare_request, run_points
@@ -76,6 +77,8 @@ NEAR_FLOOR = 100.0
 #: a transition's segment: parts the gap bound leaves uncovered are split down to this length
 #: (a fraction of the segment) in search of a second closing
 MAP_RESOLUTION = 1.0 / 16
+#: a map's proof gets this fraction of the budget of the core's own proof under "auto"
+PROOF_BUDGET_SHARE = 2
 
 
 class _Subset:
@@ -193,12 +196,13 @@ class _Evaluations:
         self.raw: dict[str, NDArray[Any]] = {}
         self.count = 0
         self.finished = [] if journal is None else journal.finished()
-        # the points next to a boundary (corners of one-spacing cells only) cannot vouch for
-        # any other point, so under prove_gap="auto" they skip the proof
+        # under prove_gap="auto" the points are evaluated without the proof, and the proofs a
+        # map needs are asked for afterwards, for just the gap they must show (prove())
         self.plain = None
         if plan.request.sampling.prove_gap == "auto":
             plain = dataclasses.replace(plan.request.sampling, prove_gap="never")
             self.plain = _with_request(plan, dataclasses.replace(plan.request, sampling=plain))
+        self.proofs = 0  # proofs asked for
 
     def _store(self, indices: NDArray[np.int64], raw: Mapping[str, NDArray[Any]]) -> None:
         n = self.plan.size
@@ -216,52 +220,85 @@ class _Evaluations:
         if "gap_proven" in raw:
             t.gap_proven[indices] = raw["gap_proven"]
 
-    def __call__(self, indices: NDArray[np.int64], last: NDArray[np.bool_]) -> None:
-        """Evaluate ``indices``; under ``prove_gap="auto"`` those marked ``last`` without proof.
+    def __call__(self, indices: NDArray[np.int64]) -> None:
+        """Evaluate ``indices``; under ``prove_gap="auto"`` without the proof.
 
-        A point marked ``last`` is a corner of one-spacing cells only: its proven gap could
-        vouch for no other point, and next to a boundary the proof is at its dearest (there it
-        was ~60 % of a Wilson–Dirac map's time). Its results are the sweep's apart from
-        ``gap_proven`` (NaN: not proven), except that the sweep's proof can also find a
-        closing the gap search missed; where the smallest gap found is under
-        :data:`NEAR_FLOOR` floors, or where the proof's κ samples could make it a metal
-        (:meth:`_proof_may_matter`), it is evaluated again with the sweep's setting, so it is
-        exactly the sweep's there.
-
-        Every point is treated so once the points evaluated so far (at least a first round)
-        have no proven gap at all: the model's gaps are then too small for the proof's budget
-        under "auto" (the d–f lattice's hybridisation gap against its band widths), and every
-        further proof would be work for nothing.
+        Its results are then the sweep's apart from ``gap_proven`` (the map asks for the proofs
+        it needs with :meth:`prove`), except that the sweep's proof can also find a closing the
+        gap search missed: where the smallest gap found is under :data:`NEAR_FLOOR` floors, or
+        where the proof's κ samples could make it a metal (:meth:`_proof_may_matter`), the
+        point is evaluated again with the sweep's setting, so it is exactly the sweep's there.
+        Proving at every evaluated point instead cost a Kane–Mele map ~40 % of its time
+        (benches/RESULTS.md), most of it at points whose proof vouched for nothing.
         """
-        evaluated = self.table.evaluated
-        if self.plain is not None and evaluated.any():
-            if not np.isfinite(self.table.gap_proven[evaluated]).any():
-                last = np.ones(indices.size, bool)
-        if self.plain is None or not last.any():
+        if self.plain is None:
             self._evaluate(indices, self.plan)
             return
-        self._evaluate(indices[~last], self.plan)
-        self._evaluate(indices[last], self.plain)
-        # where the proof could change the point's indices or phase, evaluate it again with the
-        # sweep's setting: the point is then the sweep's
-        again = indices[last][self._proof_may_matter(indices[last])]
+        self._evaluate(indices, self.plain)
+        again = indices[self._proof_may_matter(indices)]
         if again.size:
             self._evaluate(again, self.plan)
 
-    def _proof_may_matter(self, indices: NDArray[np.int64]) -> NDArray[np.bool_]:
-        """Points evaluated without the proof whose phase the proof's κ samples could change.
+    def prove(self, indices: NDArray[np.int64], targets: NDArray[np.float64]) -> int:
+        """Prove the gap ≥ ``targets`` at evaluated points; returns how many were proven.
 
-        Near the floor an unfinished proof makes a point undefined (reason 11). And the proof
-        samples κ across the zone: where the indirect gap found is positive but well below the
-        direct one, the band extrema lie apart from the direct gap's minimum, and a valence
-        maximum or conduction minimum that only the proof's samples find can make it negative
-        (a metal, phase codes 10–13). Measured on Kane–Mele with Rashba coupling: 4e-4 became
-        −3e-3 where the direct gap was 0.09.
+        A proven bound raises the point's ``gap_proven`` (in the table and in the results: a
+        lower bound of the direct gap, as the sweep's, though aimed at what the map needed
+        rather than at half the gap); a failed target is remembered so it is not asked again.
+        Deterministic, so a resumed run proves the same points alike (proofs are not
+        journalled: they are redone).
+        """
+        req = self.plan.request
+        model = req.model
+        pts = [self.plan.model_point(self.plan.user_point(int(i))) for i in indices]
+        core, coeffs = model.prepare(pts)
+        self.proofs += len(indices)
+        lower, code, _ = _core.prove_gaps(
+            core,
+            np.ascontiguousarray(coeffs, dtype=float),
+            req.filling,
+            np.ascontiguousarray(targets, dtype=float),
+            np.ascontiguousarray(self.floor(indices), dtype=float),
+            budget=_proof_budget(req.sampling, model.dim),
+            threads=req.threads,
+        )
+        if self.flag.requested:
+            raise KeyboardInterrupt
+        ok = code == 0
+        t = self.table
+        better = ok & ~(t.gap_proven[indices] >= lower)
+        t.gap_proven[indices[better]] = lower[better]
+        if "gap_proven" in self.raw:
+            self.raw["gap_proven"][indices[better]] = lower[better]
+        failed = indices[~ok]
+        t.proof_failed[failed] = np.minimum(t.proof_failed[failed], targets[~ok])
+        return int(ok.sum())
+
+    def _proof_may_matter(self, indices: NDArray[np.int64]) -> NDArray[np.bool_]:
+        """Points evaluated without the proof whose phase the sweep's proof could change.
+
+        The sweep proves a point's gap under "auto" only where its smallest gap found is under
+        the core's threshold (``_core.auto_proof_below``); elsewhere its evaluation is the
+        same without the proof. Where it proves: near the floor an unfinished proof makes a
+        point undefined (reason 11); and the proof samples κ across the zone — where the
+        indirect gap found is positive but well below the direct one, the band extrema lie
+        apart from the direct gap's minimum, and a valence maximum or conduction minimum that
+        only the proof's samples find can make it negative (a metal, phase codes 10–13).
+        Measured on Kane–Mele with Rashba coupling: 4e-4 became −3e-3 where the direct gap
+        was 0.09.
         """
         direct = self.table.gap_direct[indices]
         indirect = np.asarray(self.raw["gap_indirect"][indices], float)
         near_floor = direct < NEAR_FLOOR * self.floor(indices)
-        return near_floor | ((indirect > 0) & (indirect < 0.5 * direct))
+        risky = near_floor | ((indirect > 0) & (indirect < 0.5 * direct))
+        if not risky.any():
+            return risky
+        pts = [self.plan.model_point(self.plan.user_point(int(i))) for i in indices[risky]]
+        core, coeffs = self.plan.request.model.prepare(pts)
+        below = _core.auto_proof_below(core, np.ascontiguousarray(coeffs, dtype=float))
+        # (NaN: the model has no bound and the sweep proves nothing either)
+        risky[risky] = direct[risky] < below
+        return risky
 
     def floor(self, indices: NDArray[np.int64]) -> NDArray[np.float64]:
         """The gap floor the core used at evaluated points."""
@@ -296,6 +333,14 @@ class _Evaluations:
 
         if not _sweep._run(view, todo, save, self.bar, self.chunk_size, self.flag, self.remote):  # type: ignore[arg-type]
             raise KeyboardInterrupt
+
+
+def _proof_budget(sampling: Sampling, dim: int) -> int:
+    """Hamiltonians a map's proof may spend at one point: the budget of the core's own proof
+    under ``prove_gap="auto"`` (``engine::proof_budget``) — about two evaluations' worth."""
+    planes = 6 if dim == 3 else 1
+    grid = sampling.gap_points**3 if dim == 3 else 0
+    return max(4096, 2 * (planes * sampling.lines * sampling.loop_points + grid)) // PROOF_BUDGET_SHARE
 
 
 def _check_options(
@@ -488,6 +533,7 @@ def _compute(
                 coeffs=coeffs,
                 bounds=bounds,
                 forced=np.flatnonzero(tr_broken).astype(np.int64),
+                prove=evals.prove if req.sampling.prove_gap != "never" else None,
             )
             full = _complete(
                 evals.raw, how, source, p_broken if req.inversion is not None else None

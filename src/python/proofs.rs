@@ -1,0 +1,135 @@
+//! Gap proofs apart from an evaluation, for adaptive phase maps: `prove_gaps` (a fixed target
+//! at many parameter points: what a map asks of the points that are to vouch for others) and
+//! `auto_proof_below` (where `prove_gap="auto"` would have proven a point's gap).
+
+use super::{coeff_rows, detached, finish, CoreModel, Workers};
+use crate::error::CoreError;
+use crate::point::cancel::Watched;
+use crate::point::gap_proof::{prove_gap_above, GapProof};
+use crate::sampling::AUTO_PROOF_SHARE;
+use crate::topology::wilson::BandStats;
+use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1, PyReadonlyArray2};
+use pyo3::exceptions::PyValueError;
+use pyo3::prelude::*;
+use rayon::prelude::*;
+use std::sync::{Arc, Mutex};
+
+/// Outcome codes of [`prove_gaps`], one per point.
+const PROVEN: i8 = 0;
+const NOT_PROVEN: i8 = 1;
+const CLOSING_FOUND: i8 = 2;
+
+/// Prove, at every row of `coeffs` (npoints, nterms), that the direct gap at `filling` is at
+/// least `targets[i]` everywhere in the zone, spending at most `budget` Hamiltonians a point
+/// (gap floor `floors[i]`). Returns (lower bounds — NaN where not proven —, outcome codes: 0
+/// proven, 1 not proven (budget spent, or a κ point's gap under the target), 2 a κ point
+/// whose gap is under the floor; Hamiltonians evaluated). A model without a variation bound
+/// (a callable without Lipschitz constants) proves nothing: all codes 1.
+#[pyfunction]
+#[pyo3(signature = (model, coeffs, filling, targets, floors, *, budget, threads=None))]
+#[allow(clippy::too_many_arguments, clippy::type_complexity)]
+pub(super) fn prove_gaps<'py>(
+    py: Python<'py>,
+    model: &CoreModel,
+    coeffs: PyReadonlyArray2<f64>,
+    filling: usize,
+    targets: PyReadonlyArray1<f64>,
+    floors: PyReadonlyArray1<f64>,
+    budget: usize,
+    threads: Option<usize>,
+) -> PyResult<(
+    Bound<'py, PyArray1<f64>>,
+    Bound<'py, PyArray1<i8>>,
+    Bound<'py, PyArray1<i64>>,
+)> {
+    let rows = coeff_rows(model, &coeffs)?;
+    let targets = targets.as_array().to_vec();
+    let floors = floors.as_array().to_vec();
+    if targets.len() != rows.len() || floors.len() != rows.len() {
+        return Err(PyValueError::new_err(format!(
+            "{} coefficient rows, {} targets and {} floors: one of each per point",
+            rows.len(),
+            targets.len(),
+            floors.len()
+        )));
+    }
+    if filling == 0 || filling >= model.norb {
+        return Err(PyValueError::new_err("filling out of range"));
+    }
+    if targets
+        .iter()
+        .chain(&floors)
+        .any(|v| !v.is_finite() || *v <= 0.0)
+    {
+        return Err(PyValueError::new_err(
+            "targets and floors must be finite and positive",
+        ));
+    }
+    let error = Arc::new(Mutex::new(None));
+    let run = detached(py, Workers::Pool(threads), |call| {
+        rows.par_iter()
+            .enumerate()
+            .map(|(i, c)| {
+                model.with_source(c, i, &error, |src| {
+                    let Some(bound) = src.variation() else {
+                        return Ok(GapProof::Unfinished { evaluations: 0 });
+                    };
+                    let src = Watched {
+                        inner: src,
+                        watch: &call.watch,
+                    };
+                    let mut stats = BandStats::default();
+                    prove_gap_above(
+                        &src, bound, filling, floors[i], targets[i], budget, &mut stats,
+                    )
+                })
+            })
+            .collect::<Result<Vec<GapProof>, CoreError>>()
+    });
+    let proofs = finish(py, run, &error)?;
+    let mut lower = Vec::with_capacity(proofs.len());
+    let mut code = Vec::with_capacity(proofs.len());
+    let mut used = Vec::with_capacity(proofs.len());
+    for p in &proofs {
+        let (l, c) = match *p {
+            GapProof::Proven { lower, .. } => (lower, PROVEN),
+            GapProof::Unfinished { .. } => (f64::NAN, NOT_PROVEN),
+            GapProof::BelowFloor { .. } => (f64::NAN, CLOSING_FOUND),
+        };
+        lower.push(l);
+        code.push(c);
+        used.push(p.evaluations() as i64);
+    }
+    Ok((
+        lower.into_pyarray(py),
+        code.into_pyarray(py),
+        used.into_pyarray(py),
+    ))
+}
+
+/// The gap under which `prove_gap="auto"` proves a point's gap, at every row of `coeffs`
+/// (`ProveGap::Auto`: [`AUTO_PROOF_SHARE`] of the variation bound over the whole zone); NaN
+/// where the model has no bound (no proof is attempted there). Where a point's smallest gap
+/// found is at or above it, its evaluation under "auto" is the same as under "never".
+#[pyfunction]
+pub(super) fn auto_proof_below<'py>(
+    py: Python<'py>,
+    model: &CoreModel,
+    coeffs: PyReadonlyArray2<f64>,
+) -> PyResult<Bound<'py, PyArray1<f64>>> {
+    let rows = coeff_rows(model, &coeffs)?;
+    let error = Arc::new(Mutex::new(None));
+    let run = detached(py, Workers::Caller, |_| {
+        rows.iter()
+            .enumerate()
+            .map(|(i, c)| {
+                model.with_source(c, i, &error, |src| {
+                    Ok(src
+                        .variation()
+                        .map_or(f64::NAN, |b| AUTO_PROOF_SHARE * b.within(&[0.5; 3])))
+                })
+            })
+            .collect::<Result<Vec<f64>, CoreError>>()
+    });
+    Ok(finish(py, run, &error)?.into_pyarray(py))
+}
