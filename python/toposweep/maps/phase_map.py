@@ -336,11 +336,15 @@ class _Evaluations:
 
 
 def _proof_budget(sampling: Sampling, dim: int) -> int:
-    """Hamiltonians a map's proof may spend at one point: the budget of the core's own proof
-    under ``prove_gap="auto"`` (``engine::proof_budget``) — about two evaluations' worth."""
+    """Hamiltonians a map's proof may spend at one point.
+
+    :data:`PROOF_BUDGET_SHARE` of the budget of the core's own proof under
+    ``prove_gap="auto"`` (``engine::proof_budget``, about two evaluations' worth).
+    """
     planes = 6 if dim == 3 else 1
     grid = sampling.gap_points**3 if dim == 3 else 0
-    return max(4096, 2 * (planes * sampling.lines * sampling.loop_points + grid)) // PROOF_BUDGET_SHARE
+    auto = max(4096, 2 * (planes * sampling.lines * sampling.loop_points + grid))
+    return auto // PROOF_BUDGET_SHARE
 
 
 def _check_options(
