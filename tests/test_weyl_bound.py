@@ -93,3 +93,30 @@ def test_maps_never_disagree_with_the_sweep_at_proven_points(seed: int, monkeypa
     assert not (proven & (pm.phase.values < 0)).any()
     evaluated = pm.obtained.values == 0
     np.testing.assert_array_equal(pm.nu0.values[evaluated], sweep.nu0.values[evaluated])
+
+
+@settings(
+    max_examples=4,
+    deadline=None,
+    derandomize=True,
+    suppress_health_check=[HealthCheck.too_slow],
+)
+@given(seed=st.integers(0, 10_000))
+def test_maps_with_the_cores_own_proofs_never_disagree_at_proven_points(seed: int) -> None:
+    """The same with the proofs the map asks the core for (no stand-in): proven points carry
+    the sweep's indices, and every proven bound lies under the gap NumPy samples there."""
+    rm = random_model(seed, dim=2, norb=4, coupling=0.4)
+    grid = {"coupling": np.linspace(0.0, 6.0, 33)}
+    sweep = ts.sweep(rm.model, grid, rm.filling, progress=False)
+    pm = ts.phase_map(rm.model, grid, rm.filling, progress=False, coarse_step=8, proven_only=True)
+    proven = pm.obtained.values == 1
+    defined = sweep.undefined_reason.values == 0
+    assert not (proven & defined & (pm.nu0.values != sweep.nu0.values)).any()
+    assert not (proven & (pm.phase.values < 0)).any()
+    assert (pm.obtained.values != 2).all()  # proven_only: nothing filled
+    for i in np.flatnonzero(proven)[::4]:
+        params = {"coupling": float(grid["coupling"][i])}
+        k = np.stack(np.meshgrid(*[np.arange(48) / 48] * 2, indexing="ij"), -1).reshape(-1, 2)
+        e = np.linalg.eigvalsh(bloch_hamiltonian(rm.model, k, params))
+        sampled = float((e[:, rm.filling] - e[:, rm.filling - 1]).min())
+        assert 0 < pm.gap_bound.values[i] <= sampled + 1e-12
