@@ -135,3 +135,15 @@ def test_workers_without_cloudpickle_are_told_which_file(folder: Path, monkeypat
     text = str(info.value)
     assert str((folder / "user_model.py").resolve()) in text and "cloudpickle" in text
     assert FILE_MODULE_PREFIX not in text
+
+
+def test_the_refusal_to_run_recorded_code_names_the_file_once(folder: Path) -> None:
+    assert run(folder, "my_terms") == 0
+    with ts.open_result(folder / "out.nc") as ds:
+        record = json.loads(ds.attrs["model"])
+    path = (folder / "user_model.py").resolve()
+    for rec in (record, dict(record, function=f"{file_module_name(path)}:hamiltonian")):
+        with pytest.raises(ModelError) as info:
+            ts.model_from_dict(rec)  # (allow_code not given)
+        assert f"({path}:hamiltonian)" in str(info.value)
+        assert FILE_MODULE_PREFIX not in str(info.value)

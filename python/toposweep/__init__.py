@@ -94,9 +94,14 @@ def model_from_dict(d: dict[str, Any], *, allow_code: bool = False) -> Model:
         return TightBinding.from_dict(d)
     if kind == "callable":
         if not allow_code:
+            from .callable_model import FILE_MODULE_PREFIX
+
             where = str(d.get("function", "?"))
-            if d.get("function_file"):
-                where += f" from {d['function_file']}"
+            file = d.get("function_file")
+            if where.startswith(FILE_MODULE_PREFIX) and file:  # (an older record's name)
+                where = f"{file}:{where.rpartition(':')[2]}"
+            elif file and not where.startswith(f"{file}:"):
+                where += f" from {file}"
             raise ModelError(
                 f"this model description names Python code ({where}); rebuilding it imports "
                 "and runs that code. Pass allow_code=True (command line: --allow-code) only if "
