@@ -118,7 +118,22 @@ def table(quick: bool, rounds: int = 1, only: str | None = None) -> list[str]:
             f"{per_round} | {min(loads):.1f}–{max(loads):.1f} |"
         )
         print(out[-1], flush=True)
+        print(f"  ({transition_line(pm)})", flush=True)
     return out
+
+
+def transition_line(pm: xr.Dataset) -> str:
+    """Gap evaluations of the transition search (per transition) and the statuses found.
+
+    Closings of one segment share their segment's count; such segments are rare on these maps.
+    """
+    if pm.sizes["transition"] == 0:
+        return "no transitions"
+    probes = pm.transition_probes.values
+    status = pm.transition_status.values
+    meanings = pm.transition_status.attrs["flag_meanings"].split()
+    counts = ", ".join(f"{meanings[k]} {int((status == k).sum())}" for k in sorted(set(status)))
+    return f"transitions: {probes.mean():.2f} gap evaluations each ({int(probes.sum())}); {counts}"
 
 
 NOTE = (

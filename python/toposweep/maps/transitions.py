@@ -84,6 +84,8 @@ STATUS: dict[int, str] = {
 }
 GOLDEN = 0.5 * (3.0 - math.sqrt(5.0))  # 0.382: golden-section step
 MAX_ROUNDS = 80
+#: a lowest probe under this many gap floors sits on the closing itself (see :func:`_dip`)
+LANDED = 0.01
 
 
 @dataclass(frozen=True)
@@ -261,10 +263,11 @@ def _dip(pts: dict[float, Probe], wlo: float, whi: float, tol: float) -> Inner:
             left, right = s[i] - lo, hi - s[i]
             guess = s[i] + GOLDEN * right if right >= left else s[i] - GOLDEN * left
         if abs(guess - s[i]) < tol / 2:  # the fit sits on the lowest point
-            if not looked_out and g[i] < pts[s[i]].floor:
-                # closed there: probes at ±tol/2 would be closed too when the closed core
-                # is wider than tol (they tell nothing); look just outside the core a straight
-                # V allows instead: with two open probes a side the V bounds the closing
+            if not looked_out and g[i] < LANDED * pts[s[i]].floor:
+                # the fit landed on the closing itself (a straight V, as Wilson–Dirac's):
+                # probes at ±tol/2 would be closed too when the closed core is wider than tol
+                # and tell nothing; look just outside the core a straight V allows instead:
+                # with two open probes a side the V bounds the closing
                 looked_out = True
                 yield _outside(s, g, i, pts[s[i]].floor, tol, wlo, whi)
                 done = v_stop(s, g, i)
