@@ -101,9 +101,13 @@ def test_plot_flow_needs_neither_z2_nor_title() -> None:
     fig = plot_flow(flows)
     titles = [ax.get_title() for ax in fig.axes]
     assert "κ1 = 0: Z2 = 1" in titles and "κ3 = 0.5: Z2 = 1" in titles
-    assert "mass = -0.5" in fig.get_suptitle() and "centre flow" in fig.get_suptitle()
+    # the point by its parameters' long names (the model's parameter_info)
+    assert "Dirac mass m = -0.5" in fig.get_suptitle() and "centre flow" in fig.get_suptitle()
     labels = fig.axes[0].get_legend_handles_labels()[1]
     assert "inserted line" in labels
+    # the legend is the figure's, under the panels: none inside a panel hides a centre
+    assert all(ax.get_legend() is None for ax in fig.axes)
+    assert [t.get_text() for t in fig.legends[0].get_texts()] == ["initial line", "inserted line"]
 
 
 def test_wcc_flow_is_a_deprecated_alias_with_even_lines() -> None:

@@ -462,12 +462,19 @@ def plot_flow(
         ax.set_title(f"{plane}: Z2 = {z_text}", fontsize=9)
         ax.set_xlabel(f"pump coordinate κ{flow.attrs.get('pump_axis', 2)}")
         ax.set_ylabel(f"centre along κ{flow.attrs.get('loop_axis', 1)}")
-        if i == 0 and inserted.any():
-            ax.legend(loc="lower right", fontsize=7, framealpha=0.8, markerscale=2)
+    # the markers' legend under the panels, where it covers no centre
+    handles, labels = axes.flat[0].get_legend_handles_labels()
+    for ax in axes.flat[1:]:
+        for h, lab in zip(*ax.get_legend_handles_labels(), strict=True):
+            if lab not in labels:
+                handles.append(h)
+                labels.append(lab)
+    if "inserted line" in labels:
+        fig.legend(handles, labels, loc="outside lower center", ncols=len(labels), fontsize=8,
+                   frameon=False, markerscale=2)  # fmt: skip
     if title is None:
         first = flows[0]
-        params = {str(k): float(v) for k, v in first.coords.items() if v.ndim == 0}
-        where = ", ".join(f"{k} = {v:.4g}" for k, v in params.items())
+        where = fixed_text(first, width=100)
         name = str(first.attrs.get("model_name", ""))
         title = "centre flow (hybrid Wannier centres)" + (f", {name}" if name else "")
         title += f"\n{where}" if where else ""
