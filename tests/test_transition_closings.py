@@ -14,6 +14,8 @@ from pathlib import Path
 
 import numpy as np
 import toposweep as ts
+from hypothesis import assume, given, settings
+from hypothesis import strategies as st
 from scipy.optimize import brentq
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -174,3 +176,60 @@ def test_a_segment_the_gap_bound_proves_open_needs_only_the_scan() -> None:
     assert meanings(ds) == ["same_phase_no_closing"]
     assert int(ds.attrs["gap_evaluations"]) == 7
     assert float(ds.gap[0]) > 0.9
+
+
+# -- every closing of random Dirac models -------------------------------------------------------
+SX2 = np.array([[0, 1], [1, 0]], complex)
+SY2 = np.array([[0, -1j], [1j, 0]], complex)
+SZ2 = np.diag([1.0, -1.0]).astype(complex)
+I2 = np.eye(2, dtype=complex)
+
+
+def _dirac_2d(t1: float, t2: float, t12: float) -> ts.TightBinding:
+    """H = sin k₁ Γ₁ + sin k₂ Γ₂ + M(κ) Γ₃ with M = m + t1 cos k₁ + t2 cos k₂ + t12 cos k₁ cos k₂.
+
+    Γ₁ = σx⊗sz, Γ₂ = σy⊗s0, Γ₃ = σz⊗s0 anticommute, so E = ±√(sin² k₁ + sin² k₂ + M²): the
+    gap closes only at a TRIM where M vanishes, at m* = −(±t1 ± t2 ± t1·t2 signs' t12), and
+    near it the gap is 2|m − m*| (the lattice Dirac model of Qi, Hughes & Zhang, PRB 78,
+    195424 (2008), with unequal hoppings; one band inversion at one TRIM changes Z2).
+    """
+    g1, g2, g3 = np.kron(SX2, SZ2), np.kron(SY2, I2), np.kron(SZ2, I2)
+    m = ts.TightBinding(2, 4, time_reversal=np.kron(I2, 1j * SY2))
+    m.add((0, 0), g3, term="mass")
+    m.add((1, 0), -0.5j * g1 + 0.5 * t1 * g3)
+    m.add((0, 1), -0.5j * g2 + 0.5 * t2 * g3)
+    m.add((1, 1), 0.25 * t12 * g3)
+    m.add((1, -1), 0.25 * t12 * g3)
+    m.defaults = {"mass": 0.0}
+    return m
+
+
+@settings(max_examples=60, deadline=None, derandomize=True)
+@given(
+    t1=st.floats(0.2, 1.5),
+    t2=st.floats(0.2, 1.5),
+    t12=st.floats(-0.6, 0.6),
+    lo=st.floats(-4.0, 0.0),
+    width=st.floats(0.5, 6.0),
+)
+def test_every_closing_of_a_random_dirac_model_is_reported(t1, t2, t12, lo, width) -> None:  # noqa: ANN001
+    hi = lo + width
+    found = [  # (m*, TRIM in reduced coordinates); cos k = ±1 at κ = 0 or 1/2
+        (-(t1 * c1 + t2 * c2 + t12 * c1 * c2), ((1 - c1) / 4, (1 - c2) / 4))
+        for c1 in (1, -1)
+        for c2 in (1, -1)
+    ]
+    # closings apart from each other and from the ends by 1 % of the segment at least
+    ms = sorted(m for m, _ in found)
+    assume(all(b - a > 0.01 * width for a, b in zip(ms[:-1], ms[1:], strict=True)))
+    assume(all(abs(m - end) > 0.01 * width for m in ms for end in (lo, hi)))
+    closings = dict(found)
+    inside = [m for m in ms if lo < m < hi]
+    ds = ts.find_transition(_dirac_2d(t1, t2, t12), 2, start={"mass": lo}, end={"mass": hi})
+    if not inside:
+        assert meanings(ds) == ["same_phase_no_closing"]
+        return
+    np.testing.assert_allclose(ds.mass.values, inside, atol=1e-6 * width)
+    assert (ds.status.values == 0).all()  # one band inversion each: Z2 changes at every one
+    for x, k in zip(inside, ds.kappa.values, strict=True):
+        np.testing.assert_allclose(np.mod(k + 1e-6, 1.0) - 1e-6, closings[x], atol=1e-6)

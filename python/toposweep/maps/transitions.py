@@ -432,7 +432,7 @@ def segment_search(
             x = c.fraction
             if c.status == 0 and (b <= x or a >= x):
                 at_x = ga + (gb - ga) * (x - a) / (b - a)
-                if abs(at_x) <= max(2 * floor, 0.25 * min(ga, gb)):
+                if abs(at_x) <= 2 * floor:
                     return True
         return False
 
