@@ -14,7 +14,7 @@
 use crate::error::CoreResult;
 use crate::linalg::eigen::eigh_occupied_many_into;
 use crate::linalg::matrix::{matmul, overlap, unitarise};
-use crate::topology::wilson::{loop_centres, BandStats, LineResult, LineSpec};
+use crate::topology::wilson::{loop_centres, BandStats, LineResult, LineSamples, LineSpec};
 use crate::zone::bloch::BlochSource;
 use crate::zone::variation::{turn_bound, VariationBound, TURN_LIMIT};
 use crate::C64;
@@ -85,7 +85,8 @@ fn solve(src: &dyn BlochSource, l: &LineSpec, ts: &[f64], nocc: usize) -> CoreRe
 }
 
 /// The Wilson loop of line `l`, its κ points placed so that no step turns the occupied states
-/// by more than the Davis–Kahan bound allows, starting from `loop_points` even steps.
+/// by more than the Davis–Kahan bound allows, starting from `loop_points` even steps — solved
+/// here, or given as `seed` (the even loop's own samples, `LineResult::samples`).
 /// `positions` as for `wilson::evaluate_lines`.
 pub fn resolve_line(
     src: &dyn BlochSource,
@@ -94,12 +95,25 @@ pub fn resolve_line(
     filling: usize,
     positions: Option<&[f64]>,
     bound: &VariationBound,
+    seed: Option<&LineSamples>,
 ) -> CoreResult<LineResult> {
     let (dim, n, nocc) = (src.dim(), src.norb(), filling);
     let even: Vec<f64> = (0..loop_points)
         .map(|s| s as f64 / loop_points as f64)
         .collect();
-    let mut pts = solve(src, l, &even, nocc)?;
+    let mut pts = match seed {
+        Some(sm) if sm.e.len() == loop_points * n && sm.occ.len() == loop_points * n * nocc => even
+            .iter()
+            .zip(sm.e.chunks_exact(n).zip(sm.occ.chunks_exact(n * nocc)))
+            .map(|(&t, (e, occ))| Sample {
+                t,
+                e: e.to_vec(),
+                occ: occ.to_vec(),
+                settled: false,
+            })
+            .collect(),
+        _ => solve(src, l, &even, nocc)?,
+    };
     let mut resolved = true;
     loop {
         let count = pts.len();
@@ -161,6 +175,7 @@ pub fn resolve_line(
         min_singular,
         min_step_gap,
         resolved,
+        samples: None,
     })
 }
 
@@ -230,7 +245,7 @@ mod tests {
                 axis: 0,
             };
             let even = evaluate_line(&src, &l, 400, 2, None).unwrap();
-            let fine = resolve_line(&src, &l, 400, 2, None, &bound).unwrap();
+            let fine = resolve_line(&src, &l, 400, 2, None, &bound, None).unwrap();
             if needs_resolution(&bound, 0, 400, even.min_step_gap) {
                 continue; // a random model may have a small gap somewhere on the line
             }
@@ -238,6 +253,51 @@ mod tests {
                 assert!((a - b).abs() < 1e-9, "{a} vs {b}");
             }
         }
+    }
+
+    /// Started from the even loop's own samples (`LineResult::samples`), the resolution
+    /// places the same points and gives the same centres as when it solves them itself, on
+    /// lines that need it (near-closing two-band chain) and on random models.
+    #[test]
+    fn a_seeded_resolution_is_the_unseeded_one() {
+        let mut seen = 0;
+        for seed in 0..6 {
+            let src = random_model(4, seed).at(&[]).unwrap();
+            let bound = src.variation().unwrap().clone();
+            for (base, axis) in [([0.0, 0.3, 0.0], 0), ([0.25, 0.0, 0.0], 1)] {
+                let l = LineSpec { base, axis };
+                let even = evaluate_line(&src, &l, 16, 2, None).unwrap();
+                let sm = even
+                    .samples
+                    .as_ref()
+                    .expect("a 4-band line keeps its samples");
+                assert_eq!((sm.e.len(), sm.occ.len()), (16 * 4, 16 * 4 * 2));
+                let cold = resolve_line(&src, &l, 16, 2, None, &bound, None).unwrap();
+                let warm = resolve_line(&src, &l, 16, 2, None, &bound, Some(sm)).unwrap();
+                assert_eq!(cold.resolved, warm.resolved);
+                assert!((cold.min_step_gap - warm.min_step_gap).abs() < 1e-12);
+                for (a, b) in cold.centres.iter().zip(&warm.centres) {
+                    let d = (a - b).abs();
+                    assert!(d.min(1.0 - d) < 1e-9, "seed {seed}: {a} vs {b}");
+                }
+                seen += usize::from(needs_resolution(&bound, axis, 16, even.min_step_gap));
+            }
+        }
+        assert!(
+            seen > 0,
+            "no line needed the resolution: the test proves nothing"
+        );
+        // samples of the wrong size are not used (the loop is solved afresh)
+        let src = random_model(4, 0).at(&[]).unwrap();
+        let bound = src.variation().unwrap().clone();
+        let l = LineSpec {
+            base: [0.0, 0.3, 0.0],
+            axis: 0,
+        };
+        let short = LineSamples::default();
+        let cold = resolve_line(&src, &l, 16, 2, None, &bound, None).unwrap();
+        let bad = resolve_line(&src, &l, 16, 2, None, &bound, Some(&short)).unwrap();
+        assert_eq!(cold.centres, bad.centres);
     }
 
     /// A two-band chain H(k) = sin k σx + (m + cos k) σz (the Su–Schrieffer–Heeger-like
@@ -269,7 +329,7 @@ mod tests {
         for (m, want) in [(0.999, 0.5), (1.001, 0.0), (0.99999, 0.5), (1.00001, 0.0)] {
             let src = hop.at(&[m]).unwrap();
             let bound = src.variation().unwrap().clone();
-            let fine = resolve_line(&src, &l, 8, 1, None, &bound).unwrap();
+            let fine = resolve_line(&src, &l, 8, 1, None, &bound, None).unwrap();
             assert!(fine.resolved, "m = {m}");
             let x = fine.centres[0];
             assert!(
@@ -280,7 +340,7 @@ mod tests {
         // at m = 1 the gap closes on the line: unresolved, never a centre to trust
         let src = hop.at(&[1.0]).unwrap();
         let bound = src.variation().unwrap().clone();
-        let fine = resolve_line(&src, &l, 8, 1, None, &bound).unwrap();
+        let fine = resolve_line(&src, &l, 8, 1, None, &bound, None).unwrap();
         assert!(!fine.resolved);
     }
 }

@@ -12,7 +12,9 @@ use crate::sampling::Sampling;
 use crate::topology::fine_line::{needs_resolution, resolve_line};
 use crate::topology::flow::{inspect_with_gaps, largest_gap, z2_of_tracked_flow, Interval};
 use crate::topology::lattice_z2::LatticePlane;
-use crate::topology::wilson::{evaluate_line, evaluate_lines, BandStats, LineResult, LineSpec};
+use crate::topology::wilson::{
+    evaluate_line, evaluate_lines, BandStats, LineResult, LineSamples, LineSpec,
+};
 use crate::zone::bloch::BlochSource;
 use rayon::prelude::*;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -98,6 +100,8 @@ pub struct PlaneLines {
     line_stats: Vec<BandStats>,
     /// each line's `LineResult::min_step_gap` (infinite once a line is resolved)
     step_gap: Vec<f64>,
+    /// each line's even-loop samples while it may still be resolved (`LineResult::samples`)
+    samples: Vec<Option<LineSamples>>,
     /// a line could not be resolved to the gap: the plane has no Z2
     unresolved: bool,
     /// all lines' statistics, merged in the order the lines were computed
@@ -116,6 +120,7 @@ impl PlaneLines {
             width,
             line_stats: Vec::with_capacity(lines.len()),
             step_gap: Vec::with_capacity(lines.len()),
+            samples: Vec::with_capacity(lines.len()),
             ..Default::default()
         };
         for l in lines {
@@ -124,6 +129,7 @@ impl PlaneLines {
             pl.stats.merge(&l.stats);
             pl.line_stats.push(l.stats);
             pl.step_gap.push(l.min_step_gap);
+            pl.samples.push(l.samples);
             pl.unresolved |= !l.resolved;
         }
         pl.examine(step_limit);
@@ -154,6 +160,8 @@ impl PlaneLines {
         self.stats.merge(&l.stats);
         self.line_stats.insert(at, l.stats);
         self.step_gap.insert(at, l.min_step_gap);
+        // (an inserted line was resolved already where it needed it: `evaluate_resolved`)
+        self.samples.insert(at, None);
         self.unresolved |= !l.resolved;
     }
 
@@ -165,6 +173,7 @@ impl PlaneLines {
         self.stats.merge(&l.stats);
         self.line_stats[m] = l.stats;
         self.step_gap[m] = f64::INFINITY;
+        self.samples[m] = None;
         self.unresolved |= !l.resolved;
     }
 
@@ -405,11 +414,18 @@ fn evaluate_resolved(
         let fine = map_guided(
             todo.len(),
             || (),
-            |_, j| resolve_line(src, &specs[todo[j]], loop_points, filling, None, bound),
+            |_, j| {
+                let i = todo[j];
+                let seed = got[i].samples.as_ref();
+                resolve_line(src, &specs[i], loop_points, filling, None, bound, seed)
+            },
         )?;
         for (i, r) in todo.into_iter().zip(fine) {
             got[i] = r;
         }
+    }
+    for r in &mut got {
+        r.samples = None; // (resolved or not, a line is not resolved again)
     }
     Ok(got)
 }
@@ -447,9 +463,14 @@ pub fn resolve_planes(
         |_, j| {
             let (p, m) = todo[j];
             let spec = planes[p].line(all[p].pump[m]);
-            resolve_line(src, &spec, loop_points, filling, None, bound)
+            let seed = all[p].samples[m].as_ref();
+            resolve_line(src, &spec, loop_points, filling, None, bound, seed)
         },
     )?;
+    // (the samples have served: a line is resolved once)
+    for pl in all.iter_mut() {
+        pl.samples.iter_mut().for_each(|x| *x = None);
+    }
     for (&(p, m), r) in todo.iter().zip(fine) {
         all[p].replace(m, r);
     }
@@ -604,6 +625,7 @@ mod tests {
             min_singular: 1.0,
             min_step_gap: e,
             resolved: true,
+            samples: None,
         }
     }
 

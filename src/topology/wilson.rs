@@ -125,7 +125,26 @@ pub struct LineResult {
     /// false when the loop could not be resolved to the gap (`fine_line`): its centres are
     /// not to be trusted
     pub resolved: bool,
+    /// the even loop's eigenvalues and occupied vectors, kept for a small model so that a line
+    /// resolved to the gap later (`fine_line::resolve_line`) starts from them instead of
+    /// solving the same κ points again (see [`KEEP_SAMPLES_BELOW`])
+    pub samples: Option<LineSamples>,
 }
+
+/// Eigenvalues (L × n) and occupied vectors (L × n × nocc, row-major) of a loop's L even κ
+/// points s/L.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct LineSamples {
+    pub e: Vec<f64>,
+    pub occ: Vec<C64>,
+}
+
+/// A line keeps its [`LineSamples`] when L · n · nocc is under this (64 KiB of vectors a line:
+/// ~8 MiB for the 126 initial lines of a 3D point). Most lines of a typical point are resolved
+/// (`fine_line`: the hopping-norm bound of a loop step is rarely under a third of the gap), and
+/// without them each was solved twice: a counting build put the repeated solves at ~40 % of a
+/// Kane–Mele point's line solves (benches/RESULTS.md).
+pub const KEEP_SAMPLES_BELOW: usize = 4096;
 
 /// Evaluate many lines in parallel. `positions` (one reduced coordinate per orbital along each
 /// axis, indexed `[axis * norb + orbital]`) switches to the tight-binding convention.
@@ -208,7 +227,7 @@ pub fn evaluate_line(
         b.h.resize(loop_points * n * n, C64::new(0.0, 0.0));
         src.fill_line(&l.base[..dim], l.axis, loop_points, &mut b.h)?;
         let w = line_weights(l, loop_points, n, positions);
-        wilson_line_in(
+        let mut r = wilson_line_in(
             &mut b.scratch,
             &b.h,
             &b.kappa,
@@ -217,7 +236,15 @@ pub fn evaluate_line(
             filling,
             w.as_deref(),
             Kernels::Fast,
-        )
+        )?;
+        // (the fast kernels solve the whole line at once: the scratch holds every κ point)
+        if positions.is_none() && loop_points * n * filling < KEEP_SAMPLES_BELOW {
+            r.samples = Some(LineSamples {
+                e: b.scratch.e[..loop_points * n].to_vec(),
+                occ: b.scratch.ahead[..loop_points * n * filling].to_vec(),
+            });
+        }
+        Ok(r)
     })
 }
 
@@ -463,6 +490,7 @@ pub fn wilson_line_in(
         min_singular,
         min_step_gap,
         resolved: true,
+        samples: None,
     })
 }
 
