@@ -17,3 +17,11 @@ def test_transitions_are_listed_with_phase_names() -> None:
     assert len(lines) == 2
     assert lines[0].endswith("trivial insulator -> Z2-odd 2D insulator")
     assert lines[1].endswith("Z2-odd 2D insulator -> trivial insulator")
+
+
+def test_the_smallest_gap_of_a_map_says_where_it_was_measured() -> None:
+    grid = {"mass": np.linspace(-3.0, 3.0, 25)}
+    text = summarise(ts.phase_map(ts.models.bhz(), grid, 2, progress=False), "map.nc")
+    assert "smallest direct gap at an evaluated point:" in text
+    text = summarise(ts.sweep(ts.models.bhz(), grid, 2, progress=False), "sweep.nc")
+    assert "smallest direct gap where defined:" in text

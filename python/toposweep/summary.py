@@ -171,5 +171,7 @@ def summarise(ds: xr.Dataset, name: str = "result") -> str:
         unit = ds.gap_direct.attrs.get("units", "")
         unit = "" if unit in ("", "1") else f" {unit}"
         at = f" at {_where(ds, tuple(int(i) for i in idx))}" if dims else ""
-        lines.append(f"smallest direct gap where defined: {np.nanmin(gap):.4g}{unit}{at}")
+        # (a phase map measures gaps at its evaluated points only)
+        where = "at an evaluated point" if "obtained" in ds else "where defined"
+        lines.append(f"smallest direct gap {where}: {np.nanmin(gap):.4g}{unit}{at}")
     return "\n".join(lines)
