@@ -4,18 +4,12 @@
 vouched for (proven by the gap bound of :mod:`toposweep.maps.weyl_bound`, or filled by agreement);
 :mod:`toposweep.maps.transitions` then locates the gap closing between every pair of neighbouring
 evaluated points of different phases. This module runs the evaluations through the sweep's own
-chunk loop (Ctrl-C, progress, chunk sizes) and journal (``out=``/``resume=``), and assembles
-the result.
-
-Resuming: the points are numbered in the order they are evaluated, and the journal keeps them
-in chunks of that numbering (with each point's grid index). The choice of points depends only on
-the results of earlier points, so a resumed run asks for the same points in the same order; the
-ones the journal holds are read back instead of evaluated.
+chunk loop (:mod:`toposweep.maps.map_evaluations`, which also journals them and asks for the
+gap proofs), and assembles the result.
 """
 
 from __future__ import annotations
 
-import dataclasses
 import math
 import os
 from collections.abc import Mapping
@@ -25,10 +19,9 @@ import numpy as np
 import xarray as xr
 from numpy.typing import ArrayLike, NDArray
 
-from .. import _core
 from .. import sweep as _sweep
-from ..errors import ParameterError, StoreError
-from ..evaluation import _mark, _symmetry_breaks, prepare_request, run_points
+from ..errors import ParameterError
+from ..evaluation import _mark, prepare_request, run_points
 from ..model import Model
 from ..progress import ProgressBar
 from ..results.store import (
@@ -36,14 +29,11 @@ from ..results.store import (
     check_output,
     finished_result,
     journal_path,
-    missing_ranges,
 )
 from ..sampling import Sampling
 from ..sweep import SweepInterrupted, _InterruptFlag
 from ..sweep_executor import remote_for
 from ..sweep_plan import TERM_VALUES, Coefficients, SweepPlan, make_plan
-from ..symmetry import TOLERANCE, symmetry_error
-from ..tightbinding import TightBinding
 from .adaptive_cells import (
     EVALUATED,
     PointTable,
@@ -51,6 +41,8 @@ from .adaptive_cells import (
     auto_coarse_step,
     refine,
 )
+from .grid_terms import grid_coefficients, symmetry_breaks_everywhere
+from .map_evaluations import MapEvaluations, labels_of
 from .phase_map_dataset import add_map_variables, write_map
 from .transitions import (
     SegmentResult,
@@ -65,286 +57,13 @@ from .weyl_bound import term_norm_bounds
 
 __all__ = ["labels_of", "phase_map"]
 
-#: the journal's per-point record of which grid point a numbered evaluation was
-GRID_INDEX = "grid_index"
 #: flat results that say how the work went, not what the point is: 0 where not evaluated
 WORK_COUNTERS = ("lines_used", "loop_points_used", "lattice_mesh", "lattice_points")
 #: default transition_tol, as a fraction of a grid spacing
 TRANSITION_TOL = 1e-3
-#: under prove_gap="auto" the core makes a point whose proof is unfinished undefined when its
-#: smallest gap found is under this many gap floors (the core's ``sampling::NEAR_FLOOR``)
-NEAR_FLOOR = 100.0
 #: a transition's segment: parts the gap bound leaves uncovered are split down to this length
 #: (a fraction of the segment) in search of a second closing
 MAP_RESOLUTION = 1.0 / 16
-#: a map's proof gets this fraction of the budget of the core's own proof under "auto"
-PROOF_BUDGET_SHARE = 2
-
-
-class _Subset:
-    """What :func:`toposweep.sweep._run` uses of a plan, over a list of grid points."""
-
-    def __init__(self, plan: SweepPlan, indices: NDArray[np.int64]) -> None:
-        self.request, self.dims, self.fixed = plan.request, plan.dims, plan.fixed
-        self.coefficients = plan.coefficients
-        self._plan, self._indices = plan, indices
-
-    def points(self, start: int, stop: int) -> list[dict[str, float]]:
-        plan = self._plan
-        return [plan.model_point(plan.user_point(int(i))) for i in self._indices[start:stop]]
-
-
-def _with_request(plan: SweepPlan, request: Any) -> SweepPlan:
-    return dataclasses.replace(plan, request=request)
-
-
-def _coefficients(plan: SweepPlan) -> NDArray[np.float64]:
-    """Term coefficients of every grid point (rows in flat C order, columns ``model.terms``).
-
-    Straight from the grid without a coefficients mapping; through it (one call per point)
-    with one.
-    """
-    model = plan.request.model
-    if plan.coefficients is not None:
-        return np.asarray(model.prepare(plan.points(0, plan.size))[1], float)
-    mesh = np.meshgrid(*[plan.coords[d] for d in plan.dims], indexing="ij")
-    by_dim = dict(zip(plan.dims, (m.reshape(-1) for m in mesh), strict=True))
-    fixed = model.resolve(plan.user_point(0))
-    cols = [by_dim[t] if t in by_dim else np.full(plan.size, fixed[t]) for t in model.terms]
-    return np.stack(cols, axis=1) if cols else np.zeros((plan.size, 0))
-
-
-def _symmetry_breaks_everywhere(plan: SweepPlan) -> tuple[NDArray[np.bool_], NDArray[np.bool_]]:
-    """Where time reversal and inversion fail on the grid (the sweep's per-point check).
-
-    A tight-binding model whose fixed part and every term respect a symmetry on their own
-    (checked once, per term) respects it at every point: no per-point check is needed.
-    """
-    req, n = plan.request, plan.size
-    model = req.model
-    if isinstance(model, TightBinding):
-        ops = [model.time_reversal, req.inversion]
-        kinds = ["time_reversal", "inversion"]
-        exact = all(
-            op is None or _terms_respect(model, op, kind)
-            for op, kind in zip(ops, kinds, strict=True)
-        )
-        if exact:
-            return np.zeros(n, bool), np.zeros(n, bool)
-        if plan.coefficients is None:  # the sweep's per-point check, from the coefficient rows
-            coeffs = _coefficients(plan)
-            res = model.coefficient_residuals(coeffs, ops[0], kinds[0])
-            p_broken = np.zeros(n, bool)
-            if req.inversion is not None:
-                p_res = model.coefficient_residuals(coeffs, req.inversion, kinds[1])
-                p_broken = ~(p_res <= TOLERANCE)
-                if req.inversion_from_call and p_broken.any():
-                    i = int(np.argmax(p_res))
-                    where = f"at parameters {plan.user_point(i)}"
-                    raise symmetry_error("inversion", float(p_res[i]), where)
-            return ~(res <= TOLERANCE), p_broken
-    tr_broken, p_broken, _ = _symmetry_breaks(req, plan.points(0, n))  # (reason 8 is marked)
-    return tr_broken, p_broken
-
-
-def _terms_respect(model: TightBinding, operator: NDArray[Any], kind: str) -> bool:
-    resid, hp = model._term_residuals(operator, kind)
-    scale = np.abs(hp).reshape(len(hp), -1).max(axis=1)
-    return bool(
-        np.all(
-            np.abs(resid).reshape(len(resid), -1).max(axis=1) <= 1e-13 * np.maximum(scale, 1e-300)
-        )
-    )
-
-
-def labels_of(raw: Mapping[str, NDArray[Any]]) -> NDArray[np.int64]:
-    """One integer per point for its phase and indices (−1 where undefined).
-
-    Examples
-    --------
-    >>> raw = {"phase": np.array([2, -1, 2]), "nu0": np.array([1, -1, 1]),
-    ...        "nu": np.array([[0, 0, 0], [-1, -1, -1], [1, 1, 1]])}
-    >>> labels_of(raw).tolist()
-    [310, -1, 323]
-    """
-    phase = np.asarray(raw["phase"], np.int64)
-    key = phase + 1
-    parts = [np.asarray(raw["nu0"], np.int64)[:, None]]
-    if "nu" in raw:
-        parts.append(np.asarray(raw["nu"], np.int64).reshape(len(phase), -1))
-    for col in np.concatenate(parts, axis=1).T:
-        key = key * 3 + (col + 1)
-    return np.where(phase < 0, -1, key)
-
-
-class _Evaluations:
-    """Numbered evaluations of grid points, journalled when writing a file."""
-
-    def __init__(
-        self,
-        plan: SweepPlan,
-        table: PointTable,
-        journal: Journal | None,
-        bar: ProgressBar,
-        chunk_size: int | None,
-        flag: _InterruptFlag,
-        remote: Any = None,
-    ) -> None:
-        self.plan, self.table, self.journal = plan, table, journal
-        self.bar, self.chunk_size, self.flag = bar, chunk_size, flag
-        self.remote = remote  # (sweep_executor.Remote: chunks as tasks of an executor)
-        self.raw: dict[str, NDArray[Any]] = {}
-        self.count = 0
-        self.finished = [] if journal is None else journal.finished()
-        # under prove_gap="auto" the points are evaluated without the proof, and the proofs a
-        # map needs are asked for afterwards, for just the gap they must show (prove())
-        self.plain = None
-        if plan.request.sampling.prove_gap == "auto":
-            plain = dataclasses.replace(plan.request.sampling, prove_gap="never")
-            self.plain = _with_request(plan, dataclasses.replace(plan.request, sampling=plain))
-        self.proofs = 0  # proofs asked for
-
-    def _store(self, indices: NDArray[np.int64], raw: Mapping[str, NDArray[Any]]) -> None:
-        n = self.plan.size
-        for k, v in raw.items():
-            if k == GRID_INDEX:
-                continue
-            v = np.asarray(v)
-            if k not in self.raw:
-                self.raw[k] = np.zeros((n, *v.shape[1:]), v.dtype)
-            self.raw[k][indices] = v
-        t = self.table
-        t.label[indices] = labels_of(raw)
-        t.gap_direct[indices] = raw["gap_direct"]
-        t.bandwidth[indices] = raw["bandwidth"]
-        if "gap_proven" in raw:
-            t.gap_proven[indices] = raw["gap_proven"]
-
-    def __call__(self, indices: NDArray[np.int64]) -> None:
-        """Evaluate ``indices``; under ``prove_gap="auto"`` without the proof.
-
-        Its results are then the sweep's apart from ``gap_proven`` (the map asks for the proofs
-        it needs with :meth:`prove`), except that the sweep's proof can also find a closing the
-        gap search missed: where the smallest gap found is under :data:`NEAR_FLOOR` floors, or
-        where the proof's κ samples could make it a metal (:meth:`_proof_may_matter`), the
-        point is evaluated again with the sweep's setting, so it is exactly the sweep's there.
-        Proving at every evaluated point instead cost a Kane–Mele map ~40 % of its time
-        (benches/RESULTS.md), most of it at points whose proof vouched for nothing.
-        """
-        if self.plain is None:
-            self._evaluate(indices, self.plan)
-            return
-        self._evaluate(indices, self.plain)
-        again = indices[self._proof_may_matter(indices)]
-        if again.size:
-            self._evaluate(again, self.plan)
-
-    def prove(self, indices: NDArray[np.int64], targets: NDArray[np.float64]) -> int:
-        """Prove the gap ≥ ``targets`` at evaluated points; returns how many were proven.
-
-        A proven bound raises the point's ``gap_proven`` (in the table and in the results: a
-        lower bound of the direct gap, as the sweep's, though aimed at what the map needed
-        rather than at half the gap); a failed target is remembered so it is not asked again.
-        Deterministic, so a resumed run proves the same points alike (proofs are not
-        journalled: they are redone).
-        """
-        req = self.plan.request
-        model = req.model
-        pts = [self.plan.model_point(self.plan.user_point(int(i))) for i in indices]
-        core, coeffs = model.prepare(pts)
-        self.proofs += len(indices)
-        lower, code, _ = _core.prove_gaps(
-            core,
-            np.ascontiguousarray(coeffs, dtype=float),
-            req.filling,
-            np.ascontiguousarray(targets, dtype=float),
-            np.ascontiguousarray(self.floor(indices), dtype=float),
-            budget=_proof_budget(req.sampling, model.dim),
-            threads=req.threads,
-        )
-        if self.flag.requested:
-            raise KeyboardInterrupt
-        ok = code == 0
-        t = self.table
-        better = ok & ~(t.gap_proven[indices] >= lower)
-        t.gap_proven[indices[better]] = lower[better]
-        if "gap_proven" in self.raw:
-            self.raw["gap_proven"][indices[better]] = lower[better]
-        failed = indices[~ok]
-        t.proof_failed[failed] = np.minimum(t.proof_failed[failed], targets[~ok])
-        return int(ok.sum())
-
-    def _proof_may_matter(self, indices: NDArray[np.int64]) -> NDArray[np.bool_]:
-        """Points evaluated without the proof whose phase the sweep's proof could change.
-
-        The sweep proves a point's gap under "auto" only where its smallest gap found is under
-        the core's threshold (``_core.auto_proof_below``); elsewhere its evaluation is the
-        same without the proof. Where it proves: near the floor an unfinished proof makes a
-        point undefined (reason 11); and the proof samples κ across the zone — where the
-        indirect gap found is positive but well below the direct one, the band extrema lie
-        apart from the direct gap's minimum, and a valence maximum or conduction minimum that
-        only the proof's samples find can make it negative (a metal, phase codes 10–13).
-        Measured on Kane–Mele with Rashba coupling: 4e-4 became −3e-3 where the direct gap
-        was 0.09.
-        """
-        direct = self.table.gap_direct[indices]
-        indirect = np.asarray(self.raw["gap_indirect"][indices], float)
-        near_floor = direct < NEAR_FLOOR * self.floor(indices)
-        risky = near_floor | ((indirect > 0) & (indirect < 0.5 * direct))
-        if not risky.any():
-            return risky
-        pts = [self.plan.model_point(self.plan.user_point(int(i))) for i in indices[risky]]
-        core, coeffs = self.plan.request.model.prepare(pts)
-        below = _core.auto_proof_below(core, np.ascontiguousarray(coeffs, dtype=float))
-        # (NaN: the model has no bound and the sweep proves nothing either)
-        risky[risky] = direct[risky] < below
-        return risky
-
-    def floor(self, indices: NDArray[np.int64]) -> NDArray[np.float64]:
-        """The gap floor the core used at evaluated points."""
-        return np.asarray(self.raw["gap_floor"][indices], float)
-
-    def _evaluate(self, indices: NDArray[np.int64], plan: SweepPlan) -> None:
-        if indices.size == 0:
-            return
-        base = self.count
-        self.count += len(indices)
-        here = [(a - base, b - base) for a, b in self.finished if base <= a and b <= self.count]
-        for a, b in here:  # read back what an interrupted run finished
-            raw = self.journal.load(base + a, base + b)  # type: ignore[union-attr]
-            if not np.array_equal(raw[GRID_INDEX], indices[a:b]):
-                raise StoreError(
-                    f"{self.journal.path}: the journal's points differ from this run's; "  # type: ignore[union-attr]
-                    "start over with overwrite=True (command line: --overwrite)"
-                )
-            self._store(indices[a:b], raw)
-        todo = missing_ranges(here, len(indices))
-        if not todo:
-            return
-        self.bar.total = max(self.bar.total, self.bar.done + sum(b - a for a, b in todo))
-        view = _Subset(plan, indices)
-
-        def save(start: int, stop: int, raw: dict[str, NDArray[Any]]) -> None:
-            if self.journal is not None:
-                self.journal.save(
-                    base + start, base + stop, {**raw, GRID_INDEX: indices[start:stop]}
-                )
-            self._store(indices[start:stop], raw)
-
-        if not _sweep._run(view, todo, save, self.bar, self.chunk_size, self.flag, self.remote):  # type: ignore[arg-type]
-            raise KeyboardInterrupt
-
-
-def _proof_budget(sampling: Sampling, dim: int) -> int:
-    """Hamiltonians a map's proof may spend at one point.
-
-    :data:`PROOF_BUDGET_SHARE` of the budget of the core's own proof under
-    ``prove_gap="auto"`` (``engine::proof_budget``, about two evaluations' worth).
-    """
-    planes = 6 if dim == 3 else 1
-    grid = sampling.gap_points**3 if dim == 3 else 0
-    auto = max(4096, 2 * (planes * sampling.lines * sampling.loop_points + grid))
-    return auto // PROOF_BUDGET_SHARE
 
 
 def _check_options(
@@ -521,14 +240,14 @@ def _compute(
     remote: Any = None,
 ) -> xr.Dataset:
     req = plan.request
-    tr_broken, p_broken = _symmetry_breaks_everywhere(plan)
+    tr_broken, p_broken = symmetry_breaks_everywhere(plan)
     bounds = term_norm_bounds(req.model)
-    coeffs = _coefficients(plan) if bounds is not None else None
+    coeffs = grid_coefficients(plan) if bounds is not None else None
     table = PointTable(plan.shape)
     bar = ProgressBar(1, enabled=progress)
     bar.total = 0
     with _InterruptFlag() as flag:
-        evals = _Evaluations(plan, table, journal, bar, chunk_size, flag, remote)
+        evals = MapEvaluations(plan, table, journal, bar, chunk_size, flag, remote)
         try:
             how, source, bound = refine(
                 table,
@@ -623,7 +342,7 @@ def _transitions(
     bounds = term_norm_bounds(plan.request.model)
     rows = None
     if bounds is not None:
-        rows = coefficients if coefficients is not None else _coefficients(plan)
+        rows = coefficients if coefficients is not None else grid_coefficients(plan)
     keys = ("gap_direct", "gap_kappa", "gap_floor", "gap_indirect")
     ends = probes_of({k: full[k] for k in keys if k in full}, rows)
     span = np.abs(np.array(np.unravel_index(hi, shape)) - np.array(np.unravel_index(lo, shape)))
