@@ -145,6 +145,19 @@ def test_the_metal_edge_is_where_the_indirect_gap_changes_sign() -> None:
     assert abs(float(ds.gap[0]) - (float(ds.level[0]) - 0.7)) < 1e-6  # the direct gap, open
 
 
+def test_a_phase_map_locates_the_metal_edge() -> None:
+    # the model above on a grid of levels: the edge at level 2.7 lies between two grid points
+    # of different phases (a metal, phase 10, and an insulator, 0) and is located to the map's
+    # tolerance (1e-3 of a spacing); it was "no closing found" at the segment's end before
+    grid = {"level": np.linspace(2.0, 3.0, 5)}
+    ds = ts.phase_map(_overlap_model(), grid, 2, progress=False)
+    assert ds.sizes["transition"] == 1
+    meanings = ds.transition_status.attrs["flag_meanings"].split()
+    assert meanings[int(ds.transition_status[0])] == "bands_overlap_begins"
+    assert abs(float(ds.transition_level[0]) - 2.7) <= 1e-3 * 0.25
+    assert (int(ds.transition_phase_low[0]), int(ds.transition_phase_high[0])) == (10, 0)
+
+
 def test_kane_mele_with_rashba_metal_edge_against_numpy() -> None:
     # Kane & Mele, PRL 95, 226801 (2005), Table I (tests/reference_bands.kane_mele_h): with
     # λ_SO = 0.1 and no staggered potential, strong Rashba coupling makes the bands overlap
