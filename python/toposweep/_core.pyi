@@ -108,6 +108,20 @@ def auto_proof_below(model: CoreModel, coeffs: NDArray[np.float64]) -> NDArray[n
     """Per row of ``coeffs``: the gap under which ``prove_gap="auto"`` proves (NaN: never)."""
     ...
 
+def probe_gaps(
+    model: CoreModel,
+    coeffs: NDArray[np.float64],
+    filling: int,
+    *,
+    grid: int,
+    starts: int,
+    gap_floor: float,
+    threads: int | None = None,
+) -> dict[str, NDArray[Any]]:
+    """Smallest direct gap per row of ``coeffs``, without Wilson loops: ``gap_direct``,
+    ``gap_kappa``, ``gap_floor``, ``gap_indirect``."""
+    ...
+
 def decided_flow(
     model: CoreModel,
     coeff: NDArray[np.float64],

@@ -10,5 +10,6 @@ pub mod columns;
 pub mod decided_flow;
 pub mod engine;
 pub mod first_pass;
+pub mod gap_probe;
 pub mod gap_proof;
 pub mod gap_search;

@@ -29,8 +29,8 @@ use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, Mutex, PoisonError};
 
+mod gaps;
 mod pack;
-mod proofs;
 
 fn to_py(e: CoreError) -> PyErr {
     match e {
@@ -724,8 +724,9 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(eigh, m)?)?;
     m.add_function(wrap_pyfunction!(flow, m)?)?;
     m.add_function(wrap_pyfunction!(decided_flow, m)?)?;
-    m.add_function(wrap_pyfunction!(proofs::prove_gaps, m)?)?;
-    m.add_function(wrap_pyfunction!(proofs::auto_proof_below, m)?)?;
+    m.add_function(wrap_pyfunction!(gaps::prove_gaps, m)?)?;
+    m.add_function(wrap_pyfunction!(gaps::auto_proof_below, m)?)?;
+    m.add_function(wrap_pyfunction!(gaps::probe_gaps, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     m.add("INSTRUCTION_SET", instruction_set())?;
     Ok(())

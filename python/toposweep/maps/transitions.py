@@ -39,9 +39,9 @@ the edge is found on the same kind of evaluation that decided the phases.
 
 The search is a generator that asks for lists of s and is sent the gaps there, so that
 many segments — every boundary of a phase map — advance in lock step and each round of all of
-them is one batch for the core. The gap comes from a *probe*: the core's evaluation with the
-Wilson-loop work cut to the least the core accepts (the gap minimiser — κ grid, TRIMs, compass
-search from the smallest sampled gaps — is what is used).
+them is one batch for the core. The gap comes from a *probe* (:func:`run_probes`): the core's
+gap minimiser without any Wilson loop — the TRIMs and a uniform κ grid start compass searches
+from the smallest sampled gaps.
 """
 
 from __future__ import annotations
@@ -55,6 +55,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from .. import _core
 from ..evaluation import Request, prepare_request, run_points
 from ..sampling import Sampling
 from ..tightbinding import TightBinding
@@ -595,6 +596,30 @@ def probes_of(
     ]
 
 
+#: κ points per axis of the probes' grid in 2D (in 3D: the sampling's ``gap_points``, as the
+#: bulk grid of an evaluation); the Wilson loops' κ points are the 2D evaluation's only starts
+#: of its gap search, 21 × 32 by default
+PROBE_GRID_2D = 16
+
+
+def run_probes(req: Request, points: Sequence[Mapping[str, float]]) -> dict[str, NDArray[Any]]:
+    """The gap at resolved points without Wilson loops (``_core.probe_gaps``): the TRIMs and a
+    uniform κ grid start the request's gap minimiser. ``gap_direct``, ``gap_kappa``,
+    ``gap_floor`` and ``gap_indirect``, as an evaluation gives them."""
+    samp = req.sampling
+    dim = req.model.dim
+    core, coeffs = req.model.prepare(list(points))
+    return _core.probe_gaps(
+        core,
+        np.ascontiguousarray(coeffs, dtype=float),
+        req.filling,
+        grid=max(samp.gap_points, 2) if dim == 3 else max(PROBE_GRID_2D, samp.gap_points),
+        starts=max(samp.gap_starts, 1),
+        gap_floor=samp.core_kwargs()["gap_floor"],
+        threads=req.threads,
+    )
+
+
 def coefficient_rows(model: Any, points: Sequence[Mapping[str, float]]) -> NDArray[np.float64]:
     """Term coefficients of resolved points of a tight-binding model (rows: points)."""
     terms = model.terms
@@ -634,7 +659,8 @@ def locate_segments(
             for k in range(0, len(order), batch):
                 points = [point_at(j, x) for j, x in order[k : k + batch]]
                 rows = coefficient_rows(probe.model, points) if with_coefficients else None
-                found += probes_of(run_points(req, points), rows)
+                raw = run_points(req, points) if kind else run_probes(req, points)
+                found += probes_of(raw, rows)
                 if stop():
                     raise KeyboardInterrupt
             for (j, _), p in zip(order, found, strict=True):

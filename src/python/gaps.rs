@@ -1,16 +1,21 @@
-//! Gap proofs apart from an evaluation, for adaptive phase maps: `prove_gaps` (a fixed target
-//! at many parameter points: what a map asks of the points that are to vouch for others) and
-//! `auto_proof_below` (where `prove_gap="auto"` would have proven a point's gap).
+//! Gaps apart from an evaluation, for adaptive phase maps and transitions: `prove_gaps` (a fixed
+//! target at many parameter points: what a map asks of the points that are to vouch for
+//! others), `auto_proof_below` (where `prove_gap="auto"` would have proven a point's gap) and
+//! `probe_gaps` (the smallest gap of many points without Wilson loops: what locating a
+//! transition asks along a segment).
 
 use super::{coeff_rows, detached, finish, CoreModel, Workers};
 use crate::error::CoreError;
 use crate::point::cancel::Watched;
+use crate::point::gap_probe::{probe_gap, GapProbe};
 use crate::point::gap_proof::{prove_gap_above, GapProof};
 use crate::sampling::AUTO_PROOF_SHARE;
 use crate::topology::wilson::BandStats;
+use numpy::ndarray::Array2;
 use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1, PyReadonlyArray2};
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
+use pyo3::types::PyDict;
 use rayon::prelude::*;
 use std::sync::{Arc, Mutex};
 
@@ -132,4 +137,57 @@ pub(super) fn auto_proof_below<'py>(
             .collect::<Result<Vec<f64>, CoreError>>()
     });
     Ok(finish(py, run, &error)?.into_pyarray(py))
+}
+
+/// The smallest direct gap at every row of `coeffs` without Wilson loops
+/// ([`crate::point::gap_probe`]): the TRIMs and `grid` κ points per axis start `starts`
+/// minimiser walks. Returns a dict of `gap_direct`, `gap_kappa` (npoints, dim), `gap_floor`
+/// and `gap_indirect`, as `evaluate` names them.
+#[pyfunction]
+#[pyo3(signature = (model, coeffs, filling, *, grid, starts, gap_floor, threads=None))]
+#[allow(clippy::too_many_arguments)]
+pub(super) fn probe_gaps<'py>(
+    py: Python<'py>,
+    model: &CoreModel,
+    coeffs: PyReadonlyArray2<f64>,
+    filling: usize,
+    grid: usize,
+    starts: usize,
+    gap_floor: f64,
+    threads: Option<usize>,
+) -> PyResult<Bound<'py, PyDict>> {
+    let rows = coeff_rows(model, &coeffs)?;
+    if filling == 0 || filling >= model.norb {
+        return Err(PyValueError::new_err("filling out of range"));
+    }
+    if !(2..=4096).contains(&grid) || starts == 0 {
+        return Err(PyValueError::new_err(
+            "grid must be 2 … 4096 κ points per axis and starts at least 1",
+        ));
+    }
+    let error = Arc::new(Mutex::new(None));
+    let run = detached(py, Workers::Pool(threads), |call| {
+        rows.par_iter()
+            .enumerate()
+            .map(|(i, c)| {
+                model.with_source(c, i, &error, |src| {
+                    let src = Watched {
+                        inner: src,
+                        watch: &call.watch,
+                    };
+                    probe_gap(&src, filling, grid, starts, gap_floor)
+                })
+            })
+            .collect::<Result<Vec<GapProbe>, CoreError>>()
+    });
+    let probes = finish(py, run, &error)?;
+    let dim = model.dim;
+    let out = PyDict::new(py);
+    let col = |f: fn(&GapProbe) -> f64| probes.iter().map(f).collect::<Vec<f64>>();
+    out.set_item("gap_direct", col(|p| p.gap).into_pyarray(py))?;
+    out.set_item("gap_floor", col(|p| p.floor).into_pyarray(py))?;
+    out.set_item("gap_indirect", col(|p| p.indirect).into_pyarray(py))?;
+    let kappa = Array2::from_shape_fn((probes.len(), dim), |(i, j)| probes[i].kappa[j]);
+    out.set_item("gap_kappa", kappa.into_pyarray(py))?;
+    Ok(out)
 }
