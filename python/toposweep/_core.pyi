@@ -118,8 +118,10 @@ def probe_gaps(
     gap_floor: float,
     threads: int | None = None,
 ) -> dict[str, NDArray[Any]]:
-    """Smallest direct gap per row of ``coeffs``, without Wilson loops: ``gap_direct``,
-    ``gap_kappa``, ``gap_floor``, ``gap_indirect``."""
+    """Smallest direct gap per row of ``coeffs``, without Wilson loops.
+
+    Keys ``gap_direct``, ``gap_kappa``, ``gap_floor``, ``gap_indirect``.
+    """
     ...
 
 def decided_flow(

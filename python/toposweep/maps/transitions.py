@@ -603,9 +603,11 @@ PROBE_GRID_2D = 16
 
 
 def run_probes(req: Request, points: Sequence[Mapping[str, float]]) -> dict[str, NDArray[Any]]:
-    """The gap at resolved points without Wilson loops (``_core.probe_gaps``): the TRIMs and a
-    uniform κ grid start the request's gap minimiser. ``gap_direct``, ``gap_kappa``,
-    ``gap_floor`` and ``gap_indirect``, as an evaluation gives them."""
+    """The gap at resolved points without Wilson loops (``_core.probe_gaps``).
+
+    The TRIMs and a uniform κ grid start the request's gap minimiser. Returns ``gap_direct``,
+    ``gap_kappa``, ``gap_floor`` and ``gap_indirect``, as an evaluation gives them.
+    """
     samp = req.sampling
     dim = req.model.dim
     core, coeffs = req.model.prepare(list(points))
