@@ -44,13 +44,11 @@ from .adaptive_cells import (
 from .grid_terms import grid_coefficients, symmetry_breaks_everywhere
 from .map_evaluations import MapEvaluations, labels_of
 from .phase_map_dataset import add_map_variables, write_map
+from .segment_probes import locate_segments, probe_request, probes_of
 from .transitions import (
     SegmentResult,
     between,
     finish_statuses,
-    locate_segments,
-    probe_request,
-    probes_of,
     segment_search,
 )
 from .weyl_bound import term_norm_bounds

@@ -18,15 +18,12 @@ from ..model import Model
 from ..results.dataset import INDEX_FLAGS, PHASES
 from ..sampling import Sampling
 from .phase_map import labels_of
+from .segment_probes import coefficient_rows, locate_segments, probe_request, probes_of
 from .transitions import (
     STATUS,
     SegmentResult,
     between,
-    coefficient_rows,
     finish_statuses,
-    locate_segments,
-    probe_request,
-    probes_of,
     segment_search,
 )
 from .weyl_bound import term_norm_bounds
