@@ -39,9 +39,9 @@ the edge is found on the same kind of evaluation that decided the phases.
 
 The search is a generator that asks for lists of s and is sent the gaps there, so that
 many segments — every boundary of a phase map — advance in lock step and each round of all of
-them is one batch for the core. The gap comes from a *probe* (:func:`toposweep.maps.segment_probes.run_probes`): the core's
-gap minimiser without any Wilson loop — the TRIMs and a uniform κ grid start compass searches
-from the smallest sampled gaps.
+them is one batch for the core (:mod:`toposweep.maps.segment_probes`). The gap comes from a
+*probe*: the core's gap minimiser without any Wilson loop — the TRIMs and a uniform κ grid
+start compass searches from the smallest sampled gaps.
 """
 
 from __future__ import annotations
