@@ -5,12 +5,13 @@
 //! transition asks along a segment).
 
 use super::{coeff_rows, detached, finish, CoreModel, Workers};
-use crate::error::CoreError;
+use crate::error::CoreResult;
 use crate::point::cancel::Watched;
 use crate::point::gap_probe::{probe_gap, GapProbe};
 use crate::point::gap_proof::{prove_gap_above, GapProof};
 use crate::sampling::AUTO_PROOF_SHARE;
 use crate::topology::wilson::BandStats;
+use crate::zone::bloch::BlochSource;
 use numpy::ndarray::Array2;
 use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1, PyReadonlyArray2};
 use pyo3::exceptions::PyValueError;
@@ -70,28 +71,15 @@ pub(super) fn prove_gaps<'py>(
             "targets and floors must be finite and positive",
         ));
     }
-    let error = Arc::new(Mutex::new(None));
-    let run = detached(py, Workers::Pool(threads), |call| {
-        rows.par_iter()
-            .enumerate()
-            .map(|(i, c)| {
-                model.with_source(c, i, &error, |src| {
-                    let Some(bound) = src.variation() else {
-                        return Ok(GapProof::Unfinished { evaluations: 0 });
-                    };
-                    let src = Watched {
-                        inner: src,
-                        watch: &call.watch,
-                    };
-                    let mut stats = BandStats::default();
-                    prove_gap_above(
-                        &src, bound, filling, floors[i], targets[i], budget, &mut stats,
-                    )
-                })
-            })
-            .collect::<Result<Vec<GapProof>, CoreError>>()
-    });
-    let proofs = finish(py, run, &error)?;
+    let proofs = per_point(py, model, &rows, threads, |src, i| {
+        let Some(bound) = src.variation() else {
+            return Ok(GapProof::Unfinished { evaluations: 0 });
+        };
+        let mut stats = BandStats::default();
+        prove_gap_above(
+            src, bound, filling, floors[i], targets[i], budget, &mut stats,
+        )
+    })?;
     let mut lower = Vec::with_capacity(proofs.len());
     let mut code = Vec::with_capacity(proofs.len());
     let mut used = Vec::with_capacity(proofs.len());
@@ -134,7 +122,7 @@ pub(super) fn auto_proof_below<'py>(
                         .map_or(f64::NAN, |b| AUTO_PROOF_SHARE * b.within(&[0.5; 3])))
                 })
             })
-            .collect::<Result<Vec<f64>, CoreError>>()
+            .collect::<CoreResult<Vec<f64>>>()
     });
     Ok(finish(py, run, &error)?.into_pyarray(py))
 }
@@ -165,6 +153,29 @@ pub(super) fn probe_gaps<'py>(
             "grid must be 2 … 4096 κ points per axis and starts at least 1",
         ));
     }
+    let probes = per_point(py, model, &rows, threads, |src, _| {
+        probe_gap(src, filling, grid, starts, gap_floor)
+    })?;
+    let dim = model.dim;
+    let out = PyDict::new(py);
+    let col = |f: fn(&GapProbe) -> f64| probes.iter().map(f).collect::<Vec<f64>>();
+    out.set_item("gap_direct", col(|p| p.gap).into_pyarray(py))?;
+    out.set_item("gap_floor", col(|p| p.floor).into_pyarray(py))?;
+    out.set_item("gap_indirect", col(|p| p.indirect).into_pyarray(py))?;
+    let kappa = Array2::from_shape_fn((probes.len(), dim), |(i, j)| probes[i].kappa[j]);
+    out.set_item("gap_kappa", kappa.into_pyarray(py))?;
+    Ok(out)
+}
+
+/// `f(source, i)` at every coefficient row, in parallel on `threads` workers, each source
+/// watched for Ctrl-C; a callback's exception is raised before the core's error.
+fn per_point<T: Send>(
+    py: Python<'_>,
+    model: &CoreModel,
+    rows: &[Vec<f64>],
+    threads: Option<usize>,
+    f: impl Fn(&dyn BlochSource, usize) -> CoreResult<T> + Sync,
+) -> PyResult<Vec<T>> {
     let error = Arc::new(Mutex::new(None));
     let run = detached(py, Workers::Pool(threads), |call| {
         rows.par_iter()
@@ -175,19 +186,10 @@ pub(super) fn probe_gaps<'py>(
                         inner: src,
                         watch: &call.watch,
                     };
-                    probe_gap(&src, filling, grid, starts, gap_floor)
+                    f(&src, i)
                 })
             })
-            .collect::<Result<Vec<GapProbe>, CoreError>>()
+            .collect::<CoreResult<Vec<T>>>()
     });
-    let probes = finish(py, run, &error)?;
-    let dim = model.dim;
-    let out = PyDict::new(py);
-    let col = |f: fn(&GapProbe) -> f64| probes.iter().map(f).collect::<Vec<f64>>();
-    out.set_item("gap_direct", col(|p| p.gap).into_pyarray(py))?;
-    out.set_item("gap_floor", col(|p| p.floor).into_pyarray(py))?;
-    out.set_item("gap_indirect", col(|p| p.indirect).into_pyarray(py))?;
-    let kappa = Array2::from_shape_fn((probes.len(), dim), |(i, j)| probes[i].kappa[j]);
-    out.set_item("gap_kappa", kappa.into_pyarray(py))?;
-    Ok(out)
+    finish(py, run, &error)
 }
