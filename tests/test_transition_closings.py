@@ -246,3 +246,28 @@ def test_every_closing_of_a_random_dirac_model_is_reported(t1, t2, t12, lo, widt
     assert (ds.status.values == 0).all()  # one band inversion each: Z2 changes at every one
     for x, k in zip(inside, ds.kappa.values, strict=True):
         np.testing.assert_allclose(np.mod(k + 1e-6, 1.0) - 1e-6, closings[x], atol=1e-6)
+
+
+def test_the_edge_search_survives_equal_indirect_gaps_at_its_ends() -> None:
+    """Regula falsi has no secant through two equal values (the three-parameter d–f map of
+    ``make bench`` met one and stopped with ZeroDivisionError): it halves the bracket instead
+    and then locates the sign change it finds, here the zero of 1 − 4|s − ½| at s = ¾."""
+    from toposweep.maps.transitions import Probe, _sign_change
+
+    def probe(indirect: float) -> Probe:
+        return Probe(1.0, np.zeros(2), 1e-6, indirect, None)
+
+    def f(x: float) -> float:
+        return 1.0 - 4.0 * abs(x - 0.5)
+
+    pts = {0.0: probe(-1.0), 1.0: probe(-1.0)}
+    gen = _sign_change(pts, 0.0, 1.0, 1e-4)
+    asked = next(gen)
+    assert asked == [0.5]  # the midpoint, not a division by zero
+    try:
+        while True:
+            pts[asked[0]] = probe(f(asked[0]))
+            asked = gen.send(None)
+    except StopIteration as done:
+        lo, hi = done.value
+    assert lo <= 0.75 <= hi and hi - lo <= 2e-4 + 1e-12

@@ -323,7 +323,9 @@ def _sign_change(pts: dict[float, Probe], a: float, b: float, tol: float) -> Inn
     for _ in range(MAX_ROUNDS):
         if b - a <= 2 * tol:
             break
-        x = b - fb * (b - a) / (fb - fa)
+        # (equal values — both ends at the same indirect gap, e.g. exactly 0 where the
+        # phase changes for another reason — have no secant: halve the bracket instead)
+        x = b - fb * (b - a) / (fb - fa) if fb != fa else 0.5 * (a + b)
         if not a < x < b:
             x = 0.5 * (a + b)
         x = min(max(x, a + tol), b - tol)
