@@ -30,9 +30,15 @@ impl ProveGap {
         match self {
             Self::Never => false,
             Self::Always => true,
-            Self::Auto => estimate < AUTO_PROOF_SHARE * bound.within(&[0.5; 3]),
+            Self::Auto => estimate < auto_proof_below(bound),
         }
     }
+}
+
+/// The gap under which [`ProveGap::Auto`] proves: [`AUTO_PROOF_SHARE`] of how far H can move
+/// over the whole zone.
+pub fn auto_proof_below(bound: &VariationBound) -> f64 {
+    AUTO_PROOF_SHARE * bound.within(&[0.5; 3])
 }
 
 #[derive(Clone, Debug, PartialEq)]

@@ -7,9 +7,9 @@
 use super::{coeff_rows, detached, finish, CoreModel, Workers};
 use crate::error::CoreResult;
 use crate::point::cancel::Watched;
+use crate::point::engine;
 use crate::point::gap_probe::{probe_gap, GapProbe};
 use crate::point::gap_proof::{prove_gap_above, GapProof};
-use crate::sampling::AUTO_PROOF_SHARE;
 use crate::topology::wilson::BandStats;
 use crate::zone::bloch::BlochSource;
 use numpy::ndarray::Array2;
@@ -101,7 +101,7 @@ pub(super) fn prove_gaps<'py>(
 }
 
 /// The gap under which `prove_gap="auto"` proves a point's gap, at every row of `coeffs`
-/// (`ProveGap::Auto`: [`AUTO_PROOF_SHARE`] of the variation bound over the whole zone); NaN
+/// (`engine::auto_proof_below`, the rule `ProveGap::Auto` itself uses); NaN
 /// where the model has no bound (no proof is attempted there). Where a point's smallest gap
 /// found is at or above it, its evaluation under "auto" is the same as under "never".
 #[pyfunction]
@@ -117,9 +117,7 @@ pub(super) fn auto_proof_below<'py>(
             .enumerate()
             .map(|(i, c)| {
                 model.with_source(c, i, &error, |src| {
-                    Ok(src
-                        .variation()
-                        .map_or(f64::NAN, |b| AUTO_PROOF_SHARE * b.within(&[0.5; 3])))
+                    Ok(src.variation().map_or(f64::NAN, engine::auto_proof_below))
                 })
             })
             .collect::<CoreResult<Vec<f64>>>()

@@ -346,7 +346,7 @@ def refine(
     first = np.unique(first).astype(np.int64)
     evaluate(first)
     waited = np.zeros(table.label.size, bool)  # midpoints that waited once already
-    asking = [prove is not None and bounds is not None and coeffs is not None]
+    asking = prove is not None and bounds is not None and coeffs is not None
 
     def settle(cell: Cell, claims: Claims | None | str, children: list[Cell],
                split: list[Cell]) -> None:  # fmt: skip
@@ -357,10 +357,11 @@ def refine(
             leaves[cell] = claims
 
     def run(pending: list[Cell]) -> None:
+        nonlocal asking
         while pending:
             children: list[Cell] = []
             split: list[Cell] = []
-            wants: dict[int, float] | None = {} if asking[0] else None
+            wants: dict[int, float] | None = {} if asking else None
             waiting: list[Cell] = []
             for cell in pending:
                 claims = _decide(cell, table, coeffs, bounds, settings, wants)
@@ -371,7 +372,7 @@ def refine(
                 asked = np.array(sorted(wants), np.int64)
                 done = prove(asked, np.array([wants[int(q)] for q in asked]))
                 if asked.size >= PROOF_GIVE_UP and 2 * done < asked.size:
-                    asking[0] = False
+                    asking = False
             for cell in waiting:
                 settle(cell, _decide(cell, table, coeffs, bounds, settings), children, split)
             if children:

@@ -42,6 +42,11 @@ NEAR_FLOOR = 100.0
 PROOF_BUDGET_SHARE = 2
 
 
+def model_points(plan: SweepPlan, indices: NDArray[np.int64]) -> list[dict[str, float]]:
+    """The model's parameter points at flat grid indices (the coefficients mapping applied)."""
+    return [plan.model_point(plan.user_point(int(i))) for i in indices]
+
+
 class _Subset:
     """What :func:`toposweep.sweep._run` uses of a plan, over a list of grid points."""
 
@@ -51,8 +56,7 @@ class _Subset:
         self._plan, self._indices = plan, indices
 
     def points(self, start: int, stop: int) -> list[dict[str, float]]:
-        plan = self._plan
-        return [plan.model_point(plan.user_point(int(i))) for i in self._indices[start:stop]]
+        return model_points(self._plan, self._indices[start:stop])
 
 
 def _with_request(plan: SweepPlan, request: Any) -> SweepPlan:
@@ -104,7 +108,6 @@ class MapEvaluations:
         if plan.request.sampling.prove_gap == "auto":
             plain = dataclasses.replace(plan.request.sampling, prove_gap="never")
             self.plain = _with_request(plan, dataclasses.replace(plan.request, sampling=plain))
-        self.proofs = 0  # proofs asked for
 
     def _store(self, indices: NDArray[np.int64], raw: Mapping[str, NDArray[Any]]) -> None:
         n = self.plan.size
@@ -152,9 +155,7 @@ class MapEvaluations:
         """
         req = self.plan.request
         model = req.model
-        pts = [self.plan.model_point(self.plan.user_point(int(i))) for i in indices]
-        core, coeffs = model.prepare(pts)
-        self.proofs += len(indices)
+        core, coeffs = model.prepare(model_points(self.plan, indices))
         lower, code, _ = _core.prove_gaps(
             core,
             np.ascontiguousarray(coeffs, dtype=float),
@@ -195,8 +196,7 @@ class MapEvaluations:
         risky = near_floor | ((indirect > 0) & (indirect < 0.5 * direct))
         if not risky.any():
             return risky
-        pts = [self.plan.model_point(self.plan.user_point(int(i))) for i in indices[risky]]
-        core, coeffs = self.plan.request.model.prepare(pts)
+        core, coeffs = self.plan.request.model.prepare(model_points(self.plan, indices[risky]))
         below = _core.auto_proof_below(core, np.ascontiguousarray(coeffs, dtype=float))
         # (NaN: the model has no bound and the sweep proves nothing either)
         risky[risky] = direct[risky] < below

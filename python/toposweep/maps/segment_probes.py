@@ -22,7 +22,7 @@ from .. import _core
 from ..evaluation import Request, prepare_request, run_points
 from ..sampling import Sampling
 from ..tightbinding import TightBinding
-from .transitions import FullAsk, Probe, Search, SegmentResult
+from .transitions import FullAsk, Probe, Search, SegmentResult, step_all
 
 __all__ = ["coefficient_rows", "locate_segments", "probe_request", "probes_of", "run_probes"]
 
@@ -120,13 +120,12 @@ def locate_segments(
     for the s a search asks as :class:`FullAsk` (default: ``probe``).
     """
     results: list[list[SegmentResult]] = [[] for _ in searches]
-    asks: dict[int, list[float]] = {}
-    for j, gen in enumerate(searches):
-        try:
-            asks[j] = next(gen)
-        except StopIteration as done:
-            results[j] = done.value
-    while asks:
+    asks, done = step_all(dict(enumerate(searches)), lambda j: None)
+    while True:
+        for j, r in done.items():
+            results[j] = r
+        if not asks:
+            return results
         by_seg: dict[int, list[Probe]] = {}
         for kind in (False, True):
             req = (full or probe) if kind else probe
@@ -142,11 +141,4 @@ def locate_segments(
                     raise KeyboardInterrupt
             for (j, _), p in zip(order, found, strict=True):
                 by_seg.setdefault(j, []).append(p)
-        nxt: dict[int, list[float]] = {}
-        for j in sorted(asks):
-            try:
-                nxt[j] = searches[j].send(by_seg[j])
-            except StopIteration as done:
-                results[j] = done.value
-        asks = nxt
-    return results
+        asks, done = step_all({j: searches[j] for j in sorted(asks)}, by_seg.__getitem__)

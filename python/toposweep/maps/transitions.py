@@ -47,7 +47,7 @@ start compass searches from the smallest sampled gaps.
 from __future__ import annotations
 
 import math
-from collections.abc import Generator, Sequence
+from collections.abc import Callable, Generator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -382,22 +382,14 @@ def segment_search(
     def run(inner: list[Inner]) -> Generator[list[float], list[Probe], list[Any]]:
         """Advance searches inside the segment in lock step: one batch per round."""
         out: list[Any] = [None] * len(inner)
-        wants: dict[int, list[float]] = {}
-        for k, gen in enumerate(inner):
-            try:
-                wants[k] = next(gen)
-            except StopIteration as stop:
-                out[k] = stop.value
-        while wants:
+        wants, done = step_all(dict(enumerate(inner)), lambda k: None)
+        while True:
+            for k, v in done.items():
+                out[k] = v
+            if not wants:
+                return out
             yield from ask([x for w in wants.values() for x in w])
-            nxt = {}
-            for k in wants:
-                try:
-                    nxt[k] = inner[k].send(None)
-                except StopIteration as stop:
-                    out[k] = stop.value
-            wants = nxt
-        return out
+            wants, done = step_all({k: inner[k] for k in wants}, lambda k: None)
 
     g0, g1 = _gap(ends[0]), _gap(ends[1])
     if interior == 1 and not same_phase and 0 < g0 < math.inf and 0 < g1 < math.inf:
@@ -528,6 +520,25 @@ def segment_search(
     x = min(high, max(low, x))
     near = full[min(full, key=lambda y: abs(y - x))]  # κ of the direct gap's minimum there
     return [SegmentResult(x, low, high, _gap(near), near.kappa, 5, asked)]
+
+
+def step_all(
+    gens: dict[int, Generator[Any, Any, Any]], sent: Callable[[int], Any]
+) -> tuple[dict[int, Any], dict[int, Any]]:
+    """Advance every generator one step, sending ``sent(k)`` (None starts a fresh one).
+
+    Returns what the running ones ask next and what the finished ones returned, by key, in the
+    order of ``gens``: the one lock-step pattern of the searches and of
+    :func:`toposweep.maps.segment_probes.locate_segments`.
+    """
+    asks: dict[int, Any] = {}
+    done: dict[int, Any] = {}
+    for k, gen in gens.items():
+        try:
+            asks[k] = gen.send(sent(k))
+        except StopIteration as stop:
+            done[k] = stop.value
+    return asks, done
 
 
 def finish_statuses(results: list[SegmentResult], labels: Sequence[int]) -> None:
